@@ -1,0 +1,12 @@
+//! valuedrift: reinforcement-learning drift-diffusion models of reward-versus-effort choice.
+//!
+//! Researchers who study motivation fit these models to each participant's choices and response
+//! times. The crate is layered: trial data → model (registry of components) → likelihood →
+//! fitter → results → exports. Its numerical core, [`first_passage`], stands alone.
+//!
+//! Parameters estimated with this crate are research measurements, not diagnoses.
+#![deny(missing_docs)]
+
+pub mod cli;
+pub mod files;
+pub mod first_passage;

@@ -1,0 +1,131 @@
+//! The first-passage engine against high-precision references computed offline with mpmath
+//! (PyPI), by `tests/reference/generate_first_passage.py`: densities from the series of
+//! Navarro & Fuss (2009) summed at 40 digits, distribution functions from the Wald-sum and
+//! large-time representations (Blurton, Kesselmeier & Gondan 2012), and every across-trial
+//! variability integrated numerically by mpmath.quad (not by the closed forms used here).
+
+use std::path::Path;
+use valuedrift::first_passage::{
+    Bound, DiffusionParams, bound_probability, cdf, ln_density, mean_decision_time,
+    mean_decision_time_given,
+};
+
+fn read_table(name: &str) -> (Vec<String>, Vec<Vec<String>>) {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/reference")
+        .join(name);
+    let mut reader =
+        csv::Reader::from_path(&path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    let header = reader
+        .headers()
+        .unwrap()
+        .iter()
+        .map(str::to_string)
+        .collect();
+    let rows = reader
+        .records()
+        .map(|r| r.unwrap().iter().map(str::to_string).collect())
+        .collect();
+    (header, rows)
+}
+
+fn column(header: &[String], name: &str) -> usize {
+    header
+        .iter()
+        .position(|h| h == name)
+        .unwrap_or_else(|| panic!("no column {name}"))
+}
+
+#[test]
+fn log_density_and_cdf_match_mpmath_within_1e_8() {
+    let (header, rows) = read_table("first_passage_reference.csv");
+    assert!(rows.len() >= 500, "reference table has {} rows", rows.len());
+    let get =
+        |row: &Vec<String>, name: &str| -> f64 { row[column(&header, name)].parse().unwrap() };
+    let mut worst_density: f64 = 0.0;
+    let mut worst_cdf: f64 = 0.0;
+    let mut failures = Vec::new();
+    let mut below_1e300 = 0;
+    for row in &rows {
+        let params = DiffusionParams::new(
+            get(row, "drift"),
+            get(row, "boundary"),
+            get(row, "start"),
+            get(row, "ndt"),
+        )
+        .unwrap()
+        .with_variability(
+            get(row, "drift_sd"),
+            get(row, "start_range"),
+            get(row, "ndt_range"),
+        )
+        .unwrap();
+        let bound = Bound::parse(&row[column(&header, "bound")]).unwrap();
+        let rt = get(row, "rt");
+        let expected_ln = get(row, "log_density");
+        let expected_cdf = get(row, "cdf");
+        let ln_f = ln_density(rt, bound, &params);
+        let f = cdf(rt, bound, &params);
+        let d_ln = (ln_f - expected_ln).abs();
+        let d_cdf = (f - expected_cdf).abs();
+        if expected_ln < -690.0 {
+            below_1e300 += 1;
+        }
+        worst_density = worst_density.max(d_ln);
+        worst_cdf = worst_cdf.max(d_cdf);
+        if !(d_ln <= 1e-8 && d_cdf <= 1e-8) {
+            failures.push(format!(
+                "rt={rt} {bound} {params:?}: ln f {ln_f} vs {expected_ln}, cdf {f} vs {expected_cdf}"
+            ));
+        }
+    }
+    println!(
+        "worst |Δ ln f| = {worst_density:e}, worst |Δ cdf| = {worst_cdf:e} over {} rows",
+        rows.len()
+    );
+    assert!(
+        below_1e300 > 0,
+        "the table must include densities below 1e-300"
+    );
+    assert!(
+        failures.is_empty(),
+        "{} of {} rows off:\n{}",
+        failures.len(),
+        rows.len(),
+        failures.join("\n")
+    );
+}
+
+#[test]
+fn bound_probabilities_and_mean_decision_times_match_mpmath_integrals() {
+    // The reference obtains P(upper) and the mean decision times by numerically integrating the
+    // densities (mpmath.quad); here they come from the closed forms of Grasman, Wagenmakers &
+    // van der Maas (2009).
+    let (header, rows) = read_table("first_passage_moments.csv");
+    assert!(rows.len() >= 30);
+    let get =
+        |row: &Vec<String>, name: &str| -> f64 { row[column(&header, name)].parse().unwrap() };
+    for row in &rows {
+        let p = DiffusionParams::new(
+            get(row, "drift"),
+            get(row, "boundary"),
+            get(row, "start"),
+            0.0,
+        )
+        .unwrap();
+        let checks = [
+            ("p_upper", bound_probability(Bound::Upper, &p)),
+            ("mean_dt", mean_decision_time(&p)),
+            ("mean_dt_upper", mean_decision_time_given(Bound::Upper, &p)),
+            ("mean_dt_lower", mean_decision_time_given(Bound::Lower, &p)),
+        ];
+        for (name, value) in checks {
+            let expected = get(row, name);
+            let rel = ((value - expected) / expected).abs();
+            assert!(
+                rel < 1e-10,
+                "{name} for {p:?}: {value} vs {expected} (rel {rel:e})"
+            );
+        }
+    }
+}
