@@ -12,7 +12,8 @@ use std::path::{Path, PathBuf};
 pub struct InputError {
     /// The file that was read.
     pub file: PathBuf,
-    /// Line number in the file, counting the header as line 1.
+    /// Line number in the file, counting the header as line 1. Parquet files have no lines: for
+    /// them this is the 1-based data row, and the message says "row".
     pub line: Option<u64>,
     /// Column name.
     pub column: Option<String>,
@@ -46,7 +47,7 @@ impl fmt::Display for InputError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         write!(f, "{}", self.file.display())?;
         if let Some(line) = self.line {
-            write!(f, " line {line}")?;
+            write!(f, " {} {line}", line_unit(&self.file))?;
         }
         if let Some(column) = &self.column {
             write!(f, ", column {column}")?;
@@ -56,6 +57,15 @@ impl fmt::Display for InputError {
 }
 
 impl std::error::Error for InputError {}
+
+/// "row" for Parquet files (which have no lines), "line" for text files.
+fn line_unit(file: &Path) -> &'static str {
+    let parquet = file
+        .extension()
+        .and_then(|e| e.to_str())
+        .is_some_and(|e| e.eq_ignore_ascii_case("parquet"));
+    if parquet { "row" } else { "line" }
+}
 
 /// Writes `path` through `fill`, atomically: the content goes to a temporary file in the same
 /// folder, which is renamed to `path` only if `fill` succeeds. The folder is created if missing.
@@ -71,6 +81,7 @@ pub fn write_atomically<E>(
     let mut tmp = tempfile::Builder::new()
         .prefix(".valuedrift-")
         .suffix(".tmp")
+        .permissions(output_permissions())
         .tempfile_in(&dir)
         .map_err(|e| WriteError::Io(path.to_path_buf(), e))?;
     {
@@ -94,4 +105,70 @@ pub enum WriteError<E> {
     /// Creating, writing or renaming the file failed; nothing was left at the destination.
     #[error("cannot write {path}: {source}", path = .0.display(), source = .1)]
     Io(PathBuf, std::io::Error),
+}
+
+/// Several output files written as one: each is staged under a temporary name in its folder and
+/// all are renamed into place by [`OutputSet::commit`]. Dropping the set without committing
+/// removes the staged files, so a run that fails part-way leaves no output behind.
+#[derive(Default)]
+pub struct OutputSet {
+    staged: Vec<(tempfile::NamedTempFile, PathBuf)>,
+}
+
+impl OutputSet {
+    /// An empty set.
+    pub fn new() -> Self {
+        OutputSet::default()
+    }
+
+    /// Stages `path` with the content written by `fill`.
+    pub fn stage<E: std::fmt::Display>(
+        &mut self,
+        path: &Path,
+        fill: impl FnOnce(&mut dyn Write) -> Result<(), E>,
+    ) -> Result<(), String> {
+        let dir = match path.parent() {
+            Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+            _ => PathBuf::from("."),
+        };
+        let io = |e: std::io::Error| format!("cannot write {}: {e}", path.display());
+        std::fs::create_dir_all(&dir).map_err(io)?;
+        let mut tmp = tempfile::Builder::new()
+            .prefix(".valuedrift-")
+            .suffix(".tmp")
+            .permissions(output_permissions())
+            .tempfile_in(&dir)
+            .map_err(io)?;
+        {
+            let mut buffered = std::io::BufWriter::new(tmp.as_file_mut());
+            fill(&mut buffered).map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+            buffered.flush().map_err(io)?;
+        }
+        self.staged.push((tmp, path.to_path_buf()));
+        Ok(())
+    }
+
+    /// Renames every staged file into place.
+    pub fn commit(self) -> Result<(), String> {
+        for (tmp, path) in self.staged {
+            tmp.persist(&path)
+                .map_err(|e| format!("cannot write {}: {}", path.display(), e.error))?;
+        }
+        Ok(())
+    }
+}
+
+/// Ordinary file permissions for outputs (the temporary files would otherwise stay owner-only).
+fn output_permissions() -> std::fs::Permissions {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        std::fs::Permissions::from_mode(0o644)
+    }
+    #[cfg(not(unix))]
+    {
+        std::fs::metadata(".")
+            .map(|m| m.permissions())
+            .unwrap_or_else(|_| unreachable!())
+    }
 }

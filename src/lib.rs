@@ -8,5 +8,11 @@
 #![deny(missing_docs)]
 
 pub mod cli;
+pub mod data;
 pub mod files;
 pub mod first_passage;
+pub mod fit;
+pub mod likelihood;
+pub mod model;
+pub mod results;
+pub mod simulate;

@@ -31,7 +31,7 @@ mod series;
 pub use density::{DensityGradient, GradientUnavailable, ln_density, ln_density_with_gradient};
 pub use distribution::{
     bound_probability, cdf, ln_bound_probability, ln_cdf, ln_prob_no_response, ln_survival,
-    survival,
+    ln_survival_with_gradient, survival,
 };
 pub use moments::{mean_decision_time, mean_decision_time_given, mean_response_time};
 pub use normal::ln_normal_cdf;

@@ -110,20 +110,31 @@ impl TimeShape {
     }
 }
 
-/// ln ∫_lo^hi exp(ln_h(s)) ds for a first-passage integrand, lo ≥ 0, hi ≤ ∞.
-///
-/// Substitutes s = e^y (ds = s dy) and lays 10-point Gauss–Legendre panels in y whose width keeps
-/// the change of the log-integrand per panel below 5 nats (from the shape in `shape`), at most 1.
-/// An open end (lo = 0 or hi = ∞) is cut where the integrand has fallen 45 nats below its value
-/// at the nearest interior point of interest, which bounds the neglected mass near 1e-19 relative.
+/// ln ∫_lo^hi exp(ln_h(s)) ds for a first-passage integrand, lo ≥ 0, hi ≤ ∞, on the nodes of
+/// [`time_nodes`].
 pub(crate) fn ln_integrate_time(
     lo: f64,
     hi: f64,
     shape: TimeShape,
     mut ln_h: impl FnMut(f64) -> f64,
 ) -> f64 {
+    let terms: Vec<f64> = time_nodes(lo, hi, shape)
+        .into_iter()
+        .map(|(s, ln_weight)| ln_weight + ln_h(s))
+        .collect();
+    ln_sum_exp(&terms)
+}
+
+/// Quadrature nodes s_i and log-weights for ∫_lo^hi h(s) ds ≈ Σ e^{ln_weight_i}·h(s_i).
+///
+/// Substitutes s = e^y (ds = s dy) and lays 10-point Gauss–Legendre panels in y whose width keeps
+/// the change of the log-integrand per panel below 5 nats (from the shape in `shape`), at most 1.
+/// An open end (lo = 0 or hi = ∞) is cut where the integrand has fallen 45 nats below its value
+/// at the nearest interior point of interest, which bounds the neglected mass near 1e-19 relative.
+pub(crate) fn time_nodes(lo: f64, hi: f64, shape: TimeShape) -> Vec<(f64, f64)> {
+    let mut nodes = Vec::new();
     if !positive(hi - lo) {
-        return f64::NEG_INFINITY;
+        return nodes;
     }
     let mode = (2.0 * shape.c / 3.0).max(f64::MIN_POSITIVE);
     let reference = mode.clamp(lo, hi.min(f64::MAX));
@@ -140,7 +151,6 @@ pub(crate) fn ln_integrate_time(
     };
     let (y_lo, y_hi) = (s_lo.ln(), s_hi.ln());
     let rule = gauss_legendre();
-    let mut terms = Vec::with_capacity(64 * NODES);
     let mut y = y_lo;
     while y < y_hi {
         let probe_end = (y + MAX_LOG_TIME_PANEL).min(y_hi);
@@ -158,11 +168,11 @@ pub(crate) fn ln_integrate_time(
         let mid = y + 0.5 * width;
         for &(x, weight) in rule {
             let yy = mid + 0.5 * width * x;
-            terms.push((0.5 * width * weight).ln() + yy + ln_h(yy.exp()));
+            nodes.push((yy.exp(), (0.5 * width * weight).ln() + yy));
         }
         y += width;
     }
-    ln_sum_exp(&terms)
+    nodes
 }
 
 #[cfg(test)]

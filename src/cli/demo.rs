@@ -1,0 +1,125 @@
+//! `valuedrift demo`: the main job on the embedded demo study.
+
+use super::fit::{FitRun, print_summary};
+use crate::data::ColumnMap;
+use crate::fit::FitOptions;
+use crate::model::built_in_models;
+use std::collections::BTreeMap;
+use std::path::Path;
+
+/// The demo study's trials (simulated with `valuedrift simulate`, see demo-data/README.md).
+const TRIALS: &str = include_str!("../../demo-data/orchard_trials.csv");
+/// The values that generated them.
+const GENERATING: &str = include_str!("../../demo-data/generating_values.csv");
+
+fn median(mut xs: Vec<f64>) -> f64 {
+    xs.sort_by(f64::total_cmp);
+    let n = xs.len();
+    if n == 0 {
+        f64::NAN
+    } else if n % 2 == 1 {
+        xs[n / 2]
+    } else {
+        0.5 * (xs[n / 2 - 1] + xs[n / 2])
+    }
+}
+
+/// Fits every built-in model to the demo study, prints the summary and writes the outputs.
+pub fn run(
+    out: &Path,
+    threads: usize,
+    command_line: &[String],
+) -> Result<(), Box<dyn std::error::Error>> {
+    let dir = tempfile::tempdir()?;
+    let data = dir.path().join("demo_trials.csv");
+    std::fs::write(&data, TRIALS)?;
+    let names: Vec<String> = built_in_models().into_iter().map(|m| m.name).collect();
+    println!(
+        "valuedrift demo: the orchard study (invented): 2 cohorts x 20 participants x 240 trials,"
+    );
+    println!(
+        "choosing between plots that differ in harvest probability and effort; {} models.",
+        names.len()
+    );
+    let start = std::time::Instant::now();
+    let fitted = super::fit::run(
+        FitRun {
+            data: &data,
+            models: &names,
+            out,
+            options: FitOptions::default(),
+            threads,
+            columns: ColumnMap::default(),
+        },
+        command_line,
+    )?;
+    println!(
+        "fitted in {:.1} s; outputs in {}",
+        start.elapsed().as_secs_f64(),
+        out.display()
+    );
+    println!();
+    print_summary(&fitted);
+
+    // Per-cohort medians of the reference model's estimates beside the generating values.
+    let mut generating: BTreeMap<(String, String), Vec<f64>> = BTreeMap::new();
+    let mut lines = GENERATING.lines();
+    let header: Vec<&str> = lines.next().unwrap_or("").split(',').collect();
+    for line in lines {
+        let cells: Vec<&str> = line.split(',').collect();
+        for (k, name) in header.iter().enumerate().skip(2) {
+            if let Some(x) = cells.get(k).and_then(|c| c.parse::<f64>().ok()) {
+                generating
+                    .entry((cells[1].to_string(), name.to_string()))
+                    .or_default()
+                    .push(x);
+            }
+        }
+    }
+    println!();
+    println!("gainloss-linear, per-cohort medians: estimate (generating value)");
+    let groups: Vec<String> = {
+        let mut g: Vec<String> = fitted
+            .table
+            .subjects
+            .iter()
+            .map(|s| s.group.clone())
+            .collect();
+        g.sort();
+        g.dedup();
+        g
+    };
+    print!("{:<16}", "parameter");
+    for g in &groups {
+        print!(" {g:>22}");
+    }
+    println!();
+    for name in header.iter().skip(2) {
+        print!("{name:<16}");
+        for g in &groups {
+            let estimates: Vec<f64> = fitted
+                .fits
+                .iter()
+                .filter(|f| f.model == "gainloss-linear" && &f.group == g)
+                .filter_map(|f| {
+                    f.estimates
+                        .iter()
+                        .find(|e| e.name == *name)
+                        .map(|e| e.estimate)
+                })
+                .collect();
+            let truth = generating
+                .get(&(g.clone(), name.to_string()))
+                .cloned()
+                .unwrap_or_default();
+            print!(
+                " {:>22}",
+                format!("{:.3} ({:.3})", median(estimates), median(truth))
+            );
+        }
+        println!();
+    }
+    println!();
+    println!("{}", super::RESEARCH_CAUTION);
+    Ok(())
+}

@@ -1,0 +1,228 @@
+//! `valuedrift fit`: per-subject fits of one or more models, with tidy outputs and a run record.
+
+use crate::data::{ColumnMap, TrialTable, read_trials};
+use crate::files::OutputSet;
+use crate::fit::{FitOptions, Skipped, SubjectFit, fit_table};
+use crate::model::{Model, load_model};
+use crate::results::{parameters_table, summary_table};
+use indicatif::{ProgressBar, ProgressStyle};
+use sha2::{Digest, Sha256};
+use std::collections::HashMap;
+use std::path::Path;
+
+/// Everything `fit` needs, resolved from the command line.
+pub struct FitRun<'a> {
+    /// Trial table.
+    pub data: &'a Path,
+    /// Model names or paths.
+    pub models: &'a [String],
+    /// Output folder.
+    pub out: &'a Path,
+    /// Fit settings.
+    pub options: FitOptions,
+    /// Threads (0: all cores).
+    pub threads: usize,
+    /// Column mapping.
+    pub columns: ColumnMap,
+}
+
+/// Loads models by name or path.
+pub fn load_models(names: &[String]) -> Result<Vec<Model>, Box<dyn std::error::Error>> {
+    let mut models = Vec::new();
+    for name in names {
+        models.push(load_model(name.trim())?);
+    }
+    Ok(models)
+}
+
+/// A progress bar over `total` fits, with elapsed and remaining time.
+pub fn progress_bar(total: usize, what: &str) -> ProgressBar {
+    let bar = ProgressBar::new(total as u64);
+    bar.set_style(
+        ProgressStyle::with_template(&format!(
+            "{what} {{bar:30}} {{pos}}/{{len}} [{{elapsed_precise}} elapsed, {{eta}} left]"
+        ))
+        .expect("valid template"),
+    );
+    bar
+}
+
+/// The outcome of fitting a table.
+pub struct Fitted {
+    /// The table that was fitted.
+    pub table: TrialTable,
+    /// The models.
+    pub models: Vec<Model>,
+    /// Successful fits in (model, subject) order.
+    pub fits: Vec<SubjectFit>,
+    /// Pairs that could not be fitted.
+    pub skipped: Vec<Skipped>,
+}
+
+/// Reads, fits and writes; returns what was fitted for the caller's summary.
+pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn std::error::Error>> {
+    let table = read_trials(run.data, &run.columns)?;
+    let models = load_models(run.models)?;
+    let bar = progress_bar(models.len() * table.subjects.len(), "fitting");
+    let (fits, skipped) = fit_table(&models, &table, &run.options, run.threads, &|| bar.inc(1))?;
+    bar.finish_and_clear();
+    if fits.is_empty() {
+        let reasons: Vec<String> = skipped
+            .iter()
+            .take(3)
+            .map(|s| format!("{}: {}", s.model, s.reason))
+            .collect();
+        return Err(format!("no subject could be fitted ({})", reasons.join("; ")).into());
+    }
+    let bytes = std::fs::read(run.data)?;
+    let record = run_record(
+        command_line,
+        &run.options,
+        run.data,
+        &bytes,
+        &models,
+        &fits,
+        &skipped,
+    );
+    let mut outputs = OutputSet::new();
+    parameters_table(&fits).stage_both(&mut outputs, run.out, "parameters")?;
+    summary_table(&fits).stage_both(&mut outputs, run.out, "fit_summary")?;
+    outputs.stage(&run.out.join("run.json"), |w| {
+        serde_json::to_writer_pretty(w, &record)
+    })?;
+    outputs.commit()?;
+    Ok(Fitted {
+        table,
+        models,
+        fits,
+        skipped,
+    })
+}
+
+/// The run record: enough to reproduce a result.
+pub fn run_record(
+    command_line: &[String],
+    options: &FitOptions,
+    data: &Path,
+    bytes: &[u8],
+    models: &[Model],
+    fits: &[SubjectFit],
+    skipped: &[Skipped],
+) -> serde_json::Value {
+    serde_json::json!({
+        "tool": "valuedrift",
+        "version": env!("CARGO_PKG_VERSION"),
+        "command_line": command_line,
+        "seed": options.seed,
+        "starts": options.starts,
+        "max_iterations": options.max_iterations,
+        "deadline": options.deadline,
+        "data": {
+            "path": data.display().to_string(),
+            "sha256": format!("{:x}", Sha256::digest(bytes)),
+        },
+        "models": models.iter().map(|m| serde_json::json!({
+            "name": m.name,
+            "origin": m.origin,
+            "definition": m.text,
+        })).collect::<Vec<_>>(),
+        "fits": fits.len(),
+        "skipped": skipped.iter().map(|s| format!("{}: {}", s.model, s.reason)).collect::<Vec<_>>(),
+        "caution": super::RESEARCH_CAUTION,
+    })
+}
+
+/// Prints per model: subjects fitted, summed BIC, subjects won by BIC per group, convergence.
+///
+/// Wins are counted among the models that use response times (their likelihoods are of the same
+/// data); choices-only models are listed apart, since their BIC is not comparable.
+pub fn print_summary(fitted: &Fitted) {
+    let groups: Vec<String> = {
+        let mut g: Vec<String> = fitted
+            .table
+            .subjects
+            .iter()
+            .map(|s| s.group.clone())
+            .collect();
+        g.sort();
+        g.dedup();
+        g
+    };
+    let comparable = |name: &str| {
+        fitted
+            .models
+            .iter()
+            .any(|m| m.name == name && m.uses_response_times())
+    };
+    // The comparable model with the lowest BIC per subject.
+    let mut winners: HashMap<(&str, &str), (&str, f64)> = HashMap::new();
+    for f in fitted.fits.iter().filter(|f| comparable(&f.model)) {
+        let entry = winners
+            .entry((f.subject.as_str(), f.group.as_str()))
+            .or_insert((f.model.as_str(), f64::INFINITY));
+        if f.bic < entry.1 {
+            *entry = (f.model.as_str(), f.bic);
+        }
+    }
+    let group_header: String = groups
+        .iter()
+        .map(|g| {
+            format!(
+                " {:>14}",
+                format!("wins:{}", if g.is_empty() { "all" } else { g })
+            )
+        })
+        .collect();
+    println!(
+        "{:<26} {:>8} {:>12}{group_header} {:>10}",
+        "model (BIC, Schwarz 1978)", "subjects", "summed BIC", "converged"
+    );
+    for model in &fitted.models {
+        let fits: Vec<&SubjectFit> = fitted
+            .fits
+            .iter()
+            .filter(|f| f.model == model.name)
+            .collect();
+        if fits.is_empty() {
+            let n = fitted
+                .skipped
+                .iter()
+                .filter(|s| s.model == model.name)
+                .count();
+            let why = fitted
+                .skipped
+                .iter()
+                .find(|s| s.model == model.name)
+                .map_or(String::new(), |s| s.reason.message.clone());
+            println!("{:<26} not fitted for {n} subjects: {why}", model.name);
+            continue;
+        }
+        let bic: f64 = fits.iter().map(|f| f.bic).sum();
+        let converged = fits.iter().filter(|f| f.converged).count();
+        let wins: String = groups
+            .iter()
+            .map(|g| {
+                if !model.uses_response_times() {
+                    return format!(" {:>14}", "-");
+                }
+                let n = winners
+                    .iter()
+                    .filter(|((_, group), (m, _))| group == g && *m == model.name)
+                    .count();
+                format!(" {n:>14}")
+            })
+            .collect();
+        println!(
+            "{:<26} {:>8} {:>12.1}{wins} {:>10}",
+            model.name,
+            fits.len(),
+            bic,
+            format!("{converged}/{}", fits.len())
+        );
+    }
+    if fitted.models.iter().any(|m| !m.uses_response_times()) {
+        println!(
+            "(models marked '-' use choices only: their BIC is not comparable with the others)"
+        );
+    }
+}

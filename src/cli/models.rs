@@ -1,0 +1,51 @@
+//! `valuedrift models`: the built-in models with their components, equations and parameters.
+
+use crate::model::{Model, built_in_models, load_model};
+
+fn describe(model: &Model) {
+    println!("{}  ({})", model.name, model.origin);
+    if !model.description.is_empty() {
+        println!("  {}", model.description);
+    }
+    let kinds = ["learning", "cost", "drift", "choice"];
+    for ((kind, name), equation) in kinds.iter().zip(model.component_names).zip(model.equations) {
+        if name != "-" {
+            println!("  {kind:<9} {name:<12} {equation}");
+        }
+    }
+    for p in &model.parameters {
+        match p.fixed {
+            Some(x) => println!("    {:<20} fixed at {x}", p.name),
+            None => println!(
+                "    {:<20} in [{}, {}], starts in [{}, {}]{}{}",
+                p.name,
+                p.lower,
+                p.upper,
+                p.start_range.0,
+                p.start_range.1,
+                p.prior
+                    .as_ref()
+                    .map_or(String::new(), |pr| format!(", prior {pr:?}")),
+                if p.description.is_empty() {
+                    String::new()
+                } else {
+                    format!(" — {}", p.description)
+                }
+            ),
+        }
+    }
+}
+
+/// Lists every built-in model, or describes one model (built-in name or file path).
+pub fn run(name: Option<&str>) -> Result<(), Box<dyn std::error::Error>> {
+    match name {
+        Some(n) => describe(&load_model(n)?),
+        None => {
+            for model in built_in_models() {
+                describe(&model);
+                println!();
+            }
+        }
+    }
+    Ok(())
+}

@@ -1,0 +1,121 @@
+//! Trial data: one row per trial, read from CSV, TSV or Parquet and checked row by row.
+//!
+//! The table is sorted by subject, then trial. Columns (names can be remapped with
+//! [`ColumnMap`] without editing the file):
+//!
+//! | column | type | required | meaning |
+//! |---|---|---|---|
+//! | `subject` | text | yes | participant label (de-identified) |
+//! | `group` | text | no | cohort or condition label |
+//! | `run` | text | no | scanner run or block label |
+//! | `trial` | integer | yes | trial number, increasing within subject |
+//! | `option_a`, `option_b` | text | no | identity of the option offered on each side, whose value is learned; default: fixed identities `a` and `b` |
+//! | `effort_a`, `effort_b` | number ≥ 0 | yes | effort demanded by each option |
+//! | `reward_a`, `reward_b` | number | no | offered magnitudes, for tasks where value is shown |
+//! | `choice` | `a`, `b` or empty | yes | the option chosen; empty for no response |
+//! | `rt` | seconds > 0 or empty | yes | response time; empty for no response |
+//! | `outcome` | number or empty | no | what the chosen option delivered; empty when no feedback |
+//! | `onset`, `outcome_onset` | seconds ≥ 0 | no | from run start, for imaging exports |
+//! | `outcome_if_a`, `outcome_if_b` | number | no | what each option would deliver (designs for simulation) |
+
+mod read;
+mod write;
+
+pub use read::{ColumnMap, read_trials};
+pub use write::write_trials;
+
+/// The option chosen on a trial. Choosing `a` is the upper bound of the diffusion.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Choice {
+    /// The option shown as `a`.
+    A,
+    /// The option shown as `b`.
+    B,
+}
+
+impl Choice {
+    /// `"a"` or `"b"`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Choice::A => "a",
+            Choice::B => "b",
+        }
+    }
+}
+
+/// One trial of one subject.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Trial {
+    /// Trial number from the file.
+    pub trial: i64,
+    /// Run label (empty string when the file has no `run` column).
+    pub run: String,
+    /// Index into [`Subject::options`] of the option offered as `a`.
+    pub option_a: usize,
+    /// Index into [`Subject::options`] of the option offered as `b`.
+    pub option_b: usize,
+    /// Effort demanded by option a (≥ 0).
+    pub effort_a: f64,
+    /// Effort demanded by option b (≥ 0).
+    pub effort_b: f64,
+    /// Offered magnitude of option a, where the task shows it.
+    pub reward_a: Option<f64>,
+    /// Offered magnitude of option b, where the task shows it.
+    pub reward_b: Option<f64>,
+    /// The choice, or `None` for no response.
+    pub choice: Option<Choice>,
+    /// Response time in seconds (`Some` exactly when `choice` is).
+    pub rt: Option<f64>,
+    /// Outcome delivered by the chosen option, or `None` without feedback.
+    pub outcome: Option<f64>,
+    /// Trial onset in seconds from run start.
+    pub onset: Option<f64>,
+    /// Outcome onset in seconds from run start.
+    pub outcome_onset: Option<f64>,
+    /// What option a would deliver if chosen (simulation designs).
+    pub outcome_if_a: Option<f64>,
+    /// What option b would deliver if chosen (simulation designs).
+    pub outcome_if_b: Option<f64>,
+}
+
+/// All trials of one subject, in file order.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Subject {
+    /// Participant label.
+    pub id: String,
+    /// Group label (empty string when the file has no `group` column).
+    pub group: String,
+    /// Option identities in order of first appearance; trials refer to them by index.
+    pub options: Vec<String>,
+    /// The trials.
+    pub trials: Vec<Trial>,
+}
+
+impl Subject {
+    /// Response times of the trials with a response.
+    pub fn response_times(&self) -> impl Iterator<Item = f64> + '_ {
+        self.trials.iter().filter_map(|t| t.rt)
+    }
+
+    /// Number of trials with a response.
+    pub fn n_responses(&self) -> usize {
+        self.trials.iter().filter(|t| t.choice.is_some()).count()
+    }
+}
+
+/// A whole trial table.
+#[derive(Clone, Debug, PartialEq)]
+pub struct TrialTable {
+    /// Subjects in file order.
+    pub subjects: Vec<Subject>,
+    /// Which optional columns were present (by canonical name).
+    pub present: Vec<String>,
+}
+
+impl TrialTable {
+    /// True when the canonical column `name` was present in the file.
+    pub fn has_column(&self, name: &str) -> bool {
+        self.present.iter().any(|c| c == name)
+    }
+}

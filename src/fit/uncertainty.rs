@@ -1,0 +1,156 @@
+//! Observed information, standard errors and intervals at the optimum.
+
+use super::optimise::StartResult;
+use super::{ParameterEstimate, SubjectFit};
+use crate::likelihood::SubjectLikelihood;
+use crate::model::Transform;
+use nalgebra::DMatrix;
+
+/// Relative distance to a finite bound below which an estimate counts as at the bound.
+const AT_BOUND: f64 = 1e-4;
+
+/// Largest |gradient| (unconstrained scale) accepted as converged.
+const GRADIENT_CONVERGED: f64 = 1e-3;
+
+/// 97.5 % quantile of the standard normal distribution.
+const Z_975: f64 = 1.959_963_984_540_054;
+
+fn at_bound(x: f64, transform: &Transform) -> bool {
+    match *transform {
+        Transform::Logistic { lower, upper } => {
+            let r = (x - lower) / (upper - lower);
+            !(AT_BOUND..=1.0 - AT_BOUND).contains(&r)
+        }
+        Transform::Exp { lower } => x - lower < AT_BOUND * lower.abs().max(1.0),
+        Transform::ExpBelow { upper } => upper - x < AT_BOUND * upper.abs().max(1.0),
+        Transform::Identity => false,
+    }
+}
+
+/// Hessian of the negative log-posterior by central differences of its exact gradient,
+/// step 1e-5·max(1, |θ_j|), symmetrised (common practice; Nocedal & Wright 2006, §8.1).
+fn hessian(likelihood: &SubjectLikelihood<'_>, theta: &[f64]) -> DMatrix<f64> {
+    let n = theta.len();
+    let mut h = DMatrix::zeros(n, n);
+    for j in 0..n {
+        let step = 1e-5 * theta[j].abs().max(1.0);
+        let mut up = theta.to_vec();
+        let mut down = theta.to_vec();
+        up[j] += step;
+        down[j] -= step;
+        let g_up = likelihood.evaluate(&up).gradient;
+        let g_down = likelihood.evaluate(&down).gradient;
+        for i in 0..n {
+            h[(i, j)] = -(g_up[i] - g_down[i]) / (2.0 * step);
+        }
+    }
+    (&h + h.transpose()) * 0.5
+}
+
+/// Builds the fit record from the best start.
+pub fn summarise(
+    likelihood: &SubjectLikelihood<'_>,
+    best: &StartResult,
+    starts_at_best: usize,
+    starts: usize,
+) -> SubjectFit {
+    let model = likelihood.model();
+    let subject = likelihood.subject();
+    let theta = &best.theta;
+    let evaluation = likelihood.evaluate(theta);
+    let natural = likelihood.natural(theta);
+    let transforms = likelihood.transforms();
+    let free = model.free_slots();
+    let bounded: Vec<bool> = free
+        .iter()
+        .zip(transforms)
+        .map(|(&slot, t)| at_bound(natural[slot], t))
+        .collect();
+    let interior: Vec<usize> = (0..free.len()).filter(|&j| !bounded[j]).collect();
+    let full = hessian(likelihood, theta);
+    let sub = DMatrix::from_fn(interior.len(), interior.len(), |a, b| {
+        full[(interior[a], interior[b])]
+    });
+    let covariance = sub.clone().cholesky().map(|c| c.inverse());
+    let hessian_ok = covariance.is_some() && sub.iter().all(|x| x.is_finite());
+    let mut covariance_theta = None;
+    let mut variance = vec![None; free.len()];
+    if let Some(cov) = &covariance {
+        for (a, &j) in interior.iter().enumerate() {
+            variance[j] = Some(cov[(a, a)]);
+        }
+        if interior.len() == free.len() {
+            covariance_theta = Some(
+                (0..free.len())
+                    .map(|i| (0..free.len()).map(|k| cov[(i, k)]).collect())
+                    .collect(),
+            );
+        }
+    }
+    let mut estimates = Vec::with_capacity(model.parameters.len());
+    for (slot, spec) in model.parameters.iter().enumerate() {
+        let Some(j) = free.iter().position(|&s| s == slot) else {
+            estimates.push(ParameterEstimate {
+                name: spec.name.clone(),
+                estimate: natural[slot],
+                std_error: None,
+                interval: None,
+                at_bound: false,
+                fixed: true,
+            });
+            continue;
+        };
+        let t = transforms[j];
+        let (std_error, interval) = match variance[j] {
+            Some(v) if v > 0.0 && v.is_finite() => {
+                let se_theta = v.sqrt();
+                // Delta method: SE(x) = |dx/dθ|·SE(θ).
+                let h = 1e-6 * theta[j].abs().max(1.0);
+                let slope = (t.natural(theta[j] + h) - t.natural(theta[j] - h)) / (2.0 * h);
+                (
+                    Some(slope.abs() * se_theta),
+                    Some((
+                        t.natural(theta[j] - Z_975 * se_theta),
+                        t.natural(theta[j] + Z_975 * se_theta),
+                    )),
+                )
+            }
+            _ => (None, None),
+        };
+        estimates.push(ParameterEstimate {
+            name: spec.name.clone(),
+            estimate: natural[slot],
+            std_error,
+            interval,
+            at_bound: bounded[j],
+            fixed: false,
+        });
+    }
+    let gradient_norm = evaluation
+        .gradient
+        .iter()
+        .fold(0.0_f64, |m, g| m.max(g.abs()));
+    let k = free.len() as f64;
+    let n = likelihood.n_observations() as f64;
+    let ln_l = evaluation.ln_likelihood;
+    SubjectFit {
+        subject: subject.id.clone(),
+        group: subject.group.clone(),
+        model: model.name.clone(),
+        n_trials: likelihood.n_observations(),
+        n_params: free.len(),
+        log_likelihood: ln_l,
+        log_prior: evaluation.ln_prior,
+        aic: 2.0 * k - 2.0 * ln_l,
+        bic: k * n.ln() - 2.0 * ln_l,
+        starts_at_best,
+        starts,
+        converged: best.solver_converged && gradient_norm < GRADIENT_CONVERGED,
+        hessian_ok,
+        termination: best.termination.clone(),
+        gradient_norm,
+        estimates,
+        theta: theta.clone(),
+        covariance_theta,
+    }
+}

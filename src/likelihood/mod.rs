@@ -1,0 +1,360 @@
+//! The per-subject likelihood: the learning recursion run over a subject's trials, each trial's
+//! choice (and response time) scored by the model's choice stage, with the exact gradient with
+//! respect to the unconstrained free parameters.
+//!
+//! Per trial, with values before the trial's outcome (see [`SubjectLikelihood::trace`]):
+//! SV_i = cost(Q(option_i), effort_i), signal = drift(SV_a − SV_b) (or SV_a − SV_b for stages
+//! without a drift mapping), ln L += ln P(choice, rt | signal); then, after a response with
+//! feedback r, Q(chosen) ← rule(Q(chosen), r) and, with forgetting, every other option
+//! Q ← Q + forget_rate·(initial_value − Q).
+
+use crate::data::{Choice, Subject, Trial};
+use crate::model::components::{Observation, SubjectContext};
+use crate::model::dual::{D, MAX_FREE, chain, constant, gradient};
+use crate::model::{Model, Transform};
+
+/// The data do not suit the model.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+#[error("subject {subject}: {message}")]
+pub struct DataMismatch {
+    /// Subject label.
+    pub subject: String,
+    /// What is missing.
+    pub message: String,
+}
+
+/// Log-likelihood (plus log-prior) and its gradient at one point of the unconstrained scale.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Evaluation {
+    /// ln L: the sum of per-trial log-probabilities.
+    pub ln_likelihood: f64,
+    /// ln of the product of declared prior densities at the natural values (0 without priors).
+    pub ln_prior: f64,
+    /// ∂(ln L + ln prior)/∂θ for the free parameters θ (unconstrained scale).
+    pub gradient: Vec<f64>,
+}
+
+/// Every model quantity of one trial, from [`SubjectLikelihood::trace`].
+#[derive(Clone, Debug, PartialEq)]
+pub struct TrialTrace {
+    /// Learned (or offered) value of option a before the trial's outcome.
+    pub value_a: f64,
+    /// Value of option b.
+    pub value_b: f64,
+    /// Subjective value of a after the effort cost.
+    pub subjective_value_a: f64,
+    /// Subjective value of b.
+    pub subjective_value_b: f64,
+    /// Drift rate (or softmax signal).
+    pub signal: f64,
+    /// Prediction error at the outcome (None without response or feedback, or without learning).
+    pub prediction_error: Option<f64>,
+    /// ln P(observation) of the trial, None when it carries no information.
+    pub ln_likelihood: Option<f64>,
+    /// Model probability of choosing a.
+    pub probability_a: f64,
+    /// Expected decision time and response time, where the model has time.
+    pub expected_times: Option<(f64, f64)>,
+}
+
+/// One subject's data bound to one model.
+pub struct SubjectLikelihood<'a> {
+    model: &'a Model,
+    subject: &'a Subject,
+    context: SubjectContext,
+    /// Slot in the model's parameter list of each free parameter.
+    free: Vec<usize>,
+    /// Transform of each free parameter (subject-specific for ndt).
+    transforms: Vec<Transform>,
+}
+
+/// Upper limit of ndt relative to the fastest response: the density is zero below ndt.
+const NDT_BELOW_FASTEST: f64 = 0.999;
+
+impl<'a> SubjectLikelihood<'a> {
+    /// Binds a subject to a model; `deadline` (seconds) makes trials without response count as
+    /// "no bound reached by the deadline".
+    pub fn new(
+        model: &'a Model,
+        subject: &'a Subject,
+        deadline: Option<f64>,
+    ) -> Result<Self, DataMismatch> {
+        let mismatch = |message: String| DataMismatch {
+            subject: subject.id.clone(),
+            message,
+        };
+        if subject.n_responses() == 0 {
+            return Err(mismatch("no trial with a response".into()));
+        }
+        let rts: Vec<f64> = subject.response_times().collect();
+        if model.uses_response_times() && rts.len() < subject.n_responses() {
+            return Err(mismatch(format!(
+                "model {} uses response times, but {} responses have none",
+                model.name,
+                subject.n_responses() - rts.len()
+            )));
+        }
+        if !model.learns()
+            && let Some(t) = subject
+                .trials
+                .iter()
+                .find(|t| t.reward_a.is_none() || t.reward_b.is_none())
+        {
+            return Err(mismatch(format!(
+                "model {} uses offered values, but trial {} has no reward_a/reward_b",
+                model.name, t.trial
+            )));
+        }
+        let rt_min = rts.iter().copied().fold(f64::INFINITY, f64::min);
+        let rt_max = rts.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let context = SubjectContext {
+            rt_min: if rt_min.is_finite() { rt_min } else { 0.0 },
+            rt_max: if rt_max.is_finite() { rt_max } else { 1.0 },
+            deadline,
+        };
+        let free = model.free_slots();
+        let mut transforms = Vec::with_capacity(free.len());
+        for &slot in &free {
+            let spec = &model.parameters[slot];
+            let mut upper = spec.upper;
+            if spec.name == "ndt" && model.uses_response_times() {
+                upper = upper.min(NDT_BELOW_FASTEST * context.rt_min);
+                if upper <= spec.lower {
+                    return Err(mismatch(format!(
+                        "the fastest response ({rt_min} s) is not above the lower bound of ndt ({})",
+                        spec.lower
+                    )));
+                }
+            }
+            transforms.push(Transform::from_bounds(spec.lower, upper));
+        }
+        Ok(SubjectLikelihood {
+            model,
+            subject,
+            context,
+            free,
+            transforms,
+        })
+    }
+
+    /// Number of free parameters.
+    pub fn n_free(&self) -> usize {
+        self.free.len()
+    }
+
+    /// The model.
+    pub fn model(&self) -> &Model {
+        self.model
+    }
+
+    /// The subject.
+    pub fn subject(&self) -> &Subject {
+        self.subject
+    }
+
+    /// Number of trials that enter the likelihood.
+    pub fn n_observations(&self) -> usize {
+        self.subject
+            .trials
+            .iter()
+            .filter(|t| t.choice.is_some() || self.context.deadline.is_some())
+            .count()
+    }
+
+    /// Transforms of the free parameters, in order.
+    pub fn transforms(&self) -> &[Transform] {
+        &self.transforms
+    }
+
+    /// Natural-scale values of all parameters (fixed ones included) for unconstrained θ.
+    pub fn natural(&self, theta: &[f64]) -> Vec<f64> {
+        self.natural_duals(theta).iter().map(|d| d.re).collect()
+    }
+
+    /// θ for natural values of the free parameters.
+    pub fn unconstrained(&self, free_values: &[f64]) -> Vec<f64> {
+        free_values
+            .iter()
+            .zip(&self.transforms)
+            .map(|(&x, t)| t.unconstrained(x))
+            .collect()
+    }
+
+    /// The subject-specific (lower, upper) bounds of each free parameter.
+    pub fn free_bounds(&self) -> Vec<(f64, f64)> {
+        self.transforms
+            .iter()
+            .map(|t| match *t {
+                Transform::Logistic { lower, upper } => (lower, upper),
+                Transform::Exp { lower } => (lower, f64::INFINITY),
+                Transform::ExpBelow { upper } => (f64::NEG_INFINITY, upper),
+                Transform::Identity => (f64::NEG_INFINITY, f64::INFINITY),
+            })
+            .collect()
+    }
+
+    fn natural_duals(&self, theta: &[f64]) -> Vec<D> {
+        let mut values: Vec<D> = self
+            .model
+            .parameters
+            .iter()
+            .map(|p| constant(p.fixed.unwrap_or(f64::NAN)))
+            .collect();
+        for (j, (&slot, transform)) in self.free.iter().zip(&self.transforms).enumerate() {
+            values[slot] = transform.to_natural(D::from_re(theta[j]).derivative(j));
+        }
+        values
+    }
+
+    /// ln L + ln prior and its gradient at θ.
+    pub fn evaluate(&self, theta: &[f64]) -> Evaluation {
+        assert!(theta.len() == self.free.len() && self.free.len() <= MAX_FREE);
+        let p = self.natural_duals(theta);
+        let ln_l = self.run(&p, |_, _| {});
+        let mut ln_prior = 0.0;
+        let mut prior_terms: Vec<(f64, &D)> = Vec::new();
+        for &slot in &self.free {
+            if let Some(prior) = &self.model.parameters[slot].prior {
+                let (value, slope) = prior.ln_density_with_slope(p[slot].re);
+                ln_prior += value;
+                prior_terms.push((slope, &p[slot]));
+            }
+        }
+        let prior_dual = chain(ln_prior, &prior_terms);
+        let total = gradient(&ln_l) + gradient(&prior_dual);
+        Evaluation {
+            ln_likelihood: ln_l.re,
+            ln_prior,
+            gradient: total.iter().take(self.free.len()).copied().collect(),
+        }
+    }
+
+    /// Every per-trial quantity at the natural-scale values `natural` (all parameters, as from
+    /// [`SubjectLikelihood::natural`]).
+    pub fn trace(&self, natural: &[f64]) -> Vec<TrialTrace> {
+        let p: Vec<D> = natural.iter().map(|&x| constant(x)).collect();
+        let mut out = Vec::with_capacity(self.subject.trials.len());
+        self.run(&p, |trace, _| out.push(trace));
+        out
+    }
+
+    /// Runs the recursion; `visit` sees every trial's quantities (with its index).
+    fn run(&self, p: &[D], mut visit: impl FnMut(TrialTrace, usize)) -> D {
+        let model = self.model;
+        let mut values = Values::new(model, p, self.subject.options.len());
+        let prepared = model.choice.prepare(p, self.context);
+        let mut total = constant(0.0);
+        for (index, trial) in self.subject.trials.iter().enumerate() {
+            let step = values.offer(model, trial, p);
+            let observation = Observation {
+                choice: trial.choice,
+                rt: trial.rt,
+            };
+            let ln_trial = prepared.ln_likelihood(step.signal, &observation);
+            if let Some(l) = ln_trial {
+                total += l;
+            }
+            let prediction_error = match (trial.choice, trial.outcome) {
+                (Some(choice), Some(r)) => values.learn(model, trial, choice, r, p),
+                _ => None,
+            };
+            visit(
+                TrialTrace {
+                    value_a: step.q_a.re,
+                    value_b: step.q_b.re,
+                    subjective_value_a: step.sv_a.re,
+                    subjective_value_b: step.sv_b.re,
+                    signal: step.signal.re,
+                    prediction_error,
+                    ln_likelihood: ln_trial.map(|l| l.re),
+                    probability_a: prepared.probability_a(step.signal.re),
+                    expected_times: prepared.expected_times(step.signal.re),
+                },
+                index,
+            );
+        }
+        total
+    }
+}
+
+/// What the model computes for one trial's offer, before its outcome.
+pub(crate) struct Offer {
+    pub q_a: D,
+    pub q_b: D,
+    pub sv_a: D,
+    pub sv_b: D,
+    pub signal: D,
+}
+
+/// The learned values of a subject's options during the recursion (shared by the likelihood
+/// and the simulator, so that both run the same model).
+pub(crate) struct Values {
+    values: Vec<D>,
+    initial: D,
+}
+
+impl Values {
+    pub(crate) fn new(model: &Model, p: &[D], n_options: usize) -> Values {
+        let initial = model.initial_slot.map_or(constant(0.0), |s| p[s]);
+        Values {
+            values: vec![initial; n_options.max(2)],
+            initial,
+        }
+    }
+
+    /// Values, subjective values and decision signal of a trial's offer.
+    pub(crate) fn offer(&self, model: &Model, trial: &Trial, p: &[D]) -> Offer {
+        let (q_a, q_b) = if model.learns() {
+            (self.values[trial.option_a], self.values[trial.option_b])
+        } else {
+            (
+                constant(trial.reward_a.unwrap_or(f64::NAN)),
+                constant(trial.reward_b.unwrap_or(f64::NAN)),
+            )
+        };
+        let sv_a = model.cost.subjective_value(q_a, trial.effort_a, p);
+        let sv_b = model.cost.subjective_value(q_b, trial.effort_b, p);
+        let difference = sv_a - sv_b;
+        let signal = match &model.drift {
+            Some(mapping) => mapping.drift(difference, p),
+            None => difference,
+        };
+        Offer {
+            q_a,
+            q_b,
+            sv_a,
+            sv_b,
+            signal,
+        }
+    }
+
+    /// Learns from outcome `r` of the chosen option; returns the prediction error (None for a
+    /// model without learning).
+    pub(crate) fn learn(
+        &mut self,
+        model: &Model,
+        trial: &Trial,
+        choice: Choice,
+        r: f64,
+        p: &[D],
+    ) -> Option<f64> {
+        if !model.learns() {
+            return None;
+        }
+        let chosen = match choice {
+            Choice::A => trial.option_a,
+            Choice::B => trial.option_b,
+        };
+        let prediction_error = r - self.values[chosen].re;
+        self.values[chosen] = model.learning.update(self.values[chosen], r, p);
+        if let Some(slot) = model.forget_slot {
+            let initial = self.initial;
+            for (k, v) in self.values.iter_mut().enumerate() {
+                if k != chosen {
+                    *v += p[slot] * (initial - *v);
+                }
+            }
+        }
+        Some(prediction_error)
+    }
+}

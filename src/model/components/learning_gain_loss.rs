@@ -1,0 +1,55 @@
+//! Separate learning rates for gains and losses (Niv, Edlund, Dayan & O'Doherty 2012): d = r − Q(s), Q(s) ← Q(s) + α·d with
+//! α = gain_rate when the prediction error is positive (default) or, with
+//! `split = "outcome"`, when the outcome is positive; loss_rate otherwise.
+
+use super::{Entry, LearningRule, Options, Slots, only_options};
+use crate::model::dual::D;
+
+/// The table entry.
+pub const ENTRY: Entry<dyn LearningRule> = Entry {
+    name: "gain-loss",
+    parameters: &["gain_rate", "loss_rate"],
+    defaults: &[],
+    equation: "d = r − Q(s); Q(s) += (gain_rate if d > 0 else loss_rate)·d; split = \"outcome\" \
+               uses the sign of r instead (Niv et al. 2012)",
+    build,
+};
+
+#[derive(Clone, Copy, PartialEq)]
+enum Split {
+    PredictionError,
+    Outcome,
+}
+
+struct GainLoss {
+    gain: usize,
+    loss: usize,
+    split: Split,
+}
+
+fn build(options: &Options, slots: Slots<'_>) -> Result<Box<dyn LearningRule>, String> {
+    only_options(options, &["split"])?;
+    let split = match options.get("split").map(|v| v.as_str()) {
+        None => Split::PredictionError,
+        Some(Some("prediction-error")) => Split::PredictionError,
+        Some(Some("outcome")) => Split::Outcome,
+        Some(_) => return Err("option 'split' must be \"prediction-error\" or \"outcome\"".into()),
+    };
+    Ok(Box::new(GainLoss {
+        gain: slots("gain_rate"),
+        loss: slots("loss_rate"),
+        split,
+    }))
+}
+
+impl LearningRule for GainLoss {
+    fn update(&self, q: D, outcome: f64, p: &[D]) -> D {
+        let error = -q + outcome;
+        let positive = match self.split {
+            Split::PredictionError => error.re > 0.0,
+            Split::Outcome => outcome > 0.0,
+        };
+        let rate = if positive { p[self.gain] } else { p[self.loss] };
+        q + rate * error
+    }
+}

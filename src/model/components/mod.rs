@@ -1,0 +1,187 @@
+//! Model components: learning rules, effort-cost shapes, drift mappings and choice stages.
+//!
+//! Each component lives in a file of its own and is listed once in the table of its kind below.
+//! A model file (models/*.toml) names one component of each kind; the component says which
+//! parameters it needs, and the model file declares them.
+//!
+//! To add a cost shape (likewise a learning rule, drift mapping or choice stage): write
+//! `cost_<name>.rs` implementing [`CostShape`], add its line to [`COST_SHAPES`], and add a model
+//! file to models/ that uses it.
+
+mod choice_diffusion;
+mod choice_softmax;
+mod cost_exponential;
+mod cost_hyperbolic;
+mod cost_linear;
+mod cost_none;
+mod cost_quadratic;
+mod drift_bounded;
+mod drift_linear;
+mod learning_delta;
+mod learning_gain_loss;
+mod learning_none;
+
+use super::dual::D;
+use crate::data::Choice;
+use rand::Rng;
+
+/// Where a component finds its parameters: the slot of each name in the model's parameter list.
+pub type Slots<'a> = &'a dyn Fn(&str) -> usize;
+
+/// Component options from the model file (`[learning]`, `[cost]`, … tables without the `rule`,
+/// `shape`, `mapping` or `stage` key).
+pub type Options = toml::Table;
+
+/// What a component kind's table lists: name, one-line description, constructor.
+pub struct Entry<T: ?Sized> {
+    /// Name used in model files.
+    pub name: &'static str,
+    /// Parameters the component needs.
+    pub parameters: &'static [&'static str],
+    /// Parameters that are optional, with the fixed value they take when a model file does not
+    /// declare them.
+    pub defaults: &'static [(&'static str, f64)],
+    /// Equation and published source, for listings.
+    pub equation: &'static str,
+    /// Builds the component from its options and the model's parameter slots.
+    pub build: fn(&Options, Slots<'_>) -> Result<Box<T>, String>,
+}
+
+/// Updates the learned value of the chosen option from its outcome.
+pub trait LearningRule: Send + Sync {
+    /// Value of the chosen option after outcome `r`, from its value `q` before; `p` holds the
+    /// natural-scale parameters by slot.
+    fn update(&self, q: D, outcome: f64, p: &[D]) -> D;
+    /// False when values are the offered magnitudes (no learning).
+    fn learns(&self) -> bool {
+        true
+    }
+}
+
+/// Discounts a value by the effort it demands.
+pub trait CostShape: Send + Sync {
+    /// Subjective value of an option with value `q` demanding `effort`.
+    fn subjective_value(&self, q: D, effort: f64, p: &[D]) -> D;
+}
+
+/// Maps the subjective value difference SV_a − SV_b to a drift rate.
+pub trait DriftMapping: Send + Sync {
+    /// The drift rate.
+    fn drift(&self, value_difference: D, p: &[D]) -> D;
+}
+
+/// What the choice stage sees of one trial.
+#[derive(Clone, Copy, Debug)]
+pub struct Observation {
+    /// The choice, if any.
+    pub choice: Option<Choice>,
+    /// The response time, if any.
+    pub rt: Option<f64>,
+}
+
+/// Per-subject facts the choice stage needs.
+#[derive(Clone, Copy, Debug)]
+pub struct SubjectContext {
+    /// Shortest observed response time (for the lapse's uniform time density).
+    pub rt_min: f64,
+    /// Longest observed response time.
+    pub rt_max: f64,
+    /// Response deadline in seconds: a trial without response then contributes the probability
+    /// that no bound is reached by the deadline.
+    pub deadline: Option<f64>,
+}
+
+/// Turns a decision signal (the drift rate for stages that use a drift mapping, otherwise the
+/// value difference SV_a − SV_b) into the probability of what was observed.
+pub trait ChoiceStage: Send + Sync {
+    /// True when the signal is the drift rate from the model's drift mapping.
+    fn uses_drift_mapping(&self) -> bool;
+    /// Prepares the stage for one likelihood evaluation (constant parameters computed once).
+    fn prepare<'a>(&'a self, p: &'a [D], context: SubjectContext) -> Box<dyn PreparedChoice + 'a>;
+    /// True when response times enter the likelihood.
+    fn uses_response_times(&self) -> bool;
+}
+
+/// A choice stage with its parameters fixed for one likelihood evaluation.
+pub trait PreparedChoice {
+    /// ln P(observation | signal), with its gradient; `None` for an observation that carries no
+    /// information (no response and no deadline).
+    fn ln_likelihood(&self, signal: D, observation: &Observation) -> Option<D>;
+    /// P(choose a | signal).
+    fn probability_a(&self, signal: f64) -> f64;
+    /// Expected decision time and expected response time given the signal, where the stage
+    /// models time.
+    fn expected_times(&self, signal: f64) -> Option<(f64, f64)>;
+    /// Draws a choice and a response time (None where the stage models no time).
+    fn simulate(&self, signal: f64, rng: &mut dyn Rng) -> (Choice, Option<f64>);
+}
+
+/// Learning rules by name.
+pub const LEARNING_RULES: &[Entry<dyn LearningRule>] = &[
+    learning_delta::ENTRY,
+    learning_gain_loss::ENTRY,
+    learning_none::ENTRY,
+];
+
+/// Effort-cost shapes by name.
+pub const COST_SHAPES: &[Entry<dyn CostShape>] = &[
+    cost_none::ENTRY,
+    cost_linear::ENTRY,
+    cost_quadratic::ENTRY,
+    cost_hyperbolic::ENTRY,
+    cost_exponential::ENTRY,
+];
+
+/// Drift mappings by name.
+pub const DRIFT_MAPPINGS: &[Entry<dyn DriftMapping>] = &[drift_linear::ENTRY, drift_bounded::ENTRY];
+
+/// Choice stages by name.
+pub const CHOICE_STAGES: &[Entry<dyn ChoiceStage>] =
+    &[choice_diffusion::ENTRY, choice_softmax::ENTRY];
+
+/// Looks a component up by name in its table.
+pub fn find<'t, T: ?Sized>(table: &'t [Entry<T>], name: &str) -> Option<&'t Entry<T>> {
+    table.iter().find(|e| e.name == name)
+}
+
+/// Rejects option keys a component does not know.
+pub fn only_options(options: &Options, known: &[&str]) -> Result<(), String> {
+    match options.keys().find(|k| !known.contains(&k.as_str())) {
+        Some(key) => Err(format!(
+            "unknown option '{key}' (known: {})",
+            if known.is_empty() {
+                "none".to_string()
+            } else {
+                known.join(", ")
+            }
+        )),
+        None => Ok(()),
+    }
+}
+
+/// A cost shape given by a formula SV = f(Q, E, k) in the single parameter `effort_weight` k.
+struct WeightedCost {
+    weight: Option<usize>,
+    formula: fn(D, f64, D) -> D,
+}
+
+impl CostShape for WeightedCost {
+    fn subjective_value(&self, q: D, effort: f64, p: &[D]) -> D {
+        let k = self.weight.map_or(D::from_re(0.0), |slot| p[slot]);
+        (self.formula)(q, effort, k)
+    }
+}
+
+/// Builds a cost shape from its formula; `uses_weight` is false for the shape without cost.
+fn weighted_cost(
+    options: &Options,
+    slots: Slots<'_>,
+    uses_weight: bool,
+    formula: fn(D, f64, D) -> D,
+) -> Result<Box<dyn CostShape>, String> {
+    only_options(options, &[])?;
+    Ok(Box::new(WeightedCost {
+        weight: uses_weight.then(|| slots("effort_weight")),
+        formula,
+    }))
+}

@@ -1,0 +1,75 @@
+//! Models: a registry of declarative model files combining a learning rule, an effort-cost shape,
+//! a drift mapping and a choice stage, each a component of [`components`].
+//!
+//! Built-in models are the files in the crate's models/ folder, embedded at build time; a user
+//! may pass any other file by path.
+
+pub mod components;
+pub mod dual;
+pub mod params;
+mod registry;
+mod spec;
+
+pub use params::{ParameterSpec, Prior, Transform};
+pub use registry::{built_in_models, load_model};
+pub use spec::{ModelError, parse_model};
+
+use components::{ChoiceStage, CostShape, DriftMapping, LearningRule};
+
+/// A checked model, ready for the likelihood.
+pub struct Model {
+    /// Model name.
+    pub name: String,
+    /// One-paragraph description.
+    pub description: String,
+    /// Where the definition came from: `built-in` or a file path.
+    pub origin: String,
+    /// The definition as written (recorded in run records).
+    pub text: String,
+    /// Names of the learning rule, cost shape, drift mapping (`-` when unused) and choice stage.
+    pub component_names: [&'static str; 4],
+    /// Equations of the four components with their sources.
+    pub equations: [&'static str; 4],
+    /// Every parameter: declared ones in file order, then defaults the components need.
+    pub parameters: Vec<ParameterSpec>,
+    pub(crate) learning: Box<dyn LearningRule>,
+    pub(crate) cost: Box<dyn CostShape>,
+    pub(crate) drift: Option<Box<dyn DriftMapping>>,
+    pub(crate) choice: Box<dyn ChoiceStage>,
+    pub(crate) forget_slot: Option<usize>,
+    pub(crate) initial_slot: Option<usize>,
+}
+
+impl std::fmt::Debug for Model {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Model")
+            .field("name", &self.name)
+            .field("components", &self.component_names)
+            .field("parameters", &self.parameters)
+            .finish()
+    }
+}
+
+impl Model {
+    /// Indices (into [`Model::parameters`]) of the free parameters, in order.
+    pub fn free_slots(&self) -> Vec<usize> {
+        (0..self.parameters.len())
+            .filter(|&i| self.parameters[i].is_free())
+            .collect()
+    }
+
+    /// The declared parameter called `name`.
+    pub fn parameter(&self, name: &str) -> Option<&ParameterSpec> {
+        self.parameters.iter().find(|p| p.name == name)
+    }
+
+    /// True when values are learned from outcomes (false: offered magnitudes).
+    pub fn learns(&self) -> bool {
+        self.learning.learns()
+    }
+
+    /// True when response times enter the likelihood.
+    pub fn uses_response_times(&self) -> bool {
+        self.choice.uses_response_times()
+    }
+}

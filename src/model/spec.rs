@@ -1,0 +1,406 @@
+//! Model files: declarative TOML naming one component of each kind and declaring parameters.
+//!
+//! ```toml
+//! name = "gainloss-linear"
+//! description = "…"
+//! [learning]
+//! rule = "gain-loss"          # delta | gain-loss | none; rule options such as split = "outcome"
+//! forgetting = false          # true: unchosen values decay towards initial_value at forget_rate
+//! [cost]
+//! shape = "linear"            # none | linear | quadratic | hyperbolic | exponential
+//! [drift]
+//! mapping = "linear"          # linear | bounded (diffusion stage only)
+//! [choice]
+//! stage = "diffusion"         # diffusion | softmax
+//! [parameters.gain_rate]
+//! lower = 0.0
+//! upper = 1.0
+//! start = [0.05, 0.6]         # range of starting values (natural scale)
+//! # fixed = 0.3               # instead of estimating it
+//! # prior = { family = "beta", a = 1.5, b = 1.5 }
+//! ```
+
+use super::Model;
+use super::components::{
+    CHOICE_STAGES, COST_SHAPES, DRIFT_MAPPINGS, Entry, LEARNING_RULES, Options, find,
+};
+use super::params::{ParameterSpec, Prior};
+use std::collections::BTreeMap;
+
+/// A problem in a model file, naming the file and the key.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+#[error("{origin}: {key}: {message}")]
+pub struct ModelError {
+    /// The file (or built-in model name) the definition came from.
+    pub origin: String,
+    /// The key, dotted (e.g. `parameters.gain_rate.upper`), or `(file)` for the whole file.
+    pub key: String,
+    /// What is wrong and what was expected.
+    pub message: String,
+}
+
+/// Model-level parameters with their fixed default when not declared.
+const MODEL_DEFAULTS: &[(&str, f64)] = &[("initial_value", 0.0)];
+
+struct Reader<'a> {
+    origin: &'a str,
+}
+
+impl Reader<'_> {
+    fn error(&self, key: &str, message: impl Into<String>) -> ModelError {
+        ModelError {
+            origin: self.origin.to_string(),
+            key: key.to_string(),
+            message: message.into(),
+        }
+    }
+
+    fn table<'t>(&self, root: &'t toml::Table, key: &str) -> Result<&'t toml::Table, ModelError> {
+        match root.get(key) {
+            Some(toml::Value::Table(t)) => Ok(t),
+            Some(_) => Err(self.error(key, "expected a table")),
+            None => Err(self.error(key, "missing; expected a table")),
+        }
+    }
+
+    fn string(&self, table: &toml::Table, prefix: &str, key: &str) -> Result<String, ModelError> {
+        match table.get(key) {
+            Some(toml::Value::String(s)) => Ok(s.clone()),
+            Some(_) => Err(self.error(&dotted(prefix, key), "expected a string")),
+            None => Err(self.error(&dotted(prefix, key), "missing; expected a string")),
+        }
+    }
+
+    fn number(&self, value: &toml::Value, key: &str) -> Result<f64, ModelError> {
+        match value {
+            toml::Value::Float(x) if !x.is_nan() => Ok(*x),
+            toml::Value::Integer(i) => Ok(*i as f64),
+            _ => Err(self.error(key, format!("expected a number, found {value}"))),
+        }
+    }
+
+    /// The component of a kind named by `selector` in table `section`, with the remaining keys
+    /// of the table as its options.
+    fn component<'e, T: ?Sized>(
+        &self,
+        root: &toml::Table,
+        section: &str,
+        selector: &str,
+        registry: &'e [Entry<T>],
+        model_keys: &[&str],
+    ) -> Result<(&'e Entry<T>, Options), ModelError> {
+        let table = self.table(root, section)?;
+        let name = self.string(table, section, selector)?;
+        let entry = find(registry, &name).ok_or_else(|| {
+            let known: Vec<&str> = registry.iter().map(|e| e.name).collect();
+            self.error(
+                &dotted(section, selector),
+                format!("unknown {selector} '{name}' (known: {})", known.join(", ")),
+            )
+        })?;
+        let mut options = table.clone();
+        options.remove(selector);
+        for key in model_keys {
+            options.remove(*key);
+        }
+        Ok((entry, options))
+    }
+
+    fn parameter(&self, name: &str, value: &toml::Value) -> Result<ParameterSpec, ModelError> {
+        let prefix = format!("parameters.{name}");
+        let toml::Value::Table(t) = value else {
+            return Err(self.error(
+                &prefix,
+                "expected a table with lower, upper and start (or fixed)",
+            ));
+        };
+        const KNOWN: [&str; 6] = ["lower", "upper", "start", "fixed", "prior", "description"];
+        if let Some(key) = t.keys().find(|k| !KNOWN.contains(&k.as_str())) {
+            return Err(self.error(
+                &dotted(&prefix, key),
+                format!("unknown key (known: {})", KNOWN.join(", ")),
+            ));
+        }
+        let description = match t.get("description") {
+            Some(toml::Value::String(s)) => s.clone(),
+            Some(_) => return Err(self.error(&dotted(&prefix, "description"), "expected a string")),
+            None => String::new(),
+        };
+        if let Some(fixed) = t.get("fixed") {
+            let x = self.number(fixed, &dotted(&prefix, "fixed"))?;
+            if !x.is_finite() {
+                return Err(self.error(&dotted(&prefix, "fixed"), "expected a finite number"));
+            }
+            if let Some(key) = ["lower", "upper", "start", "prior"]
+                .iter()
+                .find(|k| t.contains_key(**k))
+            {
+                return Err(self.error(&dotted(&prefix, key), "not allowed with 'fixed'"));
+            }
+            return Ok(ParameterSpec {
+                name: name.to_string(),
+                lower: x,
+                upper: x,
+                start_range: (x, x),
+                fixed: Some(x),
+                prior: None,
+                description,
+            });
+        }
+        let bound = |key: &str| -> Result<f64, ModelError> {
+            let v = t.get(key).ok_or_else(|| {
+                self.error(
+                    &dotted(&prefix, key),
+                    "missing; expected a number (inf allowed)",
+                )
+            })?;
+            self.number(v, &dotted(&prefix, key))
+        };
+        let (lower, upper) = (bound("lower")?, bound("upper")?);
+        if lower >= upper {
+            return Err(self.error(
+                &dotted(&prefix, "upper"),
+                format!("must be above lower ({lower})"),
+            ));
+        }
+        let start_key = dotted(&prefix, "start");
+        let start = match t.get("start") {
+            Some(toml::Value::Array(a)) if a.len() == 2 => (
+                self.number(&a[0], &start_key)?,
+                self.number(&a[1], &start_key)?,
+            ),
+            Some(_) => return Err(self.error(&start_key, "expected [low, high]")),
+            None => {
+                return Err(self.error(
+                    &start_key,
+                    "missing; expected [low, high] inside (lower, upper)",
+                ));
+            }
+        };
+        if !(start.0 > lower && start.1 < upper && start.0 <= start.1) {
+            return Err(self.error(
+                &start_key,
+                format!(
+                    "[{}, {}] must be ordered and strictly inside ({lower}, {upper})",
+                    start.0, start.1
+                ),
+            ));
+        }
+        let prior = match t.get("prior") {
+            None => None,
+            Some(v) => {
+                let key = dotted(&prefix, "prior");
+                let prior: Prior = v
+                    .clone()
+                    .try_into()
+                    .map_err(|e| self.error(&key, format!("expected {{ family = \"normal\" | \"beta\" | \"gamma\" | \"lognormal\", … }}: {e}")))?;
+                prior.validate().map_err(|m| self.error(&key, m))?;
+                Some(prior)
+            }
+        };
+        Ok(ParameterSpec {
+            name: name.to_string(),
+            lower,
+            upper,
+            start_range: start,
+            fixed: None,
+            prior,
+            description,
+        })
+    }
+}
+
+fn dotted(prefix: &str, key: &str) -> String {
+    if prefix.is_empty() {
+        key.to_string()
+    } else {
+        format!("{prefix}.{key}")
+    }
+}
+
+/// Parses and checks a model definition. `origin` names it in errors.
+pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
+    let r = Reader { origin };
+    let root: toml::Table = text.parse().map_err(|e: toml::de::Error| {
+        r.error("(file)", format!("not valid TOML: {}", e.message()))
+    })?;
+    const TOP: [&str; 7] = [
+        "name",
+        "description",
+        "learning",
+        "cost",
+        "drift",
+        "choice",
+        "parameters",
+    ];
+    if let Some(key) = root.keys().find(|k| !TOP.contains(&k.as_str())) {
+        return Err(r.error(key, format!("unknown key (known: {})", TOP.join(", "))));
+    }
+    let name = r.string(&root, "", "name")?;
+    let description = match root.get("description") {
+        Some(toml::Value::String(s)) => s.clone(),
+        Some(_) => return Err(r.error("description", "expected a string")),
+        None => String::new(),
+    };
+    let (learning, learning_options) =
+        r.component(&root, "learning", "rule", LEARNING_RULES, &["forgetting"])?;
+    let forgetting = match r.table(&root, "learning")?.get("forgetting") {
+        None => false,
+        Some(toml::Value::Boolean(b)) => *b,
+        Some(_) => return Err(r.error("learning.forgetting", "expected true or false")),
+    };
+    let (cost, cost_options) = r.component(&root, "cost", "shape", COST_SHAPES, &[])?;
+    let (choice, choice_options) = r.component(&root, "choice", "stage", CHOICE_STAGES, &[])?;
+    let uses_drift = (choice.build)(&choice_options, &|_| 0)
+        .map_err(|m| r.error("choice", m))?
+        .uses_drift_mapping();
+    let drift = if uses_drift {
+        Some(r.component(&root, "drift", "mapping", DRIFT_MAPPINGS, &[])?)
+    } else {
+        if root.contains_key("drift") {
+            return Err(r.error(
+                "drift",
+                format!(
+                    "the '{}' choice stage uses no drift mapping; remove [drift]",
+                    choice.name
+                ),
+            ));
+        }
+        None
+    };
+
+    // Parameters: declared ones in file order, then defaults of what the components need.
+    let declared = match root.get("parameters") {
+        Some(toml::Value::Table(t)) => t.clone(),
+        Some(_) => return Err(r.error("parameters", "expected a table of parameter tables")),
+        None => toml::Table::new(),
+    };
+    let mut needed: Vec<&str> = Vec::new();
+    let mut defaults: BTreeMap<&str, f64> = MODEL_DEFAULTS.iter().copied().collect();
+    let mut need = |params: &[&'static str], defs: &[(&'static str, f64)]| {
+        needed.extend_from_slice(params);
+        defaults.extend(defs.iter().copied());
+    };
+    need(learning.parameters, learning.defaults);
+    need(cost.parameters, cost.defaults);
+    need(choice.parameters, choice.defaults);
+    if let Some((d, _)) = &drift {
+        need(d.parameters, d.defaults);
+    }
+    if learning.name != "none" {
+        needed.push("initial_value");
+        if forgetting {
+            needed.push("forget_rate");
+        }
+    }
+    let mut parameters = Vec::new();
+    for (pname, value) in &declared {
+        if !needed.contains(&pname.as_str()) {
+            return Err(r.error(
+                &format!("parameters.{pname}"),
+                format!(
+                    "not used by the components of this model (they use: {})",
+                    needed.join(", ")
+                ),
+            ));
+        }
+        parameters.push(r.parameter(pname, value)?);
+    }
+    for pname in &needed {
+        if parameters.iter().any(|p| p.name == *pname) {
+            continue;
+        }
+        let Some(&x) = defaults.get(pname) else {
+            return Err(r.error(
+                &format!("parameters.{pname}"),
+                "missing; the model's components need it",
+            ));
+        };
+        parameters.push(ParameterSpec {
+            name: pname.to_string(),
+            lower: x,
+            upper: x,
+            start_range: (x, x),
+            fixed: Some(x),
+            prior: None,
+            description: "default".into(),
+        });
+    }
+    let n_free = parameters.iter().filter(|p| p.is_free()).count();
+    if n_free > super::dual::MAX_FREE {
+        return Err(r.error(
+            "parameters",
+            format!(
+                "{n_free} free parameters; at most {}",
+                super::dual::MAX_FREE
+            ),
+        ));
+    }
+    let slot = |n: &str| {
+        parameters
+            .iter()
+            .position(|p| p.name == n)
+            .expect("every needed parameter is declared")
+    };
+    let learning_rule =
+        (learning.build)(&learning_options, &slot).map_err(|m| r.error("learning", m))?;
+    let cost_shape = (cost.build)(&cost_options, &slot).map_err(|m| r.error("cost", m))?;
+    let choice_stage = (choice.build)(&choice_options, &slot).map_err(|m| r.error("choice", m))?;
+    let drift_mapping = match &drift {
+        Some((d, options)) => Some((d.build)(options, &slot).map_err(|m| r.error("drift", m))?),
+        None => None,
+    };
+    let check_range = |pname: &str, lo: f64, hi: f64| -> Result<(), ModelError> {
+        if let Some(p) = parameters.iter().find(|p| p.name == pname)
+            && (p.lower < lo || p.upper > hi)
+        {
+            return Err(r.error(
+                &format!("parameters.{pname}"),
+                format!(
+                    "bounds [{}, {}] must lie within [{lo}, {hi}]",
+                    p.lower, p.upper
+                ),
+            ));
+        }
+        Ok(())
+    };
+    for rate in [
+        "learning_rate",
+        "gain_rate",
+        "loss_rate",
+        "forget_rate",
+        "lapse",
+    ] {
+        check_range(rate, 0.0, 1.0)?;
+    }
+    check_range("start", 1e-9, 1.0 - 1e-9)?;
+    check_range("boundary", 1e-9, f64::INFINITY)?;
+    for non_negative in ["ndt", "drift_sd"] {
+        check_range(non_negative, 0.0, f64::INFINITY)?;
+    }
+    Ok(Model {
+        name,
+        description,
+        origin: origin.to_string(),
+        text: text.to_string(),
+        component_names: [
+            learning.name,
+            cost.name,
+            drift.as_ref().map_or("-", |(d, _)| d.name),
+            choice.name,
+        ],
+        equations: [
+            learning.equation,
+            cost.equation,
+            drift.as_ref().map_or("", |(d, _)| d.equation),
+            choice.equation,
+        ],
+        forget_slot: (forgetting && learning.name != "none").then(|| slot("forget_rate")),
+        initial_slot: parameters.iter().position(|p| p.name == "initial_value"),
+        parameters,
+        learning: learning_rule,
+        cost: cost_shape,
+        drift: drift_mapping,
+        choice: choice_stage,
+    })
+}

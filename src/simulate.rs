@@ -1,0 +1,133 @@
+//! Synthetic data: a model run forward on a trial design with given parameters.
+//!
+//! A design gives, per trial, the offer (options, efforts, offered magnitudes) and what each
+//! option would deliver if chosen (`outcome_if_a`, `outcome_if_b`), so that learning tasks can be
+//! simulated whatever the choices. Response times come from the first-passage engine's exact
+//! sampler; a response later than the deadline (if given) is recorded as no response.
+
+use crate::data::{Choice, Subject, Trial};
+use crate::likelihood::Values;
+use crate::model::Model;
+use crate::model::components::SubjectContext;
+use crate::model::dual::{D, constant};
+use rand::Rng;
+
+/// Settings of a simulation.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SimulationSettings {
+    /// Responses slower than this (seconds) become no response.
+    pub deadline: Option<f64>,
+    /// Range of the uniform response time of lapse guesses.
+    pub guess_rt_range: (f64, f64),
+}
+
+impl Default for SimulationSettings {
+    fn default() -> Self {
+        SimulationSettings {
+            deadline: None,
+            guess_rt_range: (0.2, 2.5),
+        }
+    }
+}
+
+/// Simulates one subject: `natural` holds every model parameter (by model slot) on the natural
+/// scale; the design's trials give offers and potential outcomes. Returns the subject with
+/// choices, response times and outcomes filled in.
+pub fn simulate_subject(
+    model: &Model,
+    natural: &[f64],
+    design: &Subject,
+    settings: SimulationSettings,
+    rng: &mut dyn Rng,
+) -> Subject {
+    let p: Vec<D> = natural.iter().map(|&x| constant(x)).collect();
+    let context = SubjectContext {
+        rt_min: settings.guess_rt_range.0,
+        rt_max: settings.guess_rt_range.1,
+        deadline: settings.deadline,
+    };
+    let prepared = model.choice.prepare(&p, context);
+    let mut values = Values::new(model, &p, design.options.len());
+    let mut trials = Vec::with_capacity(design.trials.len());
+    for trial in &design.trials {
+        let offer = values.offer(model, trial, &p);
+        let (choice, rt) = prepared.simulate(offer.signal.re, rng);
+        let (choice, rt) = match (settings.deadline, rt) {
+            (Some(limit), Some(t)) if t > limit => (None, None),
+            _ => (Some(choice), rt),
+        };
+        let outcome = choice.and_then(|c| match c {
+            Choice::A => trial.outcome_if_a,
+            Choice::B => trial.outcome_if_b,
+        });
+        if let (Some(c), Some(r)) = (choice, outcome) {
+            values.learn(model, trial, c, r, &p);
+        }
+        trials.push(Trial {
+            choice,
+            rt,
+            outcome,
+            ..trial.clone()
+        });
+    }
+    Subject {
+        trials,
+        ..design.clone()
+    }
+}
+
+/// A reward-versus-effort learning design of our own invention (the "orchard" task): four
+/// options (plots) that yield a harvest (outcome 1) with probabilities 0.85, 0.65, 0.35 and
+/// 0.15, else nothing (outcome 0); the probabilities reverse (p → 1 − p) at every quarter of the
+/// session, so values must be relearned three times. Each trial offers two different plots, each
+/// demanding an effort drawn from {0.2, 0.4, 0.6, 0.8} (fraction of maximal grip force). Onsets
+/// follow a fixed 6-second trial with the outcome 2.5 s in, the two halves being two scanner
+/// runs.
+pub fn orchard_design(id: &str, group: &str, n_trials: usize, rng: &mut dyn Rng) -> Subject {
+    use rand::RngExt;
+    const PROBABILITIES: [f64; 4] = [0.85, 0.65, 0.35, 0.15];
+    const EFFORTS: [f64; 4] = [0.2, 0.4, 0.6, 0.8];
+    let quarter = (n_trials / 4).max(1);
+    let trials = (0..n_trials)
+        .map(|i| {
+            let a = rng.random_range(0..4usize);
+            let b = (a + rng.random_range(1..4usize)) % 4;
+            let reversed = (i / quarter) % 2 == 1;
+            let mut harvest = |k: usize| {
+                let p = if reversed {
+                    1.0 - PROBABILITIES[k]
+                } else {
+                    PROBABILITIES[k]
+                };
+                f64::from(u8::from(rng.random::<f64>() < p))
+            };
+            let outcome_if_a = harvest(a);
+            let outcome_if_b = harvest(b);
+            Trial {
+                trial: i as i64 + 1,
+                run: if i < n_trials / 2 { "1" } else { "2" }.to_string(),
+                option_a: a,
+                option_b: b,
+                effort_a: EFFORTS[rng.random_range(0..4usize)],
+                effort_b: EFFORTS[rng.random_range(0..4usize)],
+                reward_a: None,
+                reward_b: None,
+                choice: None,
+                rt: None,
+                outcome: None,
+                onset: Some(6.0 * (i % (n_trials / 2).max(1)) as f64),
+                outcome_onset: Some(6.0 * (i % (n_trials / 2).max(1)) as f64 + 2.5),
+                outcome_if_a: Some(outcome_if_a),
+                outcome_if_b: Some(outcome_if_b),
+            }
+        })
+        .collect();
+    Subject {
+        id: id.to_string(),
+        group: group.to_string(),
+        options: ["plot1", "plot2", "plot3", "plot4"]
+            .map(String::from)
+            .to_vec(),
+        trials,
+    }
+}

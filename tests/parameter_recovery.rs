@@ -1,0 +1,102 @@
+//! Parameter recovery for the reference model: subjects simulated with known values must be
+//! fitted back. Thresholds from the acceptance criteria; the design is the orchard task
+//! of `valuedrift::simulate`. Fixed seed.
+
+use rand::{RngExt, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use valuedrift::fit::{FitOptions, fit_subject};
+use valuedrift::likelihood::SubjectLikelihood;
+use valuedrift::model::load_model;
+use valuedrift::simulate::{SimulationSettings, orchard_design, simulate_subject};
+
+/// Generating ranges (the documented ranges of the README's recovery section).
+const RANGES: [(&str, f64, f64); 6] = [
+    ("gain_rate", 0.1, 0.7),
+    ("loss_rate", 0.1, 0.7),
+    ("effort_weight", 0.2, 1.5),
+    ("value_scale", 2.0, 8.0),
+    ("boundary", 1.0, 2.5),
+    ("ndt", 0.2, 0.5),
+];
+
+fn pearson(x: &[f64], y: &[f64]) -> f64 {
+    // Pearson (1896) product-moment correlation.
+    let n = x.len() as f64;
+    let (mx, my) = (x.iter().sum::<f64>() / n, y.iter().sum::<f64>() / n);
+    let sxy: f64 = x.iter().zip(y).map(|(a, b)| (a - mx) * (b - my)).sum();
+    let sxx: f64 = x.iter().map(|a| (a - mx).powi(2)).sum();
+    let syy: f64 = y.iter().map(|b| (b - my).powi(2)).sum();
+    sxy / (sxx * syy).sqrt()
+}
+
+#[test]
+fn reference_model_parameters_are_recovered() {
+    let model = load_model("gainloss-linear").unwrap();
+    let mut rng = ChaCha8Rng::seed_from_u64(20_261_201);
+    let options = FitOptions::default();
+    let mut truth = vec![Vec::new(); RANGES.len()];
+    let mut estimate = vec![Vec::new(); RANGES.len()];
+    let (mut covered, mut intervals) = (0, 0);
+    for i in 0..30 {
+        let design = orchard_design(&format!("r{i:02}"), "sim", 300, &mut rng);
+        let values: Vec<f64> = model
+            .parameters
+            .iter()
+            .map(|p| match RANGES.iter().find(|r| r.0 == p.name) {
+                Some(&(_, lo, hi)) => rng.random_range(lo..hi),
+                None => p.fixed.unwrap(),
+            })
+            .collect();
+        let subject = simulate_subject(
+            &model,
+            &values,
+            &design,
+            SimulationSettings::default(),
+            &mut rng,
+        );
+        let lik = SubjectLikelihood::new(&model, &subject, None).unwrap();
+        let fit = fit_subject(&lik, &options, i);
+        for (k, (name, _, _)) in RANGES.iter().enumerate() {
+            let slot = model
+                .parameters
+                .iter()
+                .position(|p| p.name == *name)
+                .unwrap();
+            let e = &fit.estimates[slot];
+            truth[k].push(values[slot]);
+            estimate[k].push(e.estimate);
+            if let Some((lo, hi)) = e.interval {
+                intervals += 1;
+                covered += usize::from(lo <= values[slot] && values[slot] <= hi);
+            }
+        }
+    }
+    let mut report = Vec::new();
+    for (k, (name, _, _)) in RANGES.iter().enumerate() {
+        let r = pearson(&truth[k], &estimate[k]);
+        report.push(format!("{name}: r = {r:.3}"));
+        let needed = if matches!(*name, "boundary" | "ndt" | "value_scale") {
+            0.9
+        } else {
+            0.75
+        };
+        assert!(
+            r >= needed,
+            "{name}: r = {r:.3} < {needed}; {}",
+            report.join(", ")
+        );
+    }
+    let coverage = covered as f64 / intervals as f64;
+    println!(
+        "{}; coverage {covered}/{intervals} = {coverage:.3}",
+        report.join(", ")
+    );
+    assert!(
+        intervals >= 170,
+        "only {intervals} of 180 intervals were computed"
+    );
+    assert!(
+        (0.88..=0.99).contains(&coverage),
+        "95 % interval coverage {coverage:.3}"
+    );
+}
