@@ -237,3 +237,49 @@ fn densities_far_below_double_range_stay_finite() {
     );
     assert_eq!(ln_density(0.0, Bound::Lower, &p), f64::NEG_INFINITY);
 }
+
+#[test]
+fn survival_gradient_matches_the_series_and_central_differences() {
+    // ln S from the time quadrature equals, without drift variability, the large-time series
+    // (Blurton et al. 2012); its
+    // derivatives agree with central differences of the series value (common practice).
+    use valuedrift::first_passage::{ln_survival, ln_survival_with_gradient};
+    for &(v, a, w, ndt, sd) in &[
+        (1.0, 1.6, 0.5, 0.3, 0.0),
+        (-2.0, 2.2, 0.35, 0.25, 0.0),
+        (0.7, 1.2, 0.6, 0.2, 0.8),
+    ] {
+        let make = |x: [f64; 5]| {
+            DiffusionParams::new(x[0], x[1], x[2], x[3])
+                .unwrap()
+                .with_variability(x[4], 0.0, 0.0)
+                .unwrap()
+        };
+        let x = [v, a, w, ndt, sd];
+        for deadline in [0.6, 1.5] {
+            for bound in [Bound::Upper, Bound::Lower] {
+                let (ln_s, g) = ln_survival_with_gradient(deadline, bound, &make(x)).unwrap();
+                let series = ln_survival(deadline, bound, &make(x));
+                assert!((ln_s - series).abs() < 1e-9, "{ln_s} vs {series}");
+                let analytic = [g.drift, g.boundary, g.start, g.ndt, g.drift_sd];
+                for k in 0..5 {
+                    if k == 4 && sd == 0.0 {
+                        continue;
+                    }
+                    let h = 1e-5;
+                    let (mut up, mut down) = (x, x);
+                    up[k] += h;
+                    down[k] -= h;
+                    let numeric = (ln_survival(deadline, bound, &make(up))
+                        - ln_survival(deadline, bound, &make(down)))
+                        / (2.0 * h);
+                    assert!(
+                        (numeric - analytic[k]).abs() < 1e-6 * numeric.abs().max(1.0),
+                        "{bound} k={k}: {} vs {numeric}",
+                        analytic[k]
+                    );
+                }
+            }
+        }
+    }
+}

@@ -146,8 +146,12 @@ pub(crate) fn time_nodes(lo: f64, hi: f64, shape: TimeShape) -> Vec<(f64, f64)> 
     let s_hi = if hi.is_finite() {
         hi
     } else {
-        let slowest = shape.kappa0.max(1e-300);
-        reference.max(lo) + TAIL_NATS / slowest
+        // The tail falls at rate κ(s) ≥ κ₀ + κ₁/(1 + η²s); taking it at the far end of the
+        // slowest case keeps the cut conservative.
+        let from = reference.max(lo);
+        let far = from + TAIL_NATS / shape.kappa0.max(1e-300);
+        let rate = shape.kappa0 + shape.kappa1 / (1.0 + shape.eta2 * far);
+        from + TAIL_NATS / rate.max(1e-300)
     };
     let (y_lo, y_hi) = (s_lo.ln(), s_hi.ln());
     let rule = gauss_legendre();

@@ -222,7 +222,14 @@ fn dotted(prefix: &str, key: &str) -> String {
 pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
     let r = Reader { origin };
     let root: toml::Table = text.parse().map_err(|e: toml::de::Error| {
-        r.error("(file)", format!("not valid TOML: {}", e.message()))
+        let line = e.span().map_or(String::new(), |span| {
+            let before = &text.as_bytes()[..span.start.min(text.len())];
+            format!(
+                " at line {}",
+                1 + before.iter().filter(|&&b| b == b'\n').count()
+            )
+        });
+        r.error("(file)", format!("not valid TOML{line}: {}", e.message()))
     })?;
     const TOP: [&str; 7] = [
         "name",
