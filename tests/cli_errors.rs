@@ -569,7 +569,7 @@ fn simulate_parameter_file_missing_a_free_parameter() {
             out.to_str().unwrap(),
         ],
         &[&out],
-        &[params_arg, "ndt"],
+        &[params_arg, "line 1", "column ndt"],
     );
 }
 

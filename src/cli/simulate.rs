@@ -25,22 +25,25 @@ pub fn read_parameters(
         .iter()
         .map(str::to_string)
         .collect();
-    let subject_column = header
-        .iter()
-        .position(|h| h == "subject")
-        .ok_or_else(|| InputError::file(path, "missing column 'subject'"))?;
+    let subject_column = header.iter().position(|h| h == "subject").ok_or_else(|| {
+        InputError::at(
+            path,
+            1,
+            "subject",
+            "missing column (expected the subject labels)",
+        )
+    })?;
     let mut columns = Vec::new();
     for spec in &model.parameters {
         match header.iter().position(|h| *h == spec.name) {
             Some(c) => columns.push(Some(c)),
             None if spec.fixed.is_some() => columns.push(None),
             None => {
-                return Err(InputError::file(
+                return Err(InputError::at(
                     path,
-                    format!(
-                        "missing column '{}' (a free parameter of model {})",
-                        spec.name, model.name
-                    ),
+                    1,
+                    &spec.name,
+                    format!("missing column (a free parameter of model {})", model.name),
                 ));
             }
         }
@@ -48,8 +51,10 @@ pub fn read_parameters(
     let mut out = HashMap::new();
     for (index, record) in reader.records().enumerate() {
         let line = index as u64 + 2;
-        let record = record
-            .map_err(|e| InputError::file(path, format!("line {line}: malformed row: {e}")))?;
+        let record = record.map_err(|e| InputError {
+            line: Some(line),
+            ..InputError::file(path, format!("malformed row: {e}"))
+        })?;
         let subject = record.get(subject_column).unwrap_or("").to_string();
         let mut values = Vec::with_capacity(model.parameters.len());
         for (spec, column) in model.parameters.iter().zip(&columns) {
