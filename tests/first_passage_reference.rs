@@ -1,8 +1,10 @@
 //! The first-passage engine against high-precision references computed offline with mpmath
-//! (PyPI), by `tests/reference/generate_first_passage.py`: densities from the series of
-//! Navarro & Fuss (2009) summed at 40 digits, distribution functions from the Wald-sum and
-//! large-time representations (Blurton, Kesselmeier & Gondan 2012), and every across-trial
-//! variability integrated numerically by mpmath.quad (not by the closed forms used here).
+//! (PyPI, working precision 20–40 digits) by `tests/reference/generate_first_passage.py`: densities from
+//! the series of Navarro & Fuss (2009); distribution functions from the Wald-sum and large-time
+//! representations (Blurton, Kesselmeier & Gondan 2012), which the script checks against each
+//! other and against the integral of the density; across-trial drift variability integrated by
+//! mpmath.quad over the normal drift in the density column (not by the closed form used here), and
+//! over time in the distribution column; start and non-decision ranges by mpmath.quad.
 
 use std::path::Path;
 use valuedrift::first_passage::{

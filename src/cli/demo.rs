@@ -78,17 +78,7 @@ pub fn run(
     }
     println!();
     println!("gainloss-linear, per-cohort medians: estimate (generating value)");
-    let groups: Vec<String> = {
-        let mut g: Vec<String> = fitted
-            .table
-            .subjects
-            .iter()
-            .map(|s| s.group.clone())
-            .collect();
-        g.sort();
-        g.dedup();
-        g
-    };
+    let groups = super::fit::group_labels(&fitted.table);
     print!("{:<16}", "parameter");
     for g in &groups {
         print!(" {g:>22}");

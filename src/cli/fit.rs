@@ -137,17 +137,7 @@ pub fn run_record(
 /// Wins are counted among the models that use response times (their likelihoods are of the same
 /// data); choices-only models are listed apart, since their BIC is not comparable.
 pub fn print_summary(fitted: &Fitted) {
-    let groups: Vec<String> = {
-        let mut g: Vec<String> = fitted
-            .table
-            .subjects
-            .iter()
-            .map(|s| s.group.clone())
-            .collect();
-        g.sort();
-        g.dedup();
-        g
-    };
+    let groups = group_labels(&fitted.table);
     let comparable = |name: &str| {
         fitted
             .models
@@ -225,4 +215,12 @@ pub fn print_summary(fitted: &Fitted) {
             "(models marked '-' use choices only: their BIC is not comparable with the others)"
         );
     }
+}
+
+/// The distinct group labels of a table, sorted.
+pub fn group_labels(table: &TrialTable) -> Vec<String> {
+    let mut groups: Vec<String> = table.subjects.iter().map(|s| s.group.clone()).collect();
+    groups.sort();
+    groups.dedup();
+    groups
 }

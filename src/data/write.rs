@@ -7,25 +7,7 @@ use std::io::Write;
 /// missing values are empty fields.
 pub fn write_trials(table: &TrialTable, w: &mut dyn Write) -> Result<(), csv::Error> {
     let mut writer = csv::Writer::from_writer(w);
-    writer.write_record([
-        "subject",
-        "group",
-        "run",
-        "trial",
-        "option_a",
-        "option_b",
-        "effort_a",
-        "effort_b",
-        "reward_a",
-        "reward_b",
-        "choice",
-        "rt",
-        "outcome",
-        "onset",
-        "outcome_onset",
-        "outcome_if_a",
-        "outcome_if_b",
-    ])?;
+    writer.write_record(super::ColumnMap::CANONICAL)?;
     let number = |x: Option<f64>| x.map_or(String::new(), |v| format!("{v}"));
     for subject in &table.subjects {
         for t in &subject.trials {

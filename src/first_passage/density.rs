@@ -81,20 +81,23 @@ pub fn ln_density_with_gradient(
         return Ok((f64::NEG_INFINITY, DensityGradient::default()));
     }
     let (ln_f, g) = lower_bound_core::<true>(t, &params.mirrored_for(bound));
+    Ok((ln_f, oriented(bound, [g[0], g[1], g[2], -g[3], g[4]])))
+}
+
+/// A gradient with respect to (v, a, w, ndt, η) of the mirrored process, expressed in the
+/// parameters as given: mirroring for the upper bound negates drift and start.
+pub(crate) fn oriented(bound: Bound, g: [f64; 5]) -> DensityGradient {
     let sign = match bound {
         Bound::Lower => 1.0,
         Bound::Upper => -1.0,
     };
-    Ok((
-        ln_f,
-        DensityGradient {
-            drift: sign * g[0],
-            boundary: g[1],
-            start: sign * g[2],
-            ndt: -g[3],
-            drift_sd: g[4],
-        },
-    ))
+    DensityGradient {
+        drift: sign * g[0],
+        boundary: g[1],
+        start: sign * g[2],
+        ndt: g[3],
+        drift_sd: g[4],
+    }
 }
 
 /// ln f_lower at decision time t > 0 and its derivatives with respect to (v, a, w, t, η) of the

@@ -1,6 +1,6 @@
 //! Defective distribution function, survival and bound probabilities.
 
-use super::density::{DensityGradient, GradientUnavailable};
+use super::density::{DensityGradient, GradientUnavailable, oriented};
 use super::density::{
     ln_density_over_start, lower_bound_core, over_start, start_panels, time_shape,
 };
@@ -100,19 +100,12 @@ pub fn ln_survival_with_gradient(
     } else {
         0.0
     };
-    let sign = match bound {
-        Bound::Lower => 1.0,
-        Bound::Upper => -1.0,
-    };
     Ok((
         ln_s,
-        DensityGradient {
-            drift: sign * mean(0),
-            boundary: mean(1),
-            start: sign * mean(2),
-            ndt: density_at_start,
-            drift_sd: mean(4),
-        },
+        oriented(
+            bound,
+            [mean(0), mean(1), mean(2), density_at_start, mean(4)],
+        ),
     ))
 }
 

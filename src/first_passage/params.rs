@@ -255,9 +255,11 @@ impl DiffusionParams {
         }
     }
 
+    /// The process started exactly at `start` (no start range): a node of the start average.
     pub(crate) fn with_start(&self, start: f64) -> DiffusionParams {
         DiffusionParams {
             start,
+            start_range: 0.0,
             start_terms: StartTerms::new(start),
             ln_start_complement: (-start).ln_1p(),
             ..*self

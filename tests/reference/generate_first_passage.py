@@ -55,10 +55,12 @@ Across-trial variability (all by numerical quadrature with mpmath.quad):
          term for term; the Gaussian-integral closed form above is never used for the table).
   start  w' ~ Uniform(w - sz/2, w + sz/2): average over w'.
   ndt    tau ~ Uniform(ndt - st/2, ndt + st/2): average over tau of f(rt - tau) / F(rt - tau)
-         (zero where rt - tau <= 0).  When drift_sd > 0 is combined with ndt_range, the
+         (zero where rt - tau <= 0).  When drift_sd > 0 is combined with ndt_range only, the
          tau-average of the CDF is evaluated by Fubini as
          (1/st) int_0^{t_hi} f(s) (t_hi - max(s, t_lo)) ds,   t = rt - tau in [t_lo, t_hi],
          which is the same double integral with the inner one done exactly.
+  Outermost integrals use adaptive mpmath.quad; integrals nested inside another one use a
+  fixed composite Gauss-Legendre rule built from mpmath's nodes (see "Variability layers").
 
 Because mpmath.quad uses an absolute error criterion, every quadrature below normalises its
 integrand by a sampled magnitude so that the error control is relative.
@@ -86,7 +88,7 @@ SEED = 20240611
 # a different rule at higher precision.
 CFG = {"method": "gauss-legendre", "dps": 20, "inner": "fixed", "gl_deg": 4}
 
-STATS = {"max_quad_relerr": mpf(0), "nquad": 0}
+STATS = {"max_quad_relerr": mpf(0), "nquad": 0, "where": "", "context": ""}
 
 
 def _tol():
@@ -155,10 +157,6 @@ def dens0(t, v, a, w):
     return E_factor(v, t, a, w) * S_factor(t, a, w)
 
 
-def log_dens0(t, v, a, w):
-    return -v * a * w - v * v * t / 2 + mp.log(fstd(t / (a * a), w)) - 2 * mp.log(a)
-
-
 def p_lower(v, a, w):
     """P(absorb at 0) = P_upper(-v, a, 1-w); Feller (1968), Cox & Miller (1965).
     expm1 form avoids cancellation for small |v| and for tiny probabilities."""
@@ -188,7 +186,7 @@ def wald_cdf(t, d, mu):
     return Phi((mu * t - d) / r) + mp.exp(2 * mu * d) * Phi((-mu * t - d) / r)
 
 
-U_CDF_SWITCH = mpf("0.5")
+U_CDF_SWITCH = mpf("0.15")
 
 
 class Cdf0:
@@ -318,6 +316,7 @@ def rquad(f, pts, dps, method, scale=None):
             rel = abs(e / r)
             if rel > STATS["max_quad_relerr"]:
                 STATS["max_quad_relerr"] = rel
+                STATS["where"] = STATS["context"]
         return r * sc
 
 
@@ -380,9 +379,6 @@ def xsig(s, eta):
     return 1 / mp.sqrt(1 + eta * eta * s)
 
 
-SQRT2PI = None
-
-
 def dens1(t, m, eta, a, w, depth):
     """Density with drift variability: int f(t | m + eta x) phi(x) dx (numerical in x).
     f(t|v) = exp(-vaw - v^2 t/2) * S(t), S independent of v and evaluated once."""
@@ -405,37 +401,50 @@ def dens1(t, m, eta, a, w, depth):
     return sf * integ(g, pts, depth, scale=g(xs), pts_adaptive=[xs - 12 * sg, xs, xs + 12 * sg])
 
 
+def _log_mass_guess(s, m, eta, a, w):
+    """Rough log of s * f_eta(s) (leading series term; used ONLY to place break points)."""
+    u = s / (a * a)
+    if u < 1:
+        lf = mp.log(w) - mp.log(2 * mp.pi * u ** 3) / 2 - w * w / (2 * u)
+    else:
+        lf = mp.log(mp.pi * mp.sin(mp.pi * w)) - mp.pi ** 2 * u / 2
+    k = eta * eta
+    return (lf - 2 * mp.log(a) - mp.log(1 + k * s) / 2
+            + (k * a * a * w * w - 2 * a * m * w - m * m * s) / (2 * (1 + k * s)) + mp.log(s))
+
+
 def x_points_cdf(t, m, eta, a, w):
     """Break points for int F(t|m+eta x) phi(x) dx.  F(t|v) phi(x) = int_0^t f(s|v) phi(x) ds
     is a superposition over s of Gaussians in x centred at xstar(s) (monotone in s) with
-    widths xsig(s) <= 1."""
-    pts = []
-    lo = hi = None
-    last = None
+    widths xsig(s) <= 1; only decision times s carrying non-negligible mass are used."""
+    cs = []
     j = 0
-    while True:
-        s = t * mpf(2) ** -j if j < 80 else mpf(0)
-        c, sg = xstar(s, m, eta, a, w), xsig(s, eta)
-        lo = c - 12 * sg if lo is None else min(lo, c - 12 * sg)
-        hi = c + 12 * sg if hi is None else max(hi, c + 12 * sg)
-        if last is None or abs(c - last) >= 1.5 * sg or j == 80:
-            pts += [c, c - 4 * sg, c + 4 * sg]
-            last = c
-        if j == 80:
+    while j < 60:
+        s = t * mpf(2) ** -j
+        cs.append((_log_mass_guess(s, m, eta, a, w), xstar(s, m, eta, a, w), xsig(s, eta)))
+        if s / (a * a) < mpf("0.002") and cs[-1][0] < max(c[0] for c in cs) - 80:
             break
         j += 1
-        if eta * eta * s < mpf(10) ** -6 and abs(m) * s < mpf(10) ** -6:
-            j = 80
-    # merge break points closer than a quarter of the narrowest width
-    gap = xsig(t, eta) / 4
-    out = [lo]
-    for p in sorted(p for p in pts if lo < p < hi):
-        if p - out[-1] >= gap:
-            out.append(p)
-    if hi - out[-1] < gap:
-        out.pop()
-    out.append(hi)
-    return out
+    top = max(c[0] for c in cs)
+    keep = [(c, sg) for (L, c, sg) in cs if L > top - 50]
+    lo = min(c - 12 * sg for c, sg in keep)
+    hi = max(c + 12 * sg for c, sg in keep)
+    core_lo = min(c - 4 * sg for c, sg in keep)
+    core_hi = max(c + 4 * sg for c, sg in keep)
+
+    def sig_near(p):
+        return min(keep, key=lambda cs_: abs(cs_[0] - p))[1]
+
+    pts = [lo, core_lo]
+    p = core_lo
+    while True:
+        step = 3 * sig_near(p)
+        if p + 1.5 * step >= core_hi:
+            break
+        p = p + step
+        pts.append(p)
+    pts += [core_hi, hi]
+    return pts
 
 
 def cdf1(t, m, eta, a, w, depth):
@@ -459,11 +468,16 @@ def w_points(t, m, eta, a, lo, hi):
     pts = [lo]
     p = lo
     h = (hi - lo) * mpf(10) ** -6
+    L = Lmax = mpf(0)   # running log of the integrand relative to its value at lo
     while p < hi and len(pts) < 60:
         x0, x1 = max(p - h, lo / 2), min(p + h, (1 + hi) / 2)
         g = (mp.log(S_factor(t, a, x1)) - mp.log(S_factor(t, a, x0))) / (x1 - x0) + drift_slope
-        step = min(cap, 3 / max(abs(g), mpf(10) ** -9))
+        step = min(cap, 8 / max(abs(g), mpf(10) ** -9))
         p = p + step
+        L += g * step
+        Lmax = max(L, Lmax)
+        if L < Lmax - 70:   # the rest of the range is negligible: one last interval
+            break
         pts.append(min(p, hi))
     pts.append(hi)
     return pts
@@ -524,19 +538,13 @@ def quantities(rt, bound, drift, a, w, ndt, eta, sz, st, want=("dens", "cdf")):
     d_min = a * (wl - sz / 2)
     tp = t_points(t_lo, t_hi, d_min)
     if "dens" in want:
-        if sz == 0:
-            # average over tau of f(rt - tau), as an integral over t = rt - tau
-            out["dens"] = integ(lambda t: dens2(t, m, eta, a, wl, sz, 1), tp, 0) / st
-        else:
-            # with start_range as well: the same average through its exact antiderivative,
-            # (1/st) [F(t_hi) - F(t_lo)], F from cdf2 (checked against the tau-quadrature
-            # in main())
-            out["dens"] = (cdf2(t_hi, m, eta, a, wl, sz, 0) - cdf2(t_lo, m, eta, a, wl, sz, 0)) / st
+        # average over tau of f(rt - tau), as an integral over t = rt - tau
+        out["dens"] = integ(lambda t: dens2(t, m, eta, a, wl, sz, 1), tp, 0) / st
     if "cdf" in want:
-        if eta == 0:
-            out["cdf"] = integ(lambda t: cdf2(t, m, eta, a, wl, sz, 1), tp, 0) / st
-        else:
+        if eta > 0 and sz == 0:
             out["cdf"] = cdf_st_fubini(t_lo, t_hi, m, eta, a, wl, sz, st, d_min)
+        else:
+            out["cdf"] = integ(lambda t: cdf2(t, m, eta, a, wl, sz, 1), tp, 0) / st
     return out
 
 
@@ -607,8 +615,10 @@ def design(rng):
         w = min(max(q2(rng.uniform(0.05, 0.95), 12), 0.05), 0.95)
         eta = r6(rng.uniform(0, 3)) if rng.random() < 2 / 3 else 0.0
         if kind == "szst":
-            # all three variabilities jointly: a few points only (cost), with moderate u
-            eta = r6(rng.uniform(0.2, 2.5)) if i % 6 == 0 else 0.0
+            # start_range and ndt_range jointly; with drift_sd as well for a few points only
+            # (cost), with moderate u
+            u = 10 ** rng.uniform(math.log10(0.02), math.log10(20))
+            eta = r6(rng.uniform(0.2, 2.5)) if i % 12 == 0 else 0.0
             if eta > 0:
                 u = 10 ** rng.uniform(math.log10(0.5), math.log10(5))
         sz = st = 0.0
@@ -620,7 +630,7 @@ def design(rng):
             ndt = q2(rng.uniform(st / 2, 0.5), 10)
             if ndt - st / 2 < 0:
                 ndt = st / 2
-            if i % 7 == 3:   # rt inside [ndt - st/2, ndt + st/2]
+            if i % 7 == 3 and kind == "st":   # rt inside [ndt - st/2, ndt + st/2]
                 rt = ndt - st / 2 + rng.uniform(0.15, 0.95) * st
             else:
                 rt = ndt + st / 2 + u * a * a
@@ -747,16 +757,16 @@ def moments_closed(v, a, w):
 
 
 def moments_numeric(v, a, w):
-    pts = [mpf(0)] + [a * a * c for c in (0.003, 0.01, 0.03, 0.1, 0.3, 1, 3, 10)]
+    pts = [mpf(0)] + [a * a * c for c in (0.01, 0.05, 0.2, 1, 4)]
     if v != 0:
-        pts += [a / abs(v) * c for c in (0.01, 0.1, 1, 10)]
+        pts += [a / abs(v) * c for c in (0.1, 1)]
     pts.append(mp.inf)
     fu = lambda t: dens0(t, -v, a, 1 - w)
     fl = lambda t: dens0(t, v, a, w)
-    pu = rquad(fu, pts, 34, "tanh-sinh")
-    pl = rquad(fl, pts, 34, "tanh-sinh")
-    mu = rquad(lambda t: t * fu(t), pts, 34, "tanh-sinh")
-    ml = rquad(lambda t: t * fl(t), pts, 34, "tanh-sinh")
+    pu = rquad(fu, pts, 30, "tanh-sinh")
+    pl = rquad(fl, pts, 30, "tanh-sinh")
+    mu = rquad(lambda t: t * fu(t), pts, 30, "tanh-sinh")
+    ml = rquad(lambda t: t * fl(t), pts, 30, "tanh-sinh")
     return pu, pl, mu, ml
 
 
@@ -794,10 +804,10 @@ def main():
     rows = []
     eta_cf = mpf(0)
     eta_cf_log = mpf(0)
-    st_identity = mpf(0)
     tk = {}
     for i, p in enumerate(pts):
         t1 = time.time()
+        STATS["context"] = "table row %d" % i
         res = point_values(p)
         d, c = res["dens"], res["cdf"]
         assert d > 0, p
@@ -815,7 +825,8 @@ def main():
             eta_cf = max(eta_cf, relerr(cf, d))
             eta_cf_log = max(eta_cf_log, abs(mp.log(cf) - ld))
         key = (p["tag"], p["drift_sd"] > 0)
-        tk[key] = tk.get(key, 0) + time.time() - t1
+        p["_time"] = time.time() - t1
+        tk[key] = tk.get(key, 0) + p["_time"]
         if i % 50 == 0:
             print("point %d/%d  %.0fs" % (i, len(pts), time.time() - t0), flush=True)
         mp.mp._gauss_legendre.interval_count.clear()
@@ -839,65 +850,104 @@ def main():
 
     # ---- checks on the mixtures --------------------------------------------------------
     crng = random.Random(SEED + 2)
-    # (a) ndt_range density by tau-quadrature vs CDF difference [F(t_hi) - F(t_lo)]/st
-    cands = [p for p in rows if p["ndt_range"] > 0 and (p["drift_sd"] == 0 or p["start_range"] == 0)]
-    for p in crng.sample(cands, min(len(cands), 12 if not quick else 3)):
+
+    def frame(p):
+        v, w = mpf(p["drift"]), mpf(p["start"])
+        return (v, w) if p["bound"] == "lower" else (-v, 1 - w)
+
+    # (a) ndt_range density by tau-quadrature vs the exact antiderivative
+    #     [F(t_hi) - F(t_lo)] / st, evaluated at higher precision; only points where the
+    #     difference is well conditioned (F(t_lo) < 0.9 F(t_hi)).
+    worst = mpf(0)
+    n_a = 0
+    cands = [p for p in rows if p["ndt_range"] > 0 and p["start_range"] == 0]
+    save = dict(CFG)
+    CFG.update(dps=32)
+    for p in crng.sample(cands, len(cands)):
+        if n_a >= (12 if not quick else 3):
+            break
+        m, wl = frame(p)
         rt, nd, st = mpf(p["rt"]), mpf(p["ndt"]), mpf(p["ndt_range"])
-        t_hi = rt - nd + st / 2
-        t_lo = max(rt - nd - st / 2, mpf(0))
-        def cdf_at(t):
-            if t <= 0:
-                return mpf(0)
-            m = mpf(p["drift"]) if p["bound"] == "lower" else -mpf(p["drift"])
-            wl = mpf(p["start"]) if p["bound"] == "lower" else 1 - mpf(p["start"])
-            return cdf2(t, m, mpf(p["drift_sd"]), mpf(p["boundary"]), wl, mpf(p["start_range"]), 0)
-        dd = (cdf_at(t_hi) - cdf_at(t_lo)) / st
-        st_identity = max(st_identity, relerr(dd, mp.exp(p["_ld"])))
-    report.append(("ndt_range density: tau-quadrature vs CDF difference / st (12 pts)",
-                   st_identity))
+        t_hi, t_lo = rt - nd + st / 2, max(rt - nd - st / 2, mpf(0))
+        a, eta = mpf(p["boundary"]), mpf(p["drift_sd"])
+        f_hi = cdf1(t_hi, m, eta, a, wl, 0)
+        f_lo = cdf1(t_lo, m, eta, a, wl, 0)
+        if not f_lo < mpf("0.9") * f_hi:
+            continue
+        worst = max(worst, relerr((f_hi - f_lo) / st, mp.exp(p["_ld"])))
+        n_a += 1
+    CFG.clear(); CFG.update(save)
+    report.append(("ndt_range density: tau-quadrature vs [F(t_hi)-F(t_lo)]/st (%d pts)" % n_a,
+                   worst))
 
     # (b) drift_sd CDF (v-quadrature of fixed-drift CDF) vs time-quadrature of the closed-form
     #     drift_sd density
     worst = mpf(0)
     cands = [p for p in rows if p["drift_sd"] > 0 and p["start_range"] == 0 and p["ndt_range"] == 0]
-    for p in crng.sample(cands, min(len(cands), 15 if not quick else 3)):
-        a, w, v, eta = mpf(p["boundary"]), mpf(p["start"]), mpf(p["drift"]), mpf(p["drift_sd"])
-        m, wl = (v, w) if p["bound"] == "lower" else (-v, 1 - w)
+    cands = crng.sample(cands, min(len(cands), 15 if not quick else 3))
+    for p in cands:
+        a, eta = mpf(p["boundary"]), mpf(p["drift_sd"])
+        m, wl = frame(p)
         t = mpf(p["rt"]) - mpf(p["ndt"])
         q = rquad(lambda s: eta_closed_form_lower(s, m, eta, a, wl) if s > 0 else mpf(0),
                   t_points(mpf(0), t, a * wl), 34, "tanh-sinh")
         worst = max(worst, relerr(q, p["_cdf"]))
-    report.append(("drift_sd CDF vs time-quad of closed-form drift_sd density (15 pts)", worst))
+    report.append(("drift_sd CDF vs time-quad of closed-form drift_sd density (%d pts)" % len(cands),
+                   worst))
 
     # (c) Fubini form vs direct tau-average of the CDF (drift_sd and ndt_range, no sz)
     worst = mpf(0)
     cands = [p for p in rows if p["ndt_range"] > 0 and p["drift_sd"] > 0 and p["start_range"] == 0]
-    for p in crng.sample(cands, min(len(cands), 5 if not quick else 1)):
-        a, w, v, eta = mpf(p["boundary"]), mpf(p["start"]), mpf(p["drift"]), mpf(p["drift_sd"])
-        m, wl = (v, w) if p["bound"] == "lower" else (-v, 1 - w)
+    cands = crng.sample(cands, min(len(cands), 5 if not quick else 1))
+    for p in cands:
+        a, eta = mpf(p["boundary"]), mpf(p["drift_sd"])
+        m, wl = frame(p)
         rt, nd, st = mpf(p["rt"]), mpf(p["ndt"]), mpf(p["ndt_range"])
         t_lo, t_hi = max(rt - nd - st / 2, mpf(0)), rt - nd + st / 2
-        direct = rquad(lambda t: cdf1(t, m, eta, a, wl, 1), t_points(t_lo, t_hi, a * wl),
-                       qdps(0), CFG["method"]) / st
+        save = dict(CFG)
+        CFG.update(dps=26)
+        direct = integ(lambda t: cdf1(t, m, eta, a, wl, 1), t_points(t_lo, t_hi, a * wl),
+                       0) / st
+        CFG.clear(); CFG.update(save)
         worst = max(worst, relerr(direct, p["_cdf"]))
-    report.append(("ndt_range+drift_sd CDF: Fubini form vs direct tau-average (5 pts)", worst))
+    report.append(("ndt_range+drift_sd CDF: Fubini form vs direct tau-average (%d pts)" % len(cands),
+                   worst))
 
-    # (d) quadrature rule / precision: recompute a subset with tanh-sinh at +10 digits
-    save = dict(CFG)
-    CFG.update(method="tanh-sinh", dps=30)
-    worst_d = worst_c = mpf(0)
-    sub = [p for p in rows if p["tag"] in ("base", "tail", "small-u") and p["drift_sd"] > 0]
-    sub = crng.sample(sub, min(len(sub), 10 if not quick else 2))
-    var = [p for p in rows if p["tag"] in ("sz", "st", "szst", "sz-edge")]
-    cheap = [p for p in var if not (p["drift_sd"] > 0 and p["start_range"] > 0)]
-    sub += crng.sample(cheap, min(len(cheap), 10 if not quick else 2))
-    for p in sub:
-        res = point_values(p)
-        worst_d = max(worst_d, abs(mp.log(res["dens"]) - p["_ld"]) / max(1, abs(p["_ld"])))
-        worst_c = max(worst_c, relerr(res["cdf"], p["_cdf"]))
-    CFG.clear(); CFG.update(save)
-    report.append(("rule/precision: GL@dps20 vs tanh-sinh@dps30, rel err of density (%d pts)" % len(sub), worst_d))
-    report.append(("rule/precision: GL@dps20 vs tanh-sinh@dps30, rel err of CDF", worst_c))
+    # (d) quadrature rules and precision.
+    def recompute(sub, label, **cfg):
+        save = dict(CFG)
+        CFG.update(cfg)
+        wd = wc = mpf(0)
+        try:
+            for p in sub:
+                res = point_values(p)
+                wd = max(wd, relerr(res["dens"], mp.exp(p["_ld"])))
+                wc = max(wc, relerr(res["cdf"], p["_cdf"]))
+        finally:
+            CFG.clear(); CFG.update(save)
+        report.append(("%s, density (%d pts)" % (label, len(sub)), wd))
+        report.append(("%s, CDF" % label, wc))
+
+    nested = [p for p in rows if (p["drift_sd"] > 0) + (p["start_range"] > 0) + (p["ndt_range"] > 0) >= 2]
+    one_d = [p for p in rows if (p["drift_sd"] > 0) + (p["start_range"] > 0) + (p["ndt_range"] > 0) == 1]
+    # (d1) 1-D integrals: adaptive Gauss-Legendre at dps 20 vs tanh-sinh at dps 32
+    recompute(crng.sample(one_d, min(len(one_d), 12 if not quick else 2)),
+              "1-D mixtures: GL@dps20 vs tanh-sinh@dps32", method="tanh-sinh", dps=32)
+    # (d2) nested integrals: inner fixed 24-node rule vs 48-node rule, outer at dps 26
+    #      (a deterministic selection of the cheaper nested cases)
+    def u_of(p):
+        return (p["rt"] - p["ndt"]) / p["boundary"] ** 2
+    st_eta = [p for p in nested if p["tag"] == "st"]
+    sz_eta = [p for p in nested if p["tag"] == "sz" and u_of(p) > 1]
+    szst = [p for p in nested if p["tag"] == "szst" and p["drift_sd"] == 0 and u_of(p) > 1]
+    sub = (crng.sample(st_eta, min(3, len(st_eta))) + crng.sample(sz_eta, min(2, len(sz_eta)))
+           + crng.sample(szst, min(2, len(szst))))
+    recompute(sub if not quick else sub[:1],
+              "nested: inner 24-node GL@dps20 vs 48-node GL@dps26", gl_deg=5, dps=26)
+    # (d3) nested integrals: inner fixed rule vs adaptive tanh-sinh everywhere
+    recompute(crng.sample(st_eta, min(2, len(st_eta))) if not quick else st_eta[:1],
+              "nested: inner fixed GL vs all-adaptive tanh-sinh@dps24", inner="adaptive",
+              method="tanh-sinh", dps=24)
     print("mixture checks done (%.0fs)" % (time.time() - t0), flush=True)
 
     # ---- moments ------------------------------------------------------------------------
