@@ -156,3 +156,74 @@ fn gradient_matches_central_differences_for_every_built_in_model() {
         }
     }
 }
+
+#[test]
+fn forgetting_and_a_free_initial_value_follow_the_hand_computation() {
+    // One learning rate α = 0.5, forgetting φ = 0.2 towards initial value Q0 = 0.1 (hand
+    // arithmetic): start Q = (0.1, 0.1, 0.1)
+    // t1 chose x, r = 1: Q(x) = 0.1 + 0.5·0.9 = 0.55; y, z: 0.1 + 0.2·(0.1 − 0.1) = 0.1
+    // t2 chose y, r = 0: Q(y) = 0.1 − 0.5·0.1 = 0.05; x: 0.55 + 0.2·(0.1 − 0.55) = 0.46
+    // t3 offers y (0.05) and z (0.1).
+    let text = r#"
+name = "delta-forgetting"
+[learning]
+rule = "delta"
+forgetting = true
+[cost]
+shape = "none"
+[drift]
+mapping = "linear"
+[choice]
+stage = "diffusion"
+[parameters.learning_rate]
+fixed = 0.5
+[parameters.forget_rate]
+fixed = 0.2
+[parameters.initial_value]
+lower = -1.0
+upper = 1.0
+start = [0.0, 0.2]
+[parameters.value_scale]
+fixed = 3.0
+[parameters.boundary]
+fixed = 1.5
+[parameters.ndt]
+fixed = 0.3
+"#;
+    let model = valuedrift::model::parse_model(text, "inline").unwrap();
+    let subject = worked_subject();
+    let lik = SubjectLikelihood::new(&model, &subject, None).unwrap();
+    let natural: Vec<f64> = model
+        .parameters
+        .iter()
+        .map(|p| {
+            if p.name == "initial_value" {
+                0.1
+            } else {
+                p.fixed.unwrap()
+            }
+        })
+        .collect();
+    let trace = lik.trace(&natural);
+    let close = |a: f64, b: f64| (a - b).abs() < 1e-12;
+    assert!(close(trace[0].value_a, 0.1) && close(trace[0].value_b, 0.1));
+    assert!(close(trace[1].value_a, 0.55) && close(trace[1].value_b, 0.1));
+    assert!(
+        close(trace[2].value_a, 0.05) && close(trace[2].value_b, 0.1),
+        "{:?}",
+        trace[2]
+    );
+    assert!(
+        close(trace[3].value_a, 0.46 + 0.2 * (0.1 - 0.46)),
+        "x decays again on t3: {:?}",
+        trace[3]
+    );
+    // The free initial value gets an exact gradient too (central differences, common practice).
+    let theta = lik.unconstrained(&[0.1]);
+    let e = lik.evaluate(&theta);
+    let h = 1e-6;
+    let numeric = (lik.evaluate(&[theta[0] + h]).ln_likelihood
+        - lik.evaluate(&[theta[0] - h]).ln_likelihood)
+        / (2.0 * h);
+    assert!((numeric - e.gradient[0]).abs() < 1e-5 * numeric.abs().max(1.0));
+}
