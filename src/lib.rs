@@ -9,9 +9,11 @@
 
 pub mod cli;
 pub mod data;
+pub mod exports;
 pub mod files;
 pub mod first_passage;
 pub mod fit;
+pub mod group;
 pub mod likelihood;
 pub mod model;
 pub mod results;

@@ -1,7 +1,9 @@
 //! Command-line interface: argument definitions and dispatch to one small function per command.
 
+mod contrast;
 mod demo;
 mod density;
+mod export;
 mod fit;
 mod models;
 mod simulate;
@@ -72,6 +74,58 @@ pub enum Command {
         /// Column names of your file, as canonical=yours pairs: subject=participant,rt=RT.
         #[arg(long, default_value = "")]
         columns: String,
+    },
+    /// Per-trial latent variables of a fitted model for imaging analyses: values, subjective
+    /// values, value difference, prediction errors, drift, choice probability and expected times
+    /// at each subject's estimates in DIR/parameters.csv (from `valuedrift fit`).
+    ///
+    /// Writes OUT/latents.csv and OUT/latents.parquet (raw values, one row per trial) and, when
+    /// the trial table has onsets, one BIDS events file per subject and run
+    /// (sub-<label>[_run-<index>]_desc-<model>_events.tsv with a .json sidecar) with choice and
+    /// outcome events and one column per modulator, plus OUT/subject_labels.tsv.
+    #[command(after_help = RESEARCH_CAUTION)]
+    Export {
+        /// Folder written by `valuedrift fit` (reads its parameters.csv).
+        #[arg(long)]
+        fits: PathBuf,
+        /// Trial table (.csv, .tsv or .parquet) that was fitted.
+        #[arg(long)]
+        data: PathBuf,
+        /// Model name or file (one model).
+        #[arg(long)]
+        model: String,
+        /// Output folder.
+        #[arg(long)]
+        out: PathBuf,
+        /// Scaling of the modulators within each run, in the events files only.
+        #[arg(long, value_enum, default_value_t = crate::exports::Scale::Center)]
+        scale: crate::exports::Scale,
+        /// Column names of your file, as canonical=yours pairs: subject=participant,rt=RT.
+        #[arg(long, default_value = "")]
+        columns: String,
+    },
+    /// Compare one model's fitted parameters between groups of subjects: per free parameter,
+    /// Welch's t test (Welch 1947), Mann-Whitney U (normal approximation with tie and continuity
+    /// corrections), Hedges' g with a 95 % interval (Hedges 1981; Hedges & Olkin 1985) and, with
+    /// more than two groups, Welch's ANOVA (Welch 1951) and Kruskal-Wallis H (Kruskal & Wallis
+    /// 1952); Benjamini-Hochberg q values (1995) across parameters of the Welch p values.
+    ///
+    /// Reads DIR/parameters.csv of `valuedrift fit`; writes contrast.csv, contrast_groups.csv
+    /// and their Parquet twins. Estimates at a bound are kept and counted in n_at_bound.
+    #[command(after_help = RESEARCH_CAUTION)]
+    Contrast {
+        /// Folder written by `valuedrift fit` (holding parameters.csv).
+        #[arg(long)]
+        fits: PathBuf,
+        /// Model whose parameters are compared.
+        #[arg(long)]
+        model: String,
+        /// Column of parameters.csv that defines the groups.
+        #[arg(long, default_value = "group")]
+        by: String,
+        /// Output folder (default: the --fits folder).
+        #[arg(long)]
+        out: Option<PathBuf>,
     },
     /// Simulate choices, response times and outcomes from a model on a trial design.
     ///
@@ -165,6 +219,27 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             println!("{RESEARCH_CAUTION}");
             Ok(())
         }
+        Command::Export {
+            fits,
+            data,
+            model,
+            out,
+            scale,
+            columns,
+        } => export::run(export::ExportRun {
+            fits: &fits,
+            data: &data,
+            model: &model,
+            out: &out,
+            scale,
+            columns: &columns,
+        }),
+        Command::Contrast {
+            fits,
+            model,
+            by,
+            out,
+        } => contrast::run(&fits, &model, &by, out.as_deref().unwrap_or(&fits)),
         Command::Simulate {
             model,
             params,

@@ -432,13 +432,17 @@ def x_points_cdf(t, m, eta, a, w):
     core_lo = min(c - 4 * sg for c, sg in keep)
     core_hi = max(c + 4 * sg for c, sg in keep)
 
-    def sig_near(p):
-        return min(keep, key=lambda cs_: abs(cs_[0] - p))[1]
+    def lam(p):
+        """Smallest width among the Gaussians that are not negligible at p."""
+        near = [sg for c, sg in keep if abs(p - c) <= 6 * sg]
+        return min(near) if near else mpf(1)
 
     pts = [lo, core_lo]
     p = core_lo
-    while True:
-        step = 3 * sig_near(p)
+    while len(pts) < 200:
+        step = 3 * lam(p)
+        # do not step over a region where narrower components live
+        step = 3 * min([lam(p)] + [lam(p + step * f) for f in (0.25, 0.5, 0.75, 1)])
         if p + 1.5 * step >= core_hi:
             break
         p = p + step

@@ -1,0 +1,781 @@
+//! Per-trial latent variables of a fitted model, for imaging analyses.
+//!
+//! From each subject's fitted (natural-scale) parameters the learning recursion is run again over
+//! the subject's trials ([`SubjectLikelihood::trace`]), giving per trial the values before the
+//! outcome, the subjective values after the effort cost, the decision signal, the prediction
+//! error at the outcome, the probability of the choice made and the expected times.
+//!
+//! Two products:
+//! - a tidy table of every trial ([`latents_table`]), raw (unscaled);
+//! - events files following the BIDS standard for events ([`events_files`]): one per subject
+//!   and run, with `choice` and `outcome` events and one column per parametric modulator,
+//!   scaled within the run ([`Scale`]), `n/a` where a value does not exist, and a JSON sidecar
+//!   describing every column.
+
+use crate::data::{Choice, Subject};
+use crate::files::InputError;
+use crate::likelihood::{DataMismatch, SubjectLikelihood};
+use crate::model::Model;
+use crate::results::{Column, Table};
+use std::collections::HashMap;
+use std::io::Write;
+use std::path::Path;
+
+/// Every model quantity of one trial, with the trial's identifiers.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Latent {
+    /// Participant label as in the trial table.
+    pub subject: String,
+    /// Group label.
+    pub group: String,
+    /// Run label.
+    pub run: String,
+    /// Trial number.
+    pub trial: i64,
+    /// Trial onset (s from run start).
+    pub onset: Option<f64>,
+    /// Outcome onset (s from run start).
+    pub outcome_onset: Option<f64>,
+    /// The choice made (None: no response).
+    pub choice: Option<Choice>,
+    /// Response time (s).
+    pub rt: Option<f64>,
+    /// Outcome delivered.
+    pub outcome: Option<f64>,
+    /// Value of option a before the outcome.
+    pub value_a: f64,
+    /// Value of option b before the outcome.
+    pub value_b: f64,
+    /// Subjective value of a after the effort cost.
+    pub subjective_value_a: f64,
+    /// Subjective value of b after the effort cost.
+    pub subjective_value_b: f64,
+    /// Subjective value of the chosen option.
+    pub value_chosen: Option<f64>,
+    /// Subjective value of the option not chosen.
+    pub value_unchosen: Option<f64>,
+    /// subjective_value_a − subjective_value_b.
+    pub value_difference: f64,
+    /// Outcome minus the chosen option's value (None without response, outcome or learning).
+    pub prediction_error: Option<f64>,
+    /// Effort demanded by the chosen option.
+    pub effort_chosen: Option<f64>,
+    /// Drift rate (diffusion models only).
+    pub drift: Option<f64>,
+    /// The choice stage's input: the drift, or the softmax argument.
+    pub decision_signal: f64,
+    /// Model probability of the choice made.
+    pub choice_probability: Option<f64>,
+    /// Expected decision time (models of time only).
+    pub expected_decision_time: Option<f64>,
+    /// Expected response time = decision time + non-decision time (models of time only).
+    pub expected_rt: Option<f64>,
+}
+
+/// The latent variables of every trial of `subject` at natural-scale parameter values `natural`
+/// (every model parameter, in the model's order).
+pub fn latents(
+    model: &Model,
+    subject: &Subject,
+    natural: &[f64],
+) -> Result<Vec<Latent>, DataMismatch> {
+    let likelihood = SubjectLikelihood::new(model, subject, None)?;
+    let diffusion = model.uses_response_times();
+    let traces = likelihood.trace(natural);
+    Ok(subject
+        .trials
+        .iter()
+        .zip(traces)
+        .map(|(t, tr)| {
+            let chosen = t.choice.map(|c| match c {
+                Choice::A => (
+                    tr.subjective_value_a,
+                    tr.subjective_value_b,
+                    t.effort_a,
+                    tr.probability_a,
+                ),
+                Choice::B => (
+                    tr.subjective_value_b,
+                    tr.subjective_value_a,
+                    t.effort_b,
+                    1.0 - tr.probability_a,
+                ),
+            });
+            Latent {
+                subject: subject.id.clone(),
+                group: subject.group.clone(),
+                run: t.run.clone(),
+                trial: t.trial,
+                onset: t.onset,
+                outcome_onset: t.outcome_onset,
+                choice: t.choice,
+                rt: t.rt,
+                outcome: t.outcome,
+                value_a: tr.value_a,
+                value_b: tr.value_b,
+                subjective_value_a: tr.subjective_value_a,
+                subjective_value_b: tr.subjective_value_b,
+                value_chosen: chosen.map(|c| c.0),
+                value_unchosen: chosen.map(|c| c.1),
+                value_difference: tr.subjective_value_a - tr.subjective_value_b,
+                prediction_error: tr.prediction_error,
+                effort_chosen: chosen.map(|c| c.2),
+                drift: diffusion.then_some(tr.signal),
+                decision_signal: tr.signal,
+                choice_probability: chosen.map(|c| c.3),
+                expected_decision_time: tr.expected_times.map(|e| e.0),
+                expected_rt: tr.expected_times.map(|e| e.1),
+            }
+        })
+        .collect())
+}
+
+/// One row per trial; missing values are empty (CSV) or null (Parquet). Values are raw.
+pub fn latents_table(rows: &[Latent]) -> Table {
+    let text = |f: &dyn Fn(&Latent) -> String| Column::Text(rows.iter().map(f).collect());
+    let number = |f: &dyn Fn(&Latent) -> Option<f64>| Column::Number(rows.iter().map(f).collect());
+    Table::default()
+        .with("subject", text(&|r| r.subject.clone()))
+        .with("group", text(&|r| r.group.clone()))
+        .with("run", text(&|r| r.run.clone()))
+        .with(
+            "trial",
+            Column::Integer(rows.iter().map(|r| r.trial).collect()),
+        )
+        .with("onset", number(&|r| r.onset))
+        .with("outcome_onset", number(&|r| r.outcome_onset))
+        .with(
+            "choice",
+            text(&|r| r.choice.map_or(String::new(), |c| c.as_str().to_string())),
+        )
+        .with("rt", number(&|r| r.rt))
+        .with("outcome", number(&|r| r.outcome))
+        .with("value_a", number(&|r| Some(r.value_a)))
+        .with("value_b", number(&|r| Some(r.value_b)))
+        .with(
+            "subjective_value_a",
+            number(&|r| Some(r.subjective_value_a)),
+        )
+        .with(
+            "subjective_value_b",
+            number(&|r| Some(r.subjective_value_b)),
+        )
+        .with("value_chosen", number(&|r| r.value_chosen))
+        .with("value_unchosen", number(&|r| r.value_unchosen))
+        .with("value_difference", number(&|r| Some(r.value_difference)))
+        .with("prediction_error", number(&|r| r.prediction_error))
+        .with("effort_chosen", number(&|r| r.effort_chosen))
+        .with("drift", number(&|r| r.drift))
+        .with("decision_signal", number(&|r| Some(r.decision_signal)))
+        .with("choice_probability", number(&|r| r.choice_probability))
+        .with(
+            "expected_decision_time",
+            number(&|r| r.expected_decision_time),
+        )
+        .with("expected_rt", number(&|r| r.expected_rt))
+}
+
+// ---------------------------------------------------------------------------------------------
+// Fitted parameters
+
+/// Reads the natural-scale estimates of `model` for each subject from a `parameters.csv` written
+/// by `valuedrift fit` (columns subject, model, parameter, estimate; others ignored). Returns, per
+/// subject of `subjects` and in that order, every model parameter in the model's order (fixed
+/// parameters not in the file take their fixed value).
+pub fn read_estimates(
+    path: &Path,
+    model: &Model,
+    subjects: &[Subject],
+) -> Result<Vec<Vec<f64>>, InputError> {
+    let file = std::fs::File::open(path)
+        .map_err(|e| InputError::file(path, format!("cannot be read: {e}")))?;
+    let mut reader = csv::ReaderBuilder::new().flexible(false).from_reader(file);
+    let headers = reader
+        .headers()
+        .map_err(|e| InputError::file(path, format!("has no readable header: {e}")))?
+        .clone();
+    let index = |name: &str| {
+        headers
+            .iter()
+            .position(|h| h.trim() == name)
+            .ok_or_else(|| {
+                InputError::file(
+                    path,
+                    format!(
+                        "has no column `{name}` (expected the parameters.csv written by \
+                         `valuedrift fit`)"
+                    ),
+                )
+            })
+    };
+    let (i_subject, i_model, i_parameter, i_estimate) = (
+        index("subject")?,
+        index("model")?,
+        index("parameter")?,
+        index("estimate")?,
+    );
+    // subject → parameter slot → estimate
+    let mut found: HashMap<String, HashMap<usize, f64>> = HashMap::new();
+    let mut models_in_file: Vec<String> = Vec::new();
+    for record in reader.records() {
+        let record = record.map_err(|e| {
+            let line = e.position().map_or(0, |p| p.line());
+            InputError {
+                file: path.to_path_buf(),
+                line: (line > 0).then_some(line),
+                column: None,
+                message: format!("cannot be parsed: {e}"),
+            }
+        })?;
+        let line = record.position().map_or(0, |p| p.line());
+        let field = |i: usize| record.get(i).unwrap_or("").trim();
+        let row_model = field(i_model);
+        if !models_in_file.iter().any(|m| m == row_model) {
+            models_in_file.push(row_model.to_string());
+        }
+        if row_model != model.name {
+            continue;
+        }
+        let name = field(i_parameter);
+        let Some(slot) = model.parameters.iter().position(|p| p.name == name) else {
+            return Err(InputError::at(
+                path,
+                line,
+                "parameter",
+                format!("`{name}` is not a parameter of model {}", model.name),
+            ));
+        };
+        let text = field(i_estimate);
+        let estimate: f64 = text
+            .parse()
+            .ok()
+            .filter(|x: &f64| x.is_finite())
+            .ok_or_else(|| {
+                InputError::at(
+                    path,
+                    line,
+                    "estimate",
+                    format!("`{text}` is not a finite number"),
+                )
+            })?;
+        let subject = field(i_subject).to_string();
+        if found
+            .entry(subject.clone())
+            .or_default()
+            .insert(slot, estimate)
+            .is_some()
+        {
+            return Err(InputError::at(
+                path,
+                line,
+                "parameter",
+                format!(
+                    "second estimate of `{name}` for subject {subject} and model {}",
+                    model.name
+                ),
+            ));
+        }
+    }
+    if found.is_empty() {
+        return Err(InputError::file(
+            path,
+            format!(
+                "has no estimates of model {} (models in the file: {})",
+                model.name,
+                if models_in_file.is_empty() {
+                    "none".to_string()
+                } else {
+                    models_in_file.join(", ")
+                }
+            ),
+        ));
+    }
+    subjects
+        .iter()
+        .map(|s| {
+            let Some(estimates) = found.get(&s.id) else {
+                return Err(InputError::file(
+                    path,
+                    format!(
+                        "has no estimates of model {} for subject {} (was it fitted?)",
+                        model.name, s.id
+                    ),
+                ));
+            };
+            model
+                .parameters
+                .iter()
+                .enumerate()
+                .map(|(slot, spec)| match (estimates.get(&slot), spec.fixed) {
+                    (Some(&x), _) => Ok(x),
+                    (None, Some(fixed)) => Ok(fixed),
+                    (None, None) => Err(InputError::file(
+                        path,
+                        format!(
+                            "has no estimate of `{}` of model {} for subject {}",
+                            spec.name, model.name, s.id
+                        ),
+                    )),
+                })
+                .collect()
+        })
+        .collect()
+}
+
+// ---------------------------------------------------------------------------------------------
+// BIDS labels and run indices
+
+/// A BIDS label (alphanumeric only) for a participant label: a leading `sub-` is removed, then
+/// every character that is not an ASCII letter or digit. None when nothing is left.
+pub fn bids_label(raw: &str) -> Option<String> {
+    let trimmed = raw.trim();
+    let rest = match trimmed.get(..4) {
+        Some(prefix) if prefix.eq_ignore_ascii_case("sub-") => &trimmed[4..],
+        _ => trimmed,
+    };
+    let label: String = rest.chars().filter(|c| c.is_ascii_alphanumeric()).collect();
+    (!label.is_empty()).then_some(label)
+}
+
+/// BIDS labels of all subjects, in order; an error when a label would be empty or two subjects
+/// would share one.
+pub fn bids_labels(subjects: &[Subject]) -> Result<Vec<String>, String> {
+    let mut labels: Vec<String> = Vec::with_capacity(subjects.len());
+    let mut owner: HashMap<String, &str> = HashMap::new();
+    for s in subjects {
+        let label = bids_label(&s.id).ok_or_else(|| {
+            format!(
+                "subject `{}` has no letter or digit, so it has no BIDS label",
+                s.id
+            )
+        })?;
+        if let Some(other) = owner.insert(label.clone(), &s.id) {
+            return Err(format!(
+                "subjects `{other}` and `{}` would both get the BIDS label `{label}` \
+                 (labels keep letters and digits only); rename one of them",
+                s.id
+            ));
+        }
+        labels.push(label);
+    }
+    Ok(labels)
+}
+
+/// The runs of a subject in order of appearance, each with its BIDS run index: the run label
+/// itself when every label of the subject is a positive integer, else the order of appearance
+/// (1, 2, …). A single run gets no index (no `run` entity in the file name).
+pub fn run_indices(subject: &Subject) -> Vec<(String, Option<u64>)> {
+    let mut runs: Vec<String> = Vec::new();
+    for t in &subject.trials {
+        if !runs.contains(&t.run) {
+            runs.push(t.run.clone());
+        }
+    }
+    if runs.len() == 1 {
+        return vec![(runs.remove(0), None)];
+    }
+    let numeric: Option<Vec<u64>> = runs
+        .iter()
+        .map(|r| r.trim().parse::<u64>().ok().filter(|&n| n > 0))
+        .collect();
+    let indices: Vec<u64> = match numeric {
+        Some(n) => {
+            let mut unique = n.clone();
+            unique.sort_unstable();
+            unique.dedup();
+            if unique.len() == n.len() {
+                n
+            } else {
+                (1..=runs.len() as u64).collect()
+            }
+        }
+        None => (1..=runs.len() as u64).collect(),
+    };
+    runs.into_iter()
+        .zip(indices)
+        .map(|(r, i)| (r, Some(i)))
+        .collect()
+}
+
+// ---------------------------------------------------------------------------------------------
+// Scaling
+
+/// How modulators are scaled within each run (events files only).
+#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
+pub enum Scale {
+    /// Mean subtracted.
+    Center,
+    /// Mean subtracted, divided by the sample standard deviation (n − 1).
+    Zscore,
+    /// Raw values.
+    None,
+}
+
+/// What scaling did to one column.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Scaled {
+    /// Mean subtracted (None: not centred).
+    pub mean: Option<f64>,
+    /// Standard deviation divided by (None: not divided).
+    pub sd: Option<f64>,
+}
+
+/// Scales the present values in place: `Center` subtracts their mean, `Zscore` also divides by
+/// their sample standard deviation (n − 1 denominator); a z-score is only centred when fewer
+/// than two values are present or they do not vary.
+pub fn scale_values(values: &mut [Option<f64>], scale: Scale) -> Scaled {
+    let present: Vec<f64> = values.iter().flatten().copied().collect();
+    if scale == Scale::None || present.is_empty() {
+        return Scaled {
+            mean: None,
+            sd: None,
+        };
+    }
+    let n = present.len() as f64;
+    let mean = present.iter().sum::<f64>() / n;
+    let sd = if scale == Scale::Zscore && present.len() >= 2 {
+        let ss: f64 = present.iter().map(|x| (x - mean).powi(2)).sum();
+        let sd = (ss / (n - 1.0)).sqrt();
+        (sd > 0.0 && sd.is_finite()).then_some(sd)
+    } else {
+        None
+    };
+    for x in values.iter_mut().flatten() {
+        *x -= mean;
+        if let Some(sd) = sd {
+            *x /= sd;
+        }
+    }
+    Scaled {
+        mean: Some(mean),
+        sd,
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
+// Events files
+
+/// One modulator column: name, long name, description, units, event type it belongs to, value.
+struct Modulator {
+    name: &'static str,
+    long_name: &'static str,
+    description: &'static str,
+    units: &'static str,
+    at_outcome: bool,
+    value: fn(&Latent) -> Option<f64>,
+}
+
+static MODULATORS: [Modulator; 8] = [
+    Modulator {
+        name: "value_chosen",
+        long_name: "Subjective value of the chosen option",
+        description: "Learned value of the chosen option before the outcome, after the effort \
+                      cost; n/a without response",
+        units: "outcome units",
+        at_outcome: false,
+        value: |l| l.value_chosen,
+    },
+    Modulator {
+        name: "value_unchosen",
+        long_name: "Subjective value of the option not chosen",
+        description: "Learned value of the option not chosen before the outcome, after the \
+                      effort cost; n/a without response",
+        units: "outcome units",
+        at_outcome: false,
+        value: |l| l.value_unchosen,
+    },
+    Modulator {
+        name: "value_difference",
+        long_name: "Subjective value difference",
+        description: "Subjective value of option a minus subjective value of option b, before \
+                      the outcome",
+        units: "outcome units",
+        at_outcome: false,
+        value: |l| Some(l.value_difference),
+    },
+    Modulator {
+        name: "effort_chosen",
+        long_name: "Effort of the chosen option",
+        description: "Effort demanded by the chosen option, as in the trial table; n/a without \
+                      response",
+        units: "effort units of the trial table",
+        at_outcome: false,
+        value: |l| l.effort_chosen,
+    },
+    Modulator {
+        name: "choice_probability",
+        long_name: "Probability of the choice made",
+        description: "Model probability of the option that was chosen; n/a without response",
+        units: "probability",
+        at_outcome: false,
+        value: |l| l.choice_probability,
+    },
+    Modulator {
+        name: "drift",
+        long_name: "Drift rate",
+        description: "Drift rate of the diffusion on this trial (towards option a when positive)",
+        units: "per second (unit within-trial noise)",
+        at_outcome: false,
+        value: |l| l.drift,
+    },
+    Modulator {
+        name: "expected_rt",
+        long_name: "Expected response time",
+        description: "Model expected response time given the offer (decision time plus \
+                      non-decision time)",
+        units: "s",
+        at_outcome: false,
+        value: |l| l.expected_rt,
+    },
+    Modulator {
+        name: "prediction_error",
+        long_name: "Reward prediction error",
+        description: "Outcome minus the learned value of the chosen option before the outcome; \
+                      n/a without response or without outcome",
+        units: "outcome units",
+        at_outcome: true,
+        value: |l| l.prediction_error,
+    },
+];
+
+/// The modulator columns that exist for `model`.
+fn modulators(model: &Model) -> Vec<&'static Modulator> {
+    MODULATORS
+        .iter()
+        .filter(|m| match m.name {
+            "drift" => model.uses_response_times(),
+            "expected_rt" => model.uses_response_times(),
+            "prediction_error" => model.learns(),
+            _ => true,
+        })
+        .collect()
+}
+
+/// One events file: name stem (without extension), rows, sidecar.
+#[derive(Clone, Debug, PartialEq)]
+pub struct EventsFile {
+    /// `sub-<label>[_run-<index>]_desc-<model>_events`.
+    pub stem: String,
+    /// Run label of the trial table.
+    pub run: String,
+    /// Column names, in order.
+    pub header: Vec<String>,
+    /// Cells, `n/a` for missing values.
+    pub rows: Vec<Vec<String>>,
+    /// JSON sidecar describing every column.
+    pub sidecar: serde_json::Value,
+    /// Choice events left out because the trial has no onset.
+    pub skipped_choice: usize,
+    /// Outcome events left out because the trial has no outcome onset.
+    pub skipped_outcome: usize,
+}
+
+impl EventsFile {
+    /// Writes the rows as tab-separated values (BIDS events file).
+    pub fn write_tsv(&self, w: &mut dyn Write) -> std::io::Result<()> {
+        writeln!(w, "{}", self.header.join("\t"))?;
+        for row in &self.rows {
+            writeln!(w, "{}", row.join("\t"))?;
+        }
+        Ok(())
+    }
+}
+
+/// The description label of a model name (alphanumeric only, as BIDS labels are).
+pub fn desc_label(model_name: &str) -> String {
+    let label: String = model_name
+        .chars()
+        .filter(|c| c.is_ascii_alphanumeric())
+        .collect();
+    if label.is_empty() {
+        "model".into()
+    } else {
+        label
+    }
+}
+
+fn cell(x: Option<f64>) -> String {
+    x.map_or_else(|| "n/a".to_string(), |v| format!("{v}"))
+}
+
+/// The events files of one subject (one per run), from its latents (in trial order) and BIDS
+/// label. Choice events are at the trial onset with the response time as duration (0 without
+/// response); outcome events at the outcome onset with duration 0, when the table has outcome
+/// onsets (`with_outcomes`). Events without onset are left out and counted. Modulators are
+/// scaled within each run.
+pub fn events_files(
+    model: &Model,
+    subject: &Subject,
+    label: &str,
+    latents: &[Latent],
+    scale: Scale,
+    with_outcomes: bool,
+) -> Vec<EventsFile> {
+    let modulators = modulators(model);
+    let desc = desc_label(&model.name);
+    run_indices(subject)
+        .into_iter()
+        .map(|(run, index)| {
+            let stem = match index {
+                Some(i) => format!("sub-{label}_run-{i}_desc-{desc}_events"),
+                None => format!("sub-{label}_desc-{desc}_events"),
+            };
+            // (onset, duration, trial_type, latent)
+            let mut events: Vec<(f64, f64, &str, &Latent)> = Vec::new();
+            let (mut skipped_choice, mut skipped_outcome) = (0, 0);
+            for l in latents.iter().filter(|l| l.run == run) {
+                match l.onset {
+                    Some(onset) => events.push((onset, l.rt.unwrap_or(0.0), "choice", l)),
+                    None => skipped_choice += 1,
+                }
+                if with_outcomes {
+                    match l.outcome_onset {
+                        Some(onset) => events.push((onset, 0.0, "outcome", l)),
+                        None => skipped_outcome += 1,
+                    }
+                }
+            }
+            events.sort_by(|a, b| a.0.total_cmp(&b.0));
+            let mut columns: Vec<Vec<Option<f64>>> = modulators
+                .iter()
+                .map(|m| {
+                    events
+                        .iter()
+                        .map(|e| {
+                            if (e.2 == "outcome") == m.at_outcome {
+                                (m.value)(e.3)
+                            } else {
+                                None
+                            }
+                        })
+                        .collect()
+                })
+                .collect();
+            let scaled: Vec<Scaled> = columns.iter_mut().map(|c| scale_values(c, scale)).collect();
+            let mut header: Vec<String> = ["onset", "duration", "trial_type", "trial", "choice"]
+                .map(String::from)
+                .to_vec();
+            header.extend(modulators.iter().map(|m| m.name.to_string()));
+            let rows = events
+                .iter()
+                .enumerate()
+                .map(|(k, e)| {
+                    let mut row = vec![
+                        format!("{}", e.0),
+                        format!("{}", e.1),
+                        e.2.to_string(),
+                        e.3.trial.to_string(),
+                        e.3.choice
+                            .map_or_else(|| "n/a".to_string(), |c| c.as_str().to_string()),
+                    ];
+                    row.extend(columns.iter().map(|c| cell(c[k])));
+                    row
+                })
+                .collect();
+            let sidecar = sidecar(model, &modulators, &scaled, scale);
+            EventsFile {
+                stem,
+                run,
+                header,
+                rows,
+                sidecar,
+                skipped_choice,
+                skipped_outcome,
+            }
+        })
+        .collect()
+}
+
+fn sidecar(
+    model: &Model,
+    modulators: &[&Modulator],
+    scaled: &[Scaled],
+    scale: Scale,
+) -> serde_json::Value {
+    use serde_json::json;
+    let mut map = serde_json::Map::new();
+    map.insert(
+        "onset".into(),
+        json!({
+            "LongName": "Event onset",
+            "Description": "Time of the event from the start of the run, from the trial \
+                            table's onset (choice) or outcome_onset (outcome) column",
+            "Units": "s",
+        }),
+    );
+    map.insert(
+        "duration".into(),
+        json!({
+            "LongName": "Event duration",
+            "Description": "choice: the response time (0 without response); outcome: 0",
+            "Units": "s",
+        }),
+    );
+    map.insert(
+        "trial_type".into(),
+        json!({
+            "LongName": "Event type",
+            "Description": "Which part of the trial the event is",
+            "Levels": {
+                "choice": "offer shown until the response",
+                "outcome": "feedback of the chosen option",
+            },
+        }),
+    );
+    map.insert(
+        "trial".into(),
+        json!({
+            "LongName": "Trial number",
+            "Description": "Trial number in the trial table",
+        }),
+    );
+    map.insert(
+        "choice".into(),
+        json!({
+            "LongName": "Option chosen",
+            "Description": "Option chosen on the trial; n/a without response",
+            "Levels": { "a": "option a", "b": "option b" },
+        }),
+    );
+    for (m, s) in modulators.iter().zip(scaled) {
+        let how = match (scale, s.mean, s.sd) {
+            (Scale::None, _, _) | (_, None, _) => "Raw (not scaled).".to_string(),
+            (Scale::Center, Some(mean), _) => {
+                format!("Mean-centred within this run (mean {mean} subtracted).")
+            }
+            (Scale::Zscore, Some(mean), Some(sd)) => format!(
+                "Z-scored within this run (mean {mean} subtracted, divided by the sample \
+                 standard deviation {sd}, n − 1 denominator)."
+            ),
+            (Scale::Zscore, Some(mean), None) => format!(
+                "Mean-centred within this run (mean {mean} subtracted); not divided by the \
+                 standard deviation, which is zero or undefined."
+            ),
+        };
+        map.insert(
+            m.name.into(),
+            json!({
+                "LongName": m.long_name,
+                "Description": format!(
+                    "{} ({} events; n/a on other events), from model {} at the subject's fitted \
+                     parameters. {how}",
+                    m.description,
+                    if m.at_outcome { "outcome" } else { "choice" },
+                    model.name
+                ),
+                "Units": m.units,
+            }),
+        );
+    }
+    serde_json::Value::Object(map)
+}
+
+/// The subject label mapping as a two-column TSV table (subject, participant_label).
+pub fn labels_table(subjects: &[Subject], labels: &[String]) -> Table {
+    Table::default()
+        .with(
+            "subject",
+            Column::Text(subjects.iter().map(|s| s.id.clone()).collect()),
+        )
+        .with("participant_label", Column::Text(labels.to_vec()))
+}
