@@ -1,6 +1,6 @@
 //! Log-density of the defective first-passage distribution at one bound, with its gradient.
 
-use super::params::{Bound, DiffusionParams, positive};
+use super::params::{Bound, DiffusionParams, StartTerms, positive};
 use super::quadrature::{TimeShape, ln_integrate_time, ln_mean_over};
 use super::series::std_density;
 use std::f64::consts::PI;
@@ -57,7 +57,34 @@ pub fn ln_density(rt: f64, bound: Bound, params: &DiffusionParams) -> f64 {
     if !positive(t) {
         return f64::NEG_INFINITY;
     }
-    lower_bound_core::<false>(t, &params.mirrored_for(bound)).0
+    let (v, terms) = oriented_start(params, bound);
+    lower_bound_kernel::<false>(
+        t,
+        v,
+        params.boundary,
+        params.drift_sd,
+        params.ln_boundary,
+        &terms,
+    )
+    .0
+}
+
+/// Drift and start functions of the lower-bound problem for `bound`, without copying the whole
+/// parameter set (the hot path of [`ln_density`]).
+#[inline]
+fn oriented_start(p: &DiffusionParams, bound: Bound) -> (f64, StartTerms) {
+    match bound {
+        Bound::Lower => (p.drift, p.start_terms),
+        Bound::Upper => (
+            -p.drift,
+            StartTerms {
+                w: 1.0 - p.start,
+                ln_w: p.ln_start_complement,
+                cos_pi_w: -p.start_terms.cos_pi_w,
+                ..p.start_terms
+            },
+        ),
+    }
 }
 
 /// [`ln_density`] together with its analytic partial derivatives (same equation,
@@ -104,12 +131,32 @@ pub(crate) fn oriented(bound: Bound, g: [f64; 5]) -> DensityGradient {
 /// parameters as given (already mirrored for the upper bound).
 #[inline]
 pub(crate) fn lower_bound_core<const GRAD: bool>(t: f64, p: &DiffusionParams) -> (f64, [f64; 5]) {
-    let (v, a, w, eta) = (p.drift, p.boundary, p.start, p.drift_sd);
+    lower_bound_kernel::<GRAD>(
+        t,
+        p.drift,
+        p.boundary,
+        p.drift_sd,
+        p.ln_boundary,
+        &p.start_terms,
+    )
+}
+
+/// [`lower_bound_core`] on its parts: drift v, boundary a, drift_sd η, ln a and the start terms.
+#[inline]
+fn lower_bound_kernel<const GRAD: bool>(
+    t: f64,
+    v: f64,
+    a: f64,
+    eta: f64,
+    ln_boundary: f64,
+    start: &StartTerms,
+) -> (f64, [f64; 5]) {
+    let w = start.w;
     let inv_a2 = 1.0 / (a * a);
     let u = t * inv_a2;
-    let g = std_density::<GRAD>(u, &p.start_terms);
+    let g = std_density::<GRAD>(u, start);
     if eta == 0.0 {
-        let ln_f = -2.0 * p.ln_boundary - v * a * w - 0.5 * v * v * t + g.ln_g;
+        let ln_f = -2.0 * ln_boundary - v * a * w - 0.5 * v * v * t + g.ln_g;
         if !GRAD {
             return (ln_f, [0.0; 5]);
         }
@@ -122,7 +169,7 @@ pub(crate) fn lower_bound_core<const GRAD: bool>(t: f64, p: &DiffusionParams) ->
     let eta2 = eta * eta;
     let d = 1.0 + eta2 * t;
     let n = eta2 * a * a * w * w - 2.0 * a * v * w - v * v * t;
-    let ln_f = -2.0 * p.ln_boundary - 0.5 * (eta2 * t).ln_1p() + n / (2.0 * d) + g.ln_g;
+    let ln_f = -2.0 * ln_boundary - 0.5 * (eta2 * t).ln_1p() + n / (2.0 * d) + g.ln_g;
     if !GRAD {
         return (ln_f, [0.0; 5]);
     }
