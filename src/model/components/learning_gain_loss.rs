@@ -1,6 +1,6 @@
-//! Separate learning rates for gains and losses (Niv, Edlund, Dayan & O'Doherty 2012): d = r − Q(s), Q(s) ← Q(s) + α·d with
-//! α = gain_rate when the prediction error is positive (default) or, with
-//! `split = "outcome"`, when the outcome is positive; loss_rate otherwise.
+//! Separate learning rates for gains and losses (Niv, Edlund, Dayan & O'Doherty 2012):
+//! d = r − Q(s), Q(s) ← Q(s) + α·d with α = gain_rate when the prediction error is positive
+//! (default) or, with `split = "outcome"`, when the outcome is positive; loss_rate otherwise.
 
 use super::{Entry, LearningRule, Options, Slots, only_options};
 use crate::model::dual::D;
