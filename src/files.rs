@@ -67,6 +67,21 @@ fn line_unit(file: &Path) -> &'static str {
     if parquet { "row" } else { "line" }
 }
 
+/// Opens a CSV file (fields trimmed) and reads its header, with errors naming the file.
+pub fn open_csv(path: &Path) -> Result<(csv::Reader<std::fs::File>, Vec<String>), InputError> {
+    let mut reader = csv::ReaderBuilder::new()
+        .trim(csv::Trim::All)
+        .from_path(path)
+        .map_err(|e| InputError::file(path, format!("cannot be read as CSV: {e}")))?;
+    let header: Vec<String> = reader
+        .headers()
+        .map_err(|e| InputError::file(path, format!("has no readable header: {e}")))?
+        .iter()
+        .map(str::to_string)
+        .collect();
+    Ok((reader, header))
+}
+
 /// Writes `path` through `fill`, atomically: the content goes to a temporary file in the same
 /// folder, which is renamed to `path` only if `fill` succeeds. The folder is created if missing.
 pub fn write_atomically<E>(

@@ -26,16 +26,7 @@ struct Computed {
 }
 
 fn compute(input: &Path) -> Result<Computed, InputError> {
-    let mut reader = csv::ReaderBuilder::new()
-        .trim(csv::Trim::All)
-        .from_path(input)
-        .map_err(|e| InputError::file(input, format!("cannot be read as CSV: {e}")))?;
-    let header: Vec<String> = reader
-        .headers()
-        .map_err(|e| InputError::file(input, format!("has no readable header: {e}")))?
-        .iter()
-        .map(str::to_string)
-        .collect();
+    let (mut reader, header) = crate::files::open_csv(input)?;
     let find = |name: &str| header.iter().position(|h| h == name);
     let mut required = [0usize; 6];
     for (slot, name) in required.iter_mut().zip(REQUIRED) {

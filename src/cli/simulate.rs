@@ -15,16 +15,7 @@ pub fn read_parameters(
     path: &Path,
     model: &Model,
 ) -> Result<HashMap<String, Vec<f64>>, InputError> {
-    let mut reader = csv::ReaderBuilder::new()
-        .trim(csv::Trim::All)
-        .from_path(path)
-        .map_err(|e| InputError::file(path, format!("cannot be read as CSV: {e}")))?;
-    let header: Vec<String> = reader
-        .headers()
-        .map_err(|e| InputError::file(path, format!("has no readable header: {e}")))?
-        .iter()
-        .map(str::to_string)
-        .collect();
+    let (mut reader, header) = crate::files::open_csv(path)?;
     let subject_column = header.iter().position(|h| h == "subject").ok_or_else(|| {
         InputError::at(
             path,

@@ -49,16 +49,7 @@ pub struct Estimate {
 /// Reads the free-parameter estimates of `model` from a `parameters.csv`, grouping by column
 /// `by`. Errors name the file, line (header = line 1) and column.
 pub fn read_estimates(path: &Path, model: &str, by: &str) -> Result<Vec<Estimate>, InputError> {
-    let mut reader = csv::ReaderBuilder::new()
-        .trim(csv::Trim::All)
-        .from_path(path)
-        .map_err(|e| InputError::file(path, format!("cannot be read as CSV: {e}")))?;
-    let header: Vec<String> = reader
-        .headers()
-        .map_err(|e| InputError::file(path, format!("has no readable header: {e}")))?
-        .iter()
-        .map(str::to_string)
-        .collect();
+    let (mut reader, header) = crate::files::open_csv(path)?;
     let find = |name: &str| {
         header.iter().position(|h| h == name).ok_or_else(|| {
             InputError::file(
