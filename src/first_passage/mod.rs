@@ -14,6 +14,22 @@
 //!   bound (Grasman, Wagenmakers & van der Maas 2009);
 //! * [`sample`]: exact draws of (bound, response time).
 //!
+//! # Example
+//! ```
+//! use valuedrift::first_passage::{Bound, DiffusionParams, bound_probability, ln_density};
+//!
+//! // Drift 1, boundary separation 1.5, unbiased start, 0.3 s non-decision time (unit noise).
+//! let p = DiffusionParams::new(1.0, 1.5, 0.5, 0.3).unwrap();
+//! let ln_f = ln_density(0.8, Bound::Upper, &p);
+//! assert!(ln_f.is_finite());
+//! // P(upper) = (1 − e^(−2vaw)) / (1 − e^(−2va)) (Cox & Miller 1965).
+//! let expected = (1.0 - (-1.5f64).exp()) / (1.0 - (-3.0f64).exp());
+//! assert!((bound_probability(Bound::Upper, &p) - expected).abs() < 1e-15);
+//! // Slower drifts mean fewer upper-bound responses.
+//! let slower = p.with_drift(0.2);
+//! assert!(bound_probability(Bound::Upper, &slower) < expected);
+//! ```
+//!
 //! # Design
 //! Every quantity is reduced to a standardised lower-bound problem (unit separation, time
 //! u = t/a², scaled drift λ = v·a); the upper bound is the lower bound of the mirrored process.
