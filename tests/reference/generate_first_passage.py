@@ -88,6 +88,14 @@ SEED = 20240611
 # a different rule at higher precision.
 CFG = {"method": "gauss-legendre", "dps": 20, "inner": "fixed", "gl_deg": 4}
 
+def _gl_conservative_error(results, prec, epsilon):
+    """Error estimate for mpmath's adaptive Gauss-Legendre rule taken as |I_k - I_(k-1)|
+    (the default extrapolated estimate can accept a degree too early)."""
+    return abs(results[-1] - results[-2])
+
+
+mp.mp._gauss_legendre.estimate_error = _gl_conservative_error
+
 STATS = {"max_quad_relerr": mpf(0), "nquad": 0, "where": "", "context": ""}
 
 
@@ -465,7 +473,7 @@ def x_points_cdf(t, m, eta, a, w):
         near = [sg for c, sg in keep if abs(p - c) <= 6 * sg]
         return min(near) if near else mpf(1)
 
-    pts = [lo, core_lo]
+    pts = [core_lo]
     p = core_lo
     while len(pts) < 200:
         step = 3 * lam(p)
@@ -475,7 +483,37 @@ def x_points_cdf(t, m, eta, a, w):
             break
         p = p + step
         pts.append(p)
-    pts += [core_hi, hi]
+    pts.append(core_hi)
+    return pts, lo, hi
+
+
+def tail_points(f, start, end, direction):
+    """Sub-intervals for a tail of a positive integrand f decaying from `start` towards
+    `end` (direction = +1 or -1): steps of about 30 e-folds of f (numerical log-slope), at
+    most 12 units long, until f has dropped by exp(-55) (the rest: one last interval)."""
+    pts = []
+    p = start
+    L = mpf(0)
+    f0 = f(p)
+    if f0 == 0:
+        return [end]
+    L0 = mp.log(f0)
+    while (end - p) * direction > 0 and len(pts) < 60:
+        h = mpf(10) ** -4
+        f1 = f(p + direction * h)
+        slope = (mp.log(f0) - mp.log(f1)) / h if f1 > 0 else mpf(10) ** 6
+        step = min(mpf(12), 30 / max(slope, mpf(10) ** -3))
+        p = p + direction * step
+        if (end - p) * direction <= 0:
+            break
+        pts.append(p)
+        f0 = f(p)
+        if f0 == 0:
+            break
+        L = mp.log(f0)
+        if L < L0 - 55:
+            break
+    pts.append(end)
     return pts
 
 
@@ -486,7 +524,10 @@ def cdf1(t, m, eta, a, w, depth):
     c = Cdf0(t, a, w)
     if eta == 0:
         return c(m)
-    return integ(lambda x: c(m + eta * x) * phi(x), x_points_cdf(t, m, eta, a, w), depth)
+    g = lambda x: c(m + eta * x) * phi(x)
+    core, lo, hi = x_points_cdf(t, m, eta, a, w)
+    pts = (tail_points(g, core[0], lo, -1) + core + tail_points(g, core[-1], hi, +1))
+    return integ(g, pts, depth)
 
 
 def w_points(t, m, eta, a, lo, hi):
