@@ -50,6 +50,7 @@ pub fn run(
             options: FitOptions::default(),
             threads,
             columns: ColumnMap::default(),
+            hierarchical: None,
         },
         command_line,
     )?;

@@ -2,9 +2,11 @@
 
 use crate::data::{ColumnMap, TrialTable, read_trials};
 use crate::files::OutputSet;
-use crate::fit::{FitOptions, Skipped, SubjectFit, fit_table};
+use crate::fit::{
+    EmOptions, FitOptions, GroupFit, Skipped, SubjectFit, fit_table, fit_table_hierarchical,
+};
 use crate::model::{Model, load_model};
-use crate::results::{parameters_table, summary_table};
+use crate::results::{group_evidence_table, group_prior_table, parameters_table, summary_table};
 use indicatif::{ProgressBar, ProgressStyle};
 use sha2::{Digest, Sha256};
 use std::collections::HashMap;
@@ -24,6 +26,37 @@ pub struct FitRun<'a> {
     pub threads: usize,
     /// Column mapping.
     pub columns: ColumnMap,
+    /// Empirical-Bayes group priors as well, when set.
+    pub hierarchical: Option<Hierarchical>,
+}
+
+/// Settings of the empirical-Bayes fit.
+#[derive(Clone, Debug)]
+pub struct Hierarchical {
+    /// One prior per group rather than one over all subjects.
+    pub per_group: bool,
+    /// EM settings.
+    pub em: EmOptions,
+}
+
+/// The column mapping of `--columns`, with `--by COLUMN` read as the group column.
+pub fn column_map(spec: &str, by: Option<&str>) -> Result<ColumnMap, String> {
+    let spec = match by {
+        Some(column) if column != "group" => {
+            if ColumnMap::parse(spec)
+                .map_err(|e| format!("--columns: {e}"))?
+                .file_name("group")
+                != "group"
+            {
+                return Err(format!(
+                    "--by {column} and a group mapping in --columns both name the group column; give one"
+                ));
+            }
+            format!("{spec},group={column}")
+        }
+        _ => spec.to_string(),
+    };
+    ColumnMap::parse(&spec).map_err(|e| format!("--columns: {e}"))
 }
 
 /// Loads models by name or path.
@@ -57,6 +90,8 @@ pub struct Fitted {
     pub fits: Vec<SubjectFit>,
     /// Pairs that could not be fitted.
     pub skipped: Vec<Skipped>,
+    /// Empirical-Bayes fits (with --hierarchical), per model and scope.
+    pub groups: Vec<GroupFit>,
 }
 
 /// Reads, fits and writes; returns what was fitted for the caller's summary.
@@ -74,8 +109,33 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             .collect();
         return Err(format!("no subject could be fitted ({})", reasons.join("; ")).into());
     }
+    let mut groups = Vec::new();
+    if let Some(settings) = &run.hierarchical {
+        let spinner = ProgressBar::new_spinner();
+        let report = |model: &str, scope: &str, iteration: usize, change: f64| {
+            spinner.set_message(format!(
+                "empirical Bayes: {model} ({scope}) iteration {iteration}, change {change:.2e}"
+            ));
+            spinner.tick();
+        };
+        let (fitted, not_fitted) = fit_table_hierarchical(
+            &models,
+            &table,
+            &fits,
+            &run.options,
+            &settings.em,
+            settings.per_group,
+            run.threads,
+            &report,
+        )?;
+        spinner.finish_and_clear();
+        for s in &not_fitted {
+            eprintln!("empirical Bayes skipped for {}: {}", s.model, s.reason);
+        }
+        groups = fitted;
+    }
     let bytes = std::fs::read(run.data)?;
-    let record = run_record(
+    let mut record = run_record(
         command_line,
         &run.options,
         run.data,
@@ -87,6 +147,21 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
     let mut outputs = OutputSet::new();
     parameters_table(&fits).stage_both(&mut outputs, run.out, "parameters")?;
     summary_table(&fits).stage_both(&mut outputs, run.out, "fit_summary")?;
+    if let Some(settings) = &run.hierarchical {
+        record["empirical_bayes"] = serde_json::json!({
+            "method": "EM with the Laplace approximation (Huys et al. 2011); Gaussian prior, diagonal covariance, on the unconstrained scale",
+            "per_group": settings.per_group,
+            "tolerance": settings.em.tolerance,
+            "max_iterations": settings.em.max_iterations,
+            "ibic_samples": settings.em.ibic_samples,
+            "seed": settings.em.seed,
+        });
+        let shrunken: Vec<SubjectFit> = groups.iter().flat_map(|g| g.subjects.clone()).collect();
+        parameters_table(&shrunken).stage_both(&mut outputs, run.out, "eb_parameters")?;
+        summary_table(&shrunken).stage_both(&mut outputs, run.out, "eb_fit_summary")?;
+        group_prior_table(&groups).stage_both(&mut outputs, run.out, "eb_group_priors")?;
+        group_evidence_table(&groups).stage_both(&mut outputs, run.out, "eb_model_evidence")?;
+    }
     outputs.stage(&run.out.join("run.json"), |w| {
         serde_json::to_writer_pretty(w, &record)
     })?;
@@ -96,6 +171,7 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         models,
         fits,
         skipped,
+        groups,
     })
 }
 
@@ -214,6 +290,43 @@ pub fn print_summary(fitted: &Fitted) {
         println!(
             "(models marked '-' use choices only: their BIC is not comparable with the others)"
         );
+    }
+}
+
+/// Prints per model and scope of the empirical-Bayes fits: iBIC, EM convergence and the group
+/// medians of the free parameters on the natural scale with their 95 % intervals.
+pub fn print_group_summary(groups: &[GroupFit]) {
+    if groups.is_empty() {
+        return;
+    }
+    println!();
+    println!(
+        "empirical-Bayes group priors (EM with Laplace, Huys et al. 2011); lower iBIC is better"
+    );
+    for g in groups {
+        println!(
+            "{:<26} {:<12} iBIC {:>10.1} (±{:.1} MC)  EM {} iterations{}",
+            g.model,
+            g.scope,
+            g.ibic,
+            2.0 * g.log_marginal_likelihood_se,
+            g.iterations,
+            if g.converged { "" } else { ", NOT converged" }
+        );
+        let medians: Vec<String> = g
+            .parameters
+            .iter()
+            .map(|p| {
+                format!(
+                    "{} {:.3} [{:.3}, {:.3}]",
+                    p.name,
+                    p.natural_median,
+                    p.natural_median_interval.0,
+                    p.natural_median_interval.1
+                )
+            })
+            .collect();
+        println!("    group medians: {}", medians.join("; "));
     }
 }
 

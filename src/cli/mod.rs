@@ -74,6 +74,25 @@ pub enum Command {
         /// Column names of your file, as canonical=yours pairs: subject=participant,rt=RT.
         #[arg(long, default_value = "")]
         columns: String,
+        /// Also fit empirical-Bayes group priors (EM with the Laplace approximation, Huys et
+        /// al. 2011): a Gaussian on each free parameter's unconstrained scale, shrunken
+        /// per-subject estimates and the integrated BIC. Writes eb_parameters.csv,
+        /// eb_fit_summary.csv, eb_group_priors.csv and eb_model_evidence.csv (+ Parquet).
+        #[arg(long)]
+        hierarchical: bool,
+        /// With --hierarchical: one group prior per value of this column of the trial table
+        /// (e.g. --by diagnosis) instead of one over all subjects.
+        #[arg(long, requires = "hierarchical")]
+        by: Option<String>,
+        /// EM stops when no group mean or SD (unconstrained scale) changes by more than this.
+        #[arg(long, default_value_t = 1e-3, requires = "hierarchical")]
+        em_tolerance: f64,
+        /// Most EM iterations.
+        #[arg(long, default_value_t = 200, requires = "hierarchical")]
+        em_iterations: usize,
+        /// Draws from the fitted group prior per subject for the integrated BIC.
+        #[arg(long, default_value_t = 2000, requires = "hierarchical")]
+        ibic_samples: usize,
     },
     /// Per-trial latent variables of a fitted model for imaging analyses: values, subjective
     /// values, value difference, prediction errors, drift, choice probability and expected times
@@ -192,9 +211,16 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             threads,
             deadline,
             columns,
+            hierarchical,
+            by,
+            em_tolerance,
+            em_iterations,
+            ibic_samples,
         } => {
-            let columns =
-                crate::data::ColumnMap::parse(&columns).map_err(|e| format!("--columns: {e}"))?;
+            let columns = fit::column_map(&columns, by.as_deref())?;
+            if !(em_tolerance.is_finite() && em_tolerance > 0.0) {
+                return Err(format!("--em-tolerance {em_tolerance}: expected a number > 0").into());
+            }
             if let Some(d) = deadline
                 && !(d.is_finite() && d > 0.0)
             {
@@ -212,9 +238,19 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 },
                 threads,
                 columns,
+                hierarchical: hierarchical.then(|| fit::Hierarchical {
+                    per_group: by.is_some(),
+                    em: crate::fit::EmOptions {
+                        tolerance: em_tolerance,
+                        max_iterations: em_iterations.max(1),
+                        ibic_samples: ibic_samples.max(2),
+                        seed,
+                    },
+                }),
             };
             let fitted = fit::run(run, &command_line)?;
             fit::print_summary(&fitted);
+            fit::print_group_summary(&fitted.groups);
             println!("outputs in {}", out.display());
             println!("{RESEARCH_CAUTION}");
             Ok(())

@@ -11,6 +11,7 @@
 //! through the parameter transform (so they respect the bounds). A parameter at a bound or a
 //! Hessian that is not positive definite is flagged and gets no standard error.
 
+mod hierarchical;
 mod optimise;
 mod uncertainty;
 
@@ -21,7 +22,11 @@ use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rayon::prelude::*;
 
+pub use hierarchical::{
+    EmOptions, EmProgress, GroupFit, GroupParameter, fit_group, sampled_log_marginal,
+};
 pub use optimise::StartResult;
+pub use uncertainty::laplace_log_evidence;
 
 /// Settings of a fit.
 #[derive(Clone, Debug, PartialEq)]
@@ -104,6 +109,10 @@ pub struct SubjectFit {
     pub theta: Vec<f64>,
     /// Covariance of θ (inverse observed information) when the Hessian is positive definite.
     pub covariance_theta: Option<Vec<Vec<f64>>>,
+    /// Laplace approximation of ln p(data) when every free parameter has a proper prior
+    /// (declared, or the group prior of an empirical-Bayes fit) and the Hessian is positive
+    /// definite; see [`laplace_log_evidence`].
+    pub log_evidence: Option<f64>,
 }
 
 /// Tolerance on the log-posterior for counting starts that reached the best optimum.
@@ -120,6 +129,11 @@ pub fn fit_subject(
         .iter()
         .map(|theta| optimise::run_start(likelihood, theta.clone(), options.max_iterations))
         .collect();
+    summarise_best(likelihood, &results)
+}
+
+/// The fit record of the best of several starts, counting the starts that reached it.
+fn summarise_best(likelihood: &SubjectLikelihood<'_>, results: &[StartResult]) -> SubjectFit {
     let best = results
         .iter()
         .enumerate()
@@ -241,3 +255,75 @@ pub fn fit_table(
     }
     Ok((fits, skipped))
 }
+
+/// Empirical-Bayes fits (see [`fit_group`]) of every model, from the per-subject fits `fits` of
+/// [`fit_table`]: one group prior over all subjects (scope "all"), or with `per_group` one per
+/// group label. Subjects are in table order within each scope; subject i's random draws come
+/// from stream i, so results do not depend on `threads`. A scope with fewer than
+/// [`MIN_GROUP_SUBJECTS`] fitted subjects is skipped with the reason.
+#[allow(clippy::too_many_arguments)]
+pub fn fit_table_hierarchical(
+    models: &[Model],
+    table: &TrialTable,
+    fits: &[SubjectFit],
+    options: &FitOptions,
+    em: &EmOptions,
+    per_group: bool,
+    threads: usize,
+    progress: EmProgress<'_>,
+) -> Result<(Vec<GroupFit>, Vec<Skipped>), rayon::ThreadPoolBuildError> {
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()?;
+    let mut scopes: Vec<String> = if per_group {
+        table.subjects.iter().map(|s| s.group.clone()).collect()
+    } else {
+        vec!["all".to_string()]
+    };
+    scopes.sort();
+    scopes.dedup();
+    let mut groups = Vec::new();
+    let mut skipped = Vec::new();
+    pool.install(|| {
+        for model in models {
+            for scope in &scopes {
+                let mut members = Vec::new();
+                let mut initial = Vec::new();
+                for (i, subject) in table.subjects.iter().enumerate() {
+                    if per_group && subject.group != *scope {
+                        continue;
+                    }
+                    if let Some(f) = fits
+                        .iter()
+                        .find(|f| f.model == model.name && f.subject == subject.id)
+                    {
+                        members.push((i, subject));
+                        initial.push(f);
+                    }
+                }
+                let outcome = if members.len() < MIN_GROUP_SUBJECTS {
+                    Err(DataMismatch {
+                        subject: format!("scope {scope}"),
+                        message: format!(
+                            "{} fitted subjects; a group prior needs at least {MIN_GROUP_SUBJECTS}",
+                            members.len()
+                        ),
+                    })
+                } else {
+                    fit_group(model, scope, &members, &initial, options, em, progress)
+                };
+                match outcome {
+                    Ok(g) => groups.push(g),
+                    Err(reason) => skipped.push(Skipped {
+                        model: model.name.clone(),
+                        reason,
+                    }),
+                }
+            }
+        }
+    });
+    Ok((groups, skipped))
+}
+
+/// Fewest subjects for which a group prior is estimated.
+pub const MIN_GROUP_SUBJECTS: usize = 3;

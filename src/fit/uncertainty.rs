@@ -13,7 +13,7 @@ const AT_BOUND: f64 = 1e-4;
 const GRADIENT_CONVERGED: f64 = 1e-3;
 
 /// 97.5 % quantile of the standard normal distribution.
-const Z_975: f64 = 1.959_963_984_540_054;
+pub(crate) const Z_975: f64 = 1.959_963_984_540_054;
 
 fn at_bound(x: f64, transform: &Transform) -> bool {
     match *transform {
@@ -71,7 +71,12 @@ pub fn summarise(
     let sub = DMatrix::from_fn(interior.len(), interior.len(), |a, b| {
         full[(interior[a], interior[b])]
     });
-    let covariance = sub.clone().cholesky().map(|c| c.inverse());
+    let cholesky = sub.clone().cholesky();
+    // ln|H| = 2 Σ ln L_ii for H = L Lᵀ.
+    let ln_det_hessian = cholesky
+        .as_ref()
+        .map(|c| 2.0 * c.l_dirty().diagonal().iter().map(|d| d.ln()).sum::<f64>());
+    let covariance = cholesky.map(|c| c.inverse());
     let hessian_ok = covariance.is_some() && sub.iter().all(|x| x.is_finite());
     let mut covariance_theta = None;
     let mut variance = vec![None; free.len()];
@@ -105,10 +110,8 @@ pub fn summarise(
             Some(v) if v > 0.0 && v.is_finite() => {
                 let se_theta = v.sqrt();
                 // Delta method: SE(x) = |dx/dθ|·SE(θ).
-                let h = 1e-6 * theta[j].abs().max(1.0);
-                let slope = (t.natural(theta[j] + h) - t.natural(theta[j] - h)) / (2.0 * h);
                 (
-                    Some(slope.abs() * se_theta),
+                    Some(t.slope(theta[j]).abs() * se_theta),
                     Some((
                         t.natural(theta[j] - Z_975 * se_theta),
                         t.natural(theta[j] + Z_975 * se_theta),
@@ -133,6 +136,24 @@ pub fn summarise(
     let k = free.len() as f64;
     let n = likelihood.n_observations() as f64;
     let ln_l = evaluation.ln_likelihood;
+    let log_evidence = match ln_det_hessian {
+        Some(ln_det) if covariance_theta.is_some() && likelihood.has_proper_prior() => {
+            // A declared prior is a density of x, the Hessian is of θ: ln p(x̂) + Σ ln|dx/dθ|
+            // is the prior density of θ̂.
+            let jacobian: f64 = if likelihood.group_prior().is_some() {
+                0.0
+            } else {
+                theta
+                    .iter()
+                    .zip(transforms)
+                    .map(|(&t, tr)| tr.slope(t).abs().ln())
+                    .sum()
+            };
+            let value = laplace_log_evidence(ln_l + evaluation.ln_prior + jacobian, k, ln_det);
+            value.is_finite().then_some(value)
+        }
+        _ => None,
+    };
     SubjectFit {
         subject: subject.id.clone(),
         group: subject.group.clone(),
@@ -152,5 +173,14 @@ pub fn summarise(
         estimates,
         theta: theta.clone(),
         covariance_theta,
+        log_evidence,
     }
+}
+
+/// The Laplace approximation of the log marginal likelihood (Tierney & Kadane 1986; MacKay
+/// 2003, §27): ln p(y) ≈ ln p(y | θ̂) + ln p(θ̂) + (k/2) ln 2π − ½ ln|H|, with θ̂ the posterior
+/// mode, k its dimension and H the Hessian of −ln p(y, θ) at θ̂. `ln_joint` is
+/// ln p(y | θ̂) + ln p(θ̂) and `ln_det_hessian` is ln|H|.
+pub fn laplace_log_evidence(ln_joint: f64, k: f64, ln_det_hessian: f64) -> f64 {
+    ln_joint + 0.5 * k * std::f64::consts::TAU.ln() - 0.5 * ln_det_hessian
 }

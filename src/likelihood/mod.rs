@@ -58,6 +58,7 @@ pub struct TrialTrace {
 }
 
 /// One subject's data bound to one model.
+#[derive(Clone)]
 pub struct SubjectLikelihood<'a> {
     model: &'a Model,
     subject: &'a Subject,
@@ -66,6 +67,33 @@ pub struct SubjectLikelihood<'a> {
     free: Vec<usize>,
     /// Transform of each free parameter (subject-specific for ndt).
     transforms: Vec<Transform>,
+    /// A Gaussian prior on θ that replaces the declared priors (empirical Bayes).
+    group_prior: Option<GroupPrior>,
+}
+
+/// A Gaussian prior on the unconstrained parameters with diagonal covariance,
+/// θ_j ~ N(mean_j, variance_j) independently (the group level of Huys et al. 2011).
+#[derive(Clone, Debug, PartialEq)]
+pub struct GroupPrior {
+    /// Mean of each free parameter on the unconstrained scale.
+    pub mean: Vec<f64>,
+    /// Variance of each (> 0).
+    pub variance: Vec<f64>,
+}
+
+impl GroupPrior {
+    /// ln N(θ; μ, diag σ²) = Σ_j −½[(θ_j − μ_j)²/σ_j² + ln(2π σ_j²)] and its gradient
+    /// −(θ_j − μ_j)/σ_j² (the normal density; e.g. Bishop 2006, eq. 2.43).
+    pub fn ln_density_with_gradient(&self, theta: &[f64]) -> (f64, Vec<f64>) {
+        let mut value = 0.0;
+        let mut slope = Vec::with_capacity(theta.len());
+        for ((&t, &m), &v) in theta.iter().zip(&self.mean).zip(&self.variance) {
+            let d = t - m;
+            value -= 0.5 * (d * d / v + (std::f64::consts::TAU * v).ln());
+            slope.push(-d / v);
+        }
+        (value, slope)
+    }
 }
 
 /// Upper limit of ndt relative to the fastest response: the density is zero below ndt.
@@ -134,7 +162,31 @@ impl<'a> SubjectLikelihood<'a> {
             context,
             free,
             transforms,
+            group_prior: None,
         })
+    }
+
+    /// The same likelihood with a Gaussian prior on θ in place of the model's declared priors.
+    pub fn with_group_prior(mut self, prior: GroupPrior) -> Self {
+        assert_eq!(prior.mean.len(), self.free.len());
+        assert_eq!(prior.variance.len(), self.free.len());
+        self.group_prior = Some(prior);
+        self
+    }
+
+    /// The Gaussian prior on θ, if one replaces the declared priors.
+    pub fn group_prior(&self) -> Option<&GroupPrior> {
+        self.group_prior.as_ref()
+    }
+
+    /// True when every free parameter has a proper prior (declared, or the group prior), so
+    /// that a marginal likelihood exists.
+    pub fn has_proper_prior(&self) -> bool {
+        self.group_prior.is_some()
+            || self
+                .free
+                .iter()
+                .all(|&slot| self.model.parameters[slot].prior.is_some())
     }
 
     /// Number of free parameters.
@@ -206,11 +258,24 @@ impl<'a> SubjectLikelihood<'a> {
         values
     }
 
-    /// ln L + ln prior and its gradient at θ.
+    /// ln L + ln prior and its gradient at θ. The prior is the group prior on θ when one is
+    /// set, else the product of the declared priors on the natural scale.
     pub fn evaluate(&self, theta: &[f64]) -> Evaluation {
         assert!(theta.len() == self.free.len() && self.free.len() <= MAX_FREE);
         let p = self.natural_duals(theta);
         let ln_l = self.run(&p, |_, _| {});
+        if let Some(prior) = &self.group_prior {
+            let (ln_prior, slope) = prior.ln_density_with_gradient(theta);
+            return Evaluation {
+                ln_likelihood: ln_l.re,
+                ln_prior,
+                gradient: gradient(&ln_l)
+                    .iter()
+                    .zip(&slope)
+                    .map(|(g, s)| g + s)
+                    .collect(),
+            };
+        }
         let mut ln_prior = 0.0;
         let mut prior_terms: Vec<(f64, &D)> = Vec::new();
         for &slot in &self.free {

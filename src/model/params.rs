@@ -1,7 +1,7 @@
 //! Declared parameters: bounds, start ranges, fixed values, priors, and the map between the
 //! natural scale and the unconstrained scale the optimiser works on.
 
-use super::dual::{D, chain};
+use super::dual::{D, chain, gradient};
 use num_dual::DualNum;
 use statrs::distribution::{Beta, Continuous, Gamma, LogNormal, Normal};
 
@@ -133,6 +133,12 @@ impl Transform {
     /// Natural value for θ (plain numbers).
     pub fn natural(&self, theta: f64) -> f64 {
         self.to_natural(D::from_re(theta)).re
+    }
+
+    /// dx/dθ at θ: (upper − lower)·σ(θ)(1 − σ(θ)), e^θ, −e^θ or 1 (exact, through the dual
+    /// number of [`Transform::to_natural`]).
+    pub fn slope(&self, theta: f64) -> f64 {
+        gradient(&self.to_natural(D::from_re(theta).derivative(0)))[0]
     }
 
     /// θ for a natural value strictly inside the bounds.

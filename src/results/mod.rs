@@ -159,10 +159,98 @@ pub fn summary_table(fits: &[SubjectFit]) -> Table {
         .with("log_prior", number(|f| f.log_prior))
         .with("aic", number(|f| f.aic))
         .with("bic", number(|f| f.bic))
+        .with(
+            "log_evidence_laplace",
+            Column::Number(fits.iter().map(|f| f.log_evidence).collect()),
+        )
         .with("starts_at_best", integer(|f| f.starts_at_best))
         .with("starts", integer(|f| f.starts))
         .with("converged", flag(|f| f.converged))
         .with("hessian_ok", flag(|f| f.hessian_ok))
         .with("gradient_norm", number(|f| f.gradient_norm))
         .with("termination", text(|f| f.termination.clone()))
+}
+
+/// One row per model, scope and free parameter of empirical-Bayes fits: the group distribution
+/// on the unconstrained scale and its natural-scale summaries.
+pub fn group_prior_table(groups: &[crate::fit::GroupFit]) -> Table {
+    let rows: Vec<(&crate::fit::GroupFit, &crate::fit::GroupParameter)> = groups
+        .iter()
+        .flat_map(|g| g.parameters.iter().map(move |p| (g, p)))
+        .collect();
+    let text = |f: &dyn Fn(&crate::fit::GroupFit, &crate::fit::GroupParameter) -> String| {
+        Column::Text(rows.iter().map(|(g, p)| f(g, p)).collect())
+    };
+    let number = |f: &dyn Fn(&crate::fit::GroupParameter) -> f64| {
+        Column::Number(
+            rows.iter()
+                .map(|(_, p)| Some(f(p)).filter(|x| x.is_finite()))
+                .collect(),
+        )
+    };
+    Table::default()
+        .with("model", text(&|g, _| g.model.clone()))
+        .with("scope", text(&|g, _| g.scope.clone()))
+        .with("parameter", text(&|_, p| p.name.clone()))
+        .with(
+            "n_subjects",
+            Column::Integer(rows.iter().map(|(g, _)| g.subjects.len() as i64).collect()),
+        )
+        .with("theta_mean", number(&|p| p.theta_mean))
+        .with("theta_mean_se", number(&|p| p.theta_mean_se))
+        .with("theta_sd", number(&|p| p.theta_sd))
+        .with("natural_median", number(&|p| p.natural_median))
+        .with(
+            "natural_median_ci_low",
+            number(&|p| p.natural_median_interval.0),
+        )
+        .with(
+            "natural_median_ci_high",
+            number(&|p| p.natural_median_interval.1),
+        )
+        .with("natural_mean", number(&|p| p.natural_mean))
+        .with("natural_sd", number(&|p| p.natural_sd))
+}
+
+/// One row per model and scope of empirical-Bayes fits: convergence and the integrated BIC.
+pub fn group_evidence_table(groups: &[crate::fit::GroupFit]) -> Table {
+    let text =
+        |f: fn(&crate::fit::GroupFit) -> String| Column::Text(groups.iter().map(f).collect());
+    let number = |f: fn(&crate::fit::GroupFit) -> Option<f64>| {
+        Column::Number(
+            groups
+                .iter()
+                .map(|g| f(g).filter(|x| x.is_finite()))
+                .collect(),
+        )
+    };
+    let integer = |f: fn(&crate::fit::GroupFit) -> usize| {
+        Column::Integer(groups.iter().map(|g| f(g) as i64).collect())
+    };
+    Table::default()
+        .with("model", text(|g| g.model.clone()))
+        .with("scope", text(|g| g.scope.clone()))
+        .with("n_subjects", integer(|g| g.subjects.len()))
+        .with("n_trials", integer(|g| g.n_trials))
+        .with("n_group_parameters", integer(|g| 2 * g.parameters.len()))
+        .with(
+            "log_marginal_likelihood",
+            number(|g| Some(g.log_marginal_likelihood)),
+        )
+        .with(
+            "log_marginal_likelihood_mc_se",
+            number(|g| Some(g.log_marginal_likelihood_se)),
+        )
+        .with("log_marginal_laplace", number(|g| g.log_marginal_laplace))
+        .with("ibic", number(|g| Some(g.ibic)))
+        .with("em_iterations", integer(|g| g.iterations))
+        .with(
+            "em_converged",
+            Column::Flag(groups.iter().map(|g| g.converged).collect()),
+        )
+        .with("em_last_change", number(|g| Some(g.last_change)))
+        .with(
+            "subjects_without_covariance",
+            integer(|g| g.subjects_without_covariance),
+        )
 }

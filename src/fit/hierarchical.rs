@@ -1,0 +1,389 @@
+//! Empirical-Bayes group priors: expectation–maximisation with the Laplace approximation
+//! (Huys et al. 2011, PLoS Comput Biol 7:e1002028; the same scheme as in Daw 2011).
+//!
+//! The free parameters of subject i on the unconstrained scale, θ_i, are taken to come from a
+//! Gaussian group distribution N(μ, diag σ²). Starting from μ, σ² of the per-subject maximum-
+//! likelihood fits, the two steps alternate:
+//!
+//! - E-step: each subject's posterior mode θ̂_i = argmax ln p(y_i | θ) + ln N(θ; μ, σ²) (L-BFGS
+//!   from the previous mode and from μ) and its covariance Σ_i, the inverse Hessian of the
+//!   negative log-posterior there (Laplace approximation);
+//! - M-step: μ_j = (1/N) Σ_i θ̂_ij and σ_j² = (1/N) Σ_i [(θ̂_ij − μ_j)² + (Σ_i)_jj].
+//!
+//! until max_j max(|Δμ_j|, |Δσ_j|) is below the tolerance. The fitted prior then gives the
+//! shrunken estimates θ̂_i and, by sampling θ from it, the integrated BIC
+//! iBIC = −2 Σ_i ln[(1/S) Σ_s p(y_i | θ_s)] + 2k ln n (k free parameters, so 2k group
+//! parameters; n trials in all; Huys et al. 2011, eq. 12).
+//!
+//! Non-decision time has a subject-specific upper bound (below the fastest response), so its θ
+//! means "position between 0 and that bound"; natural-scale group summaries of ndt use the median
+//! of the subjects' bounds.
+
+use super::{FitOptions, SubjectFit, optimise, uncertainty};
+use crate::data::Subject;
+use crate::likelihood::{DataMismatch, GroupPrior, SubjectLikelihood};
+use crate::model::{Model, Transform};
+use rand::SeedableRng;
+use rand_chacha::ChaCha8Rng;
+use rand_distr::{Distribution, StandardNormal};
+use rayon::prelude::*;
+
+/// Settings of the expectation–maximisation.
+#[derive(Clone, Debug, PartialEq)]
+pub struct EmOptions {
+    /// Stop when no group mean or standard deviation (unconstrained scale) moves by more.
+    pub tolerance: f64,
+    /// At most this many iterations.
+    pub max_iterations: usize,
+    /// Samples from the fitted prior per subject for the integrated BIC.
+    pub ibic_samples: usize,
+    /// Seed of those samples.
+    pub seed: u64,
+}
+
+impl Default for EmOptions {
+    fn default() -> Self {
+        EmOptions {
+            tolerance: 1e-3,
+            max_iterations: 200,
+            ibic_samples: 2000,
+            seed: 1,
+        }
+    }
+}
+
+/// Smallest group variance on the unconstrained scale: keeps the prior proper when every
+/// subject agrees (common practice).
+const MIN_VARIANCE: f64 = 1e-6;
+
+/// |θ| above which a maximum-likelihood start is pulled in (a logistic parameter at a bound has
+/// θ → ±∞; |θ| = 8 is within 3.4e-4 of the bound).
+const START_LIMIT: f64 = 8.0;
+
+/// One free parameter of a group fit.
+#[derive(Clone, Debug, PartialEq)]
+pub struct GroupParameter {
+    /// Name.
+    pub name: String,
+    /// Group mean μ on the unconstrained scale.
+    pub theta_mean: f64,
+    /// Group standard deviation σ on the unconstrained scale.
+    pub theta_sd: f64,
+    /// Standard error of μ from the Laplace-approximated marginal likelihood:
+    /// 1/SE² = Σ_i 1/(σ² + C_ij), C_ij the likelihood-only variance of subject i,
+    /// 1/C_ij = 1/(Σ_i)_jj − 1/σ² (normal–normal model; Gelman et al. 2013, §5.4).
+    pub theta_mean_se: f64,
+    /// The transform used for the natural-scale summaries.
+    pub transform: Transform,
+    /// Median of the group distribution on the natural scale, T(μ) (T is monotone).
+    pub natural_median: f64,
+    /// 95 % interval of that median, T(μ ± 1.96 SE).
+    pub natural_median_interval: (f64, f64),
+    /// Mean of the group distribution on the natural scale (from the prior samples).
+    pub natural_mean: f64,
+    /// Standard deviation of the group distribution on the natural scale (prior samples).
+    pub natural_sd: f64,
+}
+
+/// The empirical-Bayes fit of one model to one set of subjects (all, or one group).
+#[derive(Clone, Debug, PartialEq)]
+pub struct GroupFit {
+    /// Model name.
+    pub model: String,
+    /// "all", or the group label when each group has its own prior.
+    pub scope: String,
+    /// The free parameters' group distribution.
+    pub parameters: Vec<GroupParameter>,
+    /// The fitted prior.
+    pub prior: GroupPrior,
+    /// Iterations run.
+    pub iterations: usize,
+    /// The tolerance was met within the iteration limit.
+    pub converged: bool,
+    /// Last max |Δμ|, |Δσ|.
+    pub last_change: f64,
+    /// Subjects whose Hessian was not positive definite in the last E-step (their variance
+    /// term in the M-step is the prior variance).
+    pub subjects_without_covariance: usize,
+    /// Per-subject posterior-mode fits under the fitted prior (the shrunken estimates).
+    pub subjects: Vec<SubjectFit>,
+    /// Trials entering the likelihood, all subjects.
+    pub n_trials: usize,
+    /// Σ_i ln[(1/S) Σ_s p(y_i | θ_s)], θ_s from the fitted prior.
+    pub log_marginal_likelihood: f64,
+    /// Monte Carlo standard error of that sum.
+    pub log_marginal_likelihood_se: f64,
+    /// Σ_i of the per-subject Laplace approximations of ln p(y_i | μ, σ²).
+    pub log_marginal_laplace: Option<f64>,
+    /// Integrated BIC.
+    pub ibic: f64,
+}
+
+/// What the caller is told after each EM iteration: (model, scope, iteration, change).
+pub type EmProgress<'a> = &'a (dyn Fn(&str, &str, usize, f64) + Sync);
+
+/// Fits the group prior of `model` over `subjects` by EM, starting from their per-subject fits
+/// `initial` (same order; maximum likelihood or MAP). `index` gives each subject's stream of the
+/// seeded generator (its position in the whole table), so results do not depend on threads.
+#[allow(clippy::too_many_arguments)]
+pub fn fit_group(
+    model: &Model,
+    scope: &str,
+    subjects: &[(usize, &Subject)],
+    initial: &[&SubjectFit],
+    options: &FitOptions,
+    em: &EmOptions,
+    progress: EmProgress<'_>,
+) -> Result<GroupFit, DataMismatch> {
+    let likelihoods: Vec<SubjectLikelihood<'_>> = subjects
+        .iter()
+        .map(|(_, s)| SubjectLikelihood::new(model, s, options.deadline))
+        .collect::<Result<_, _>>()?;
+    let k = model.free_slots().len();
+    let mut modes: Vec<Vec<f64>> = initial
+        .iter()
+        .map(|f| {
+            f.theta
+                .iter()
+                .map(|t| t.clamp(-START_LIMIT, START_LIMIT))
+                .collect()
+        })
+        .collect();
+    let initial_cov: Vec<Option<Vec<f64>>> = initial
+        .iter()
+        .map(|f| f.covariance_theta.as_ref().map(diagonal))
+        .collect();
+    let mut prior = m_step(&modes, &initial_cov, None, k);
+    let mut iterations = 0;
+    let mut last_change;
+    let mut fits: Vec<SubjectFit>;
+    loop {
+        iterations += 1;
+        fits = e_step(&likelihoods, &prior, &modes, options);
+        modes = fits.iter().map(|f| f.theta.clone()).collect();
+        let covariances: Vec<Option<Vec<f64>>> = fits
+            .iter()
+            .map(|f| f.covariance_theta.as_ref().map(diagonal))
+            .collect();
+        let next = m_step(&modes, &covariances, Some(&prior), k);
+        last_change = change(&prior, &next);
+        progress(&model.name, scope, iterations, last_change);
+        prior = next;
+        if last_change < em.tolerance || iterations >= em.max_iterations {
+            break;
+        }
+    }
+    // The reported fits are the modes under the final prior.
+    fits = e_step(&likelihoods, &prior, &modes, options);
+    let subjects_without_covariance = fits.iter().filter(|f| f.covariance_theta.is_none()).count();
+    let samples = prior_samples(&prior, em.ibic_samples, em.seed, subjects[0].0 as u64);
+    let marginals: Vec<(f64, f64)> = likelihoods
+        .par_iter()
+        .map(|lik| sampled_log_marginal(lik, &samples))
+        .collect();
+    let log_marginal_likelihood: f64 = marginals.iter().map(|m| m.0).sum();
+    let log_marginal_likelihood_se = marginals.iter().map(|m| m.1 * m.1).sum::<f64>().sqrt();
+    let n_trials: usize = likelihoods.iter().map(|l| l.n_observations()).sum();
+    let ibic = -2.0 * log_marginal_likelihood + 2.0 * k as f64 * (n_trials as f64).ln();
+    let log_marginal_laplace = fits.iter().map(|f| f.log_evidence).sum::<Option<f64>>();
+    let parameters = summarise_parameters(model, &likelihoods, &prior, &fits, &samples);
+    Ok(GroupFit {
+        model: model.name.clone(),
+        scope: scope.to_string(),
+        parameters,
+        prior,
+        iterations,
+        converged: last_change < em.tolerance,
+        last_change,
+        subjects_without_covariance,
+        subjects: fits,
+        n_trials,
+        log_marginal_likelihood,
+        log_marginal_likelihood_se,
+        log_marginal_laplace,
+        ibic,
+    })
+}
+
+fn diagonal(c: &Vec<Vec<f64>>) -> Vec<f64> {
+    (0..c.len()).map(|j| c[j][j]).collect()
+}
+
+/// Posterior modes under `prior`, from the previous mode and from the prior mean.
+fn e_step(
+    likelihoods: &[SubjectLikelihood<'_>],
+    prior: &GroupPrior,
+    modes: &[Vec<f64>],
+    options: &FitOptions,
+) -> Vec<SubjectFit> {
+    likelihoods
+        .par_iter()
+        .zip(modes)
+        .map(|(lik, mode)| {
+            let lik = lik.clone().with_group_prior(prior.clone());
+            let starts = [mode.clone(), prior.mean.clone()];
+            let results: Vec<_> = starts
+                .into_iter()
+                .map(|s| optimise::run_start(&lik, s, options.max_iterations))
+                .collect();
+            super::summarise_best(&lik, &results)
+        })
+        .collect()
+}
+
+/// μ_j = mean θ̂_ij; σ_j² = mean[(θ̂_ij − μ_j)² + (Σ_i)_jj] (Huys et al. 2011). A subject
+/// without a covariance contributes the previous prior variance (it is taken as uninformative
+/// about its deviation); before any prior exists, the spread of the modes alone.
+fn m_step(
+    modes: &[Vec<f64>],
+    covariances: &[Option<Vec<f64>>],
+    previous: Option<&GroupPrior>,
+    k: usize,
+) -> GroupPrior {
+    let n = modes.len() as f64;
+    let mean: Vec<f64> = (0..k)
+        .map(|j| modes.iter().map(|m| m[j]).sum::<f64>() / n)
+        .collect();
+    let variance: Vec<f64> = (0..k)
+        .map(|j| {
+            let total: f64 = modes
+                .iter()
+                .zip(covariances)
+                .map(|(m, c)| {
+                    let own = match (c, previous) {
+                        (Some(c), _) => c[j],
+                        (None, Some(p)) => p.variance[j],
+                        (None, None) => 0.0,
+                    };
+                    (m[j] - mean[j]).powi(2) + own
+                })
+                .sum();
+            (total / n).max(MIN_VARIANCE)
+        })
+        .collect();
+    GroupPrior { mean, variance }
+}
+
+fn change(a: &GroupPrior, b: &GroupPrior) -> f64 {
+    let means = a.mean.iter().zip(&b.mean).map(|(x, y)| (x - y).abs());
+    let sds = a
+        .variance
+        .iter()
+        .zip(&b.variance)
+        .map(|(x, y)| (x.sqrt() - y.sqrt()).abs());
+    means.chain(sds).fold(0.0, f64::max)
+}
+
+/// S draws θ_s ~ N(μ, diag σ²) from a seeded generator.
+fn prior_samples(prior: &GroupPrior, n: usize, seed: u64, stream: u64) -> Vec<Vec<f64>> {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    rng.set_stream(stream);
+    (0..n.max(1))
+        .map(|_| {
+            prior
+                .mean
+                .iter()
+                .zip(&prior.variance)
+                .map(|(m, v)| {
+                    let z: f64 = StandardNormal.sample(&mut rng);
+                    m + v.sqrt() * z
+                })
+                .collect()
+        })
+        .collect()
+}
+
+/// ln[(1/S) Σ_s p(y | θ_s)] by log-sum-exp, with its Monte Carlo standard error by the delta
+/// method, sd(w)/(√S · mean(w)) for w_s = p(y | θ_s) (e.g. Robert & Casella 2004, §3.2).
+/// Draws where the likelihood is not finite count as p = 0.
+pub fn sampled_log_marginal(
+    likelihood: &SubjectLikelihood<'_>,
+    samples: &[Vec<f64>],
+) -> (f64, f64) {
+    let logs: Vec<f64> = samples
+        .iter()
+        .map(|theta| likelihood.evaluate(theta).ln_likelihood)
+        .map(|l| if l.is_finite() { l } else { f64::NEG_INFINITY })
+        .collect();
+    let top = logs.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    if !top.is_finite() {
+        return (f64::NEG_INFINITY, f64::INFINITY);
+    }
+    let s = logs.len() as f64;
+    let w: Vec<f64> = logs.iter().map(|l| (l - top).exp()).collect();
+    let mean = w.iter().sum::<f64>() / s;
+    let var = w.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (s - 1.0).max(1.0);
+    (top + mean.ln(), (var / s).sqrt() / mean)
+}
+
+fn summarise_parameters(
+    model: &Model,
+    likelihoods: &[SubjectLikelihood<'_>],
+    prior: &GroupPrior,
+    fits: &[SubjectFit],
+    samples: &[Vec<f64>],
+) -> Vec<GroupParameter> {
+    let free = model.free_slots();
+    free.iter()
+        .enumerate()
+        .map(|(j, &slot)| {
+            let transform = reference_transform(likelihoods, j);
+            let (mu, var) = (prior.mean[j], prior.variance[j]);
+            let precision: f64 = fits
+                .iter()
+                .map(|f| {
+                    let post = f.covariance_theta.as_ref().map_or(var, |c| c[j][j]);
+                    let data_precision = (1.0 / post - 1.0 / var).max(0.0);
+                    if data_precision > 0.0 {
+                        1.0 / (var + 1.0 / data_precision)
+                    } else {
+                        0.0
+                    }
+                })
+                .sum();
+            let se = if precision > 0.0 {
+                precision.recip().sqrt()
+            } else {
+                f64::INFINITY
+            };
+            let natural: Vec<f64> = samples.iter().map(|s| transform.natural(s[j])).collect();
+            let n = natural.len() as f64;
+            let natural_mean = natural.iter().sum::<f64>() / n;
+            let natural_sd = (natural
+                .iter()
+                .map(|x| (x - natural_mean).powi(2))
+                .sum::<f64>()
+                / (n - 1.0).max(1.0))
+            .sqrt();
+            GroupParameter {
+                name: model.parameters[slot].name.clone(),
+                theta_mean: mu,
+                theta_sd: var.sqrt(),
+                theta_mean_se: se,
+                transform,
+                natural_median: transform.natural(mu),
+                natural_median_interval: (
+                    transform.natural(mu - uncertainty::Z_975 * se),
+                    transform.natural(mu + uncertainty::Z_975 * se),
+                ),
+                natural_mean,
+                natural_sd,
+            }
+        })
+        .collect()
+}
+
+/// The transform of free parameter j common to the subjects; where it differs between them
+/// (ndt's upper bound), the one with the median upper bound.
+fn reference_transform(likelihoods: &[SubjectLikelihood<'_>], j: usize) -> Transform {
+    let mut transforms: Vec<Transform> = likelihoods.iter().map(|l| l.transforms()[j]).collect();
+    transforms.sort_by(|a, b| upper(a).total_cmp(&upper(b)));
+    transforms[transforms.len() / 2]
+}
+
+fn upper(t: &Transform) -> f64 {
+    match *t {
+        Transform::Logistic { upper, .. } | Transform::ExpBelow { upper } => upper,
+        Transform::Exp { .. } | Transform::Identity => f64::INFINITY,
+    }
+}

@@ -1,0 +1,335 @@
+//! Empirical-Bayes group priors (EM with the Laplace approximation, Huys et al. 2011).
+//!
+//! A simulated cohort whose parameters come from a known Gaussian group distribution on the
+//! unconstrained scale, with few trials per subject (60), is fitted per subject by maximum
+//! likelihood and by empirical Bayes. Shrinkage towards a well-estimated group mean lowers the
+//! error of individual estimates when each subject's data are weak (James & Stein 1961; Efron &
+//! Morris 1975), and the group mean should be recovered within its reported standard error.
+//! Fixed seed.
+
+use rand::{RngExt, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use rand_distr::{Distribution, StandardNormal};
+use statrs::distribution::{Continuous, Normal};
+use valuedrift::data::TrialTable;
+use valuedrift::fit::{
+    EmOptions, FitOptions, fit_table, fit_table_hierarchical, laplace_log_evidence,
+};
+use valuedrift::likelihood::GroupPrior;
+use valuedrift::model::load_model;
+use valuedrift::simulate::{SimulationSettings, orchard_design, simulate_subject};
+
+/// Generating group distribution on the unconstrained scale: (name, μ, σ). The transforms are
+/// the declared ones of `gainloss-linear` (logistic within the bounds), so for example
+/// gain_rate has median 1/(1 + e^0.6) = 0.354.
+const GROUP: [(&str, f64, f64); 5] = [
+    ("gain_rate", -0.6, 0.5),
+    ("loss_rate", -1.4, 0.5),
+    ("effort_weight", -3.0, 0.4),
+    ("value_scale", -1.6, 0.3),
+    ("boundary", -1.2, 0.3),
+];
+
+#[test]
+fn empirical_bayes_beats_maximum_likelihood_with_few_trials() {
+    let model = load_model("gainloss-linear").unwrap();
+    let mut rng = ChaCha8Rng::seed_from_u64(20_261_202);
+    let n_subjects = 30;
+    let mut truth: Vec<Vec<f64>> = Vec::new();
+    let mut true_theta: Vec<Vec<f64>> = Vec::new();
+    let mut subjects = Vec::new();
+    for i in 0..n_subjects {
+        let design = orchard_design(&format!("h{i:02}"), "sim", 60, &mut rng);
+        let mut theta = Vec::new();
+        let values: Vec<f64> = model
+            .parameters
+            .iter()
+            .map(|p| match GROUP.iter().find(|g| g.0 == p.name) {
+                Some(&(_, mu, sd)) => {
+                    let z: f64 = StandardNormal.sample(&mut rng);
+                    theta.push(mu + sd * z);
+                    p.transform().natural(mu + sd * z)
+                }
+                None if p.name == "ndt" => rng.random_range(0.25..0.4),
+                None => p.fixed.unwrap(),
+            })
+            .collect();
+        subjects.push(simulate_subject(
+            &model,
+            &values,
+            &design,
+            SimulationSettings::default(),
+            &mut rng,
+        ));
+        truth.push(values);
+        true_theta.push(theta);
+    }
+    let table = TrialTable {
+        subjects,
+        present: Vec::new(),
+    };
+    let options = FitOptions {
+        starts: 4,
+        ..FitOptions::default()
+    };
+    let models = [load_model("gainloss-linear").unwrap()];
+    let (ml, skipped) = fit_table(&models, &table, &options, 0, &|| {}).unwrap();
+    assert!(skipped.is_empty());
+    let em = EmOptions {
+        ibic_samples: 200,
+        ..EmOptions::default()
+    };
+    let (groups, skipped) = fit_table_hierarchical(
+        &models,
+        &table,
+        &ml,
+        &options,
+        &em,
+        false,
+        0,
+        &|_, _, _, _| {},
+    )
+    .unwrap();
+    assert!(skipped.is_empty());
+    let group = &groups[0];
+    assert!(
+        group.converged,
+        "EM did not converge: {}",
+        group.last_change
+    );
+    assert!(group.ibic.is_finite());
+
+    // Root-mean-square error against the generating values, natural scale, relative to the
+    // spread of the generating values (so that parameters on different scales add up).
+    let mut report = Vec::new();
+    let (mut total_ml, mut total_eb) = (0.0, 0.0);
+    for (name, _, _) in GROUP.iter().copied().chain([("ndt", 0.0, 0.0)]) {
+        let slot = model
+            .parameters
+            .iter()
+            .position(|p| p.name == name)
+            .unwrap();
+        let t: Vec<f64> = truth.iter().map(|v| v[slot]).collect();
+        let rmse = |fits: &[valuedrift::fit::SubjectFit]| {
+            let sq: f64 = fits
+                .iter()
+                .zip(&t)
+                .map(|(f, x)| (f.estimates[slot].estimate - x).powi(2))
+                .sum();
+            (sq / t.len() as f64).sqrt()
+        };
+        let mean = t.iter().sum::<f64>() / t.len() as f64;
+        let spread = (t.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / t.len() as f64).sqrt();
+        let (e_ml, e_eb) = (rmse(&ml), rmse(&group.subjects));
+        total_ml += e_ml / spread;
+        total_eb += e_eb / spread;
+        report.push(format!("{name}: ML {e_ml:.3}, EB {e_eb:.3}"));
+    }
+    println!(
+        "{}; relative total ML {total_ml:.2}, EB {total_eb:.2}; EM iterations {}",
+        report.join("; "),
+        group.iterations
+    );
+    assert!(
+        total_eb < total_ml,
+        "empirical Bayes is not closer to the generating values: {}",
+        report.join("; ")
+    );
+
+    // The group mean within 3 reported standard errors (a 99.7 % band under the normal
+    // approximation of the estimator) of this cohort's mean generating value. (Against the
+    // population mean μ the band is also met for this seed, but over ten seeds 2 of 50 means
+    // fell outside it: the diagonal Laplace-EM underestimated the spread of boundary, e.g. σ̂ 0.15
+    // where the cohort's was 0.24, and with it the standard error; see the README.) ndt is
+    // excluded: its unconstrained scale is subject-specific and it was not drawn from a Gaussian.
+    for (j, (name, mu, _)) in GROUP.iter().enumerate() {
+        let p = &group.parameters[j];
+        assert_eq!(p.name, *name);
+        assert!(p.theta_mean_se.is_finite() && p.theta_mean_se > 0.0);
+        let cohort = true_theta.iter().map(|t| t[j]).sum::<f64>() / n_subjects as f64;
+        let z = (p.theta_mean - cohort) / p.theta_mean_se;
+        println!(
+            "{name}: group mean {:.3} ± {:.3} (cohort {cohort:.3}, population {mu}), z = {z:.2}",
+            p.theta_mean, p.theta_mean_se
+        );
+        assert!(z.abs() < 3.0, "{name}: group mean off by {z:.2} SE");
+    }
+    // Shrinkage: the spread of the EB estimates (unconstrained scale) is below that of the ML
+    // estimates for every parameter (common practice: the defining property of shrinkage).
+    for j in 0..GROUP.len() {
+        let spread = |fits: &[valuedrift::fit::SubjectFit]| {
+            let x: Vec<f64> = fits.iter().map(|f| f.theta[j].clamp(-8.0, 8.0)).collect();
+            let m = x.iter().sum::<f64>() / x.len() as f64;
+            x.iter().map(|v| (v - m).powi(2)).sum::<f64>()
+        };
+        assert!(
+            spread(&group.subjects) < spread(&ml),
+            "parameter {j} not shrunk"
+        );
+    }
+}
+
+#[test]
+fn group_prior_density_matches_the_normal_density() {
+    // Reference: statrs Normal::ln_pdf, and the derivative of the normal log-density,
+    // −(x − μ)/σ² (any statistics handbook).
+    let prior = GroupPrior {
+        mean: vec![0.3, -2.0],
+        variance: vec![0.25, 4.0],
+    };
+    let theta = [1.1, 0.5];
+    let (value, slope) = prior.ln_density_with_gradient(&theta);
+    let expected: f64 = (0..2)
+        .map(|j| {
+            Normal::new(prior.mean[j], prior.variance[j].sqrt())
+                .unwrap()
+                .ln_pdf(theta[j])
+        })
+        .sum();
+    assert!((value - expected).abs() < 1e-12, "{value} vs {expected}");
+    assert!((slope[0] - (-(1.1 - 0.3) / 0.25)).abs() < 1e-12);
+    assert!((slope[1] - (-(0.5 + 2.0) / 4.0)).abs() < 1e-12);
+}
+
+#[test]
+fn laplace_evidence_is_exact_for_a_gaussian_integrand() {
+    // For ln p(y, θ) = c − ½ θᵀHθ the Laplace approximation is exact:
+    // ∫ e^{c − ½ θᵀHθ} dθ = e^c (2π)^{k/2} |H|^{−1/2} (the Gaussian integral). Two dimensions,
+    // H = diag(4, 0.5): ln = c + ln 2π − ½ ln 2.
+    let c = -12.5;
+    let ln_det: f64 = (4.0_f64 * 0.5).ln();
+    let expected = c + (2.0 * std::f64::consts::PI).ln() - 0.5 * 2.0_f64.ln();
+    assert!((laplace_log_evidence(c, 2.0, ln_det) - expected).abs() < 1e-12);
+}
+
+/// A small simulated table in two groups, written as CSV.
+fn small_table_csv(dir: &std::path::Path) -> std::path::PathBuf {
+    let model = load_model("gainloss-linear").unwrap();
+    let mut rng = ChaCha8Rng::seed_from_u64(7);
+    let generating = [
+        ("gain_rate", 0.4),
+        ("loss_rate", 0.25),
+        ("effort_weight", 0.8),
+        ("value_scale", 5.0),
+        ("boundary", 1.6),
+        ("ndt", 0.3),
+    ];
+    let values: Vec<f64> = model
+        .parameters
+        .iter()
+        .map(|p| match generating.iter().find(|g| g.0 == p.name) {
+            Some(&(_, x)) => x,
+            None => p.fixed.unwrap(),
+        })
+        .collect();
+    let subjects = (0..8)
+        .map(|i| {
+            let group = if i < 4 { "alpha" } else { "beta" };
+            let design = orchard_design(&format!("c{i}"), group, 60, &mut rng);
+            simulate_subject(
+                &model,
+                &values,
+                &design,
+                SimulationSettings::default(),
+                &mut rng,
+            )
+        })
+        .collect();
+    let table = TrialTable {
+        subjects,
+        present: Vec::new(),
+    };
+    let path = dir.join("trials.csv");
+    let mut file = std::fs::File::create(&path).unwrap();
+    valuedrift::data::write_trials(&table, &mut file).unwrap();
+    path
+}
+
+#[test]
+fn fit_hierarchical_by_group_writes_the_group_tables() {
+    let dir = tempfile::tempdir().unwrap();
+    let data = small_table_csv(dir.path());
+    let out = dir.path().join("fits");
+    let status = std::process::Command::new(env!("CARGO_BIN_EXE_valuedrift"))
+        .args([
+            "fit",
+            "--model",
+            "gainloss-linear",
+            "--starts",
+            "2",
+            "--hierarchical",
+        ])
+        .args(["--by", "group", "--ibic-samples", "50", "--data"])
+        .arg(&data)
+        .arg("--out")
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert!(
+        status.status.success(),
+        "{}",
+        String::from_utf8_lossy(&status.stderr)
+    );
+    let stdout = String::from_utf8_lossy(&status.stdout);
+    assert!(stdout.contains("iBIC"), "{stdout}");
+    for stem in [
+        "parameters",
+        "fit_summary",
+        "eb_parameters",
+        "eb_fit_summary",
+        "eb_group_priors",
+        "eb_model_evidence",
+    ] {
+        assert!(out.join(format!("{stem}.csv")).exists(), "{stem}.csv");
+        assert!(
+            out.join(format!("{stem}.parquet")).exists(),
+            "{stem}.parquet"
+        );
+    }
+    let priors = std::fs::read_to_string(out.join("eb_group_priors.csv")).unwrap();
+    let header = priors.lines().next().unwrap();
+    assert!(
+        header.starts_with("model,scope,parameter,n_subjects,theta_mean,theta_mean_se,theta_sd")
+    );
+    // One row per group and free parameter: 2 groups × 6 parameters.
+    assert_eq!(priors.lines().count(), 1 + 2 * 6);
+    assert!(
+        priors.lines().any(|l| l.contains(",alpha,"))
+            && priors.lines().any(|l| l.contains(",beta,"))
+    );
+    let summary = std::fs::read_to_string(out.join("eb_fit_summary.csv")).unwrap();
+    let columns: Vec<&str> = summary.lines().next().unwrap().split(',').collect();
+    let evidence = columns
+        .iter()
+        .position(|c| *c == "log_evidence_laplace")
+        .unwrap();
+    // Every subject's Laplace evidence under its group prior is a finite number.
+    for line in summary.lines().skip(1) {
+        let cell = line.split(',').nth(evidence).unwrap();
+        assert!(cell.parse::<f64>().unwrap().is_finite(), "{line}");
+    }
+}
+
+#[test]
+fn by_without_hierarchical_is_refused_and_writes_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    let data = small_table_csv(dir.path());
+    let out = dir.path().join("fits");
+    let output = std::process::Command::new(env!("CARGO_BIN_EXE_valuedrift"))
+        .args([
+            "fit",
+            "--model",
+            "gainloss-linear",
+            "--by",
+            "group",
+            "--data",
+        ])
+        .arg(&data)
+        .arg("--out")
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert!(!output.status.success());
+    assert!(String::from_utf8_lossy(&output.stderr).contains("--hierarchical"));
+    assert!(!out.exists());
+}
