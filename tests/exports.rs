@@ -662,3 +662,225 @@ fn export_errors_name_the_parameters_file_and_what_is_missing() {
         "nothing is written on error"
     );
 }
+
+// ---------------------------------------------------------------------------------------------
+// Design matrices (--tr, --scans)
+
+/// parameters.csv of both simulated subjects at the generating values (the layout written by
+/// `valuedrift fit`), so the export needs no fit.
+fn generating_fits(dir: &Path) -> std::path::PathBuf {
+    let model = load_model("gainloss-linear").unwrap();
+    let mut text = String::from("subject,group,model,parameter,estimate\n");
+    for subject in ["sub-01", "p_02"] {
+        for (p, x) in model.parameters.iter().zip(natural(&model)) {
+            text.push_str(&format!("{subject},sim,gainloss-linear,{},{x}\n", p.name));
+        }
+    }
+    let fits = dir.join("fits");
+    std::fs::create_dir_all(&fits).unwrap();
+    std::fs::write(fits.join("parameters.csv"), text).unwrap();
+    fits
+}
+
+fn export_with(dir: &Path, out: &Path, extra: &[&str]) -> std::process::Output {
+    let data = simulated_data(dir);
+    let fits = generating_fits(dir);
+    binary()
+        .args(["export", "--model", "gainloss-linear"])
+        .arg("--fits")
+        .arg(&fits)
+        .arg("--data")
+        .arg(&data)
+        .arg("--out")
+        .arg(out)
+        .args(extra)
+        .output()
+        .unwrap()
+}
+
+/// Header and numeric rows of a tab-separated file.
+fn read_tsv(path: &Path) -> (Vec<String>, Vec<Vec<String>>) {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines();
+    let header = lines
+        .next()
+        .unwrap()
+        .split('\t')
+        .map(String::from)
+        .collect();
+    let rows = lines
+        .map(|l| l.split('\t').map(String::from).collect())
+        .collect();
+    (header, rows)
+}
+
+#[test]
+fn export_with_tr_and_scans_writes_one_design_matrix_per_run() {
+    use valuedrift::exports::hrf::{DoubleGamma, Event, Timing, convolve};
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("export");
+    // Orchard runs: 20 trials 6 s apart, outcomes 2.5 s after the onset, so the last event is
+    // before 120 s; 70 scans of 2 s (140 s) hold every run.
+    let run = export_with(dir.path(), &out, &["--tr", "2", "--scans", "70"]);
+    assert!(
+        run.status.success(),
+        "{}",
+        String::from_utf8_lossy(&run.stderr)
+    );
+    let stdout = String::from_utf8_lossy(&run.stdout);
+    assert!(stdout.contains("4 design matrices"), "{stdout}");
+    let mut names: Vec<String> = std::fs::read_dir(&out)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.ends_with("_design.tsv"))
+        .collect();
+    names.sort();
+    assert_eq!(
+        names,
+        [
+            "sub-01_run-1_desc-gainlosslinear_design.tsv",
+            "sub-01_run-2_desc-gainlosslinear_design.tsv",
+            "sub-p02_run-1_desc-gainlosslinear_design.tsv",
+            "sub-p02_run-2_desc-gainlosslinear_design.tsv",
+        ]
+    );
+    let timing = Timing {
+        tr: 2.0,
+        scans: 70,
+        bins: 16,
+    };
+    let mut expected_columns = vec!["choice", "outcome"];
+    expected_columns.extend(MODULATORS);
+    for name in &names {
+        let path = out.join(name);
+        let (header, rows) = read_tsv(&path);
+        // One row per scan, one column per event type and modulator (this feature's layout).
+        assert_eq!(header, expected_columns, "{name}");
+        assert_eq!(rows.len(), 70, "{name}");
+        let column = |c: &str| -> Vec<f64> {
+            let k = header.iter().position(|h| h == c).unwrap();
+            rows.iter()
+                .map(|r| {
+                    assert_eq!(r.len(), header.len());
+                    let v: f64 = r[k].parse().unwrap();
+                    assert!(v.is_finite());
+                    v
+                })
+                .collect()
+        };
+        // The columns are the events file's events convolved: the choice events (duration =
+        // response time) with amplitude 1, and the prediction errors (as written, centred) at
+        // the outcome events, through the library's convolution (checked against scipy and the
+        // definition in tests/haemodynamic_response.rs).
+        let events_path = out.join(name.replace("_design.tsv", "_events.tsv"));
+        let (eh, events) = read_tsv(&events_path);
+        let (kind, pe) = (col(&eh, "trial_type"), col(&eh, "prediction_error"));
+        let regressor = |trial_type: &str, amplitude: &dyn Fn(&[String]) -> f64| -> Vec<Event> {
+            events
+                .iter()
+                .filter(|r| r[kind] == trial_type)
+                .map(|r| Event {
+                    onset: r[0].parse().unwrap(),
+                    duration: r[1].parse().unwrap(),
+                    amplitude: amplitude(r),
+                })
+                .collect()
+        };
+        let hrf = DoubleGamma::CANONICAL;
+        let choice = convolve(&regressor("choice", &|_| 1.0), &hrf, timing);
+        let errors = convolve(
+            &regressor("outcome", &|r| parse(&r[pe]).unwrap_or(0.0)),
+            &hrf,
+            timing,
+        );
+        for (got, want) in [
+            (column("choice"), choice),
+            (column("prediction_error"), errors),
+        ] {
+            for (g, w) in got.iter().zip(&want) {
+                assert!((g - w).abs() <= 1e-12 * w.abs().max(1.0), "{name}: {g} {w}");
+            }
+        }
+        // Nothing before the first event's response (h = 0 for t ≤ 0): scan 0 is t = 0.
+        assert_eq!(column("choice")[0], 0.0);
+        assert!(column("choice").iter().any(|&y| y > 0.1));
+
+        let sidecar: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(path.with_extension("json")).unwrap())
+                .unwrap();
+        assert_eq!(sidecar["RepetitionTime"], 2.0);
+        assert_eq!(sidecar["NumberOfVolumes"], 70);
+        assert_eq!(sidecar["MicrotimeBinsPerScan"], 16);
+        // Parameters as commonly used (Friston et al. 1998; Glover 1999).
+        let response = &sidecar["HaemodynamicResponse"];
+        assert_eq!(response["PeakShape"], 6.0);
+        assert_eq!(response["UndershootShape"], 16.0);
+        assert_eq!(response["KernelLength"], 32.0);
+        assert!(
+            sidecar["ModulatorScaling"]
+                .as_str()
+                .unwrap()
+                .contains("mean-centred")
+        );
+        for c in &header {
+            let d = &sidecar["ColumnDescriptions"][c];
+            assert!(
+                d["LongName"].is_string() && d["Description"].is_string(),
+                "{name}: {c}"
+            );
+        }
+    }
+}
+
+#[test]
+fn design_matrices_warn_about_events_after_the_last_scan() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("export");
+    // 50 scans of 2 s end at 100 s; the orchard runs' events go on to about 117 s.
+    let run = export_with(
+        dir.path(),
+        &out,
+        &["--tr", "2", "--scans", "50", "--microtime-bins", "8"],
+    );
+    assert!(
+        run.status.success(),
+        "{}",
+        String::from_utf8_lossy(&run.stderr)
+    );
+    let stderr = String::from_utf8_lossy(&run.stderr);
+    assert!(
+        stderr.contains("start after the last scan") && stderr.contains("more than --scans 50"),
+        "{stderr}"
+    );
+    let (_, rows) = read_tsv(&out.join("sub-01_run-1_desc-gainlosslinear_design.tsv"));
+    assert_eq!(rows.len(), 50);
+    let sidecar: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(out.join("sub-01_run-1_desc-gainlosslinear_design.json")).unwrap(),
+    )
+    .unwrap();
+    assert_eq!(sidecar["MicrotimeBinsPerScan"], 8);
+    // Trials at 102, 108 and 114 s: choice and outcome events after 100 s (orchard design).
+    assert_eq!(sidecar["EventsAfterLastScan"], 6);
+}
+
+#[test]
+fn tr_without_scans_or_a_bad_tr_is_an_error_and_writes_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("export");
+    for (args, message) in [
+        (&["--tr", "2"][..], "--tr needs --scans"),
+        (&["--scans", "70"][..], "--scans needs --tr"),
+        (
+            &["--tr=0", "--scans", "70"][..],
+            "expected a repetition time",
+        ),
+        (&["--tr", "2", "--scans", "0"][..], "--scans 0"),
+        (&["--microtime-bins", "16"][..], "--microtime-bins needs"),
+    ] {
+        let run = export_with(dir.path(), &out, args);
+        let stderr = String::from_utf8_lossy(&run.stderr);
+        assert!(!run.status.success(), "{args:?}");
+        assert!(stderr.contains(message), "{args:?}: {stderr}");
+        assert!(!out.exists(), "{args:?}: nothing is written on error");
+    }
+}

@@ -1,7 +1,9 @@
-//! `valuedrift export`: per-trial latent variables of a fitted model (tidy table) and BIDS
-//! events files with parametric modulators, for imaging analyses.
+//! `valuedrift export`: per-trial latent variables of a fitted model (tidy table), BIDS
+//! events files with parametric modulators and, given the scan timing, design matrices of the
+//! events convolved with the haemodynamic response, for imaging analyses.
 
 use crate::data::{ColumnMap, read_trials};
+use crate::exports::hrf::{DesignFile, DoubleGamma, Timing, design_file};
 use crate::exports::{
     Scale, bids_labels, events_files, labels_table, latents, latents_table, read_estimates,
 };
@@ -23,6 +25,45 @@ pub struct ExportRun<'a> {
     pub scale: Scale,
     /// Column mapping of the trial table (canonical=file pairs).
     pub columns: &'a str,
+    /// Scan timing for design matrices (None: no design matrices).
+    pub timing: Option<Timing>,
+}
+
+/// The scan timing from `--tr`, `--scans` and `--microtime-bins`: both of the first two or
+/// neither; TR a finite number of seconds > 0, scans and bins ≥ 1.
+pub fn timing(
+    tr: Option<f64>,
+    scans: Option<usize>,
+    bins: Option<usize>,
+) -> Result<Option<Timing>, String> {
+    let (tr, scans) = match (tr, scans) {
+        (Some(tr), Some(scans)) => (tr, scans),
+        (None, None) => {
+            return match bins {
+                Some(_) => Err("--microtime-bins needs --tr and --scans".into()),
+                None => Ok(None),
+            };
+        }
+        (Some(_), None) => {
+            return Err("--tr needs --scans (the number of volumes of each run)".into());
+        }
+        (None, Some(_)) => {
+            return Err("--scans needs --tr (the repetition time in seconds)".into());
+        }
+    };
+    if !(tr.is_finite() && tr > 0.0) {
+        return Err(format!(
+            "--tr {tr}: expected a repetition time in seconds > 0"
+        ));
+    }
+    if scans == 0 {
+        return Err("--scans 0: expected a number of volumes ≥ 1".into());
+    }
+    let bins = bins.unwrap_or(Timing::DEFAULT_BINS);
+    if bins == 0 {
+        return Err("--microtime-bins 0: expected a number of bins per scan ≥ 1".into());
+    }
+    Ok(Some(Timing { tr, scans, bins }))
 }
 
 /// Reads, computes and writes every output at once (nothing is written on error).
@@ -50,6 +91,14 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         }
         all.extend(rows);
     }
+    let hrf = DoubleGamma::CANONICAL;
+    let designs: Vec<DesignFile> = match run.timing {
+        Some(timing) if has_onsets => events
+            .iter()
+            .map(|e| design_file(e, &hrf, timing, run.scale, with_outcomes))
+            .collect(),
+        _ => Vec::new(),
+    };
     let mut outputs = OutputSet::new();
     latents_table(&all).stage_both(&mut outputs, run.out, "latents")?;
     if has_onsets {
@@ -58,6 +107,14 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         })?;
     }
     for file in &events {
+        outputs.stage(&run.out.join(format!("{}.tsv", file.stem)), |w| {
+            file.write_tsv(w)
+        })?;
+        outputs.stage(&run.out.join(format!("{}.json", file.stem)), |w| {
+            serde_json::to_writer_pretty(w, &file.sidecar)
+        })?;
+    }
+    for file in &designs {
         outputs.stage(&run.out.join(format!("{}.tsv", file.stem)), |w| {
             file.write_tsv(w)
         })?;
@@ -91,6 +148,9 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         if !with_outcomes {
             println!("the trial table has no outcome_onset column: no outcome events written");
         }
+        if let Some(timing) = run.timing {
+            report_designs(&designs, timing, &hrf, run.out);
+        }
         let choice: usize = events.iter().map(|e| e.skipped_choice).sum();
         let outcome: usize = events.iter().map(|e| e.skipped_outcome).sum();
         if choice + outcome > 0 {
@@ -100,6 +160,49 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
             );
         }
     }
+    if run.timing.is_some() && !has_onsets {
+        println!("no design matrices written either (the haemodynamic regressors need onsets)");
+    }
     println!("{}", super::RESEARCH_CAUTION);
     Ok(())
+}
+
+/// Prints what was written and warns (stderr) about runs whose events outlast the scans and
+/// about columns that are zero at every scan.
+fn report_designs(designs: &[DesignFile], timing: Timing, hrf: &DoubleGamma, out: &Path) {
+    println!(
+        "{} design matrices ({} scans of TR {} s, {} microtime bins per scan; canonical double \
+         gamma, peak {:.3} s, sampled at the start of each scan) in {}",
+        designs.len(),
+        timing.scans,
+        timing.tr,
+        timing.bins,
+        hrf.peak_time(),
+        out.display()
+    );
+    for d in designs {
+        let volumes = (d.events_end / timing.tr - 1e-9).ceil();
+        if volumes > timing.scans as f64 {
+            eprintln!(
+                "warning: {}: the events last until {} s, {} volumes at TR {} s, more than \
+                 --scans {} ({} s); {} events start after the last scan and are left out, \
+                 and events running past it are cut there",
+                d.stem,
+                d.events_end,
+                volumes,
+                timing.tr,
+                timing.scans,
+                timing.end(),
+                d.events_after_last_scan,
+            );
+        }
+        if !d.zero_columns.is_empty() {
+            eprintln!(
+                "warning: {}: column(s) {} are zero at every scan (no events or no variation \
+                 within the scans); a GLM cannot estimate them",
+                d.stem,
+                d.zero_columns.join(", ")
+            );
+        }
+    }
 }

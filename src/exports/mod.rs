@@ -10,7 +10,11 @@
 //! - events files following the BIDS standard for events ([`events_files`]): one per subject
 //!   and run, with `choice` and `outcome` events and one column per parametric modulator,
 //!   scaled within the run ([`Scale`]), `n/a` where a value does not exist, and a JSON sidecar
-//!   describing every column.
+//!   describing every column;
+//! - with a repetition time and a number of scans, design matrices ([`hrf::design_file`]): the
+//!   events' regressors convolved with the canonical haemodynamic response ([`hrf`]).
+
+pub mod hrf;
 
 use crate::data::{Choice, Subject};
 use crate::files::InputError;
@@ -562,12 +566,38 @@ pub struct EventsFile {
     pub header: Vec<String>,
     /// Cells, `n/a` for missing values.
     pub rows: Vec<Vec<String>>,
+    /// The events of `rows`, in the same order, as numbers (for the design matrix).
+    pub timing: Vec<EventTiming>,
+    /// The modulator columns of `rows` as numbers, scaled as the file says (None: `n/a`).
+    pub modulators: Vec<ModulatorValues>,
     /// JSON sidecar describing every column.
     pub sidecar: serde_json::Value,
     /// Choice events left out because the trial has no onset.
     pub skipped_choice: usize,
     /// Outcome events left out because the trial has no outcome onset.
     pub skipped_outcome: usize,
+}
+
+/// Onset, duration and type of one event of an events file.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct EventTiming {
+    /// Onset (s from run start).
+    pub onset: f64,
+    /// Duration (s).
+    pub duration: f64,
+    /// `choice` or `outcome`.
+    pub trial_type: &'static str,
+}
+
+/// One modulator column of an events file, by event.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ModulatorValues {
+    /// Column name.
+    pub name: &'static str,
+    /// The event type it belongs to (`choice` or `outcome`); None on other events.
+    pub trial_type: &'static str,
+    /// Value per event (scaled within the run), None where the file has `n/a`.
+    pub values: Vec<Option<f64>>,
 }
 
 impl EventsFile {
@@ -673,11 +703,30 @@ pub fn events_files(
                 })
                 .collect();
             let sidecar = sidecar(model, &modulators, &scaled, scale);
+            let timing = events
+                .iter()
+                .map(|e| EventTiming {
+                    onset: e.0,
+                    duration: e.1,
+                    trial_type: e.2,
+                })
+                .collect();
+            let modulators = modulators
+                .iter()
+                .zip(columns)
+                .map(|(m, values)| ModulatorValues {
+                    name: m.name,
+                    trial_type: if m.at_outcome { "outcome" } else { "choice" },
+                    values,
+                })
+                .collect();
             EventsFile {
                 stem,
                 run,
                 header,
                 rows,
+                timing,
+                modulators,
                 sidecar,
                 skipped_choice,
                 skipped_outcome,
