@@ -1,5 +1,6 @@
 //! Command-line interface: argument definitions and dispatch to one small function per command.
 
+mod compare;
 mod contrast;
 mod demo;
 mod density;
@@ -116,24 +117,12 @@ pub enum Command {
         /// Output folder.
         #[arg(long)]
         out: PathBuf,
-        /// Scaling of the modulators within each run, in the events and design files.
+        /// Scaling of the modulators within each run, in the events files only.
         #[arg(long, value_enum, default_value_t = crate::exports::Scale::Center)]
         scale: crate::exports::Scale,
         /// Column names of your file, as canonical=yours pairs: subject=participant,rt=RT.
         #[arg(long, default_value = "")]
         columns: String,
-        /// Repetition time in seconds; with --scans, also write one design matrix per subject
-        /// and run (sub-<label>[_run-<index>]_desc-<model>_design.tsv + .json): the events'
-        /// regressors convolved with the canonical double-gamma haemodynamic response
-        /// (Friston et al. 1998; Glover 1999), sampled at the start of each scan.
-        #[arg(long)]
-        tr: Option<f64>,
-        /// Number of scans (volumes) of every run; needs --tr.
-        #[arg(long)]
-        scans: Option<usize>,
-        /// Microtime bins per scan for the convolution (default 16); needs --tr and --scans.
-        #[arg(long)]
-        microtime_bins: Option<usize>,
     },
     /// Compare one model's fitted parameters between groups of subjects: per free parameter,
     /// Welch's t test (Welch 1947), Mann-Whitney U (normal approximation with tie and continuity
@@ -157,6 +146,38 @@ pub enum Command {
         /// Output folder (default: the --fits folder).
         #[arg(long)]
         out: Option<PathBuf>,
+    },
+    /// Compare models across the subjects of a fit folder: per subject AIC (Akaike 1974), BIC
+    /// (Schwarz 1978), Akaike and Schwarz weights (Burnham & Anderson 2002; Wagenmakers &
+    /// Farrell 2004); across subjects random-effects Bayesian model selection (Stephan et al.
+    /// 2009) with expected frequencies, exceedance probabilities, protected exceedance
+    /// probabilities and the Bayesian omnibus risk (Rigoux et al. 2014), pooled and per group,
+    /// and the between-group test of Rigoux et al. (2014).
+    ///
+    /// Reads DIR/fit_summary.csv of `valuedrift fit`; writes model_selection.csv,
+    /// model_evidence.csv, model_group_difference.csv and their Parquet twins. Choices-only
+    /// models are left out when response-time models are present (different data); subjects
+    /// missing a compared model are left out with a warning.
+    #[command(after_help = RESEARCH_CAUTION)]
+    Compare {
+        /// Folder written by `valuedrift fit` (holding fit_summary.csv).
+        #[arg(long)]
+        fits: PathBuf,
+        /// Column of fit_summary.csv that defines the groups.
+        #[arg(long, default_value = "group")]
+        by: String,
+        /// Output folder (default: the --fits folder).
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Log evidence used for selection: -BIC/2, -AIC/2 or the Laplace approximation.
+        #[arg(long, value_enum, default_value_t = crate::group::selection::Evidence::Bic)]
+        evidence: crate::group::selection::Evidence,
+        /// Monte Carlo draws for exceedance probabilities of three or more models.
+        #[arg(long, default_value_t = 1_000_000)]
+        samples: usize,
+        /// Seed of the Monte Carlo draws.
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
     },
     /// Simulate choices, response times and outcomes from a model on a trial design.
     ///
@@ -274,9 +295,6 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             out,
             scale,
             columns,
-            tr,
-            scans,
-            microtime_bins,
         } => export::run(export::ExportRun {
             fits: &fits,
             data: &data,
@@ -284,7 +302,6 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             out: &out,
             scale,
             columns: &columns,
-            timing: export::timing(tr, scans, microtime_bins)?,
         }),
         Command::Contrast {
             fits,
@@ -292,6 +309,21 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             by,
             out,
         } => contrast::run(&fits, &model, &by, out.as_deref().unwrap_or(&fits)),
+        Command::Compare {
+            fits,
+            by,
+            out,
+            evidence,
+            samples,
+            seed,
+        } => compare::run(compare::CompareRun {
+            fits: &fits,
+            by: &by,
+            out: out.as_deref().unwrap_or(&fits),
+            evidence,
+            samples,
+            seed,
+        }),
         Command::Simulate {
             model,
             params,
