@@ -117,12 +117,24 @@ pub enum Command {
         /// Output folder.
         #[arg(long)]
         out: PathBuf,
-        /// Scaling of the modulators within each run, in the events files only.
+        /// Scaling of the modulators within each run, in the events and design files.
         #[arg(long, value_enum, default_value_t = crate::exports::Scale::Center)]
         scale: crate::exports::Scale,
         /// Column names of your file, as canonical=yours pairs: subject=participant,rt=RT.
         #[arg(long, default_value = "")]
         columns: String,
+        /// Repetition time in seconds; with --scans, also write one design matrix per subject
+        /// and run (sub-<label>[_run-<index>]_desc-<model>_design.tsv + .json): the events'
+        /// regressors convolved with the canonical double-gamma haemodynamic response
+        /// (Friston et al. 1998; Glover 1999), sampled at the start of each scan.
+        #[arg(long)]
+        tr: Option<f64>,
+        /// Number of scans (volumes) of every run; needs --tr.
+        #[arg(long)]
+        scans: Option<usize>,
+        /// Microtime bins per scan for the convolution (default 16); needs --tr and --scans.
+        #[arg(long)]
+        microtime_bins: Option<usize>,
     },
     /// Compare one model's fitted parameters between groups of subjects: per free parameter,
     /// Welch's t test (Welch 1947), Mann-Whitney U (normal approximation with tie and continuity
@@ -295,6 +307,9 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             out,
             scale,
             columns,
+            tr,
+            scans,
+            microtime_bins,
         } => export::run(export::ExportRun {
             fits: &fits,
             data: &data,
@@ -302,6 +317,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             out: &out,
             scale,
             columns: &columns,
+            timing: export::timing(tr, scans, microtime_bins)?,
         }),
         Command::Contrast {
             fits,
