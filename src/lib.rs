@@ -7,6 +7,7 @@
 //! Parameters estimated with this crate are research measurements, not diagnoses.
 #![deny(missing_docs)]
 
+pub mod check;
 pub mod cli;
 pub mod data;
 pub mod exports;

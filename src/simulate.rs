@@ -8,7 +8,7 @@
 use crate::data::{Choice, Subject, Trial};
 use crate::likelihood::Values;
 use crate::model::Model;
-use crate::model::components::SubjectContext;
+use crate::model::components::{PreparedChoice, SubjectContext};
 use crate::model::dual::{D, constant};
 use rand::Rng;
 
@@ -51,11 +51,7 @@ pub fn simulate_subject(
     let mut trials = Vec::with_capacity(design.trials.len());
     for trial in &design.trials {
         let offer = values.offer(model, trial, &p);
-        let (choice, rt) = prepared.simulate(offer.signal.re, rng);
-        let (choice, rt) = match (settings.deadline, rt) {
-            (Some(limit), Some(t)) if t > limit => (None, None),
-            _ => (Some(choice), rt),
-        };
+        let (choice, rt) = draw_trial(prepared.as_ref(), offer.signal.re, settings.deadline, rng);
         let outcome = choice.and_then(|c| match c {
             Choice::A => trial.outcome_if_a,
             Choice::B => trial.outcome_if_b,
@@ -73,6 +69,24 @@ pub fn simulate_subject(
     Subject {
         trials,
         ..design.clone()
+    }
+}
+
+/// Draws one trial's choice and response time from a prepared choice stage at decision signal
+/// `signal` (the drift rate of diffusion stages: an exact first-passage draw, see
+/// [`crate::first_passage::sample`]); a response later than `deadline` becomes no response
+/// (None, None), as the likelihood treats it. Shared by [`simulate_subject`] and the one-step-ahead
+/// predictive check ([`crate::check`]).
+pub fn draw_trial(
+    prepared: &dyn PreparedChoice,
+    signal: f64,
+    deadline: Option<f64>,
+    rng: &mut dyn Rng,
+) -> (Option<Choice>, Option<f64>) {
+    let (choice, rt) = prepared.simulate(signal, rng);
+    match (deadline, rt) {
+        (Some(limit), Some(t)) if t > limit => (None, None),
+        _ => (Some(choice), rt),
     }
 }
 

@@ -1,5 +1,6 @@
 //! Command-line interface: argument definitions and dispatch to one small function per command.
 
+mod check;
 mod compare;
 mod contrast;
 mod demo;
@@ -135,6 +136,44 @@ pub enum Command {
         /// Microtime bins per scan for the convolution (default 16); needs --tr and --scans.
         #[arg(long)]
         microtime_bins: Option<usize>,
+    },
+    /// Predictive check of a fitted model: simulate each subject's data N times at its
+    /// estimates in DIR/parameters.csv (freely where the table gives outcome_if_a and
+    /// outcome_if_b, else one trial ahead of the observed history) and compare observed with
+    /// predicted proportions of correct-by-value choices and response-time quantiles
+    /// (.1 .3 .5 .7 .9; Ratcliff & Tuerlinckx 2002) in quintiles of |value difference| and by
+    /// the effort of the better option; bands are 2.5-97.5 % across replicate datasets, pooled
+    /// statistics average subjects' quantiles (Ratcliff 1979).
+    ///
+    /// Writes OUT/check_choices.csv, check_quantiles.csv, check_misfit.csv (+ Parquet) and
+    /// check_choices.svg, check_rt_quantiles.svg.
+    #[command(after_help = RESEARCH_CAUTION)]
+    Check {
+        /// Folder written by `valuedrift fit` (reads its parameters.csv).
+        #[arg(long)]
+        fits: PathBuf,
+        /// Trial table (.csv, .tsv or .parquet) that was fitted.
+        #[arg(long)]
+        data: PathBuf,
+        /// Model name or file (one model).
+        #[arg(long)]
+        model: String,
+        /// Output folder.
+        #[arg(long)]
+        out: PathBuf,
+        /// Replicate datasets per subject.
+        #[arg(long, default_value_t = 100)]
+        sims: usize,
+        /// Seed (each subject has its own stream of it).
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// Column names of your file, as canonical=yours pairs: subject=participant,rt=RT.
+        #[arg(long, default_value = "")]
+        columns: String,
+        /// Response deadline in seconds, as in the fit: slower simulated responses become no
+        /// response.
+        #[arg(long)]
+        deadline: Option<f64>,
     },
     /// Compare one model's fitted parameters between groups of subjects: per free parameter,
     /// Welch's t test (Welch 1947), Mann-Whitney U (normal approximation with tie and continuity
@@ -318,6 +357,27 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             scale,
             columns: &columns,
             timing: export::timing(tr, scans, microtime_bins)?,
+        }),
+        Command::Check {
+            fits,
+            data,
+            model,
+            out,
+            sims,
+            seed,
+            columns,
+            deadline,
+        } => check::run(check::CheckRun {
+            fits: &fits,
+            data: &data,
+            model: &model,
+            out: &out,
+            settings: crate::check::CheckSettings {
+                sims,
+                seed,
+                deadline,
+            },
+            columns: &columns,
         }),
         Command::Contrast {
             fits,

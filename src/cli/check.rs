@@ -1,0 +1,118 @@
+//! `valuedrift check`: predictive checks of a fitted model against the data it was fitted to.
+
+use crate::check::plots::{choice_figure, rt_quantile_figure};
+use crate::check::{
+    CheckSettings, FLAG_FRACTION, Mode, check_subjects, choices_table, misfit, misfit_table,
+    pooled, quantiles_table, ranked_misfits,
+};
+use crate::data::{ColumnMap, read_trials};
+use crate::exports::read_estimates;
+use crate::files::OutputSet;
+use crate::model::load_model;
+use std::path::Path;
+
+/// Everything `check` needs, resolved from the command line.
+pub struct CheckRun<'a> {
+    /// Folder holding parameters.csv from `valuedrift fit`.
+    pub fits: &'a Path,
+    /// Trial table.
+    pub data: &'a Path,
+    /// Model name or file.
+    pub model: &'a str,
+    /// Output folder.
+    pub out: &'a Path,
+    /// Replicate datasets per subject, seed and deadline.
+    pub settings: CheckSettings,
+    /// Column mapping of the trial table (canonical=file pairs).
+    pub columns: &'a str,
+}
+
+/// Reads, simulates, summarises and writes every output at once (nothing is written on error).
+pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
+    if run.settings.sims < 2 {
+        return Err(format!(
+            "--sims {}: expected at least 2 replicate datasets (100 recommended)",
+            run.settings.sims
+        )
+        .into());
+    }
+    if let Some(d) = run.settings.deadline
+        && !(d.is_finite() && d > 0.0)
+    {
+        return Err(format!("--deadline {d}: expected a number of seconds > 0").into());
+    }
+    let columns = ColumnMap::parse(run.columns).map_err(|e| format!("--columns: {e}"))?;
+    let table = read_trials(run.data, &columns)?;
+    let model = load_model(run.model.trim())?;
+    let estimates = read_estimates(&run.fits.join("parameters.csv"), &model, &table.subjects)?;
+    let bar = super::fit::progress_bar(table.subjects.len(), "simulating");
+    let checks = check_subjects(&model, &estimates, &table.subjects, &run.settings, &|| {
+        bar.inc(1)
+    })?;
+    bar.finish_and_clear();
+    let pooled = pooled(&checks);
+    let mut outputs = OutputSet::new();
+    choices_table(&checks, &pooled).stage_both(&mut outputs, run.out, "check_choices")?;
+    let rt_figure = rt_quantile_figure(&pooled)?;
+    if let Some(svg) = &rt_figure {
+        quantiles_table(&checks, &pooled).stage_both(&mut outputs, run.out, "check_quantiles")?;
+        outputs.stage(&run.out.join("check_rt_quantiles.svg"), |w| {
+            w.write_all(svg.as_bytes())
+        })?;
+    }
+    misfit_table(&checks).stage_both(&mut outputs, run.out, "check_misfit")?;
+    let svg = choice_figure(&pooled)?;
+    outputs.stage(&run.out.join("check_choices.svg"), |w| {
+        w.write_all(svg.as_bytes())
+    })?;
+    outputs.commit()?;
+
+    let free = checks.iter().filter(|c| c.mode == Mode::Free).count();
+    println!(
+        "predictive check of model {} ({} replicate datasets per subject, seed {}): {} subjects, \
+         {free} simulated freely (outcome_if_a/outcome_if_b known), {} one step ahead of the \
+         observed history",
+        model.name,
+        run.settings.sims,
+        run.settings.seed,
+        checks.len(),
+        checks.len() - free
+    );
+    let all = misfit(&pooled);
+    if let (Some(f), Some(z)) = (all.fraction_outside, all.rms_z) {
+        println!(
+            "pooled: {:.1} % of {} statistics outside their 95 % predicted bands, rms z {z:.2} \
+             (about 5 % and 1 for a model that fits)",
+            100.0 * f,
+            all.n_statistics
+        );
+    }
+    let ranked = ranked_misfits(&checks);
+    let flagged = ranked
+        .iter()
+        .filter(|r| r.1.fraction_outside.is_some_and(|f| f > FLAG_FRACTION))
+        .count();
+    println!(
+        "{flagged} subjects flagged (more than {:.0} % of statistics outside); worst by rms z:",
+        100.0 * FLAG_FRACTION
+    );
+    for (check, m) in ranked.iter().take(3) {
+        println!(
+            "  {} ({}): {} outside, rms z {}",
+            check.subject,
+            check.mode.as_str(),
+            m.fraction_outside
+                .map_or("n/a".into(), |f| format!("{:.1} %", 100.0 * f)),
+            m.rms_z.map_or("n/a".into(), |z| format!("{z:.2}"))
+        );
+    }
+    if rt_figure.is_none() {
+        println!(
+            "model {} has no response times: choice statistics only",
+            model.name
+        );
+    }
+    println!("outputs in {}", run.out.display());
+    println!("{}", super::RESEARCH_CAUTION);
+    Ok(())
+}

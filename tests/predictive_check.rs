@@ -1,0 +1,298 @@
+//! `valuedrift check`: the sampler against the closed-form expected response time, the type-7
+//! quantile against its definition, self-consistency of the check on data simulated from known
+//! parameters (and its failure at wrong ones), and the command end to end.
+
+use rand::SeedableRng;
+use rand_chacha::ChaCha8Rng;
+use std::path::Path;
+use std::process::Command;
+use valuedrift::check::{
+    CheckSettings, Mode, SubjectCheck, check_subjects, misfit, pooled, quantile_sorted,
+    simulate_one_step_ahead,
+};
+use valuedrift::data::{Subject, TrialTable, write_trials};
+use valuedrift::likelihood::SubjectLikelihood;
+use valuedrift::model::{Model, load_model};
+use valuedrift::simulate::{SimulationSettings, orchard_design, simulate_subject};
+
+/// learning_rate 0.3, effort_weight 1, value_scale 3, boundary 1.6, ndt 0.3 (delta-linear);
+/// fixed parameters at their value; `boundary_factor` scales the boundary.
+fn natural(model: &Model, boundary_factor: f64) -> Vec<f64> {
+    model
+        .parameters
+        .iter()
+        .map(|p| match p.name.as_str() {
+            "learning_rate" => 0.3,
+            "effort_weight" => 1.0,
+            "value_scale" => 3.0,
+            "boundary" => 1.6 * boundary_factor,
+            "ndt" => 0.3,
+            _ => p.fixed.unwrap(),
+        })
+        .collect()
+}
+
+fn orchard_subjects(model: &Model, n: usize, trials: usize, seed: u64) -> Vec<Subject> {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    (0..n)
+        .map(|i| {
+            let design = orchard_design(&format!("s{i}"), "sim", trials, &mut rng);
+            simulate_subject(
+                model,
+                &natural(model, 1.0),
+                &design,
+                SimulationSettings::default(),
+                &mut rng,
+            )
+        })
+        .collect()
+}
+
+/// Law of large numbers: over many one-step-ahead replicates (the check's own code path: choice
+/// stage → first-passage sampler), the mean simulated response time of a trial lies within 4
+/// standard errors of the engine's closed-form expected response time (Grasman, Wagenmakers &
+/// van der Maas 2009, eqs. 5, 7–8, plus ndt), for the trials with the smallest, a middle and the
+/// largest |drift|. A 4-SE tolerance fails by chance with probability about 6e-5 per comparison.
+#[test]
+fn expected_response_time_matches_the_mean_of_simulated_trials() {
+    let model = load_model("delta-linear").unwrap();
+    let subject = &orchard_subjects(&model, 1, 40, 3)[0];
+    let values = natural(&model, 1.0);
+    let traces = SubjectLikelihood::new(&model, subject, None)
+        .unwrap()
+        .trace(&values);
+    let mut rng = ChaCha8Rng::seed_from_u64(11);
+    let n = 5000;
+    let replicates: Vec<Subject> = (0..n)
+        .map(|_| simulate_one_step_ahead(&model, &values, subject, &traces, None, &mut rng))
+        .collect();
+    let mut order: Vec<usize> = (0..traces.len()).collect();
+    order.sort_by(|&i, &j| traces[i].signal.abs().total_cmp(&traces[j].signal.abs()));
+    for &i in &[order[0], order[order.len() / 2], order[order.len() - 1]] {
+        let expected = traces[i].expected_times.unwrap().1;
+        let rts: Vec<f64> = replicates.iter().map(|r| r.trials[i].rt.unwrap()).collect();
+        let mean = rts.iter().sum::<f64>() / n as f64;
+        let sd = (rts.iter().map(|t| (t - mean).powi(2)).sum::<f64>() / (n as f64 - 1.0)).sqrt();
+        let se = sd / (n as f64).sqrt();
+        assert!(
+            (mean - expected).abs() < 4.0 * se,
+            "drift {}: simulated mean {mean} vs expected {expected} (SE {se})",
+            traces[i].signal
+        );
+    }
+}
+
+/// Hyndman & Fan (1996) type 7 (numpy's default "linear"), by hand from its definition
+/// h = (n − 1)p, Q = x[⌊h⌋] + (h − ⌊h⌋)(x[⌊h⌋+1] − x[⌊h⌋]) (0-based) on x = 1, 2, 3, 4, 10:
+/// p = 0.3: h = 1.2 → 2 + 0.2·1 = 2.2; p = 0.9: h = 3.6 → 4 + 0.6·6 = 7.6; p = 0.5: 3;
+/// p = 0 and 1: the extremes; p = 0.025 on 1..=40 (h = 0.975): 1 + 0.975 = 1.975.
+#[test]
+fn quantiles_follow_hyndman_and_fan_type_7() {
+    let x = [1.0, 2.0, 3.0, 4.0, 10.0];
+    for (p, q) in [(0.3, 2.2), (0.9, 7.6), (0.5, 3.0), (0.0, 1.0), (1.0, 10.0)] {
+        let got = quantile_sorted(&x, p).unwrap();
+        assert!((got - q).abs() < 1e-12, "p = {p}: {got} vs {q}");
+    }
+    let forty: Vec<f64> = (1..=40).map(f64::from).collect();
+    assert!((quantile_sorted(&forty, 0.025).unwrap() - 1.975).abs() < 1e-12);
+    assert_eq!(quantile_sorted(&[5.0], 0.7), Some(5.0));
+    assert_eq!(quantile_sorted(&[], 0.5), None);
+    assert_eq!(quantile_sorted(&x, 1.5), None);
+}
+
+fn fraction_inside(checks: &[SubjectCheck]) -> (f64, usize) {
+    let all: Vec<_> = checks.iter().flat_map(|c| c.statistics.clone()).collect();
+    let m = misfit(&all);
+    (1.0 - m.fraction_outside.unwrap(), m.n_statistics)
+}
+
+/// Self-consistency (the defining property of a predictive check, common practice): data
+/// simulated from the model at known parameters, checked at those same parameters, fall inside
+/// their own 95 % simulation bands at about the nominal rate (we ask ≥ 85 %; discrete
+/// proportions and inclusive bands make coverage at or above 95 % on average), in both modes;
+/// doubling the boundary makes the misfit clearly worse, so the check can fail.
+#[test]
+fn data_from_the_model_fall_inside_their_own_bands_and_wrong_parameters_do_not() {
+    let model = load_model("delta-linear").unwrap();
+    let subjects = orchard_subjects(&model, 4, 160, 5);
+    let settings = CheckSettings {
+        sims: 60,
+        seed: 9,
+        deadline: None,
+    };
+    let right = vec![natural(&model, 1.0); subjects.len()];
+    let checks = check_subjects(&model, &right, &subjects, &settings, &|| {}).unwrap();
+    assert!(checks.iter().all(|c| c.mode == Mode::Free));
+    let (inside, n) = fraction_inside(&checks);
+    assert!(n > 100, "only {n} statistics");
+    assert!(inside >= 0.85, "free mode: {inside} of {n} inside");
+    let right_z = misfit(
+        &checks
+            .iter()
+            .flat_map(|c| c.statistics.clone())
+            .collect::<Vec<_>>(),
+    )
+    .rms_z
+    .unwrap();
+
+    // Without potential outcomes the check conditions on the observed history.
+    let observed_only: Vec<Subject> = subjects
+        .iter()
+        .map(|s| {
+            let mut s = s.clone();
+            for t in &mut s.trials {
+                (t.outcome_if_a, t.outcome_if_b) = (None, None);
+            }
+            s
+        })
+        .collect();
+    let ahead = check_subjects(&model, &right, &observed_only, &settings, &|| {}).unwrap();
+    assert!(ahead.iter().all(|c| c.mode == Mode::OneStepAhead));
+    let (inside_ahead, n_ahead) = fraction_inside(&ahead);
+    assert!(
+        inside_ahead >= 0.85,
+        "one step ahead: {inside_ahead} of {n_ahead} inside"
+    );
+
+    let wrong = vec![natural(&model, 2.0); subjects.len()];
+    let bad = check_subjects(&model, &wrong, &subjects, &settings, &|| {}).unwrap();
+    let (inside_bad, _) = fraction_inside(&bad);
+    let bad_z = misfit(
+        &bad.iter()
+            .flat_map(|c| c.statistics.clone())
+            .collect::<Vec<_>>(),
+    )
+    .rms_z
+    .unwrap();
+    assert!(
+        inside_bad < inside - 0.2 && bad_z > 2.0 * right_z,
+        "boundary doubled: inside {inside_bad} (right {inside}), rms z {bad_z} (right {right_z})"
+    );
+    // Pooled statistics exist for both factors and average the subjects.
+    let pooled = pooled(&checks);
+    assert!(pooled.iter().any(|s| s.observed.is_some()));
+}
+
+/// Deterministic for a given seed whatever the thread count (the project's rule).
+#[test]
+fn results_do_not_depend_on_the_thread_count() {
+    let model = load_model("delta-linear").unwrap();
+    let subjects = orchard_subjects(&model, 3, 60, 2);
+    let estimates = vec![natural(&model, 1.0); subjects.len()];
+    let settings = CheckSettings {
+        sims: 12,
+        seed: 4,
+        deadline: Some(2.5),
+    };
+    let run = |threads: usize| {
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap()
+            .install(|| check_subjects(&model, &estimates, &subjects, &settings, &|| {}).unwrap())
+    };
+    assert_eq!(run(1), run(2));
+}
+
+// ---------------------------------------------------------------------------------------------
+// End to end
+
+fn binary() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_valuedrift"))
+}
+
+/// Trial table of three simulated subjects and a parameters.csv at the generating values.
+fn inputs(dir: &Path) -> (std::path::PathBuf, std::path::PathBuf) {
+    let model = load_model("delta-linear").unwrap();
+    let subjects = orchard_subjects(&model, 3, 60, 8);
+    let mut params = String::from("subject,group,model,parameter,estimate\n");
+    for s in &subjects {
+        for (p, x) in model.parameters.iter().zip(natural(&model, 1.0)) {
+            params.push_str(&format!("{},sim,delta-linear,{},{x}\n", s.id, p.name));
+        }
+    }
+    let fits = dir.join("fits");
+    std::fs::create_dir(&fits).unwrap();
+    std::fs::write(fits.join("parameters.csv"), params).unwrap();
+    let table = TrialTable {
+        subjects,
+        present: Vec::new(),
+    };
+    let mut bytes = Vec::new();
+    write_trials(&table, &mut bytes).unwrap();
+    let data = dir.join("trials.csv");
+    std::fs::write(&data, bytes).unwrap();
+    (fits, data)
+}
+
+fn check(fits: &Path, data: &Path, out: &Path) -> std::process::Output {
+    binary()
+        .args(["check", "--model", "delta-linear", "--sims", "15"])
+        .arg("--fits")
+        .arg(fits)
+        .arg("--data")
+        .arg(data)
+        .arg("--out")
+        .arg(out)
+        .output()
+        .unwrap()
+}
+
+#[test]
+fn check_writes_tables_and_figures_and_malformed_input_writes_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    let (fits, data) = inputs(dir.path());
+    let out = dir.path().join("out");
+    let run = check(&fits, &data, &out);
+    let stdout = String::from_utf8_lossy(&run.stdout);
+    assert!(
+        run.status.success(),
+        "{}",
+        String::from_utf8_lossy(&run.stderr)
+    );
+    assert!(
+        stdout
+            .trim_end()
+            .ends_with(valuedrift::cli::RESEARCH_CAUTION)
+    );
+    for stem in ["check_choices", "check_quantiles", "check_misfit"] {
+        for ext in ["csv", "parquet"] {
+            assert!(out.join(format!("{stem}.{ext}")).is_file(), "{stem}.{ext}");
+        }
+    }
+    for svg in ["check_choices.svg", "check_rt_quantiles.svg"] {
+        let text = std::fs::read_to_string(out.join(svg)).unwrap();
+        assert!(text.contains("<svg") && text.contains("</svg>"), "{svg}");
+    }
+    let misfit = std::fs::read_to_string(out.join("check_misfit.csv")).unwrap();
+    assert_eq!(misfit.lines().count(), 4, "{misfit}"); // header + 3 subjects
+    let quantiles = std::fs::read_to_string(out.join("check_quantiles.csv")).unwrap();
+    assert!(quantiles.lines().any(|l| l.starts_with("pooled,")));
+    assert!(quantiles.lines().next().unwrap().contains("predicted_low"));
+
+    // A malformed response time: the error names file, line and column; nothing is written.
+    let text = std::fs::read_to_string(&data).unwrap();
+    let header: Vec<&str> = text.lines().next().unwrap().split(',').collect();
+    let rt = header.iter().position(|h| *h == "rt").unwrap();
+    let mut lines: Vec<String> = text.lines().map(String::from).collect();
+    let mut cells: Vec<String> = lines[3].split(',').map(String::from).collect();
+    cells[rt] = "fast".into();
+    lines[3] = cells.join(",");
+    let bad = dir.path().join("bad.csv");
+    std::fs::write(&bad, lines.join("\n") + "\n").unwrap();
+    let bad_out = dir.path().join("bad_out");
+    let run = check(&fits, &bad, &bad_out);
+    let err = String::from_utf8_lossy(&run.stderr);
+    assert!(!run.status.success());
+    assert!(
+        err.contains("bad.csv") && err.contains("line 4") && err.contains("rt"),
+        "{err}"
+    );
+    assert!(!bad_out.exists() || std::fs::read_dir(&bad_out).unwrap().next().is_none());
+
+    // Missing fits: named, nothing written.
+    let run = check(&dir.path().join("nowhere"), &data, &bad_out);
+    assert!(!run.status.success());
+    assert!(String::from_utf8_lossy(&run.stderr).contains("parameters.csv"));
+    assert!(!bad_out.exists() || std::fs::read_dir(&bad_out).unwrap().next().is_none());
+}
