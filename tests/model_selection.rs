@@ -14,7 +14,8 @@ use std::process::Command;
 use valuedrift::data::TrialTable;
 use valuedrift::fit::{FitOptions, fit_table};
 use valuedrift::group::selection::{
-    BmsOptions, exceedance_monte_carlo, exceedance_two, information_weights, random_effects_bms,
+    Bms, BmsOptions, exceedance_monte_carlo, exceedance_two, group_difference, information_weights,
+    random_effects_bms,
 };
 use valuedrift::model::load_model;
 use valuedrift::simulate::{SimulationSettings, orchard_design, simulate_subject};
@@ -92,7 +93,7 @@ fn bayesian_model_selection_matches_the_numpy_reference() {
     // Carlo with 4·10⁶ draws, exact by scipy betainc for two models) and Rigoux et al. (2014)
     // (free energy, null evidence, omnibus risk, protected exceedance).
     let cases = reference_cases();
-    assert_eq!(cases.len(), 5, "cases of the reference table");
+    assert_eq!(cases.len(), 6, "cases of the reference table");
     let samples = 1_000_000;
     for (name, case) in &cases {
         let evidence = &case["log_evidence"];
@@ -161,6 +162,38 @@ fn bayesian_model_selection_matches_the_numpy_reference() {
             assert!(
                 (got - want).abs() <= 1e-6 * want.abs().max(1.0),
                 "{name}, {q}: {got} vs reference {want}"
+            );
+        }
+        if let Some(labels) = case.get("group") {
+            // Between-group test (Rigoux et al. 2014): pooled F against the sum of per-group F.
+            let fits: Vec<(String, _)> = [0.0, 1.0]
+                .iter()
+                .map(|&label| {
+                    let rows: Vec<Vec<f64>> = (0..n)
+                        .filter(|&i| labels[&(Some(i), None)] == label)
+                        .map(|i| matrix[i].clone())
+                        .collect();
+                    let fit = random_effects_bms(&rows, &BmsOptions::default()).unwrap();
+                    (format!("g{label}"), fit)
+                })
+                .collect();
+            let groups: Vec<(String, &Bms)> = fits.iter().map(|(g, b)| (g.clone(), b)).collect();
+            let d = group_difference(&bms, &groups);
+            for (got, q) in [
+                (d.free_energy_same, "free_energy_same"),
+                (d.free_energy_different, "free_energy_different"),
+            ] {
+                let want = scalar(q);
+                assert!(
+                    (got - want).abs() <= 1e-6 * want.abs(),
+                    "{name}, {q}: {got} vs reference {want}"
+                );
+            }
+            let want = scalar("probability_same");
+            assert!(
+                (d.probability_same - want).abs() <= 1e-6 * want,
+                "{name}, P(same frequencies): {} vs reference {want}",
+                d.probability_same
             );
         }
         assert!(
@@ -502,4 +535,85 @@ fn compare_rejects_a_malformed_fit_summary_and_writes_nothing() {
             "[{case}]"
         );
     }
+}
+
+/// Exact ln p(y) of the random-effects model with a Dirichlet(α₀) prior, by summing over every
+/// assignment of models to subjects: p(y) = Σ_m Π_n exp(L_{n,m_n}) · E[Π_k r_k^{c_k(m)}], with
+/// the Dirichlet moments E[Π r_k^{c_k}] = Γ(Kα₀)/Γ(Kα₀ + N) · Π_k Γ(α₀ + c_k)/Γ(α₀)
+/// (Kotz, Balakrishnan & Johnson 2000, Continuous Multivariate Distributions, ch. 49).
+fn exact_log_evidence(log_evidence: &[Vec<f64>], alpha0: f64) -> f64 {
+    use statrs::function::gamma::ln_gamma;
+    let (n, k) = (log_evidence.len(), log_evidence[0].len());
+    let mut terms = Vec::new();
+    for code in 0..k.pow(n as u32) {
+        let mut counts = vec![0usize; k];
+        let mut rest = code;
+        let mut term = ln_gamma(k as f64 * alpha0) - ln_gamma(k as f64 * alpha0 + n as f64);
+        for row in log_evidence {
+            let m = rest % k;
+            rest /= k;
+            counts[m] += 1;
+            term += row[m];
+        }
+        term += counts
+            .iter()
+            .map(|&c| ln_gamma(alpha0 + c as f64) - ln_gamma(alpha0))
+            .sum::<f64>();
+        terms.push(term);
+    }
+    let top = terms.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    top + terms.iter().map(|t| (t - top).exp()).sum::<f64>().ln()
+}
+
+#[test]
+fn free_energy_is_a_lower_bound_on_the_exact_evidence() {
+    // The free energy is a lower bound on ln p(y) (Jensen's inequality; Stephan et al. 2009),
+    // tight when the posterior assignments are certain (then q(m) is exact and q(r) is the
+    // exact Dirichlet posterior). With one subject under α₀ = 1, p(y) = Σ_k E[r_k] exp(L_k) =
+    // (1/K) Σ_k exp(L_k), the null evidence F₀ of Rigoux et al. (2014).
+    let cases: [Vec<Vec<f64>>; 3] = [
+        vec![
+            vec![-10.0, -11.5, -9.2],
+            vec![-20.3, -19.0, -22.0],
+            vec![-15.0, -15.1, -14.8],
+            vec![-8.0, -12.0, -10.0],
+            vec![-30.0, -27.5, -29.0],
+        ],
+        vec![
+            vec![-1.0, -1.2],
+            vec![-3.0, -2.0],
+            vec![-2.2, -2.4],
+            vec![-0.5, -0.4],
+        ],
+        vec![vec![-4.0, -6.0, -9.0]],
+    ];
+    for (index, log_evidence) in cases.iter().enumerate() {
+        let bms = random_effects_bms(log_evidence, &BmsOptions::default()).unwrap();
+        let exact = exact_log_evidence(log_evidence, 1.0);
+        assert!(
+            bms.free_energy <= exact + 1e-10,
+            "case {index}: F₁ = {} above the exact ln p(y) = {exact}",
+            bms.free_energy
+        );
+        if log_evidence.len() == 1 {
+            assert!(
+                (exact - bms.null_free_energy).abs() < 1e-12,
+                "one subject: F₀ is exact"
+            );
+        }
+    }
+    // Certain assignments: differences of 60 log units make every g_nk 0 or 1 to 1e-26.
+    let certain = vec![
+        vec![0.0, -60.0, -70.0],
+        vec![-65.0, 0.0, -61.0],
+        vec![0.0, -80.0, -60.0],
+        vec![-60.0, -75.0, 0.0],
+    ];
+    let bms = random_effects_bms(&certain, &BmsOptions::default()).unwrap();
+    let exact = exact_log_evidence(&certain, 1.0);
+    assert!(
+        (bms.free_energy - exact).abs() < 1e-9,
+        "certain assignments: F₁ = {} vs exact {exact}",
+        bms.free_energy
+    );
 }

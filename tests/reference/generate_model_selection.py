@@ -18,7 +18,8 @@ Output: tests/reference/model_selection_reference.csv in long form with columns
   case, quantity, subject, model, value
 where quantity is one of log_evidence (subject, model), alpha, expected_frequency, exceedance,
 exceedance_se (model), protected_exceedance (model), assignment (subject, model), bor,
-free_energy, null_free_energy (neither). Indices are 0-based; empty when not applicable.
+free_energy, null_free_energy (neither); for the between-group case also group (subject: 0 or
+1), free_energy_same, free_energy_different and probability_same (neither). Indices are 0-based; empty when not applicable.
 
 Run: python3 tests/reference/generate_model_selection.py (numpy 2.x, scipy 1.x).
 """
@@ -110,7 +111,26 @@ def cases(rng):
     # Two models (exact exceedance path).
     L = rng.normal(0, 1.5, size=(15, 2)) + np.array([1.0, 0.0])
     out["two_models"] = L - 120.0
+    # Two groups of 10 with different winners (between-group test).
+    L = rng.normal(0, 1, size=(20, 3))
+    L[:10, 0] += 3.0
+    L[10:, 1] += 3.0
+    out["group_split"] = L - 300.0
     return out
+
+
+GROUPS = {"group_split": np.repeat([0, 1], 10)}
+
+
+def group_difference(L, groups):
+    """Rigoux et al. (2014) between-group test: F_same = F1 of all subjects pooled, F_diff = sum
+    over groups of F1 of each group alone; P(same) = 1 / (1 + exp(F_diff - F_same))."""
+    f_same = free_energy(L, 1.0, *vb_dirichlet(L))
+    f_diff = 0.0
+    for label in np.unique(groups):
+        part = L[groups == label]
+        f_diff += free_energy(part, 1.0, *vb_dirichlet(part))
+    return f_same, f_diff, 1.0 / (1.0 + np.exp(f_diff - f_same))
 
 
 def main():
@@ -142,6 +162,14 @@ def main():
         rows.append((name, "bor", "", "", bor))
         rows.append((name, "free_energy", "", "", f1))
         rows.append((name, "null_free_energy", "", "", f0))
+        if name in GROUPS:
+            groups = GROUPS[name]
+            f_same, f_diff, p_same = group_difference(L, groups)
+            for i in range(n):
+                rows.append((name, "group", i, "", groups[i]))
+            rows.append((name, "free_energy_same", "", "", f_same))
+            rows.append((name, "free_energy_different", "", "", f_diff))
+            rows.append((name, "probability_same", "", "", p_same))
     path = os.path.join(os.path.dirname(os.path.abspath(__file__)), "model_selection_reference.csv")
     with open(path, "w", newline="") as f:
         w = csv.writer(f, lineterminator="\n")
