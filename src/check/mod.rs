@@ -247,7 +247,9 @@ pub struct Misfit {
     pub rms_z: Option<f64>,
 }
 
-/// Misfit summary of a set of statistics.
+/// Misfit summary of a set of statistics: the fraction of observed values outside their 95 %
+/// replicate bands, and rms z = √(mean of ((x_obs − mean_rep)/sd_rep)²) over statistics with
+/// sd_rep > 0 (common practice for posterior-predictive summaries; no single published source).
 pub fn misfit(statistics: &[Statistic]) -> Misfit {
     let mut n = 0usize;
     let mut outside = 0usize;

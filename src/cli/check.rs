@@ -93,7 +93,9 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         .filter(|r| r.1.fraction_outside.is_some_and(|f| f > FLAG_FRACTION))
         .count();
     println!(
-        "{flagged} subjects flagged (more than {:.0} % of statistics outside); worst by rms z:",
+        "{flagged} of {} subjects flagged (more than {:.0} % of statistics outside); worst by \
+         rms z:",
+        checks.len(),
         100.0 * FLAG_FRACTION
     );
     for (check, m) in ranked.iter().take(3) {
