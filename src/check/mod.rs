@@ -490,9 +490,14 @@ pub fn check_subject(
         let classified = match mode {
             Mode::Free => {
                 let simulated = simulate_subject(model, natural, subject, simulation, &mut rng);
-                let traces =
-                    SubjectLikelihood::new(model, &simulated, settings.deadline)?.trace(natural);
-                classify(&simulated, &traces)
+                if simulated.n_responses() == 0 {
+                    // Every simulated response missed the deadline: every cell is empty.
+                    Vec::new()
+                } else {
+                    let traces = SubjectLikelihood::new(model, &simulated, settings.deadline)?
+                        .trace(natural);
+                    classify(&simulated, &traces)
+                }
             }
             Mode::OneStepAhead => {
                 let simulated = simulate_one_step_ahead(
