@@ -617,3 +617,45 @@ fn free_energy_is_a_lower_bound_on_the_exact_evidence() {
         bms.free_energy
     );
 }
+
+#[test]
+fn compare_uses_the_laplace_evidence_of_a_named_summary_file() {
+    // The Laplace column of an empirical-Bayes summary (source: src/results/mod.rs,
+    // `summary_table`, column log_evidence_laplace) enters selection unchanged.
+    let dir = tempfile::tempdir().unwrap();
+    let mut lines: Vec<String> = small_summary().lines().map(str::to_string).collect();
+    lines[0] = lines[0].replace(",bic,", ",bic,log_evidence_laplace,");
+    for (i, line) in lines.iter_mut().enumerate().skip(1) {
+        let mut cells: Vec<String> = line.split(',').map(str::to_string).collect();
+        cells.insert(9, format!("{}", -50.0 - i as f64 * 0.25));
+        *line = cells.join(",");
+    }
+    std::fs::write(
+        dir.path().join("eb_fit_summary.csv"),
+        lines.join("\n") + "\n",
+    )
+    .unwrap();
+    let output = Command::new(env!("CARGO_BIN_EXE_valuedrift"))
+        .args([
+            "compare",
+            "--evidence",
+            "laplace",
+            "--summary",
+            "eb_fit_summary.csv",
+        ])
+        .arg("--fits")
+        .arg(dir.path())
+        .output()
+        .unwrap();
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert!(output.status.success(), "{stderr}");
+    assert!(String::from_utf8_lossy(&output.stdout).contains("log evidence used: laplace"));
+    let mut reader = csv::Reader::from_path(dir.path().join("model_evidence.csv")).unwrap();
+    let header = reader.headers().unwrap().clone();
+    let col = |name: &str| header.iter().position(|h| h == name).unwrap();
+    let first = reader.records().next().unwrap().unwrap();
+    // First data row of the file: line 2 (i = 1), subject s1, gainloss-linear.
+    assert_eq!((&first[0], &first[2]), ("s1", "gainloss-linear"));
+    assert_eq!(first[col("log_evidence")].parse::<f64>().unwrap(), -50.25);
+    assert_eq!(&first[col("evidence")], "laplace");
+}

@@ -12,6 +12,8 @@ pub struct CompareRun<'a> {
     pub fits: &'a Path,
     /// Grouping column of fit_summary.csv.
     pub by: &'a str,
+    /// Summary file name inside `fits` (fit_summary.csv or eb_fit_summary.csv).
+    pub summary: &'a str,
     /// Output folder.
     pub out: &'a Path,
     /// Log evidence used for selection.
@@ -22,11 +24,11 @@ pub struct CompareRun<'a> {
     pub seed: u64,
 }
 
-/// Reads `fits/fit_summary.csv`, runs the comparison, writes `model_selection`,
+/// Reads `fits/<summary>` (by default fit_summary.csv), runs the comparison, writes `model_selection`,
 /// `model_evidence` and `model_group_difference` (CSV and Parquet, all or nothing) and prints a
 /// summary.
 pub fn run(run: CompareRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
-    let input = run.fits.join("fit_summary.csv");
+    let input = run.fits.join(run.summary);
     let rows = read_fit_summary(&input, run.by)?;
     let comparison = assemble(&input, &rows, run.evidence, run.by)?;
     for (subject, missing) in &comparison.dropped {

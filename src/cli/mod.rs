@@ -217,6 +217,11 @@ pub enum Command {
         /// Column of fit_summary.csv that defines the groups.
         #[arg(long, default_value = "group")]
         by: String,
+        /// Summary file inside the --fits folder: fit_summary.csv, or eb_fit_summary.csv for
+        /// the empirical-Bayes estimates of `fit --hierarchical` (which carry the Laplace log
+        /// evidence under the fitted group prior).
+        #[arg(long, default_value = "fit_summary.csv")]
+        summary: String,
         /// Output folder (default: the --fits folder).
         #[arg(long)]
         out: Option<PathBuf>,
@@ -388,6 +393,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
         Command::Compare {
             fits,
             by,
+            summary,
             out,
             evidence,
             samples,
@@ -395,6 +401,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
         } => compare::run(compare::CompareRun {
             fits: &fits,
             by: &by,
+            summary: &summary,
             out: out.as_deref().unwrap_or(&fits),
             evidence,
             samples,

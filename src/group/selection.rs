@@ -364,8 +364,9 @@ pub fn assemble(
                         "log_evidence_laplace",
                         format!(
                             "--evidence laplace needs the Laplace log evidence of subject '{}', \
-                             model '{}', which is missing or empty (it is written for MAP or \
-                             hierarchical fits); use --evidence bic or aic",
+                             model '{}', which is missing or empty (it is written for fits with \
+                             priors, and in eb_fit_summary.csv of `fit --hierarchical`: \
+                             --summary eb_fit_summary.csv); use --evidence bic or aic",
                             r.subject, r.model
                         ),
                     )
