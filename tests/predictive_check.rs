@@ -52,7 +52,8 @@ fn orchard_subjects(model: &Model, n: usize, trials: usize, seed: u64) -> Vec<Su
 /// stage → first-passage sampler), the mean simulated response time of a trial lies within 4
 /// standard errors of the engine's closed-form expected response time (Grasman, Wagenmakers &
 /// van der Maas 2009, eqs. 5, 7–8, plus ndt), for the trials with the smallest, a middle and the
-/// largest |drift|. A 4-SE tolerance fails by chance with probability about 6e-5 per comparison.
+/// largest |drift|; and the share of choices of a against the probability of the upper bound.
+/// A 4-SE tolerance fails by chance with probability about 6e-5 per comparison.
 #[test]
 fn expected_response_time_matches_the_mean_of_simulated_trials() {
     let model = load_model("delta-linear").unwrap();
@@ -77,6 +78,20 @@ fn expected_response_time_matches_the_mean_of_simulated_trials() {
         assert!(
             (mean - expected).abs() < 4.0 * se,
             "drift {}: simulated mean {mean} vs expected {expected} (SE {se})",
+            traces[i].signal
+        );
+        // Likewise the share of choices of a against the closed-form probability of the upper
+        // bound, P = (1 − e^(−2vaw))/(1 − e^(−2va)) (Cox & Miller 1965), binomial SE.
+        let p = traces[i].probability_a;
+        let share = replicates
+            .iter()
+            .filter(|r| r.trials[i].choice == Some(valuedrift::data::Choice::A))
+            .count() as f64
+            / n as f64;
+        let se = (p * (1.0 - p) / n as f64).sqrt().max(1e-4);
+        assert!(
+            (share - p).abs() < 4.0 * se,
+            "drift {}: simulated share of a {share} vs P(a) {p} (SE {se})",
             traces[i].signal
         );
     }
