@@ -1,14 +1,16 @@
 //! `valuedrift demo`: the main job on the embedded demo study.
 
-use super::fit::{FitRun, print_summary};
+use super::fit::{FitRun, Hierarchical, print_group_summary, print_summary};
 use crate::data::ColumnMap;
-use crate::fit::FitOptions;
+use crate::fit::{EmOptions, FitOptions};
 use crate::model::built_in_models;
 use std::collections::BTreeMap;
 use std::path::Path;
 
 /// The demo study's trials (simulated with `valuedrift simulate`, see demo-data/README.md).
 const TRIALS: &str = include_str!("../../demo-data/orchard_trials.csv");
+/// The model that generated them.
+const REFERENCE: &str = "gainloss-linear";
 /// The values that generated them.
 const GENERATING: &str = include_str!("../../demo-data/generating_values.csv");
 
@@ -50,7 +52,11 @@ pub fn run(
             options: FitOptions::default(),
             threads,
             columns: ColumnMap::default(),
-            hierarchical: None,
+            hierarchical: Some(Hierarchical {
+                per_group: true,
+                em: EmOptions::default(),
+                models: vec![REFERENCE.to_string()],
+            }),
         },
         command_line,
     )?;
@@ -61,6 +67,7 @@ pub fn run(
     );
     println!();
     print_summary(&fitted);
+    print_group_summary(&fitted.groups);
 
     // Per-cohort medians of the reference model's estimates beside the generating values.
     let mut generating: BTreeMap<(String, String), Vec<f64>> = BTreeMap::new();
@@ -78,11 +85,13 @@ pub fn run(
         }
     }
     println!();
-    println!("gainloss-linear, per-cohort medians: estimate (generating value)");
+    println!(
+        "{REFERENCE}, per cohort: median of per-subject estimates / empirical-Bayes group median (median of the generating values)"
+    );
     let groups = super::fit::group_labels(&fitted.table);
     print!("{:<16}", "parameter");
     for g in &groups {
-        print!(" {g:>22}");
+        print!(" {g:>26}");
     }
     println!();
     for name in header.iter().skip(2) {
@@ -91,7 +100,7 @@ pub fn run(
             let estimates: Vec<f64> = fitted
                 .fits
                 .iter()
-                .filter(|f| f.model == "gainloss-linear" && &f.group == g)
+                .filter(|f| f.model == REFERENCE && &f.group == g)
                 .filter_map(|f| {
                     f.estimates
                         .iter()
@@ -99,13 +108,24 @@ pub fn run(
                         .map(|e| e.estimate)
                 })
                 .collect();
+            let group_median = fitted
+                .groups
+                .iter()
+                .find(|s| s.model == REFERENCE && &s.scope == g)
+                .and_then(|s| s.parameters.iter().find(|p| p.name == *name))
+                .map_or(f64::NAN, |p| p.natural_median);
             let truth = generating
                 .get(&(g.clone(), name.to_string()))
                 .cloned()
                 .unwrap_or_default();
             print!(
-                " {:>22}",
-                format!("{:.3} ({:.3})", median(estimates), median(truth))
+                " {:>26}",
+                format!(
+                    "{:.3} / {:.3} ({:.3})",
+                    median(estimates),
+                    group_median,
+                    median(truth)
+                )
             );
         }
         println!();

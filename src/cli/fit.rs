@@ -37,6 +37,8 @@ pub struct Hierarchical {
     pub per_group: bool,
     /// EM settings.
     pub em: EmOptions,
+    /// Only these models get group priors (empty: every model).
+    pub models: Vec<String>,
 }
 
 /// The column mapping of `--columns`, with `--by COLUMN` read as the group column.
@@ -118,8 +120,12 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             ));
             spinner.tick();
         };
+        let chosen: Vec<&Model> = models
+            .iter()
+            .filter(|m| settings.models.is_empty() || settings.models.contains(&m.name))
+            .collect();
         let (fitted, not_fitted) = fit_table_hierarchical(
-            &models,
+            &chosen,
             &table,
             &fits,
             &run.options,

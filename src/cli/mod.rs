@@ -32,9 +32,10 @@ pub struct Cli {
 #[derive(Debug, Subcommand)]
 pub enum Command {
     /// Run the main job on the embedded demo study: fit every built-in model to two invented
-    /// cohorts (per-subject maximum likelihood, L-BFGS with exact gradients), print model
-    /// comparison by BIC (Schwarz 1978) and per-cohort parameter medians beside the values that
-    /// generated the data, and write the full outputs.
+    /// cohorts (per-subject maximum likelihood, L-BFGS with exact gradients), fit one
+    /// empirical-Bayes group prior per cohort for the reference model (Huys et al. 2011), print
+    /// model comparison by BIC (Schwarz 1978) and iBIC, and per-cohort parameter medians beside
+    /// the values that generated the data, and write the full outputs.
     #[command(after_help = RESEARCH_CAUTION)]
     Demo {
         /// Output folder.
@@ -335,6 +336,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                         ibic_samples: ibic_samples.max(2),
                         seed,
                     },
+                    models: Vec::new(),
                 }),
             };
             let fitted = fit::run(run, &command_line)?;

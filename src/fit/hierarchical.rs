@@ -151,7 +151,7 @@ pub fn fit_group(
         .collect();
     let initial_cov: Vec<Option<Vec<f64>>> = initial
         .iter()
-        .map(|f| f.covariance_theta.as_ref().map(diagonal))
+        .map(|f| f.covariance_theta.as_ref().map(|c| diagonal(c)))
         .collect();
     let mut prior = m_step(&modes, &initial_cov, None, k);
     let mut iterations = 0;
@@ -163,7 +163,7 @@ pub fn fit_group(
         modes = fits.iter().map(|f| f.theta.clone()).collect();
         let covariances: Vec<Option<Vec<f64>>> = fits
             .iter()
-            .map(|f| f.covariance_theta.as_ref().map(diagonal))
+            .map(|f| f.covariance_theta.as_ref().map(|c| diagonal(c)))
             .collect();
         let next = m_step(&modes, &covariances, Some(&prior), k);
         last_change = change(&prior, &next);
@@ -205,7 +205,7 @@ pub fn fit_group(
     })
 }
 
-fn diagonal(c: &Vec<Vec<f64>>) -> Vec<f64> {
+fn diagonal(c: &[Vec<f64>]) -> Vec<f64> {
     (0..c.len()).map(|j| c[j][j]).collect()
 }
 

@@ -263,7 +263,7 @@ pub fn fit_table(
 /// [`MIN_GROUP_SUBJECTS`] fitted subjects is skipped with the reason.
 #[allow(clippy::too_many_arguments)]
 pub fn fit_table_hierarchical(
-    models: &[Model],
+    models: &[&Model],
     table: &TrialTable,
     fits: &[SubjectFit],
     options: &FitOptions,
@@ -285,7 +285,7 @@ pub fn fit_table_hierarchical(
     let mut groups = Vec::new();
     let mut skipped = Vec::new();
     pool.install(|| {
-        for model in models {
+        for &model in models {
             for scope in &scopes {
                 let mut members = Vec::new();
                 let mut initial = Vec::new();
