@@ -281,6 +281,12 @@ fn check_writes_tables_and_figures_and_malformed_input_writes_nothing() {
     }
     let misfit = std::fs::read_to_string(out.join("check_misfit.csv")).unwrap();
     assert_eq!(misfit.lines().count(), 4, "{misfit}"); // header + 3 subjects
+    // Figures of the worst-fitting subject (first row of the misfit table) name it.
+    let worst = misfit.lines().nth(1).unwrap().split(',').next().unwrap();
+    for svg in ["check_worst1_choices.svg", "check_worst1_rt_quantiles.svg"] {
+        let text = std::fs::read_to_string(out.join(svg)).unwrap();
+        assert!(text.contains(&format!("subject {worst} ")), "{svg}");
+    }
     let quantiles = std::fs::read_to_string(out.join("check_quantiles.csv")).unwrap();
     assert!(quantiles.lines().any(|l| l.starts_with("pooled,")));
     assert!(quantiles.lines().next().unwrap().contains("predicted_low"));

@@ -127,12 +127,13 @@ fn y_range<'a>(statistics: impl Iterator<Item = &'a Statistic>) -> (f64, f64) {
     (lo - pad, hi + pad)
 }
 
-/// Pooled response-time quantiles (.1 … .9, one colour each, fastest blue) against the
-/// |value difference| quintile, for correct-by-value and for other responses; None when the
-/// statistics hold no quantiles (a model without response times).
-pub fn rt_quantile_figure(pooled: &[Statistic]) -> Result<Option<String>, String> {
+/// Response-time quantiles (.1 … .9, one colour each, fastest blue) against the |value
+/// difference| quintile, for correct-by-value and for other responses, of the pooled or one
+/// subject's statistics (`scope` names which in the title); None when the statistics hold no
+/// quantiles (a model without response times).
+pub fn rt_quantile_figure(statistics: &[Statistic], scope: &str) -> Result<Option<String>, String> {
     let of = |response: Response| {
-        pooled.iter().filter(move |s| {
+        statistics.iter().filter(move |s| {
             s.key.factor == Factor::ValueDifference
                 && matches!(s.key.kind, Kind::RtQuantile { response: r, .. } if r == response)
         })
@@ -162,16 +163,17 @@ pub fn rt_quantile_figure(pooled: &[Statistic]) -> Result<Option<String>, String
                 .collect(),
         })
         .collect();
-    draw(
-        "Response-time quantiles .1 .3 .5 .7 .9, pooled: points observed, boxes 95 % predicted band, lines predicted mean",
-        &panels,
-    )
-    .map(Some)
+    let title = format!(
+        "Response-time quantiles .1 .3 .5 .7 .9, {scope}: points observed, boxes 95 % predicted \
+         band, lines predicted mean"
+    );
+    draw(&title, &panels).map(Some)
 }
 
-/// Pooled proportion of correct-by-value responses against the |value difference| quintile and
-/// against the effort level of the better option.
-pub fn choice_figure(pooled: &[Statistic]) -> Result<String, String> {
+/// Proportion of correct-by-value responses against the |value difference| quintile and against
+/// the effort level of the better option, of the pooled or one subject's statistics (`scope`
+/// names which in the title).
+pub fn choice_figure(statistics: &[Statistic], scope: &str) -> Result<String, String> {
     let panels: Vec<Panel> = [
         (Factor::ValueDifference, "quintile of |value difference|"),
         (Factor::Effort, "effort level of the better option (bin)"),
@@ -179,7 +181,7 @@ pub fn choice_figure(pooled: &[Statistic]) -> Result<String, String> {
     .into_iter()
     .map(|(factor, x_label)| {
         let of = || {
-            pooled
+            statistics
                 .iter()
                 .filter(move |s| s.key.factor == factor && s.key.kind == Kind::ChoiceProportion)
         };
@@ -193,8 +195,8 @@ pub fn choice_figure(pooled: &[Statistic]) -> Result<String, String> {
         }
     })
     .collect();
-    draw(
-        "Choices, pooled: points observed, boxes 95 % predicted band, line predicted mean",
-        &panels,
-    )
+    let title = format!(
+        "Choices, {scope}: points observed, boxes 95 % predicted band, line predicted mean"
+    );
+    draw(&title, &panels)
 }

@@ -2,14 +2,17 @@
 
 use crate::check::plots::{choice_figure, rt_quantile_figure};
 use crate::check::{
-    CheckSettings, FLAG_FRACTION, Mode, check_subjects, choices_table, misfit, misfit_table,
-    pooled, quantiles_table, ranked_misfits,
+    CheckSettings, FLAG_FRACTION, Mode, POOLED, check_subjects, choices_table, misfit,
+    misfit_table, pooled, quantiles_table, ranked_misfits,
 };
 use crate::data::{ColumnMap, read_trials};
 use crate::exports::read_estimates;
 use crate::files::OutputSet;
 use crate::model::load_model;
 use std::path::Path;
+
+/// Subjects, worst first by rms z, that get figures of their own.
+const WORST_FIGURES: usize = 3;
 
 /// Everything `check` needs, resolved from the command line.
 pub struct CheckRun<'a> {
@@ -53,7 +56,7 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     let pooled = pooled(&checks);
     let mut outputs = OutputSet::new();
     choices_table(&checks, &pooled).stage_both(&mut outputs, run.out, "check_choices")?;
-    let rt_figure = rt_quantile_figure(&pooled)?;
+    let rt_figure = rt_quantile_figure(&pooled, POOLED)?;
     if let Some(svg) = &rt_figure {
         quantiles_table(&checks, &pooled).stage_both(&mut outputs, run.out, "check_quantiles")?;
         outputs.stage(&run.out.join("check_rt_quantiles.svg"), |w| {
@@ -61,10 +64,26 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         })?;
     }
     misfit_table(&checks).stage_both(&mut outputs, run.out, "check_misfit")?;
-    let svg = choice_figure(&pooled)?;
+    let svg = choice_figure(&pooled, POOLED)?;
     outputs.stage(&run.out.join("check_choices.svg"), |w| {
         w.write_all(svg.as_bytes())
     })?;
+    let ranked = ranked_misfits(&checks);
+    for (rank, (check, _)) in ranked.iter().take(WORST_FIGURES).enumerate() {
+        let scope = format!("subject {} (misfit rank {})", check.subject, rank + 1);
+        let svg = choice_figure(&check.statistics, &scope)?;
+        outputs.stage(
+            &run.out.join(format!("check_worst{}_choices.svg", rank + 1)),
+            |w| w.write_all(svg.as_bytes()),
+        )?;
+        if let Some(svg) = rt_quantile_figure(&check.statistics, &scope)? {
+            outputs.stage(
+                &run.out
+                    .join(format!("check_worst{}_rt_quantiles.svg", rank + 1)),
+                |w| w.write_all(svg.as_bytes()),
+            )?;
+        }
+    }
     outputs.commit()?;
 
     let free = checks.iter().filter(|c| c.mode == Mode::Free).count();
@@ -87,7 +106,6 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
             all.n_statistics
         );
     }
-    let ranked = ranked_misfits(&checks);
     let flagged = ranked
         .iter()
         .filter(|r| r.1.fraction_outside.is_some_and(|f| f > FLAG_FRACTION))

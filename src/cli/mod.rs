@@ -147,7 +147,8 @@ pub enum Command {
     /// statistics average subjects' quantiles (Ratcliff 1979).
     ///
     /// Writes OUT/check_choices.csv, check_quantiles.csv, check_misfit.csv (+ Parquet) and
-    /// check_choices.svg, check_rt_quantiles.svg.
+    /// check_choices.svg, check_rt_quantiles.svg (pooled), and the same two figures for the three
+    /// worst-fitting subjects (check_worst1_choices.svg, ...).
     #[command(after_help = RESEARCH_CAUTION)]
     Check {
         /// Folder written by `valuedrift fit` (reads its parameters.csv).
