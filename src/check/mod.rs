@@ -195,7 +195,9 @@ pub struct Statistic {
 }
 
 impl Statistic {
-    /// The predicted band, with at least [`MIN_REPLICATES`] replicate values.
+    /// The predicted band over the replicate values y₁…y_m that exist (at least
+    /// [`MIN_REPLICATES`]): mean ȳ, sd = √(Σ(y − ȳ)²/(m − 1)), and the 2.5 % and 97.5 % sample
+    /// quantiles of type 7 (Hyndman & Fan 1996).
     pub fn band(&self) -> Option<Band> {
         let mut values: Vec<f64> = self.replicates.iter().flatten().copied().collect();
         if values.len() < MIN_REPLICATES {
