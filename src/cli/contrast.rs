@@ -6,7 +6,7 @@ use crate::group::contrast::{
 };
 use std::path::Path;
 
-/// Reads `fits/parameters.csv`, compares the free parameters of `model` across the groups of
+/// Reads the parameters table of `source` in `fits`, compares the free parameters of `model` across the groups of
 /// column `by`, writes `contrast.csv`, `contrast_groups.csv` and their Parquet twins to `out`
 /// (atomically, all or nothing) and prints a summary.
 pub fn run(
@@ -14,8 +14,9 @@ pub fn run(
     model: &str,
     by: &str,
     out: &Path,
+    source: crate::results::EstimateSource,
 ) -> Result<(), Box<dyn std::error::Error>> {
-    let input = fits.join("parameters.csv");
+    let input = source.parameters_file(fits);
     let estimates = read_estimates(&input, model, by)?;
     let rows = contrast(&estimates).map_err(|e| format!("{}: {e}", input.display()))?;
     let mut outputs = OutputSet::new();

@@ -27,6 +27,8 @@ pub struct ExportRun<'a> {
     pub columns: &'a str,
     /// Scan timing for design matrices (None: no design matrices).
     pub timing: Option<Timing>,
+    /// Per-subject or empirical-Bayes estimates.
+    pub estimates: crate::results::EstimateSource,
 }
 
 /// The scan timing from `--tr`, `--scans` and `--microtime-bins`: both of the first two or
@@ -71,7 +73,11 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     let columns = ColumnMap::parse(run.columns).map_err(|e| format!("--columns: {e}"))?;
     let table = read_trials(run.data, &columns)?;
     let model = load_model(run.model.trim())?;
-    let estimates = read_estimates(&run.fits.join("parameters.csv"), &model, &table.subjects)?;
+    let estimates = read_estimates(
+        &run.estimates.parameters_file(run.fits),
+        &model,
+        &table.subjects,
+    )?;
     let labels = bids_labels(&table.subjects)?;
     let has_onsets = table.has_column("onset");
     let with_outcomes = table.has_column("outcome_onset");

@@ -6,7 +6,7 @@ use crate::fit::{
     EmOptions, FitOptions, GroupFit, Skipped, SubjectFit, fit_table, fit_table_hierarchical,
 };
 use crate::model::{Model, load_model};
-use crate::results::{group_evidence_table, group_prior_table, parameters_table, summary_table};
+use crate::results::{EstimateSource, group_evidence_table, group_prior_table, parameters_table, summary_table};
 use indicatif::{ProgressBar, ProgressStyle};
 use sha2::{Digest, Sha256};
 use std::collections::HashMap;
@@ -151,8 +151,12 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         &skipped,
     );
     let mut outputs = OutputSet::new();
-    parameters_table(&fits).stage_both(&mut outputs, run.out, "parameters")?;
-    summary_table(&fits).stage_both(&mut outputs, run.out, "fit_summary")?;
+    parameters_table(&fits).stage_both(
+        &mut outputs,
+        run.out,
+        EstimateSource::PerSubject.parameters_stem(),
+    )?;
+    summary_table(&fits).stage_both(&mut outputs, run.out, EstimateSource::PerSubject.summary_stem())?;
     if let Some(settings) = &run.hierarchical {
         record["empirical_bayes"] = serde_json::json!({
             "method": "EM with the Laplace approximation (Huys et al. 2011); Gaussian prior, diagonal covariance, on the unconstrained scale",
@@ -163,8 +167,16 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             "seed": settings.em.seed,
         });
         let shrunken: Vec<SubjectFit> = groups.iter().flat_map(|g| g.subjects.clone()).collect();
-        parameters_table(&shrunken).stage_both(&mut outputs, run.out, "eb_parameters")?;
-        summary_table(&shrunken).stage_both(&mut outputs, run.out, "eb_fit_summary")?;
+        parameters_table(&shrunken).stage_both(
+            &mut outputs,
+            run.out,
+            EstimateSource::EmpiricalBayes.parameters_stem(),
+        )?;
+        summary_table(&shrunken).stage_both(
+            &mut outputs,
+            run.out,
+            EstimateSource::EmpiricalBayes.summary_stem(),
+        )?;
         group_prior_table(&groups).stage_both(&mut outputs, run.out, "eb_group_priors")?;
         group_evidence_table(&groups).stage_both(&mut outputs, run.out, "eb_model_evidence")?;
     }

@@ -137,6 +137,10 @@ pub enum Command {
         /// Microtime bins per scan for the convolution (default 16); needs --tr and --scans.
         #[arg(long)]
         microtime_bins: Option<usize>,
+        /// Which estimates: the per-subject fits (parameters.csv) or the shrunken estimates of
+        /// `fit --hierarchical` (eb_parameters.csv).
+        #[arg(long, value_enum, default_value_t = crate::results::EstimateSource::PerSubject)]
+        estimates: crate::results::EstimateSource,
     },
     /// Predictive check of a fitted model: simulate each subject's data N times at its
     /// estimates in DIR/parameters.csv (freely where the table gives outcome_if_a and
@@ -199,6 +203,12 @@ pub enum Command {
         /// Output folder (default: the --fits folder).
         #[arg(long)]
         out: Option<PathBuf>,
+        /// Which estimates: the per-subject fits (parameters.csv) or the shrunken estimates of
+        /// `fit --hierarchical` (eb_parameters.csv). Shrinkage towards one pooled prior pulls
+        /// groups together (conservative); one prior per group (--by) pulls them apart, so
+        /// contrasts of per-group empirical-Bayes estimates are anticonservative.
+        #[arg(long, value_enum, default_value_t = crate::results::EstimateSource::PerSubject)]
+        estimates: crate::results::EstimateSource,
     },
     /// Compare models across the subjects of a fit folder: per subject AIC (Akaike 1974), BIC
     /// (Schwarz 1978), Akaike and Schwarz weights (Burnham & Anderson 2002; Wagenmakers &
@@ -357,6 +367,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             tr,
             scans,
             microtime_bins,
+            estimates,
         } => export::run(export::ExportRun {
             fits: &fits,
             data: &data,
@@ -365,6 +376,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             scale,
             columns: &columns,
             timing: export::timing(tr, scans, microtime_bins)?,
+            estimates,
         }),
         Command::Check {
             fits,
@@ -392,7 +404,14 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             model,
             by,
             out,
-        } => contrast::run(&fits, &model, &by, out.as_deref().unwrap_or(&fits)),
+            estimates,
+        } => contrast::run(
+            &fits,
+            &model,
+            &by,
+            out.as_deref().unwrap_or(&fits),
+            estimates,
+        ),
         Command::Compare {
             fits,
             by,

@@ -254,3 +254,35 @@ pub fn group_evidence_table(groups: &[crate::fit::GroupFit]) -> Table {
             integer(|g| g.subjects_without_covariance),
         )
 }
+
+/// Which per-subject estimates of a fit folder a later command reads.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
+pub enum EstimateSource {
+    /// The per-subject fits (maximum likelihood, or MAP with declared priors).
+    PerSubject,
+    /// The shrunken estimates under the group prior of `fit --hierarchical`.
+    EmpiricalBayes,
+}
+
+impl EstimateSource {
+    /// File stem of the parameters table of this source in a fit folder.
+    pub fn parameters_stem(self) -> &'static str {
+        match self {
+            EstimateSource::PerSubject => "parameters",
+            EstimateSource::EmpiricalBayes => "eb_parameters",
+        }
+    }
+
+    /// File stem of the fit summary table of this source in a fit folder.
+    pub fn summary_stem(self) -> &'static str {
+        match self {
+            EstimateSource::PerSubject => "fit_summary",
+            EstimateSource::EmpiricalBayes => "eb_fit_summary",
+        }
+    }
+
+    /// The parameters table of this source in fit folder `dir`.
+    pub fn parameters_file(self, dir: &Path) -> std::path::PathBuf {
+        dir.join(format!("{}.csv", self.parameters_stem()))
+    }
+}
