@@ -324,7 +324,7 @@ fn fit_hierarchical_by_group_writes_the_group_tables() {
             .arg("--data")
             .arg(&data)
             .arg("--out")
-            .arg(dir.to_string())
+            .arg(dir)
             .output()
             .unwrap();
         assert!(

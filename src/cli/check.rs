@@ -28,6 +28,8 @@ pub struct CheckRun<'a> {
     pub settings: CheckSettings,
     /// Column mapping of the trial table (canonical=file pairs).
     pub columns: &'a str,
+    /// Per-subject or empirical-Bayes estimates.
+    pub estimates: crate::results::EstimateSource,
 }
 
 /// Reads, simulates, summarises and writes every output at once (nothing is written on error).
@@ -47,7 +49,11 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     let columns = ColumnMap::parse(run.columns).map_err(|e| format!("--columns: {e}"))?;
     let table = read_trials(run.data, &columns)?;
     let model = load_model(run.model.trim())?;
-    let estimates = read_estimates(&run.fits.join("parameters.csv"), &model, &table.subjects)?;
+    let estimates = read_estimates(
+        &run.estimates.parameters_file(run.fits),
+        &model,
+        &table.subjects,
+    )?;
     let bar = super::fit::progress_bar(table.subjects.len(), "simulating");
     let checks = check_subjects(&model, &estimates, &table.subjects, &run.settings, &|| {
         bar.inc(1)

@@ -6,7 +6,9 @@ use crate::fit::{
     EmOptions, FitOptions, GroupFit, Skipped, SubjectFit, fit_table, fit_table_hierarchical,
 };
 use crate::model::{Model, load_model};
-use crate::results::{EstimateSource, group_evidence_table, group_prior_table, parameters_table, summary_table};
+use crate::results::{
+    EstimateSource, group_evidence_table, group_prior_table, parameters_table, summary_table,
+};
 use indicatif::{ProgressBar, ProgressStyle};
 use sha2::{Digest, Sha256};
 use std::collections::HashMap;
@@ -156,7 +158,11 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         run.out,
         EstimateSource::PerSubject.parameters_stem(),
     )?;
-    summary_table(&fits).stage_both(&mut outputs, run.out, EstimateSource::PerSubject.summary_stem())?;
+    summary_table(&fits).stage_both(
+        &mut outputs,
+        run.out,
+        EstimateSource::PerSubject.summary_stem(),
+    )?;
     if let Some(settings) = &run.hierarchical {
         record["empirical_bayes"] = serde_json::json!({
             "method": "EM with the Laplace approximation (Huys et al. 2011); Gaussian prior, diagonal covariance, on the unconstrained scale",

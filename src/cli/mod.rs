@@ -137,10 +137,9 @@ pub enum Command {
         /// Microtime bins per scan for the convolution (default 16); needs --tr and --scans.
         #[arg(long)]
         microtime_bins: Option<usize>,
-        /// Which estimates: the per-subject fits (parameters.csv) or the shrunken estimates of
-        /// `fit --hierarchical` (eb_parameters.csv).
-        #[arg(long, value_enum, default_value_t = crate::results::EstimateSource::PerSubject)]
-        estimates: crate::results::EstimateSource,
+        /// Per-subject or empirical-Bayes estimates.
+        #[command(flatten)]
+        estimates: EstimatesArg,
     },
     /// Predictive check of a fitted model: simulate each subject's data N times at its
     /// estimates in DIR/parameters.csv (freely where the table gives outcome_if_a and
@@ -180,6 +179,9 @@ pub enum Command {
         /// response.
         #[arg(long)]
         deadline: Option<f64>,
+        /// Per-subject or empirical-Bayes estimates.
+        #[command(flatten)]
+        estimates: EstimatesArg,
     },
     /// Compare one model's fitted parameters between groups of subjects: per free parameter,
     /// Welch's t test (Welch 1947), Mann-Whitney U (normal approximation with tie and continuity
@@ -203,12 +205,9 @@ pub enum Command {
         /// Output folder (default: the --fits folder).
         #[arg(long)]
         out: Option<PathBuf>,
-        /// Which estimates: the per-subject fits (parameters.csv) or the shrunken estimates of
-        /// `fit --hierarchical` (eb_parameters.csv). Shrinkage towards one pooled prior pulls
-        /// groups together (conservative); one prior per group (--by) pulls them apart, so
-        /// contrasts of per-group empirical-Bayes estimates are anticonservative.
-        #[arg(long, value_enum, default_value_t = crate::results::EstimateSource::PerSubject)]
-        estimates: crate::results::EstimateSource,
+        /// Per-subject or empirical-Bayes estimates.
+        #[command(flatten)]
+        estimates: EstimatesArg,
     },
     /// Compare models across the subjects of a fit folder: per subject AIC (Akaike 1974), BIC
     /// (Schwarz 1978), Akaike and Schwarz weights (Burnham & Anderson 2002; Wagenmakers &
@@ -298,6 +297,18 @@ pub enum Command {
     },
 }
 
+/// The choice of per-subject or empirical-Bayes estimates, shared by the commands that read a
+/// fit folder's parameters.
+#[derive(Debug, clap::Args)]
+pub struct EstimatesArg {
+    /// Which estimates: the per-subject fits (parameters.csv) or the shrunken estimates of
+    /// `fit --hierarchical` (eb_parameters.csv). Shrinkage towards one pooled prior pulls groups
+    /// together (conservative for contrasts); one prior per group (--by) pulls them apart, so
+    /// contrasts of per-group empirical-Bayes estimates are anticonservative.
+    #[arg(long, value_enum, default_value_t = crate::results::EstimateSource::PerSubject)]
+    pub estimates: crate::results::EstimateSource,
+}
+
 /// Runs the parsed command.
 pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
     let command_line: Vec<String> = std::env::args().collect();
@@ -376,7 +387,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             scale,
             columns: &columns,
             timing: export::timing(tr, scans, microtime_bins)?,
-            estimates,
+            estimates: estimates.estimates,
         }),
         Command::Check {
             fits,
@@ -387,6 +398,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             seed,
             columns,
             deadline,
+            estimates,
         } => check::run(check::CheckRun {
             fits: &fits,
             data: &data,
@@ -398,6 +410,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 deadline,
             },
             columns: &columns,
+            estimates: estimates.estimates,
         }),
         Command::Contrast {
             fits,
@@ -410,7 +423,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             &model,
             &by,
             out.as_deref().unwrap_or(&fits),
-            estimates,
+            estimates.estimates,
         ),
         Command::Compare {
             fits,
