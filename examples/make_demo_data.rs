@@ -22,20 +22,23 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         let group = if i < 20 { "steady" } else { "low-drive" };
         let id = format!("sub-{:02}", i + 1);
         subjects.push(orchard_design(&id, group, TRIALS, &mut rng));
-        let (gain, effort, boundary) = if group == "steady" {
+        // The invented hypothesis of the demo: the low-drive cohort learns less from gains
+        // than from losses and weighs effort more; the steady cohort the reverse.
+        let (gain, loss, effort, boundary) = if group == "steady" {
             (
-                rng.random_range(0.3..0.6),
+                rng.random_range(0.35..0.6),
+                rng.random_range(0.15..0.35),
                 rng.random_range(0.3..0.8),
                 rng.random_range(1.2..2.0),
             )
         } else {
             (
-                rng.random_range(0.15..0.4),
+                rng.random_range(0.1..0.25),
+                rng.random_range(0.35..0.6),
                 rng.random_range(0.8..1.5),
                 rng.random_range(1.0..1.8),
             )
         };
-        let loss: f64 = rng.random_range(0.2..0.5);
         let scale: f64 = rng.random_range(3.0..7.0);
         let ndt: f64 = rng.random_range(0.25..0.45);
         values.push_str(&format!(

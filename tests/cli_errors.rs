@@ -508,8 +508,8 @@ fn density_control_writes_output() {
 // ---------------------------------------------------------------------------------------------
 // `simulate`, and the positive control of `fit`
 
-/// Natural-scale values for the six free parameters of gainloss-linear, in the ranges of the
-/// demo study (source: demo-data/generating_values.csv).
+/// Natural-scale values for the six free parameters of gainloss-linear, inside the declared
+/// bounds of models/gainloss-linear.toml (any valid values serve these error cases).
 const PARAMS_HEADER: &str = "subject,gain_rate,loss_rate,effort_weight,value_scale,boundary,ndt";
 const PARAMS_ROWS: [&str; 2] = [
     "s1,0.40,0.35,0.6,5.0,1.6,0.38",
