@@ -28,6 +28,15 @@ pub struct CompareRun<'a> {
 /// `model_evidence` and `model_group_difference` (CSV and Parquet, all or nothing) and prints a
 /// summary.
 pub fn run(run: CompareRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
+    let selection = compare_and_write(&run)?;
+    print_summary(&selection, run.samples);
+    println!("outputs in {}", run.out.display());
+    println!("{}", super::RESEARCH_CAUTION);
+    Ok(())
+}
+
+/// The comparison of `run`, with its tables written (all or nothing).
+pub fn compare_and_write(run: &CompareRun<'_>) -> Result<Selection, Box<dyn std::error::Error>> {
     let input = run.fits.join(run.summary);
     let rows = read_fit_summary(&input, run.by)?;
     let comparison = assemble(&input, &rows, run.evidence, run.by)?;
@@ -58,13 +67,12 @@ pub fn run(run: CompareRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         .difference_table()
         .stage_both(&mut outputs, run.out, "model_group_difference")?;
     outputs.commit()?;
-    print_summary(&selection, run.samples);
-    println!("outputs in {}", run.out.display());
-    println!("{}", super::RESEARCH_CAUTION);
-    Ok(())
+    Ok(selection)
 }
 
-fn print_summary(selection: &Selection, samples: usize) {
+/// Prints per scope the expected frequencies, exceedance and protected exceedance
+/// probabilities, omnibus risk and wins, then the between-group test.
+pub fn print_summary(selection: &Selection, samples: usize) {
     let c = &selection.comparison;
     println!(
         "model comparison of {} subjects, {} models; log evidence used: {} \

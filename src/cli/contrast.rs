@@ -16,6 +16,21 @@ pub fn run(
     out: &Path,
     source: crate::results::EstimateSource,
 ) -> Result<(), Box<dyn std::error::Error>> {
+    let rows = contrast_and_write(fits, model, by, out, source)?;
+    print_summary(&rows);
+    println!("outputs in {}", out.display());
+    println!("{}", super::RESEARCH_CAUTION);
+    Ok(())
+}
+
+/// The contrasts of `run`, with their tables written to `out` (all or nothing).
+pub fn contrast_and_write(
+    fits: &Path,
+    model: &str,
+    by: &str,
+    out: &Path,
+    source: crate::results::EstimateSource,
+) -> Result<Vec<ParameterContrast>, Box<dyn std::error::Error>> {
     let input = source.parameters_file(fits);
     let estimates = read_estimates(&input, model, by)?;
     let rows = contrast(&estimates).map_err(|e| format!("{}: {e}", input.display()))?;
@@ -23,10 +38,7 @@ pub fn run(
     contrast_table(&rows).stage_both(&mut outputs, out, "contrast")?;
     groups_table(&rows).stage_both(&mut outputs, out, "contrast_groups")?;
     outputs.commit()?;
-    print_summary(&rows);
-    println!("outputs in {}", out.display());
-    println!("{}", super::RESEARCH_CAUTION);
-    Ok(())
+    Ok(rows)
 }
 
 fn cell(x: Option<f64>, width: usize, precision: usize) -> String {
@@ -36,7 +48,8 @@ fn cell(x: Option<f64>, width: usize, precision: usize) -> String {
     }
 }
 
-fn print_summary(rows: &[ParameterContrast]) {
+/// Prints one line per parameter: group means, Welch t, Mann–Whitney, Hedges' g and q value.
+pub fn print_summary(rows: &[ParameterContrast]) {
     let Some(first) = rows.first() else { return };
     let labels: Vec<&str> = first.groups.iter().map(|g| g.group.as_str()).collect();
     if first.groups.len() == 2 {

@@ -3,6 +3,7 @@
 use super::fit::{FitRun, Hierarchical, print_group_summary, print_summary};
 use crate::data::ColumnMap;
 use crate::fit::{EmOptions, FitOptions};
+use crate::group::selection::{BmsOptions, Evidence};
 use crate::model::built_in_models;
 use std::collections::BTreeMap;
 use std::path::Path;
@@ -68,6 +69,28 @@ pub fn run(
     println!();
     print_summary(&fitted);
     print_group_summary(&fitted.groups);
+    println!();
+    let compare = super::compare::CompareRun {
+        fits: out,
+        by: "group",
+        summary: "fit_summary.csv",
+        out,
+        evidence: Evidence::Bic,
+        samples: BmsOptions::default().samples,
+        seed: 1,
+    };
+    let selection = super::compare::compare_and_write(&compare)?;
+    super::compare::print_summary(&selection, compare.samples);
+    println!();
+    println!("{REFERENCE}: per-subject estimates, low-drive against steady");
+    let rows = super::contrast::contrast_and_write(
+        out,
+        REFERENCE,
+        "group",
+        out,
+        crate::results::EstimateSource::PerSubject,
+    )?;
+    super::contrast::print_summary(&rows);
 
     // Per-cohort medians of the reference model's estimates beside the generating values.
     let mut generating: BTreeMap<(String, String), Vec<f64>> = BTreeMap::new();

@@ -34,8 +34,9 @@ pub enum Command {
     /// Run the main job on the embedded demo study: fit every built-in model to two invented
     /// cohorts (per-subject maximum likelihood, L-BFGS with exact gradients), fit one
     /// empirical-Bayes group prior per cohort for the reference model (Huys et al. 2011), print
-    /// model comparison by BIC (Schwarz 1978) and iBIC, and per-cohort parameter medians beside
-    /// the values that generated the data, and write the full outputs.
+    /// model comparison by BIC (Schwarz 1978), iBIC and random-effects Bayesian model selection
+    /// per cohort (Stephan et al. 2009; Rigoux et al. 2014), and per-cohort parameter medians
+    /// beside the values that generated the data, and write the full outputs.
     #[command(after_help = RESEARCH_CAUTION)]
     Demo {
         /// Output folder.
