@@ -301,7 +301,7 @@ fn modulators_are_centred_or_z_scored_within_each_run_with_n_a_where_expected() 
     let subject = worked_subject();
     let rows: Vec<Latent> = latents(&model, &subject, &natural(&model)).unwrap();
     for scale in [Scale::Center, Scale::Zscore] {
-        let files = events_files(&model, &subject, "w1", &rows, scale, true);
+        let files = events_files(&model, &subject, "w1", None, &rows, scale, true);
         assert_eq!(files.len(), 2);
         assert_eq!(files[0].stem, "sub-w1_run-1_desc-gainlosslinear_events");
         for file in &files {
@@ -348,12 +348,12 @@ fn modulators_are_centred_or_z_scored_within_each_run_with_n_a_where_expected() 
     }
     // Centred prediction errors of run 1, by hand: d = 1 and 0 (trial 3 has none), mean 0.5,
     // so 0.5 and −0.5 (arithmetic from the worked example above).
-    let files = events_files(&model, &subject, "w1", &rows, Scale::Center, true);
+    let files = events_files(&model, &subject, "w1", None, &rows, Scale::Center, true);
     let k = col(&files[0].header, "prediction_error");
     let centred: Vec<f64> = files[0].rows.iter().filter_map(|r| parse(&r[k])).collect();
     assert_eq!(centred, vec![0.5, -0.5]);
     // Raw values are written unscaled.
-    let files = events_files(&model, &subject, "w1", &rows, Scale::None, true);
+    let files = events_files(&model, &subject, "w1", None, &rows, Scale::None, true);
     let raw: Vec<f64> = files[0].rows.iter().filter_map(|r| parse(&r[k])).collect();
     assert_eq!(raw, vec![1.0, 0.0]);
 }
@@ -533,6 +533,43 @@ fn export_writes_latents_and_bids_events_files() {
     }
     // 80 trials, one without onset.
     assert_eq!(choice_events, 79);
+
+    // A derivative dataset description (BIDS specification, derived datasets: Name,
+    // BIDSVersion, DatasetType "derivative", GeneratedBy with a Name; from memory).
+    let description: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(out.join("dataset_description.json")).unwrap(),
+    )
+    .unwrap();
+    assert!(description["Name"].is_string() && description["BIDSVersion"].is_string());
+    assert_eq!(description["DatasetType"], "derivative");
+    assert_eq!(description["GeneratedBy"][0]["Name"], "valuedrift");
+
+    // With --task the names carry the task entity after the subject (BIDS entity order: sub,
+    // ses, task, …, run, …, desc); a task label that is not alphanumeric is refused.
+    let with_task = |task: &str, out: &std::path::Path| {
+        binary()
+            .args(["export", "--model", "gainloss-linear", "--task", task])
+            .arg("--fits")
+            .arg(&fits)
+            .arg("--data")
+            .arg(&data)
+            .arg("--out")
+            .arg(out)
+            .output()
+            .unwrap()
+    };
+    let tasked = dir.path().join("tasked");
+    assert!(with_task("orchard", &tasked).status.success());
+    assert!(
+        tasked
+            .join("sub-01_task-orchard_run-1_desc-gainlosslinear_events.tsv")
+            .is_file()
+    );
+    let refused = dir.path().join("refused");
+    let bad = with_task("orch_ard", &refused);
+    assert!(!bad.status.success());
+    assert!(String::from_utf8_lossy(&bad.stderr).contains("--task orch_ard"));
+    assert!(!refused.exists());
 }
 
 /// Rules of BIDS events files (from memory of the BIDS specification): tab-separated with a

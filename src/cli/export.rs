@@ -5,7 +5,8 @@
 use crate::data::{ColumnMap, read_trials};
 use crate::exports::hrf::{DesignFile, DoubleGamma, Timing, design_file};
 use crate::exports::{
-    Scale, bids_labels, events_files, labels_table, latents, latents_table, read_estimates,
+    Scale, bids_label, bids_labels, dataset_description, events_files, labels_table, latents,
+    latents_table, read_estimates,
 };
 use crate::files::OutputSet;
 use crate::model::load_model;
@@ -29,6 +30,8 @@ pub struct ExportRun<'a> {
     pub timing: Option<Timing>,
     /// Per-subject or empirical-Bayes estimates.
     pub estimates: crate::results::EstimateSource,
+    /// BIDS task label for the file names, if any.
+    pub task: Option<&'a str>,
 }
 
 /// The scan timing from `--tr`, `--scans` and `--microtime-bins`: both of the first two or
@@ -70,6 +73,14 @@ pub fn timing(
 
 /// Reads, computes and writes every output at once (nothing is written on error).
 pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
+    if let Some(task) = run.task
+        && bids_label(task).as_deref() != Some(task)
+    {
+        return Err(format!(
+            "--task {task}: expected a BIDS label (letters and digits only, e.g. orchard)"
+        )
+        .into());
+    }
     let columns = ColumnMap::parse(run.columns).map_err(|e| format!("--columns: {e}"))?;
     let table = read_trials(run.data, &columns)?;
     let model = load_model(run.model.trim())?;
@@ -90,6 +101,7 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
                 &model,
                 subject,
                 label,
+                run.task,
                 &rows,
                 run.scale,
                 with_outcomes,
@@ -110,6 +122,12 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     if has_onsets {
         outputs.stage(&run.out.join("subject_labels.tsv"), |w| {
             labels_table(&table.subjects, &labels).write_delimited(w, b'\t')
+        })?;
+    }
+    if !events.is_empty() {
+        let description = dataset_description(&model, super::RESEARCH_CAUTION);
+        outputs.stage(&run.out.join("dataset_description.json"), |w| {
+            serde_json::to_writer_pretty(w, &description)
         })?;
     }
     for file in &events {

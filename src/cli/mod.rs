@@ -105,7 +105,8 @@ pub enum Command {
     /// Writes OUT/latents.csv and OUT/latents.parquet (raw values, one row per trial) and, when
     /// the trial table has onsets, one BIDS events file per subject and run
     /// (sub-<label>[_run-<index>]_desc-<model>_events.tsv with a .json sidecar) with choice and
-    /// outcome events and one column per modulator, plus OUT/subject_labels.tsv.
+    /// outcome events and one column per modulator, plus OUT/subject_labels.tsv and
+    /// OUT/dataset_description.json (a BIDS derivative dataset).
     #[command(after_help = RESEARCH_CAUTION)]
     Export {
         /// Folder written by `valuedrift fit` (reads its parameters.csv).
@@ -138,6 +139,10 @@ pub enum Command {
         /// Microtime bins per scan for the convolution (default 16); needs --tr and --scans.
         #[arg(long)]
         microtime_bins: Option<usize>,
+        /// BIDS task label put in the events and design file names
+        /// (sub-<label>_task-<task>[_run-<index>]_desc-<model>_events.tsv).
+        #[arg(long)]
+        task: Option<String>,
         /// Per-subject or empirical-Bayes estimates.
         #[command(flatten)]
         estimates: EstimatesArg,
@@ -379,6 +384,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             tr,
             scans,
             microtime_bins,
+            task,
             estimates,
         } => export::run(export::ExportRun {
             fits: &fits,
@@ -389,6 +395,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             columns: &columns,
             timing: export::timing(tr, scans, microtime_bins)?,
             estimates: estimates.estimates,
+            task: task.as_deref(),
         }),
         Command::Check {
             fits,

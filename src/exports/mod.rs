@@ -341,6 +341,24 @@ pub fn bids_label(raw: &str) -> Option<String> {
     (!label.is_empty()).then_some(label)
 }
 
+/// The `dataset_description.json` of a BIDS derivative dataset (BIDS specification, "Derived
+/// dataset and pipeline description": Name, BIDSVersion, DatasetType = derivative, GeneratedBy).
+pub fn dataset_description(model: &Model, caution: &str) -> serde_json::Value {
+    serde_json::json!({
+        "Name": format!("valuedrift per-trial latent variables of model {}", model.name),
+        "BIDSVersion": "1.9.0",
+        "DatasetType": "derivative",
+        "GeneratedBy": [{
+            "Name": "valuedrift",
+            "Version": env!("CARGO_PKG_VERSION"),
+            "Description": format!(
+                "Reinforcement-learning drift-diffusion model {} run forward at fitted estimates. {caution}",
+                model.name
+            ),
+        }],
+    })
+}
+
 /// BIDS labels of all subjects, in order; an error when a label would be empty or two subjects
 /// would share one.
 pub fn bids_labels(subjects: &[Subject]) -> Result<Vec<String>, String> {
@@ -632,23 +650,26 @@ fn cell(x: Option<f64>) -> String {
 /// label. Choice events are at the trial onset with the response time as duration (0 without
 /// response); outcome events at the outcome onset with duration 0, when the table has outcome
 /// onsets (`with_outcomes`). Events without onset are left out and counted. Modulators are
-/// scaled within each run.
+/// scaled within each run. With a `task` label the names carry the BIDS task entity:
+/// `sub-<label>_task-<task>[_run-<index>]_desc-<model>_events`.
 pub fn events_files(
     model: &Model,
     subject: &Subject,
     label: &str,
+    task: Option<&str>,
     latents: &[Latent],
     scale: Scale,
     with_outcomes: bool,
 ) -> Vec<EventsFile> {
     let modulators = modulators(model);
     let desc = desc_label(&model.name);
+    let task = task.map_or(String::new(), |t| format!("_task-{t}"));
     run_indices(subject)
         .into_iter()
         .map(|(run, index)| {
             let stem = match index {
-                Some(i) => format!("sub-{label}_run-{i}_desc-{desc}_events"),
-                None => format!("sub-{label}_desc-{desc}_events"),
+                Some(i) => format!("sub-{label}{task}_run-{i}_desc-{desc}_events"),
+                None => format!("sub-{label}{task}_desc-{desc}_events"),
             };
             // (onset, duration, trial_type, latent)
             let mut events: Vec<(f64, f64, &str, &Latent)> = Vec::new();
