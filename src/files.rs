@@ -82,6 +82,36 @@ pub fn open_csv(path: &Path) -> Result<(csv::Reader<std::fs::File>, Vec<String>)
     Ok((reader, header))
 }
 
+/// The data rows of an opened CSV file with their line numbers (the header is line 1, the
+/// first data row line 2); a malformed row is an error naming the file and its line.
+pub fn csv_rows<'r>(
+    path: &'r Path,
+    reader: &'r mut csv::Reader<std::fs::File>,
+) -> impl Iterator<Item = Result<(u64, csv::StringRecord), InputError>> + 'r {
+    reader.records().enumerate().map(move |(index, record)| {
+        let line = index as u64 + 2;
+        record.map(|r| (line, r)).map_err(|e| InputError {
+            line: e.position().map(|p| p.line()).or(Some(line)),
+            ..InputError::file(path, format!("malformed CSV row: {e}"))
+        })
+    })
+}
+
+/// A finite number from the text of a cell, or an error naming the file, line and column.
+pub fn finite_number(path: &Path, line: u64, column: &str, text: &str) -> Result<f64, InputError> {
+    text.parse::<f64>()
+        .ok()
+        .filter(|x| x.is_finite())
+        .ok_or_else(|| {
+            InputError::at(
+                path,
+                line,
+                column,
+                format!("'{text}' is not a finite number"),
+            )
+        })
+}
+
 /// Writes `path` through `fill`, atomically: the content goes to a temporary file in the same
 /// folder, which is renamed to `path` only if `fill` succeeds. The folder is created if missing.
 pub fn write_atomically<E>(

@@ -691,7 +691,7 @@ fn export_errors_name_the_parameters_file_and_what_is_missing() {
     let run = export();
     let err = String::from_utf8_lossy(&run.stderr);
     assert!(
-        err.contains("column estimate") && err.contains("`abc`"),
+        err.contains("column estimate") && err.contains("'abc'"),
         "{err}"
     );
     assert!(

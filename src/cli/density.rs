@@ -1,7 +1,7 @@
 //! `valuedrift density`: the first-passage engine on a table of trials, for checking a
 //! likelihood by hand.
 
-use crate::files::{InputError, write_atomically};
+use crate::files::{InputError, csv_rows, finite_number, write_atomically};
 use crate::first_passage::{Bound, DiffusionParams, cdf, ln_density};
 use std::io::Write;
 use std::path::Path;
@@ -42,25 +42,10 @@ fn compute(input: &Path) -> Result<Computed, InputError> {
     }
     let optional = OPTIONAL.map(find);
     let mut records = Vec::new();
-    for (index, record) in reader.records().enumerate() {
-        let line = index as u64 + 2;
-        let record = record.map_err(|e| InputError {
-            line: e.position().map(|p| p.line()).or(Some(line)),
-            ..InputError::file(input, format!("malformed CSV row: {e}"))
-        })?;
-        let number = |column: usize, name: &str| -> Result<f64, InputError> {
-            let text = record.get(column).unwrap_or("");
-            text.parse::<f64>()
-                .ok()
-                .filter(|x| x.is_finite())
-                .ok_or_else(|| {
-                    InputError::at(
-                        input,
-                        line,
-                        name,
-                        format!("'{text}' is not a finite number"),
-                    )
-                })
+    for row in csv_rows(input, &mut reader) {
+        let (line, record) = row?;
+        let number = |column: usize, name: &str| {
+            finite_number(input, line, name, record.get(column).unwrap_or(""))
         };
         let rt = number(required[0], "rt")?;
         let bound_text = record.get(required[1]).unwrap_or("");

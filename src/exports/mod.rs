@@ -249,19 +249,7 @@ pub fn read_estimates(
                 format!("`{name}` is not a parameter of model {}", model.name),
             ));
         };
-        let text = field(i_estimate);
-        let estimate: f64 = text
-            .parse()
-            .ok()
-            .filter(|x: &f64| x.is_finite())
-            .ok_or_else(|| {
-                InputError::at(
-                    path,
-                    line,
-                    "estimate",
-                    format!("`{text}` is not a finite number"),
-                )
-            })?;
+        let estimate = crate::files::finite_number(path, line, "estimate", field(i_estimate))?;
         let subject = field(i_subject).to_string();
         if found
             .entry(subject.clone())

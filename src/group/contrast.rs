@@ -26,7 +26,7 @@ use super::{
     HedgesG, KruskalWallis, MannWhitney, WelchAnova, WelchT, benjamini_hochberg, hedges_g,
     kruskal_wallis, mann_whitney_u, mean, variance, welch_anova, welch_t_test,
 };
-use crate::files::InputError;
+use crate::files::{InputError, csv_rows, finite_number};
 use crate::results::{Column, Table};
 use std::collections::{BTreeMap, BTreeSet};
 use std::path::Path;
@@ -80,12 +80,8 @@ pub fn read_estimates(path: &Path, model: &str, by: &str) -> Result<Vec<Estimate
     let mut models = BTreeSet::new();
     let mut seen: BTreeMap<(String, String), u64> = BTreeMap::new();
     let mut out = Vec::new();
-    for (index, record) in reader.records().enumerate() {
-        let line = index as u64 + 2;
-        let record = record.map_err(|e| InputError {
-            line: e.position().map(|p| p.line()).or(Some(line)),
-            ..InputError::file(path, format!("malformed CSV row: {e}"))
-        })?;
+    for row in csv_rows(path, &mut reader) {
+        let (line, record) = row?;
         let cell = |c: usize| record.get(c).unwrap_or("");
         let flag = |c: usize, name: &str| -> Result<bool, InputError> {
             match cell(c).to_ascii_lowercase().as_str() {
@@ -106,19 +102,7 @@ pub fn read_estimates(path: &Path, model: &str, by: &str) -> Result<Vec<Estimate
         if flag(fixed_c, "fixed")? {
             continue;
         }
-        let text = cell(estimate_c);
-        let estimate = text
-            .parse::<f64>()
-            .ok()
-            .filter(|x| x.is_finite())
-            .ok_or_else(|| {
-                InputError::at(
-                    path,
-                    line,
-                    "estimate",
-                    format!("'{text}' is not a finite number"),
-                )
-            })?;
+        let estimate = finite_number(path, line, "estimate", cell(estimate_c))?;
         let at_bound = flag(bound_c, "at_bound")?;
         let subject = cell(subject_c).to_string();
         if subject.is_empty() {

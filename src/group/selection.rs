@@ -21,7 +21,7 @@
 //! Special functions (ψ, ln Γ, the regularised incomplete beta I_x) come from `statrs`. Every
 //! exponential of a log evidence goes through log-sum-exp; no result is NaN.
 
-use crate::files::InputError;
+use crate::files::{InputError, csv_rows, finite_number};
 use crate::results::{Column, Table};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
@@ -106,22 +106,10 @@ pub fn read_fit_summary(path: &Path, by: &str) -> Result<Vec<FitRecord>, InputEr
     let laplace_c = header.iter().position(|h| h == "log_evidence_laplace");
     let mut seen: BTreeMap<(String, String), u64> = BTreeMap::new();
     let mut out = Vec::new();
-    for (index, record) in reader.records().enumerate() {
-        let line = index as u64 + 2;
-        let record = record.map_err(|e| InputError {
-            line: e.position().map(|p| p.line()).or(Some(line)),
-            ..InputError::file(path, format!("malformed CSV row: {e}"))
-        })?;
+    for row in csv_rows(path, &mut reader) {
+        let (line, record) = row?;
         let cell = |c: usize| record.get(c).unwrap_or("");
-        let number = |c: usize, name: &str| -> Result<f64, InputError> {
-            let text = cell(c);
-            text.parse::<f64>()
-                .ok()
-                .filter(|x| x.is_finite())
-                .ok_or_else(|| {
-                    InputError::at(path, line, name, format!("'{text}' is not a finite number"))
-                })
-        };
+        let number = |c: usize, name: &str| finite_number(path, line, name, cell(c));
         let count = |c: usize, name: &str| -> Result<i64, InputError> {
             let text = cell(c);
             text.parse::<i64>().ok().filter(|&x| x >= 0).ok_or_else(|| {
