@@ -82,6 +82,19 @@ pub fn open_csv(path: &Path) -> Result<(csv::Reader<std::fs::File>, Vec<String>)
     Ok((reader, header))
 }
 
+/// Index of column `name` in `header`, or an error naming the file and the columns found.
+pub fn column_index(path: &Path, header: &[String], name: &str) -> Result<usize, InputError> {
+    header.iter().position(|h| h == name).ok_or_else(|| {
+        InputError::file(
+            path,
+            format!(
+                "missing column '{name}' (found columns {})",
+                header.join(",")
+            ),
+        )
+    })
+}
+
 /// The data rows of an opened CSV file with their line numbers (the header is line 1, the
 /// first data row line 2); a malformed row is an error naming the file and its line.
 pub fn csv_rows<'r>(

@@ -130,21 +130,21 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
             serde_json::to_writer_pretty(w, &description)
         })?;
     }
-    for file in &events {
-        outputs.stage(&run.out.join(format!("{}.tsv", file.stem)), |w| {
-            file.write_tsv(w)
-        })?;
-        outputs.stage(&run.out.join(format!("{}.json", file.stem)), |w| {
-            serde_json::to_writer_pretty(w, &file.sidecar)
-        })?;
-    }
-    for file in &designs {
-        outputs.stage(&run.out.join(format!("{}.tsv", file.stem)), |w| {
-            file.write_tsv(w)
-        })?;
-        outputs.stage(&run.out.join(format!("{}.json", file.stem)), |w| {
-            serde_json::to_writer_pretty(w, &file.sidecar)
-        })?;
+    {
+        // Each events file and design matrix: a TSV and its JSON sidecar.
+        type Fill<'f> = &'f dyn Fn(&mut dyn std::io::Write) -> std::io::Result<()>;
+        let mut stage_pair = |stem: &str, sidecar: &serde_json::Value, fill: Fill<'_>| {
+            outputs.stage(&run.out.join(format!("{stem}.tsv")), fill)?;
+            outputs.stage(&run.out.join(format!("{stem}.json")), |w| {
+                serde_json::to_writer_pretty(w, sidecar)
+            })
+        };
+        for f in &events {
+            stage_pair(&f.stem, &f.sidecar, &|w| f.write_tsv(w))?;
+        }
+        for f in &designs {
+            stage_pair(&f.stem, &f.sidecar, &|w| f.write_tsv(w))?;
+        }
     }
     outputs.commit()?;
     println!(

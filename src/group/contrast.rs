@@ -50,17 +50,7 @@ pub struct Estimate {
 /// `by`. Errors name the file, line (header = line 1) and column.
 pub fn read_estimates(path: &Path, model: &str, by: &str) -> Result<Vec<Estimate>, InputError> {
     let (mut reader, header) = crate::files::open_csv(path)?;
-    let find = |name: &str| {
-        header.iter().position(|h| h == name).ok_or_else(|| {
-            InputError::file(
-                path,
-                format!(
-                    "missing column '{name}' (found columns {})",
-                    header.join(",")
-                ),
-            )
-        })
-    };
+    let find = |name: &str| crate::files::column_index(path, &header, name);
     let [
         subject_c,
         model_c,

@@ -83,17 +83,7 @@ pub struct FitRecord {
 /// line 1) and column.
 pub fn read_fit_summary(path: &Path, by: &str) -> Result<Vec<FitRecord>, InputError> {
     let (mut reader, header) = crate::files::open_csv(path)?;
-    let find = |name: &str| {
-        header.iter().position(|h| h == name).ok_or_else(|| {
-            InputError::file(
-                path,
-                format!(
-                    "missing column '{name}' (found columns {})",
-                    header.join(",")
-                ),
-            )
-        })
-    };
+    let find = |name: &str| crate::files::column_index(path, &header, name);
     let [subject_c, model_c, trials_c, params_c, aic_c, bic_c] = [
         find("subject")?,
         find("model")?,
