@@ -847,7 +847,7 @@ fn export_with_tr_and_scans_writes_one_design_matrix_per_run() {
                 .unwrap();
         assert_eq!(sidecar["RepetitionTime"], 2.0);
         assert_eq!(sidecar["NumberOfVolumes"], 70);
-        assert_eq!(sidecar["MicrotimeBinsPerScan"], 16);
+        assert_eq!(sidecar["TimeGridBinsPerScan"], 16);
         // Parameters as commonly used (Friston et al. 1998; Glover 1999).
         let response = &sidecar["HaemodynamicResponse"];
         assert_eq!(response["PeakShape"], 6.0);
@@ -895,7 +895,7 @@ fn design_matrices_warn_about_events_after_the_last_scan() {
         &std::fs::read_to_string(out.join("sub-01_run-1_desc-gainlosslinear_design.json")).unwrap(),
     )
     .unwrap();
-    assert_eq!(sidecar["MicrotimeBinsPerScan"], 8);
+    assert_eq!(sidecar["TimeGridBinsPerScan"], 8);
     // Trials at 102, 108 and 114 s: choice and outcome events after 100 s (orchard design).
     assert_eq!(sidecar["EventsAfterLastScan"], 6);
 }

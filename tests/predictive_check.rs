@@ -51,7 +51,7 @@ fn orchard_subjects(model: &Model, n: usize, trials: usize, seed: u64) -> Vec<Su
 /// Law of large numbers: over many one-step-ahead replicates (the check's own code path: choice
 /// stage → first-passage sampler), the mean simulated response time of a trial lies within 4
 /// standard errors of the engine's closed-form expected response time (Grasman, Wagenmakers &
-/// van der Maas 2009, eqs. 5, 7–8, plus ndt), for the trials with the smallest, a middle and the
+/// van der Maas 2009, plus ndt), for the trials with the smallest, a middle and the
 /// largest |drift|; and the share of choices of a against the probability of the upper bound.
 /// A 4-SE tolerance fails by chance with probability about 6e-5 per comparison.
 #[test]
@@ -290,6 +290,23 @@ fn check_writes_tables_and_figures_and_malformed_input_writes_nothing() {
     let quantiles = std::fs::read_to_string(out.join("check_quantiles.csv")).unwrap();
     assert!(quantiles.lines().any(|l| l.starts_with("pooled,")));
     assert!(quantiles.lines().next().unwrap().contains("predicted_low"));
+
+    // Fewer replicates than the fewest that give a band (MIN_REPLICATES = 10) are refused
+    // before anything is simulated or written (common practice: a 95 % band needs replicates).
+    let few = dir.path().join("few");
+    let refused = binary()
+        .args(["check", "--model", "delta-linear", "--sims", "5"])
+        .arg("--fits")
+        .arg(&fits)
+        .arg("--data")
+        .arg(&data)
+        .arg("--out")
+        .arg(&few)
+        .output()
+        .unwrap();
+    assert!(!refused.status.success());
+    assert!(String::from_utf8_lossy(&refused.stderr).contains("--sims 5"));
+    assert!(!few.exists());
 
     // A malformed response time: the error names file, line and column; nothing is written.
     let text = std::fs::read_to_string(&data).unwrap();

@@ -34,10 +34,11 @@ pub struct CheckRun<'a> {
 
 /// Reads, simulates, summarises and writes every output at once (nothing is written on error).
 pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
-    if run.settings.sims < 2 {
+    if run.settings.sims < crate::check::MIN_REPLICATES {
         return Err(format!(
-            "--sims {}: expected at least 2 replicate datasets (100 recommended)",
-            run.settings.sims
+            "--sims {}: expected at least {} replicate datasets (the fewest that give a band;              100 recommended)",
+            run.settings.sims,
+            crate::check::MIN_REPLICATES
         )
         .into());
     }

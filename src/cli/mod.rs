@@ -172,7 +172,7 @@ pub enum Command {
         /// Output folder.
         #[arg(long)]
         out: PathBuf,
-        /// Replicate datasets per subject.
+        /// Replicate datasets per subject (at least 10, the fewest that give a 95 % band).
         #[arg(long, default_value_t = 100)]
         sims: usize,
         /// Seed (each subject has its own stream of it).

@@ -1,11 +1,13 @@
 //! The canonical double-gamma haemodynamic response and design matrices for imaging analyses.
 //!
 //! The response to a brief neural event is modelled as the difference of two gamma densities
-//! (Friston et al. 1998; Glover 1999): a peak and a later, smaller undershoot,
+//! (Friston et al. 1998, NeuroImage 7:30–40; Glover 1999, NeuroImage 9:416–429): a peak and a
+//! later, smaller undershoot,
 //!
 //! h(t) = t^(a1−1) b1^a1 e^(−b1 t) / Γ(a1) − c · t^(a2−1) b2^a2 e^(−b2 t) / Γ(a2),  t > 0,
 //!
-//! with the parameters as commonly used ([`DoubleGamma::CANONICAL`]): peak shape a1 = 6,
+//! with the parameter values of common practice ([`DoubleGamma::CANONICAL`]; Glover's own
+//! fitted values differ, from memory): peak shape a1 = 6,
 //! undershoot shape a2 = 16, rates b1 = b2 = 1 s⁻¹ (scale 1 s), undershoot ratio c = 1/6,
 //! truncated at 32 s. Each gamma density is computed in log space (ln Γ from `statrs`).
 //!
@@ -53,7 +55,8 @@ fn ln_gamma_density(t: f64, shape: f64, rate: f64) -> f64 {
 }
 
 impl DoubleGamma {
-    /// The parameters as commonly used (Friston et al. 1998; Glover 1999): a1 = 6, a2 = 16,
+    /// The parameter values of common practice (the form: Friston et al. 1998; Glover 1999):
+    /// a1 = 6, a2 = 16,
     /// b1 = b2 = 1 s⁻¹, c = 1/6, kernel length 32 s.
     pub const CANONICAL: DoubleGamma = DoubleGamma {
         peak_shape: 6.0,
@@ -114,11 +117,23 @@ impl DoubleGamma {
     /// The kernel on a microtime grid of step δ = `dt` seconds, normalised to unit area on the
     /// grid: k_j = h(j δ) / (δ Σ_i h(i δ)), j = 0 … ⌊length/δ⌋, so that δ Σ_j k_j = 1 and a
     /// sustained unit input gives a response of 1 (Friston et al. 1998 for h; normalisation as
-    /// commonly used). `dt` must be positive.
+    /// commonly used).
+    ///
+    /// # Panics
+    /// When `dt` is not a finite positive number or the kernel has no positive area on the grid
+    /// (the command line validates the TR and bins before calling this).
     pub fn sampled(&self, dt: f64) -> Vec<f64> {
+        assert!(
+            dt.is_finite() && dt > 0.0,
+            "microtime step {dt} must be > 0"
+        );
         let last = (self.length / dt + 1e-9).floor() as usize;
         let raw: Vec<f64> = (0..=last).map(|j| self.value(j as f64 * dt)).collect();
         let area = dt * raw.iter().sum::<f64>();
+        assert!(
+            area.is_finite() && area > 0.0,
+            "kernel area {area} on the grid"
+        );
         raw.into_iter().map(|h| h / area).collect()
     }
 }
@@ -371,12 +386,12 @@ pub fn design_file(
         "NumberOfVolumes": timing.scans,
         "SamplingTime": "start of each scan: row n (0-based) is t = n · RepetitionTime seconds \
                          from the start of the first volume (reference: the first acquired slice)",
-        "MicrotimeBinsPerScan": timing.bins,
-        "MicrotimeResolution": timing.dt(),
+        "TimeGridBinsPerScan": timing.bins,
+        "TimeGridStep": timing.dt(),
         "HaemodynamicResponse": {
             "Form": "canonical double gamma: h(t) = t^(a1-1) b1^a1 exp(-b1 t) / Gamma(a1) \
                      - c t^(a2-1) b2^a2 exp(-b2 t) / Gamma(a2)",
-            "Sources": "Friston et al. 1998; Glover 1999 (parameters as commonly used)",
+            "Sources": "double-gamma form: Friston et al. 1998; Glover 1999; parameter values: common practice",
             "PeakShape": hrf.peak_shape,
             "PeakRate": hrf.peak_rate,
             "UndershootShape": hrf.undershoot_shape,

@@ -13,7 +13,8 @@
 //! until max_j max(|Δμ_j|, |Δσ_j|) is below the tolerance. The fitted prior then gives the
 //! shrunken estimates θ̂_i and, by sampling θ from it, the integrated BIC
 //! iBIC = −2 Σ_i ln[(1/S) Σ_s p(y_i | θ_s)] + 2k ln n (k free parameters, so 2k group
-//! parameters; n trials in all; Huys et al. 2011, eq. 12).
+//! parameters; n trials in all; Huys et al. 2011). Subject i's draws come from stream i of the
+//! seeded generator.
 //!
 //! Non-decision time has a subject-specific upper bound (below the fastest response), so its θ
 //! means "position between 0 and that bound"; natural-scale group summaries of ndt use the median
@@ -51,6 +52,9 @@ impl Default for EmOptions {
         }
     }
 }
+
+/// Stream of the draws behind the natural-scale summaries (subjects use streams 0, 1, …).
+const SUMMARY_STREAM: u64 = u64::MAX;
 
 /// Smallest group variance on the unconstrained scale: keeps the prior proper when every
 /// subject agrees (common practice).
@@ -135,6 +139,16 @@ pub fn fit_group(
     em: &EmOptions,
     progress: EmProgress<'_>,
 ) -> Result<GroupFit, DataMismatch> {
+    if subjects.is_empty() || subjects.len() != initial.len() {
+        return Err(DataMismatch {
+            subject: format!("scope {scope}"),
+            message: format!(
+                "{} subjects with {} initial fits: a group prior needs subjects, each with its fit",
+                subjects.len(),
+                initial.len()
+            ),
+        });
+    }
     let likelihoods: Vec<SubjectLikelihood<'_>> = subjects
         .iter()
         .map(|(_, s)| SubjectLikelihood::new(model, s, options.deadline))
@@ -176,11 +190,31 @@ pub fn fit_group(
     // The reported fits are the modes under the final prior.
     fits = e_step(&likelihoods, &prior, &modes, options);
     let subjects_without_covariance = fits.iter().filter(|f| f.covariance_theta.is_none()).count();
-    let samples = prior_samples(&prior, em.ibic_samples, em.seed, subjects[0].0 as u64);
+    // Each subject's draws come from its own stream, so the Monte Carlo errors are independent
+    // and add in quadrature.
     let marginals: Vec<(f64, f64)> = likelihoods
         .par_iter()
-        .map(|lik| sampled_log_marginal(lik, &samples))
+        .zip(subjects)
+        .map(|(lik, &(index, _))| {
+            let samples = prior_samples(&prior, em.ibic_samples, em.seed, index as u64);
+            sampled_log_marginal(lik, &samples)
+        })
         .collect();
+    if let Some(((_, subject), _)) = subjects
+        .iter()
+        .zip(&marginals)
+        .find(|(_, m)| !m.0.is_finite())
+    {
+        return Err(DataMismatch {
+            subject: subject.id.clone(),
+            message: format!(
+                "no draw from the fitted group prior of model {} gives a finite likelihood,                  so the integrated BIC is undefined (try more --ibic-samples)",
+                model.name
+            ),
+        });
+    }
+    // The natural-scale summaries of the group distribution use a stream of their own.
+    let samples = prior_samples(&prior, em.ibic_samples, em.seed, SUMMARY_STREAM);
     let log_marginal_likelihood: f64 = marginals.iter().map(|m| m.0).sum();
     let log_marginal_likelihood_se = marginals.iter().map(|m| m.1 * m.1).sum::<f64>().sqrt();
     let n_trials: usize = likelihoods.iter().map(|l| l.n_observations()).sum();

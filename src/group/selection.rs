@@ -246,9 +246,8 @@ pub fn assemble(
     };
     let unknown: Vec<&str> = models
         .iter()
-        .zip(all_models.iter().map(|m| data_kind(m)))
-        .filter(|(_, k)| *k == DataKind::Unknown)
-        .map(|(m, _)| m.as_str())
+        .filter(|m| data_kind(m) == DataKind::Unknown)
+        .map(String::as_str)
         .collect();
     if !unknown.is_empty() {
         notes.push(format!(
@@ -731,9 +730,12 @@ pub struct Selection {
     pub difference: Option<GroupDifference>,
 }
 
+/// Scope label of the pooled comparison over all subjects.
+pub const POOLED_SCOPE: &str = "all";
+
 /// Runs [`random_effects_bms`] on all subjects (scope `all`, stream 0) and, with two or more
 /// groups, on each group (streams 1, 2, … in byte order of the labels), and the between-group
-/// test.
+/// test. A group labelled [`POOLED_SCOPE`] is refused.
 pub fn select(
     comparison: Comparison,
     evidence: Evidence,
@@ -747,7 +749,12 @@ pub fn select(
         },
     )?;
     let labels: BTreeSet<&str> = comparison.groups.iter().map(String::as_str).collect();
-    let mut scopes = vec![("all".to_string(), pooled)];
+    if labels.len() >= 2 && labels.contains(POOLED_SCOPE) {
+        return Err(format!(
+            "a group is labelled '{POOLED_SCOPE}', the name of the pooled scope: relabel it"
+        ));
+    }
+    let mut scopes = vec![(POOLED_SCOPE.to_string(), pooled)];
     if labels.len() >= 2 {
         for (index, label) in labels.iter().enumerate() {
             let rows: Vec<Vec<f64>> = comparison

@@ -11,6 +11,11 @@ Implements, independently of the Rust code and with numpy/scipy only:
     standard error sqrt(xp (1 - xp) / draws) is written beside each value) and, for two models,
     exactly as 1 - I_{1/2}(alpha_1, alpha_2) with scipy.special.betainc.
 
+Limitation: F1 here follows the same expansion of the free energy as the Rust code (expected
+log joint + entropy − KL of the Dirichlets), so it is a second implementation, not a second
+derivation; tests/model_selection.rs also checks F1 against the exactly summed evidence (a lower
+bound, equal when the assignments are certain).
+
 The log-evidence matrices are drawn here from a seeded generator and written into the table,
 so the Rust test reads its inputs and the expected outputs from the same committed file.
 
