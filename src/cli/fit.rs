@@ -7,7 +7,8 @@ use crate::fit::{
 };
 use crate::model::{Model, load_model};
 use crate::results::{
-    EstimateSource, group_evidence_table, group_prior_table, parameters_table, summary_table,
+    EstimateSource, group_correlation_table, group_evidence_table, group_prior_table,
+    parameters_table, summary_table,
 };
 use indicatif::{ProgressBar, ProgressStyle};
 use sha2::{Digest, Sha256};
@@ -170,6 +171,7 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             "tolerance": settings.em.tolerance,
             "max_iterations": settings.em.max_iterations,
             "ibic_samples": settings.em.ibic_samples,
+            "full_covariance": settings.em.full_covariance,
             "seed": settings.em.seed,
         });
         let shrunken: Vec<SubjectFit> = groups.iter().flat_map(|g| g.subjects.clone()).collect();
@@ -185,6 +187,13 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         )?;
         group_prior_table(&groups).stage_both(&mut outputs, run.out, "eb_group_priors")?;
         group_evidence_table(&groups).stage_both(&mut outputs, run.out, "eb_model_evidence")?;
+        if settings.em.full_covariance {
+            group_correlation_table(&groups).stage_both(
+                &mut outputs,
+                run.out,
+                "eb_group_correlations",
+            )?;
+        }
     }
     outputs.stage(&run.out.join("run.json"), |w| {
         serde_json::to_writer_pretty(w, &record)

@@ -97,6 +97,10 @@ pub enum Command {
         /// Draws from the fitted group prior per subject for the integrated BIC.
         #[arg(long, default_value_t = 2000, requires = "hierarchical")]
         ibic_samples: usize,
+        /// With --hierarchical: estimate the full covariance of the group prior (correlated
+        /// parameters; writes eb_group_correlations.csv) instead of only the variances.
+        #[arg(long, requires = "hierarchical")]
+        full_covariance: bool,
     },
     /// Per-trial latent variables of a fitted model for imaging analyses: values, subjective
     /// values, value difference, prediction errors, drift, choice probability and expected times
@@ -334,6 +338,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             em_tolerance,
             em_iterations,
             ibic_samples,
+            full_covariance,
         } => {
             let columns = fit::column_map(&columns, by.as_deref())?;
             if !(em_tolerance.is_finite() && em_tolerance > 0.0) {
@@ -363,6 +368,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                         max_iterations: em_iterations.max(1),
                         ibic_samples: ibic_samples.max(2),
                         seed,
+                        full_covariance,
                     },
                     models: Vec::new(),
                 }),

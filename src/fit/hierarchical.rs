@@ -2,18 +2,20 @@
 //! (Huys et al. 2011, PLoS Comput Biol 7:e1002028; the same scheme as in Daw 2011).
 //!
 //! The free parameters of subject i on the unconstrained scale, θ_i, are taken to come from a
-//! Gaussian group distribution N(μ, diag σ²). Starting from μ, σ² of the per-subject maximum-
-//! likelihood fits, the two steps alternate:
+//! Gaussian group distribution N(μ, Σ), Σ diagonal by default (Σ = diag σ²) or full. Starting
+//! from the spread of the per-subject maximum-likelihood fits, the two steps alternate:
 //!
 //! - E-step: each subject's posterior mode θ̂_i = argmax ln p(y_i | θ) + ln N(θ; μ, σ²) (L-BFGS
 //!   from the previous mode and from μ) and its covariance Σ_i, the inverse Hessian of the
 //!   negative log-posterior there (Laplace approximation);
-//! - M-step: μ_j = (1/N) Σ_i θ̂_ij and σ_j² = (1/N) Σ_i [(θ̂_ij − μ_j)² + (Σ_i)_jj].
+//! - M-step: μ = (1/N) Σ_i θ̂_i and Σ = (1/N) Σ_i [(θ̂_i − μ)(θ̂_i − μ)ᵀ + Σ_i], only the
+//!   diagonal when Σ is diagonal (σ_j² = (1/N) Σ_i [(θ̂_ij − μ_j)² + (Σ_i)_jj]);
 //!
-//! until max_j max(|Δμ_j|, |Δσ_j|) is below the tolerance. The fitted prior then gives the
+//! until no group mean, standard deviation or (full Σ) scaled covariance moves by more than the
+//! tolerance. The fitted prior then gives the
 //! shrunken estimates θ̂_i and, by sampling θ from it, the integrated BIC
-//! iBIC = −2 Σ_i ln[(1/S) Σ_s p(y_i | θ_s)] + 2k ln n (k free parameters, so 2k group
-//! parameters; n trials in all; Huys et al. 2011). Subject i's draws come from stream i of the
+//! iBIC = −2 Σ_i ln[(1/S) Σ_s p(y_i | θ_s)] + m ln n (m group parameters: 2k for k free
+//! parameters with diagonal Σ, k + k(k+1)/2 with full Σ; n trials in all; Huys et al. 2011). Subject i's draws come from stream i of the
 //! seeded generator.
 //!
 //! Non-decision time has a subject-specific upper bound (below the fastest response), so its θ
@@ -26,7 +28,6 @@ use crate::likelihood::{DataMismatch, GroupPrior, SubjectLikelihood};
 use crate::model::{Model, Transform};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
-use rand_distr::{Distribution, StandardNormal};
 use rayon::prelude::*;
 
 /// Settings of the expectation–maximisation.
@@ -40,6 +41,9 @@ pub struct EmOptions {
     pub ibic_samples: usize,
     /// Seed of those samples.
     pub seed: u64,
+    /// Estimate the full covariance of the group prior (correlated parameters) rather than
+    /// only the variances.
+    pub full_covariance: bool,
 }
 
 impl Default for EmOptions {
@@ -49,6 +53,7 @@ impl Default for EmOptions {
             max_iterations: 200,
             ibic_samples: 2000,
             seed: 1,
+            full_covariance: false,
         }
     }
 }
@@ -119,6 +124,8 @@ pub struct GroupFit {
     pub log_marginal_likelihood_se: f64,
     /// Σ_i of the per-subject Laplace approximations of ln p(y_i | μ, σ²).
     pub log_marginal_laplace: Option<f64>,
+    /// Group parameters counted by the integrated BIC (means, variances, covariances).
+    pub n_group_parameters: usize,
     /// Integrated BIC.
     pub ibic: f64,
 }
@@ -163,11 +170,11 @@ pub fn fit_group(
                 .collect()
         })
         .collect();
-    let initial_cov: Vec<Option<Vec<f64>>> = initial
+    let initial_cov: Vec<Option<&Vec<Vec<f64>>>> = initial
         .iter()
-        .map(|f| f.covariance_theta.as_ref().map(|c| diagonal(c)))
+        .map(|f| f.covariance_theta.as_ref())
         .collect();
-    let mut prior = m_step(&modes, &initial_cov, None, k);
+    let mut prior = m_step(&modes, &initial_cov, None, k, em.full_covariance);
     let mut iterations = 0;
     let mut last_change;
     let mut fits: Vec<SubjectFit>;
@@ -175,11 +182,9 @@ pub fn fit_group(
         iterations += 1;
         fits = e_step(&likelihoods, &prior, &modes, options);
         modes = fits.iter().map(|f| f.theta.clone()).collect();
-        let covariances: Vec<Option<Vec<f64>>> = fits
-            .iter()
-            .map(|f| f.covariance_theta.as_ref().map(|c| diagonal(c)))
-            .collect();
-        let next = m_step(&modes, &covariances, Some(&prior), k);
+        let covariances: Vec<Option<&Vec<Vec<f64>>>> =
+            fits.iter().map(|f| f.covariance_theta.as_ref()).collect();
+        let next = m_step(&modes, &covariances, Some(&prior), k, em.full_covariance);
         last_change = change(&prior, &next);
         progress(&model.name, scope, iterations, last_change);
         prior = next;
@@ -218,7 +223,12 @@ pub fn fit_group(
     let log_marginal_likelihood: f64 = marginals.iter().map(|m| m.0).sum();
     let log_marginal_likelihood_se = marginals.iter().map(|m| m.1 * m.1).sum::<f64>().sqrt();
     let n_trials: usize = likelihoods.iter().map(|l| l.n_observations()).sum();
-    let ibic = -2.0 * log_marginal_likelihood + 2.0 * k as f64 * (n_trials as f64).ln();
+    let n_group_parameters = if prior.is_diagonal() && !em.full_covariance {
+        2 * k
+    } else {
+        k + k * (k + 1) / 2
+    };
+    let ibic = -2.0 * log_marginal_likelihood + n_group_parameters as f64 * (n_trials as f64).ln();
     let log_marginal_laplace = fits.iter().map(|f| f.log_evidence).sum::<Option<f64>>();
     let parameters = summarise_parameters(model, &likelihoods, &prior, &fits, &samples);
     Ok(GroupFit {
@@ -235,12 +245,9 @@ pub fn fit_group(
         log_marginal_likelihood,
         log_marginal_likelihood_se,
         log_marginal_laplace,
+        n_group_parameters,
         ibic,
     })
-}
-
-fn diagonal(c: &[Vec<f64>]) -> Vec<f64> {
-    (0..c.len()).map(|j| c[j][j]).collect()
 }
 
 /// Posterior modes under `prior`, from the previous mode and from the prior mean.
@@ -265,66 +272,72 @@ fn e_step(
         .collect()
 }
 
-/// μ_j = mean θ̂_ij; σ_j² = mean[(θ̂_ij − μ_j)² + (Σ_i)_jj] (Huys et al. 2011). A subject
-/// without a covariance contributes the previous prior variance (it is taken as uninformative
-/// about its deviation); before any prior exists, the spread of the modes alone.
+/// μ = mean θ̂_i; Σ = mean[(θ̂_i − μ)(θ̂_i − μ)ᵀ + Σ_i] (Huys et al. 2011), with the
+/// off-diagonal terms set to 0 unless `full`. A subject without a covariance contributes the
+/// previous prior covariance (it is taken as uninformative about its deviation); before any
+/// prior exists, the spread of the modes alone. Variances are floored at [`MIN_VARIANCE`]; a
+/// full estimate that is not positive definite falls back to its diagonal.
 fn m_step(
     modes: &[Vec<f64>],
-    covariances: &[Option<Vec<f64>>],
+    covariances: &[Option<&Vec<Vec<f64>>>],
     previous: Option<&GroupPrior>,
     k: usize,
+    full: bool,
 ) -> GroupPrior {
     let n = modes.len() as f64;
     let mean: Vec<f64> = (0..k)
         .map(|j| modes.iter().map(|m| m[j]).sum::<f64>() / n)
         .collect();
-    let variance: Vec<f64> = (0..k)
-        .map(|j| {
-            let total: f64 = modes
-                .iter()
-                .zip(covariances)
-                .map(|(m, c)| {
-                    let own = match (c, previous) {
-                        (Some(c), _) => c[j],
-                        (None, Some(p)) => p.variance[j],
-                        (None, None) => 0.0,
-                    };
-                    (m[j] - mean[j]).powi(2) + own
-                })
-                .sum();
-            (total / n).max(MIN_VARIANCE)
-        })
-        .collect();
-    GroupPrior { mean, variance }
+    let mut scatter = vec![vec![0.0; k]; k];
+    for (m, c) in modes.iter().zip(covariances) {
+        let own: Option<&Vec<Vec<f64>>> = c.or(previous.map(|p| &p.covariance));
+        for j in 0..k {
+            for l in 0..k {
+                if j != l && !full {
+                    continue;
+                }
+                let c_jl = own.map_or(0.0, |c| c[j][l]);
+                scatter[j][l] += ((m[j] - mean[j]) * (m[l] - mean[l]) + c_jl) / n;
+            }
+        }
+    }
+    for (j, row) in scatter.iter_mut().enumerate() {
+        row[j] = row[j].max(MIN_VARIANCE);
+    }
+    let variance: Vec<f64> = (0..k).map(|j| scatter[j][j]).collect();
+    let diagonal = || GroupPrior::diagonal(mean.clone(), variance.clone()).expect("variances > 0");
+    if full {
+        GroupPrior::full(mean.clone(), scatter).unwrap_or_else(diagonal)
+    } else {
+        diagonal()
+    }
 }
 
+/// Largest change of a group mean, a group standard deviation or (full covariance) a
+/// covariance scaled by the new standard deviations.
 fn change(a: &GroupPrior, b: &GroupPrior) -> f64 {
-    let means = a.mean.iter().zip(&b.mean).map(|(x, y)| (x - y).abs());
-    let sds = a
-        .variance
-        .iter()
-        .zip(&b.variance)
-        .map(|(x, y)| (x.sqrt() - y.sqrt()).abs());
-    means.chain(sds).fold(0.0, f64::max)
+    let k = a.dimension();
+    let mut largest: f64 = 0.0;
+    for j in 0..k {
+        largest = largest.max((a.mean[j] - b.mean[j]).abs());
+        for l in 0..k {
+            let (x, y) = (a.covariance[j][l], b.covariance[j][l]);
+            let delta = if j == l {
+                (x.sqrt() - y.sqrt()).abs()
+            } else {
+                (x - y).abs() / (b.covariance[j][j] * b.covariance[l][l]).sqrt()
+            };
+            largest = largest.max(delta);
+        }
+    }
+    largest
 }
 
-/// S draws θ_s ~ N(μ, diag σ²) from a seeded generator.
+/// S draws θ_s ~ N(μ, Σ) from a seeded generator (stream `stream`).
 fn prior_samples(prior: &GroupPrior, n: usize, seed: u64, stream: u64) -> Vec<Vec<f64>> {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     rng.set_stream(stream);
-    (0..n.max(1))
-        .map(|_| {
-            prior
-                .mean
-                .iter()
-                .zip(&prior.variance)
-                .map(|(m, v)| {
-                    let z: f64 = StandardNormal.sample(&mut rng);
-                    m + v.sqrt() * z
-                })
-                .collect()
-        })
-        .collect()
+    (0..n.max(1)).map(|_| prior.sample(&mut rng)).collect()
 }
 
 /// ln[(1/S) Σ_s p(y | θ_s)] by log-sum-exp, with its Monte Carlo standard error by the delta
@@ -362,7 +375,7 @@ fn summarise_parameters(
         .enumerate()
         .map(|(j, &slot)| {
             let transform = reference_transform(likelihoods, j);
-            let (mu, var) = (prior.mean[j], prior.variance[j]);
+            let (mu, var) = (prior.mean[j], prior.covariance[j][j]);
             let precision: f64 = fits
                 .iter()
                 .map(|f| {

@@ -8,6 +8,10 @@
 //! feedback r, Q(chosen) ← rule(Q(chosen), r) and, with forgetting, every other option
 //! Q ← Q + forget_rate·(initial_value − Q).
 
+mod group_prior;
+
+pub use group_prior::GroupPrior;
+
 use crate::data::{Choice, Subject, Trial};
 use crate::model::components::{Observation, SubjectContext};
 use crate::model::dual::{D, MAX_FREE, chain, constant, gradient};
@@ -69,31 +73,6 @@ pub struct SubjectLikelihood<'a> {
     transforms: Vec<Transform>,
     /// A Gaussian prior on θ that replaces the declared priors (empirical Bayes).
     group_prior: Option<GroupPrior>,
-}
-
-/// A Gaussian prior on the unconstrained parameters with diagonal covariance,
-/// θ_j ~ N(mean_j, variance_j) independently (the group level of Huys et al. 2011).
-#[derive(Clone, Debug, PartialEq)]
-pub struct GroupPrior {
-    /// Mean of each free parameter on the unconstrained scale.
-    pub mean: Vec<f64>,
-    /// Variance of each (> 0).
-    pub variance: Vec<f64>,
-}
-
-impl GroupPrior {
-    /// ln N(θ; μ, diag σ²) = Σ_j −½[(θ_j − μ_j)²/σ_j² + ln(2π σ_j²)] and its gradient
-    /// −(θ_j − μ_j)/σ_j² (the normal density; e.g. Bishop 2006, eq. 2.43).
-    pub fn ln_density_with_gradient(&self, theta: &[f64]) -> (f64, Vec<f64>) {
-        let mut value = 0.0;
-        let mut slope = Vec::with_capacity(theta.len());
-        for ((&t, &m), &v) in theta.iter().zip(&self.mean).zip(&self.variance) {
-            let d = t - m;
-            value -= 0.5 * (d * d / v + (std::f64::consts::TAU * v).ln());
-            slope.push(-d / v);
-        }
-        (value, slope)
-    }
 }
 
 /// Upper limit of ndt relative to the fastest response: the density is zero below ndt.
@@ -168,8 +147,7 @@ impl<'a> SubjectLikelihood<'a> {
 
     /// The same likelihood with a Gaussian prior on θ in place of the model's declared priors.
     pub fn with_group_prior(mut self, prior: GroupPrior) -> Self {
-        assert_eq!(prior.mean.len(), self.free.len());
-        assert_eq!(prior.variance.len(), self.free.len());
+        assert_eq!(prior.dimension(), self.free.len());
         self.group_prior = Some(prior);
         self
     }

@@ -232,7 +232,7 @@ pub fn group_evidence_table(groups: &[crate::fit::GroupFit]) -> Table {
         .with("scope", text(|g| g.scope.clone()))
         .with("n_subjects", integer(|g| g.subjects.len()))
         .with("n_trials", integer(|g| g.n_trials))
-        .with("n_group_parameters", integer(|g| 2 * g.parameters.len()))
+        .with("n_group_parameters", integer(|g| g.n_group_parameters))
         .with(
             "log_marginal_likelihood",
             number(|g| Some(g.log_marginal_likelihood)),
@@ -285,4 +285,37 @@ impl EstimateSource {
     pub fn parameters_file(self, dir: &Path) -> std::path::PathBuf {
         dir.join(format!("{}.csv", self.parameters_stem()))
     }
+}
+
+/// One row per model, scope and pair of free parameters of empirical-Bayes fits with a full
+/// covariance: the covariance Σ_jl of the group distribution on the unconstrained scale and the
+/// correlation Σ_jl / √(Σ_jj Σ_ll).
+pub fn group_correlation_table(groups: &[crate::fit::GroupFit]) -> Table {
+    let mut text: [Vec<String>; 4] = Default::default();
+    let (mut covariance, mut correlation) = (Vec::new(), Vec::new());
+    for g in groups.iter().filter(|g| !g.prior.is_diagonal()) {
+        let c = &g.prior.covariance;
+        for j in 0..g.parameters.len() {
+            for l in j + 1..g.parameters.len() {
+                for (column, value) in text.iter_mut().zip([
+                    &g.model,
+                    &g.scope,
+                    &g.parameters[j].name,
+                    &g.parameters[l].name,
+                ]) {
+                    column.push(value.clone());
+                }
+                covariance.push(Some(c[j][l]));
+                correlation.push(Some(c[j][l] / (c[j][j] * c[l][l]).sqrt()));
+            }
+        }
+    }
+    let [model, scope, first, second] = text;
+    Table::default()
+        .with("model", Column::Text(model))
+        .with("scope", Column::Text(scope))
+        .with("parameter_1", Column::Text(first))
+        .with("parameter_2", Column::Text(second))
+        .with("covariance", Column::Number(covariance))
+        .with("correlation", Column::Number(correlation))
 }
