@@ -5,38 +5,25 @@ use crate::check::{
     CheckSettings, FLAG_FRACTION, Mode, POOLED, check_subjects, choices_table, misfit,
     misfit_table, pooled, quantiles_table, ranked_misfits,
 };
-use crate::data::{ColumnMap, read_trials};
-use crate::exports::read_estimates;
 use crate::files::OutputSet;
-use crate::model::load_model;
-use std::path::Path;
 
 /// Subjects, worst first by rms z, that get figures of their own.
 const WORST_FIGURES: usize = 3;
 
 /// Everything `check` needs, resolved from the command line.
 pub struct CheckRun<'a> {
-    /// Folder holding parameters.csv from `valuedrift fit`.
-    pub fits: &'a Path,
-    /// Trial table.
-    pub data: &'a Path,
-    /// Model name or file.
-    pub model: &'a str,
-    /// Output folder.
-    pub out: &'a Path,
+    /// Fit folder, trial table, model, output folder, column mapping and estimates.
+    pub input: &'a super::FittedRun,
     /// Replicate datasets per subject, seed and deadline.
     pub settings: CheckSettings,
-    /// Column mapping of the trial table (canonical=file pairs).
-    pub columns: &'a str,
-    /// Per-subject or empirical-Bayes estimates.
-    pub estimates: crate::results::EstimateSource,
 }
 
 /// Reads, simulates, summarises and writes every output at once (nothing is written on error).
 pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
+    let out = run.input.out.as_path();
     if run.settings.sims < crate::check::MIN_REPLICATES {
         return Err(format!(
-            "--sims {}: expected at least {} replicate datasets (the fewest that give a band;              100 recommended)",
+            "--sims {}: expected at least {} replicate datasets (the fewest that give a band; 100 recommended)",
             run.settings.sims,
             crate::check::MIN_REPLICATES
         )
@@ -47,14 +34,7 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     {
         return Err(format!("--deadline {d}: expected a number of seconds > 0").into());
     }
-    let columns = ColumnMap::parse(run.columns).map_err(|e| format!("--columns: {e}"))?;
-    let table = read_trials(run.data, &columns)?;
-    let model = load_model(run.model.trim())?;
-    let estimates = read_estimates(
-        &run.estimates.parameters_file(run.fits),
-        &model,
-        &table.subjects,
-    )?;
+    let (table, model, estimates) = run.input.load()?;
     let bar = super::fit::progress_bar(table.subjects.len(), "simulating");
     let checks = check_subjects(&model, &estimates, &table.subjects, &run.settings, &|| {
         bar.inc(1)
@@ -62,17 +42,17 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     bar.finish_and_clear();
     let pooled = pooled(&checks);
     let mut outputs = OutputSet::new();
-    choices_table(&checks, &pooled).stage_both(&mut outputs, run.out, "check_choices")?;
+    choices_table(&checks, &pooled).stage_both(&mut outputs, out, "check_choices")?;
     let rt_figure = rt_quantile_figure(&pooled, POOLED)?;
     if let Some(svg) = &rt_figure {
-        quantiles_table(&checks, &pooled).stage_both(&mut outputs, run.out, "check_quantiles")?;
-        outputs.stage(&run.out.join("check_rt_quantiles.svg"), |w| {
+        quantiles_table(&checks, &pooled).stage_both(&mut outputs, out, "check_quantiles")?;
+        outputs.stage(&out.join("check_rt_quantiles.svg"), |w| {
             w.write_all(svg.as_bytes())
         })?;
     }
-    misfit_table(&checks).stage_both(&mut outputs, run.out, "check_misfit")?;
+    misfit_table(&checks).stage_both(&mut outputs, out, "check_misfit")?;
     let svg = choice_figure(&pooled, POOLED)?;
-    outputs.stage(&run.out.join("check_choices.svg"), |w| {
+    outputs.stage(&out.join("check_choices.svg"), |w| {
         w.write_all(svg.as_bytes())
     })?;
     let ranked = ranked_misfits(&checks);
@@ -80,13 +60,12 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         let scope = format!("subject {} (misfit rank {})", check.subject, rank + 1);
         let svg = choice_figure(&check.statistics, &scope)?;
         outputs.stage(
-            &run.out.join(format!("check_worst{}_choices.svg", rank + 1)),
+            &out.join(format!("check_worst{}_choices.svg", rank + 1)),
             |w| w.write_all(svg.as_bytes()),
         )?;
         if let Some(svg) = rt_quantile_figure(&check.statistics, &scope)? {
             outputs.stage(
-                &run.out
-                    .join(format!("check_worst{}_rt_quantiles.svg", rank + 1)),
+                &out.join(format!("check_worst{}_rt_quantiles.svg", rank + 1)),
                 |w| w.write_all(svg.as_bytes()),
             )?;
         }
@@ -139,7 +118,7 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
             model.name
         );
     }
-    println!("outputs in {}", run.out.display());
+    println!("outputs in {}", out.display());
     println!("{}", super::RESEARCH_CAUTION);
     Ok(())
 }

@@ -2,34 +2,22 @@
 //! events files with parametric modulators and, given the scan timing, design matrices of the
 //! events convolved with the haemodynamic response, for imaging analyses.
 
-use crate::data::{ColumnMap, read_trials};
 use crate::exports::hrf::{DesignFile, DoubleGamma, Timing, design_file};
 use crate::exports::{
     Scale, bids_label, bids_labels, dataset_description, events_files, labels_table, latents,
-    latents_table, read_estimates,
+    latents_table,
 };
 use crate::files::OutputSet;
-use crate::model::load_model;
 use std::path::Path;
 
 /// Everything `export` needs, resolved from the command line.
 pub struct ExportRun<'a> {
-    /// Folder holding parameters.csv from `valuedrift fit`.
-    pub fits: &'a Path,
-    /// Trial table.
-    pub data: &'a Path,
-    /// Model name or file.
-    pub model: &'a str,
-    /// Output folder.
-    pub out: &'a Path,
+    /// Fit folder, trial table, model, output folder, column mapping and estimates.
+    pub input: &'a super::FittedRun,
     /// Scaling of the modulators in the events files.
     pub scale: Scale,
-    /// Column mapping of the trial table (canonical=file pairs).
-    pub columns: &'a str,
     /// Scan timing for design matrices (None: no design matrices).
     pub timing: Option<Timing>,
-    /// Per-subject or empirical-Bayes estimates.
-    pub estimates: crate::results::EstimateSource,
     /// BIDS task label for the file names, if any.
     pub task: Option<&'a str>,
 }
@@ -73,6 +61,7 @@ pub fn timing(
 
 /// Reads, computes and writes every output at once (nothing is written on error).
 pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
+    let out = run.input.out.as_path();
     if let Some(task) = run.task
         && bids_label(task).as_deref() != Some(task)
     {
@@ -81,14 +70,7 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         )
         .into());
     }
-    let columns = ColumnMap::parse(run.columns).map_err(|e| format!("--columns: {e}"))?;
-    let table = read_trials(run.data, &columns)?;
-    let model = load_model(run.model.trim())?;
-    let estimates = read_estimates(
-        &run.estimates.parameters_file(run.fits),
-        &model,
-        &table.subjects,
-    )?;
+    let (table, model, estimates) = run.input.load()?;
     let labels = bids_labels(&table.subjects)?;
     let has_onsets = table.has_column("onset");
     let with_outcomes = table.has_column("outcome_onset");
@@ -118,15 +100,15 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         _ => Vec::new(),
     };
     let mut outputs = OutputSet::new();
-    latents_table(&all).stage_both(&mut outputs, run.out, "latents")?;
+    latents_table(&all).stage_both(&mut outputs, out, "latents")?;
     if has_onsets {
-        outputs.stage(&run.out.join("subject_labels.tsv"), |w| {
+        outputs.stage(&out.join("subject_labels.tsv"), |w| {
             labels_table(&table.subjects, &labels).write_delimited(w, b'\t')
         })?;
     }
     if !events.is_empty() {
         let description = dataset_description(&model, super::RESEARCH_CAUTION);
-        outputs.stage(&run.out.join("dataset_description.json"), |w| {
+        outputs.stage(&out.join("dataset_description.json"), |w| {
             serde_json::to_writer_pretty(w, &description)
         })?;
     }
@@ -134,8 +116,8 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         // Each events file and design matrix: a TSV and its JSON sidecar.
         type Fill<'f> = &'f dyn Fn(&mut dyn std::io::Write) -> std::io::Result<()>;
         let mut stage_pair = |stem: &str, sidecar: &serde_json::Value, fill: Fill<'_>| {
-            outputs.stage(&run.out.join(format!("{stem}.tsv")), fill)?;
-            outputs.stage(&run.out.join(format!("{stem}.json")), |w| {
+            outputs.stage(&out.join(format!("{stem}.tsv")), fill)?;
+            outputs.stage(&out.join(format!("{stem}.json")), |w| {
                 serde_json::to_writer_pretty(w, sidecar)
             })
         };
@@ -152,7 +134,7 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         all.len(),
         table.subjects.len(),
         model.name,
-        run.out.join("latents.csv").display()
+        out.join("latents.csv").display()
     );
     if !has_onsets {
         println!(
@@ -167,13 +149,13 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
                 Scale::Zscore => "z-scored per run (sd with n − 1)",
                 Scale::None => "raw",
             },
-            run.out.display()
+            out.display()
         );
         if !with_outcomes {
             println!("the trial table has no outcome_onset column: no outcome events written");
         }
         if let Some(timing) = run.timing {
-            report_designs(&designs, timing, &hrf, run.out);
+            report_designs(&designs, timing, &hrf, out);
         }
         let choice: usize = events.iter().map(|e| e.skipped_choice).sum();
         let outcome: usize = events.iter().map(|e| e.skipped_outcome).sum();

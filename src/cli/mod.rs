@@ -113,24 +113,12 @@ pub enum Command {
     /// OUT/dataset_description.json (a BIDS derivative dataset).
     #[command(after_help = RESEARCH_CAUTION)]
     Export {
-        /// Folder written by `valuedrift fit` (reads its parameters.csv).
-        #[arg(long)]
-        fits: PathBuf,
-        /// Trial table (.csv, .tsv or .parquet) that was fitted.
-        #[arg(long)]
-        data: PathBuf,
-        /// Model name or file (one model).
-        #[arg(long)]
-        model: String,
-        /// Output folder.
-        #[arg(long)]
-        out: PathBuf,
+        /// The fit folder, trial table, model and output folder.
+        #[command(flatten)]
+        input: FittedRun,
         /// Scaling of the modulators within each run, in the events and design files.
         #[arg(long, value_enum, default_value_t = crate::exports::Scale::Center)]
         scale: crate::exports::Scale,
-        /// Column names of your file, as canonical=yours pairs: subject=participant,rt=RT.
-        #[arg(long, default_value = "")]
-        columns: String,
         /// Repetition time in seconds; with --scans, also write one design matrix per subject
         /// and run (sub-<label>[_run-<index>]_desc-<model>_design.tsv + .json): the events'
         /// regressors convolved with the canonical double-gamma haemodynamic response
@@ -147,9 +135,6 @@ pub enum Command {
         /// (sub-<label>_task-<task>[_run-<index>]_desc-<model>_events.tsv).
         #[arg(long)]
         task: Option<String>,
-        /// Per-subject or empirical-Bayes estimates.
-        #[command(flatten)]
-        estimates: EstimatesArg,
     },
     /// Predictive check of a fitted model: simulate each subject's data N times at its
     /// estimates in DIR/parameters.csv (freely where the table gives outcome_if_a and
@@ -164,34 +149,19 @@ pub enum Command {
     /// worst-fitting subjects (check_worst1_choices.svg, ...).
     #[command(after_help = RESEARCH_CAUTION)]
     Check {
-        /// Folder written by `valuedrift fit` (reads its parameters.csv).
-        #[arg(long)]
-        fits: PathBuf,
-        /// Trial table (.csv, .tsv or .parquet) that was fitted.
-        #[arg(long)]
-        data: PathBuf,
-        /// Model name or file (one model).
-        #[arg(long)]
-        model: String,
-        /// Output folder.
-        #[arg(long)]
-        out: PathBuf,
+        /// The fit folder, trial table, model and output folder.
+        #[command(flatten)]
+        input: FittedRun,
         /// Replicate datasets per subject (at least 10, the fewest that give a 95 % band).
         #[arg(long, default_value_t = 100)]
         sims: usize,
         /// Seed (each subject has its own stream of it).
         #[arg(long, default_value_t = 1)]
         seed: u64,
-        /// Column names of your file, as canonical=yours pairs: subject=participant,rt=RT.
-        #[arg(long, default_value = "")]
-        columns: String,
         /// Response deadline in seconds, as in the fit: slower simulated responses become no
         /// response.
         #[arg(long)]
         deadline: Option<f64>,
-        /// Per-subject or empirical-Bayes estimates.
-        #[command(flatten)]
-        estimates: EstimatesArg,
     },
     /// Compare one model's fitted parameters between groups of subjects: per free parameter,
     /// Welch's t test (Welch 1947), Mann-Whitney U (normal approximation with tie and continuity
@@ -307,6 +277,50 @@ pub enum Command {
     },
 }
 
+/// What `export` and `check` read and where they write: a fitted model run forward over the
+/// trial table it was fitted to.
+#[derive(Debug, clap::Args)]
+pub struct FittedRun {
+    /// Folder written by `valuedrift fit` (reads its parameters.csv, or eb_parameters.csv).
+    #[arg(long)]
+    pub fits: PathBuf,
+    /// Trial table (.csv, .tsv or .parquet) that was fitted.
+    #[arg(long)]
+    pub data: PathBuf,
+    /// Model name or file (one model).
+    #[arg(long)]
+    pub model: String,
+    /// Output folder.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Column names of your file, as canonical=yours pairs: subject=participant,rt=RT.
+    #[arg(long, default_value = "")]
+    pub columns: String,
+    /// Per-subject or empirical-Bayes estimates.
+    #[command(flatten)]
+    pub estimates: EstimatesArg,
+}
+
+/// The trial table, the model and each subject's estimates (all parameters, model order).
+pub type FittedInputs = (crate::data::TrialTable, crate::model::Model, Vec<Vec<f64>>);
+
+impl FittedRun {
+    /// Reads the trial table (with the column mapping), loads the model and reads each
+    /// subject's estimates of it from the fit folder, in table order.
+    pub fn load(&self) -> Result<FittedInputs, Box<dyn std::error::Error>> {
+        let columns =
+            crate::data::ColumnMap::parse(&self.columns).map_err(|e| format!("--columns: {e}"))?;
+        let table = crate::data::read_trials(&self.data, &columns)?;
+        let model = crate::model::load_model(self.model.trim())?;
+        let estimates = crate::exports::read_estimates(
+            &self.estimates.estimates.parameters_file(&self.fits),
+            &model,
+            &table.subjects,
+        )?;
+        Ok((table, model, estimates))
+    }
+}
+
 /// The choice of per-subject or empirical-Bayes estimates, shared by the commands that read a
 /// fit folder's parameters.
 #[derive(Debug, clap::Args)]
@@ -381,50 +395,30 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             Ok(())
         }
         Command::Export {
-            fits,
-            data,
-            model,
-            out,
+            input,
             scale,
-            columns,
             tr,
             scans,
             microtime_bins,
             task,
-            estimates,
         } => export::run(export::ExportRun {
-            fits: &fits,
-            data: &data,
-            model: &model,
-            out: &out,
+            input: &input,
             scale,
-            columns: &columns,
             timing: export::timing(tr, scans, microtime_bins)?,
-            estimates: estimates.estimates,
             task: task.as_deref(),
         }),
         Command::Check {
-            fits,
-            data,
-            model,
-            out,
+            input,
             sims,
             seed,
-            columns,
             deadline,
-            estimates,
         } => check::run(check::CheckRun {
-            fits: &fits,
-            data: &data,
-            model: &model,
-            out: &out,
+            input: &input,
             settings: crate::check::CheckSettings {
                 sims,
                 seed,
                 deadline,
             },
-            columns: &columns,
-            estimates: estimates.estimates,
         }),
         Command::Contrast {
             fits,
