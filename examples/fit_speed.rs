@@ -58,9 +58,9 @@ fn main() {
     }
     let per_second = evaluations as f64 / start.elapsed().as_secs_f64();
     let start = Instant::now();
-    for (i, subject) in subjects.iter().enumerate() {
+    for subject in &subjects {
         let lik = SubjectLikelihood::new(&model, subject, None).unwrap();
-        let fit = fit_subject(&lik, &options, i as u64);
+        let fit = fit_subject(&lik, &options);
         sink += fit.log_likelihood;
         println!(
             "{}: ln L = {:.2}, starts at best {}/{}, converged {}",

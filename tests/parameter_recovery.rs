@@ -55,7 +55,7 @@ fn reference_model_parameters_are_recovered() {
             &mut rng,
         );
         let lik = SubjectLikelihood::new(&model, &subject, None).unwrap();
-        let fit = fit_subject(&lik, &options, i);
+        let fit = fit_subject(&lik, &options);
         for (k, (name, _, _)) in RANGES.iter().enumerate() {
             let slot = model
                 .parameters

@@ -265,9 +265,11 @@ fn e_step(
             let starts = [mode.clone(), prior.mean.clone()];
             let results: Vec<_> = starts
                 .into_iter()
-                .map(|s| optimise::run_start(&lik, s, options.max_iterations))
+                .map(|s| optimise::run_start(&lik, s, options.max_iterations, &[]))
                 .collect();
-            super::summarise_best(&lik, &results)
+            let best = super::search::best_of(&results);
+            let verdict = super::search::verdict_of_run(&lik, &results[best]);
+            super::summarise_best(&lik, &results, best, verdict)
         })
         .collect()
 }

@@ -1,31 +1,35 @@
 //! Per-subject maximum-likelihood (or, with declared priors, maximum a posteriori) fitting.
 //!
-//! For each subject: several starts drawn quasi-randomly (a Halton sequence, Halton 1960, shifted
-//! by a seeded Cranley–Patterson rotation, 1976) inside the declared start ranges; from each, L-BFGS
-//! (Nocedal 1980; Liu & Nocedal 1989) with a Moré–Thuente line search from argmin, on the
-//! unconstrained scale, with the exact gradient of [`crate::likelihood`]. The best optimum is
-//! kept and the number of starts that reached it (within 0.01 log-likelihood) reported. Standard
-//! errors come from the observed information: the Hessian of the negative log-posterior at the
-//! optimum, by central differences of the exact gradient, inverted by Cholesky factorisation,
-//! and mapped to the natural scale by the delta method; 95 % intervals are θ̂ ± 1.96·SE(θ̂) mapped
-//! through the parameter transform (so they respect the bounds). A parameter at a bound or a
-//! Hessian that is not positive definite is flagged and gets no standard error.
+//! For each subject: quasi-random starts inside the declared start ranges, screened by their
+//! log-posterior ([`starts`]); from each, L-BFGS (Nocedal 1980; Liu & Nocedal 1989) with a
+//! Moré–Thuente line search from argmin, on the unconstrained scale, with the exact gradient of
+//! [`crate::likelihood`]; then an examination of the best point on the natural scale that finds
+//! and escapes stalls at bounds, flat directions and value-blind optima ([`search`]), so that a
+//! fit is either a real local optimum or says what is wrong. The number of runs that reached
+//! the best optimum (within 0.01 log-likelihood) is reported. Standard errors come from the
+//! observed information: the Hessian of the negative log-posterior at the optimum, by central
+//! differences of the exact gradient, inverted by Cholesky factorisation, and mapped to the
+//! natural scale by the delta method; 95 % intervals are θ̂ ± 1.96·SE(θ̂) mapped through the
+//! parameter transform (so they respect the bounds). A parameter at a bound or a Hessian that
+//! is not positive definite is flagged and gets no standard error.
 
 mod hierarchical;
 mod optimise;
+pub mod search;
+pub mod starts;
 mod uncertainty;
 
 use crate::data::{Subject, TrialTable};
 use crate::likelihood::{DataMismatch, SubjectLikelihood};
 use crate::model::Model;
-use rand::{RngExt, SeedableRng};
-use rand_chacha::ChaCha8Rng;
 use rayon::prelude::*;
+use search::Verdict;
+use starts::StartPlan;
 
 pub use hierarchical::{
     EmOptions, EmProgress, GroupFit, GroupParameter, fit_group, sampled_log_marginal,
 };
-pub use optimise::StartResult;
+pub use optimise::{StartResult, Stop};
 pub use uncertainty::laplace_log_evidence;
 
 /// Settings of a fit.
@@ -91,15 +95,17 @@ pub struct SubjectFit {
     pub aic: f64,
     /// Bayesian information criterion, k ln n − 2 ln L (Schwarz 1978).
     pub bic: f64,
-    /// Starts whose optimum is within 0.01 of the best log-posterior.
+    /// Runs whose optimum is within 0.01 of the best log-posterior.
     pub starts_at_best: usize,
-    /// Starts run.
+    /// L-BFGS runs made (screened starts and escape searches).
     pub starts: usize,
-    /// The best start ended by the solver's convergence test and the gradient there is small.
+    /// The best point is a real local optimum: see [`search`] for the tests it passed.
     pub converged: bool,
+    /// What the examination of the best point found, in words ("converged", or what is wrong).
+    pub status: String,
     /// The Hessian at the optimum is positive definite.
     pub hessian_ok: bool,
-    /// Why the best start stopped.
+    /// Why the optimiser stopped on the best run, in words.
     pub termination: String,
     /// Largest |∂ log-posterior/∂θ| at the optimum.
     pub gradient_norm: f64,
@@ -118,85 +124,39 @@ pub struct SubjectFit {
 /// Tolerance on the log-posterior for counting starts that reached the best optimum.
 pub const SAME_OPTIMUM: f64 = 0.01;
 
-/// Fits one model to one subject; `stream` selects the subject's share of the random starts.
-pub fn fit_subject(
-    likelihood: &SubjectLikelihood<'_>,
-    options: &FitOptions,
-    stream: u64,
-) -> SubjectFit {
-    let starts = start_points(likelihood, options.starts.max(1), options.seed, stream);
-    let results: Vec<StartResult> = starts
-        .iter()
-        .map(|theta| optimise::run_start(likelihood, theta.clone(), options.max_iterations))
-        .collect();
-    summarise_best(likelihood, &results)
+/// Fits one model to one subject: L-BFGS from the screened starts of [`StartPlan`], then the
+/// examination and escape search of [`search`], then standard errors at the best point. The
+/// starts depend on the seed and the subject's label only.
+pub fn fit_subject(likelihood: &SubjectLikelihood<'_>, options: &FitOptions) -> SubjectFit {
+    let plan = StartPlan::new(likelihood, options.seed);
+    let searched = search::search(
+        likelihood,
+        &plan,
+        options.starts.max(1),
+        options.max_iterations,
+    );
+    summarise_best(likelihood, &searched.runs, searched.best, searched.verdict)
 }
 
-/// The fit record of the best of several starts, counting the starts that reached it.
-fn summarise_best(likelihood: &SubjectLikelihood<'_>, results: &[StartResult]) -> SubjectFit {
-    let best = results
-        .iter()
-        .enumerate()
-        .max_by(|a, b| a.1.objective.total_cmp(&b.1.objective).then(b.0.cmp(&a.0)))
-        .map(|(i, _)| i)
-        .expect("at least one start");
+/// The fit record of run `best` of several, counting the runs that reached it.
+fn summarise_best(
+    likelihood: &SubjectLikelihood<'_>,
+    results: &[StartResult],
+    best: usize,
+    verdict: Verdict,
+) -> SubjectFit {
     let best_objective = results[best].objective;
     let starts_at_best = results
         .iter()
         .filter(|r| (r.objective - best_objective).abs() <= SAME_OPTIMUM)
         .count();
-    uncertainty::summarise(likelihood, &results[best], starts_at_best, results.len())
-}
-
-/// Quasi-random start points (unconstrained scale) inside the declared start ranges.
-fn start_points(
-    likelihood: &SubjectLikelihood<'_>,
-    n: usize,
-    seed: u64,
-    stream: u64,
-) -> Vec<Vec<f64>> {
-    let model = likelihood.model();
-    let free = model.free_slots();
-    let bounds = likelihood.free_bounds();
-    let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    rng.set_stream(stream);
-    let shift: Vec<f64> = free.iter().map(|_| rng.random::<f64>()).collect();
-    (0..n)
-        .map(|i| {
-            let natural: Vec<f64> = free
-                .iter()
-                .enumerate()
-                .map(|(j, &slot)| {
-                    let (lo, hi) = model.parameters[slot].start_range;
-                    let u = (halton(i as u64 + 1, PRIMES[j]) + shift[j]).fract();
-                    // Keep starts well inside the subject's bounds (ndt is capped below the
-                    // fastest response, which may cut into the declared start range).
-                    let (b_lo, b_hi) = bounds[j];
-                    let margin = if (b_hi - b_lo).is_finite() {
-                        0.05 * (b_hi - b_lo)
-                    } else {
-                        1e-6
-                    };
-                    (lo + u * (hi - lo)).clamp(b_lo + margin, b_hi - margin)
-                })
-                .collect();
-            likelihood.unconstrained(&natural)
-        })
-        .collect()
-}
-
-const PRIMES: [u64; 12] = [2, 3, 5, 7, 11, 13, 17, 19, 23, 29, 31, 37];
-
-/// The i-th element of the van der Corput sequence in `base` (Halton 1960).
-fn halton(mut i: u64, base: u64) -> f64 {
-    let mut f = 1.0;
-    let mut r = 0.0;
-    while i > 0 {
-        f /= base as f64;
-        r += f * (i % base) as f64;
-        i /= base;
-    }
-    r
+    uncertainty::summarise(
+        likelihood,
+        &results[best],
+        starts_at_best,
+        results.len(),
+        verdict,
+    )
 }
 
 /// A (model, subject) pair that could not be fitted.
@@ -210,7 +170,7 @@ pub struct Skipped {
 
 /// Fits every model to every subject, subjects in parallel on `threads` threads (0: all cores).
 /// Results come in (model, subject) order and do not depend on the number of threads: each
-/// subject's random starts come from its own stream of the seeded generator.
+/// subject's starts come from the seed and its label.
 pub fn fit_table(
     models: &[Model],
     table: &TrialTable,
@@ -221,21 +181,15 @@ pub fn fit_table(
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(threads)
         .build()?;
-    let jobs: Vec<(&Model, usize, &Subject)> = models
+    let jobs: Vec<(&Model, &Subject)> = models
         .iter()
-        .flat_map(|m| {
-            table
-                .subjects
-                .iter()
-                .enumerate()
-                .map(move |(i, s)| (m, i, s))
-        })
+        .flat_map(|m| table.subjects.iter().map(move |s| (m, s)))
         .collect();
     let outcomes: Vec<Result<SubjectFit, Skipped>> = pool.install(|| {
         jobs.par_iter()
-            .map(|&(model, index, subject)| {
+            .map(|&(model, subject)| {
                 let outcome = SubjectLikelihood::new(model, subject, options.deadline)
-                    .map(|lik| fit_subject(&lik, options, index as u64))
+                    .map(|lik| fit_subject(&lik, options))
                     .map_err(|reason| Skipped {
                         model: model.name.clone(),
                         reason,

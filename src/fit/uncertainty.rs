@@ -1,31 +1,13 @@
 //! Observed information, standard errors and intervals at the optimum.
 
 use super::optimise::StartResult;
+use super::search::{Verdict, at_bound};
 use super::{ParameterEstimate, SubjectFit};
 use crate::likelihood::SubjectLikelihood;
-use crate::model::Transform;
 use nalgebra::DMatrix;
-
-/// Relative distance to a finite bound below which an estimate counts as at the bound.
-const AT_BOUND: f64 = 1e-4;
-
-/// Largest |gradient| (unconstrained scale) accepted as converged.
-const GRADIENT_CONVERGED: f64 = 1e-3;
 
 /// 97.5 % quantile of the standard normal distribution.
 pub(crate) const Z_975: f64 = 1.959_963_984_540_054;
-
-fn at_bound(x: f64, transform: &Transform) -> bool {
-    match *transform {
-        Transform::Logistic { lower, upper } => {
-            let r = (x - lower) / (upper - lower);
-            !(AT_BOUND..=1.0 - AT_BOUND).contains(&r)
-        }
-        Transform::Exp { lower } => x - lower < AT_BOUND * lower.abs().max(1.0),
-        Transform::ExpBelow { upper } => upper - x < AT_BOUND * upper.abs().max(1.0),
-        Transform::Identity => false,
-    }
-}
 
 /// Hessian of the negative log-posterior by central differences of its exact gradient,
 /// step 1e-5·max(1, |θ_j|), symmetrised (common practice; Nocedal & Wright 2006, §8.1).
@@ -53,6 +35,7 @@ pub fn summarise(
     best: &StartResult,
     starts_at_best: usize,
     starts: usize,
+    verdict: Verdict,
 ) -> SubjectFit {
     let model = likelihood.model();
     let subject = likelihood.subject();
@@ -166,9 +149,10 @@ pub fn summarise(
         bic: k * n.ln() - 2.0 * ln_l,
         starts_at_best,
         starts,
-        converged: best.solver_converged && gradient_norm < GRADIENT_CONVERGED,
+        converged: verdict.converged,
+        status: verdict.status,
         hessian_ok,
-        termination: best.termination.clone(),
+        termination: verdict.stop.describe().to_string(),
         gradient_norm,
         estimates,
         theta: theta.clone(),

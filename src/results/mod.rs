@@ -166,6 +166,7 @@ pub fn summary_table(fits: &[SubjectFit]) -> Table {
         .with("starts_at_best", integer(|f| f.starts_at_best))
         .with("starts", integer(|f| f.starts))
         .with("converged", flag(|f| f.converged))
+        .with("status", text(|f| f.status.clone()))
         .with("hessian_ok", flag(|f| f.hessian_ok))
         .with("gradient_norm", number(|f| f.gradient_norm))
         .with("termination", text(|f| f.termination.clone()))

@@ -1,0 +1,383 @@
+//! The per-subject search for the maximum of the log-posterior, and the verdict on what it
+//! found.
+//!
+//! A gradient test on the optimiser's unconstrained scale cannot tell an optimum from a stall:
+//! the logistic and log transforms make every gradient vanish as a parameter approaches its
+//! bound, and where the model's choice probabilities stop depending on the offers (a value
+//! sensitivity or inverse temperature of zero, learning rates of zero) the likelihood is flat in
+//! every parameter that acts through values. So after the L-BFGS runs from the screened starts
+//! ([`super::starts`]) the best point is examined on the natural scale:
+//!
+//! - **at a bound**: a free parameter within 10⁻⁴ of the width of its range from a bound;
+//! - **flat**: moving a free parameter across its whole start range (the others fixed) changes
+//!   ln L by less than [`FLAT`];
+//! - **value-blind**: the model's probability of choosing `a` is the same on every trial (to
+//!   10⁻⁶), so the fit explains no choice by the offers; for choices-only models also a
+//!   log-likelihood no better than the constant-probability baseline n_a ln p̂ + n_b ln(1 − p̂)
+//!   (p̂ the observed share of `a`; the maximum of the Bernoulli likelihood, common practice).
+//!
+//! Any of these triggers an escape search before anything is reported: for each suspect
+//! parameter and two levels inside its start range (the 25 % and 75 % points on the
+//! unconstrained scale), the parameter is held at that level while the others (suspects moved
+//! to the middle of their start ranges) are optimised, then everything is released
+//! (a short search from the interior, which a bound optimum must survive); when the point was
+//! flat or value-blind, fresh starts from the start ranges are run as well. A better optimum
+//! found (by more than [`SAME_OPTIMUM`](super::SAME_OPTIMUM)) replaces the best and is examined
+//! again, at most [`ESCAPE_ROUNDS`] times.
+//!
+//! The verdict: `converged` only when the best run stopped by its tolerance test (or could not
+//! improve further) with every interior gradient below [`GRADIENT_CONVERGED`], nothing flat or
+//! value-blind remains, and every parameter at a bound has survived the search from the
+//! interior. Otherwise the status says, in words, what is wrong.
+
+use super::SAME_OPTIMUM;
+use super::optimise::{StartResult, Stop, run_start};
+use super::starts::StartPlan;
+use crate::likelihood::SubjectLikelihood;
+use crate::model::Transform;
+
+/// Relative distance to a finite bound below which an estimate counts as at the bound.
+pub(crate) const AT_BOUND: f64 = 1e-4;
+
+/// Largest |∂ log-posterior/∂θ| of an interior parameter accepted as converged.
+pub const GRADIENT_CONVERGED: f64 = 1e-3;
+
+/// Change of ln L (absolute) below which a parameter moved across its start range counts as
+/// having no effect.
+pub const FLAT: f64 = 1e-6;
+
+/// Rounds of escape search at most.
+pub const ESCAPE_ROUNDS: usize = 5;
+
+/// Iterations of the first (held) stage of a search from the interior.
+const PROBE_ITERATIONS: u64 = 100;
+
+/// A held face probe is released (optimised in every parameter) when it comes within this much
+/// log-posterior of the best point.
+const FACE_MARGIN: f64 = 1.0;
+
+/// θ that puts a parameter at its lower or upper bound (to 10⁻⁶ of the range, or of the
+/// bound's magnitude for a half-open range), where it has that bound.
+fn face_theta(transform: &Transform, lower: bool) -> Option<f64> {
+    const LOGIT_FACE: f64 = 13.8; // logit(1 − 10⁻⁶)
+    match (*transform, lower) {
+        (Transform::Logistic { .. }, true) => Some(-LOGIT_FACE),
+        (Transform::Logistic { .. }, false) => Some(LOGIT_FACE),
+        (Transform::Exp { lower: b }, true) | (Transform::ExpBelow { upper: b }, false) => {
+            Some((1e-6 * b.abs().max(1.0)).ln())
+        }
+        _ => None,
+    }
+}
+
+/// Spread of the choice probability across trials below which a fit is value-blind.
+const CONSTANT_PROBABILITY: f64 = 1e-6;
+
+/// True when natural value `x` lies at a bound of `transform`.
+pub(crate) fn at_bound(x: f64, transform: &Transform) -> bool {
+    match *transform {
+        Transform::Logistic { lower, upper } => {
+            let r = (x - lower) / (upper - lower);
+            !(AT_BOUND..=1.0 - AT_BOUND).contains(&r)
+        }
+        Transform::Exp { lower } => x - lower < AT_BOUND * lower.abs().max(1.0),
+        Transform::ExpBelow { upper } => upper - x < AT_BOUND * upper.abs().max(1.0),
+        Transform::Identity => false,
+    }
+}
+
+/// What the examination of a point found.
+#[derive(Clone, Debug, Default, PartialEq)]
+struct Findings {
+    /// Free parameters (indices) at a bound.
+    at_bound: Vec<usize>,
+    /// Free parameters that do not change the likelihood.
+    flat: Vec<usize>,
+    /// The choice probability does not depend on the trial.
+    value_blind: bool,
+    /// A choices-only fit no better than constant choice probabilities.
+    below_baseline: bool,
+    /// Largest |gradient| (unconstrained scale) of the parameters not at a bound.
+    interior_gradient: f64,
+}
+
+impl Findings {
+    fn degenerate(&self) -> bool {
+        !self.flat.is_empty() || self.value_blind || self.below_baseline
+    }
+
+    fn suspects(&self) -> Vec<usize> {
+        let mut s: Vec<usize> = self.at_bound.iter().chain(&self.flat).copied().collect();
+        s.sort_unstable();
+        s.dedup();
+        s
+    }
+}
+
+/// The verdict on a fit, in our own words.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Verdict {
+    /// A real local optimum (see the module documentation).
+    pub converged: bool,
+    /// What was found, in words: "converged", or what is wrong.
+    pub status: String,
+    /// Why the best run's optimiser stopped.
+    pub stop: Stop,
+    /// L-BFGS runs made, screened starts and escape searches together.
+    pub runs: usize,
+}
+
+/// The outcome of the search: every run's result (the best among them is the fit) and the
+/// verdict on the best.
+pub struct Searched {
+    /// Every run, in the order made.
+    pub runs: Vec<StartResult>,
+    /// Index of the best run.
+    pub best: usize,
+    /// The verdict.
+    pub verdict: Verdict,
+}
+
+/// Index of the run with the highest objective (the earliest among equals).
+pub fn best_of(runs: &[StartResult]) -> usize {
+    runs.iter()
+        .enumerate()
+        .max_by(|a, b| a.1.objective.total_cmp(&b.1.objective).then(b.0.cmp(&a.0)))
+        .map(|(i, _)| i)
+        .expect("at least one run")
+}
+
+/// Runs the screened starts, examines the best point, escapes degenerate optima and returns
+/// every run with the verdict.
+pub fn search(
+    likelihood: &SubjectLikelihood<'_>,
+    plan: &StartPlan,
+    starts: usize,
+    max_iterations: u64,
+) -> Searched {
+    let mut runs: Vec<StartResult> = plan
+        .screened(likelihood, starts)
+        .into_iter()
+        .map(|theta| run_start(likelihood, theta, max_iterations, &[]))
+        .collect();
+    let mut best = best_of(&runs);
+    let mut next_fresh = starts * super::starts::SCREEN_FACTOR;
+    let mut findings = examine(likelihood, plan, &runs[best].theta);
+    let mut verified = false;
+    for _ in 0..ESCAPE_ROUNDS {
+        let before = runs[best].objective;
+        let theta = runs[best].theta.clone();
+        if findings.interior_gradient >= GRADIENT_CONVERGED {
+            // L-BFGS stopped short of a stationary point: restart it there with a fresh memory.
+            runs.push(run_start(likelihood, theta.clone(), max_iterations, &[]));
+        }
+        let suspects = findings.suspects();
+        for &j in &suspects {
+            for q in [0.25, 0.75] {
+                let mut start = theta.clone();
+                for &k in &suspects {
+                    start[k] = plan.level(k, 0.5);
+                }
+                start[j] = plan.level(j, q);
+                let held = run_start(likelihood, start, PROBE_ITERATIONS, &[j]);
+                runs.push(run_start(likelihood, held.theta, max_iterations, &[]));
+            }
+        }
+        // Faces of the box: optima with one parameter at a bound (a learning rate or an effort
+        // weight of zero…) that L-BFGS on the transformed scale approaches only slowly and
+        // interior starts tend to miss.
+        let transforms = likelihood.transforms();
+        for j in 0..theta.len() {
+            for lower in [true, false] {
+                let Some(face) = face_theta(&transforms[j], lower) else {
+                    continue;
+                };
+                if (theta[j] - face).abs() < 1.0 {
+                    continue;
+                }
+                let mut start = theta.clone();
+                start[j] = face;
+                let held = run_start(likelihood, start, PROBE_ITERATIONS, &[j]);
+                if held.objective > runs[best].objective - FACE_MARGIN {
+                    runs.push(run_start(
+                        likelihood,
+                        held.theta.clone(),
+                        max_iterations,
+                        &[],
+                    ));
+                }
+                runs.push(held);
+            }
+        }
+        if findings.degenerate() {
+            for start in plan.fresh(next_fresh, starts) {
+                runs.push(run_start(likelihood, start, max_iterations, &[]));
+            }
+            next_fresh += starts;
+        }
+        best = best_of(&runs);
+        if runs[best].objective <= before + SAME_OPTIMUM {
+            // Nothing from the interior, the faces or elsewhere beats the point: verified.
+            verified = !findings.degenerate() && findings.interior_gradient < GRADIENT_CONVERGED;
+            break;
+        }
+        findings = examine(likelihood, plan, &runs[best].theta);
+        verified = false;
+    }
+    let verdict = judge(likelihood, &runs[best], &findings, verified, runs.len());
+    Searched {
+        runs,
+        best,
+        verdict,
+    }
+}
+
+/// The verdict on a single run without any search around it (used where a proper prior keeps
+/// the point away from the bounds, as in the empirical-Bayes E-step).
+pub fn verdict_of_run(likelihood: &SubjectLikelihood<'_>, run: &StartResult) -> Verdict {
+    let gradient = likelihood
+        .evaluate(&run.theta)
+        .gradient
+        .iter()
+        .fold(0.0_f64, |m, g| m.max(g.abs()));
+    let stopped_well = matches!(run.stop, Stop::Tolerance | Stop::NoImprovingStep);
+    let converged = stopped_well && gradient < GRADIENT_CONVERGED;
+    Verdict {
+        converged,
+        status: if converged {
+            "converged".into()
+        } else if !stopped_well {
+            format!("not converged: {}", run.stop.describe())
+        } else {
+            format!("not converged: gradient {gradient:.1e} at the best point")
+        },
+        stop: run.stop,
+        runs: 1,
+    }
+}
+
+fn judge(
+    likelihood: &SubjectLikelihood<'_>,
+    best: &StartResult,
+    findings: &Findings,
+    verified: bool,
+    runs: usize,
+) -> Verdict {
+    let names: Vec<&str> = likelihood
+        .model()
+        .free_slots()
+        .iter()
+        .map(|&s| likelihood.model().parameters[s].name.as_str())
+        .collect();
+    let list = |idx: &[usize]| idx.iter().map(|&j| names[j]).collect::<Vec<_>>().join(", ");
+    let problem = if findings.value_blind {
+        Some(
+            "value-blind: the fitted probability of each choice is the same on every trial, so \
+             the parameters acting through values are not identified"
+                .to_string(),
+        )
+    } else if findings.below_baseline {
+        Some(
+            "no better than constant choice probabilities (the observed share of each option)"
+                .to_string(),
+        )
+    } else if !findings.flat.is_empty() {
+        Some(format!(
+            "flat in {}: the likelihood does not change with it",
+            list(&findings.flat)
+        ))
+    } else if !matches!(best.stop, Stop::Tolerance | Stop::NoImprovingStep) {
+        Some(best.stop.describe().to_string())
+    } else if findings.interior_gradient >= GRADIENT_CONVERGED {
+        Some(format!(
+            "gradient {:.1e} at the best point",
+            findings.interior_gradient
+        ))
+    } else if !verified {
+        Some(format!(
+            "at a bound not confirmed by a search from the interior: {}",
+            list(&findings.at_bound)
+        ))
+    } else {
+        None
+    };
+    let status = match (&problem, findings.at_bound.is_empty()) {
+        (Some(p), _) => format!("not converged: {p}"),
+        (None, true) => "converged".to_string(),
+        (None, false) => format!(
+            "converged; at a bound, confirmed from the interior: {}",
+            list(&findings.at_bound)
+        ),
+    };
+    Verdict {
+        converged: problem.is_none(),
+        status,
+        stop: best.stop,
+        runs,
+    }
+}
+
+/// Examines the point θ: bounds, flat parameters, value-blindness, baseline.
+fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) -> Findings {
+    let evaluation = likelihood.evaluate(theta);
+    let natural = likelihood.natural(theta);
+    let model = likelihood.model();
+    let free = model.free_slots();
+    let transforms = likelihood.transforms();
+    let at_bound_list: Vec<usize> = (0..free.len())
+        .filter(|&j| at_bound(natural[free[j]], &transforms[j]))
+        .collect();
+    let interior_gradient = (0..free.len())
+        .filter(|j| !at_bound_list.contains(j))
+        .map(|j| evaluation.gradient[j].abs())
+        .fold(0.0_f64, f64::max);
+    let flat = (0..free.len())
+        .filter(|&j| {
+            [0.0, 1.0].iter().all(|&q| {
+                let mut moved = theta.to_vec();
+                moved[j] = plan.level(j, q);
+                let l = likelihood.evaluate(&moved).ln_likelihood;
+                l.is_finite() && (l - evaluation.ln_likelihood).abs() < FLAT
+            })
+        })
+        .collect();
+    let trace = likelihood.trace(&natural);
+    let probabilities: Vec<f64> = likelihood
+        .subject()
+        .trials
+        .iter()
+        .zip(&trace)
+        .filter(|(t, _)| t.choice.is_some())
+        .map(|(_, r)| r.probability_a)
+        .collect();
+    let (lo, hi) = probabilities
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &p| {
+            (lo.min(p), hi.max(p))
+        });
+    let value_blind = probabilities.len() > 1 && hi - lo < CONSTANT_PROBABILITY;
+    let below_baseline = !model.uses_response_times()
+        && evaluation.ln_likelihood < constant_choice_baseline(likelihood) + SAME_OPTIMUM;
+    Findings {
+        at_bound: at_bound_list,
+        flat,
+        value_blind,
+        below_baseline,
+        interior_gradient,
+    }
+}
+
+/// n_a ln p̂ + n_b ln(1 − p̂), the log-likelihood of the responses under the constant choice
+/// probability that fits them best (p̂ = n_a/n; 0 ln 0 = 0).
+fn constant_choice_baseline(likelihood: &SubjectLikelihood<'_>) -> f64 {
+    let choices: Vec<bool> = likelihood
+        .subject()
+        .trials
+        .iter()
+        .filter_map(|t| t.choice.map(|c| c == crate::data::Choice::A))
+        .collect();
+    let n = choices.len() as f64;
+    let n_a = choices.iter().filter(|&&a| a).count() as f64;
+    let term = |k: f64| if k > 0.0 { k * (k / n).ln() } else { 0.0 };
+    term(n_a) + term(n - n_a)
+}
