@@ -127,3 +127,69 @@ fn trials_without_response_enter_only_with_a_deadline() {
         );
     }
 }
+
+#[test]
+fn a_subject_fits_the_same_alone_and_inside_a_larger_file() {
+    // Starts come from the seed and the subject's label, not its row position (the issue's
+    // requirement; a fit must not change because other participants were added to the file).
+    let table = simulated_table(4, 120, None);
+    let models = vec![load_model("gainloss-linear").unwrap()];
+    let options = FitOptions {
+        starts: 3,
+        ..FitOptions::default()
+    };
+    let (all, _) = fit_table(&models, &table, &options, 1, &|| {}).unwrap();
+    let last = TrialTable {
+        subjects: vec![table.subjects[3].clone()],
+        present: table.present.clone(),
+    };
+    let (alone, _) = fit_table(&models, &last, &options, 1, &|| {}).unwrap();
+    assert_eq!(alone[0], all[3]);
+}
+
+#[test]
+fn a_parameter_without_effect_is_flagged_not_reported_as_converged() {
+    // Efforts equal on both sides make the effort weight multiply zero (SV_a − SV_b does not
+    // depend on it: a fact of the trade, common practice), so the likelihood is flat in it.
+    let mut table = simulated_table(1, 160, None);
+    for t in &mut table.subjects[0].trials {
+        t.effort_a = 0.0;
+        t.effort_b = 0.0;
+    }
+    let model = load_model("gainloss-linear").unwrap();
+    let lik = SubjectLikelihood::new(&model, &table.subjects[0], None).unwrap();
+    let fit = valuedrift::fit::fit_subject(&lik, &FitOptions::default());
+    assert!(!fit.converged, "{}", fit.status);
+    assert!(
+        fit.status.contains("flat in effort_weight"),
+        "{}",
+        fit.status
+    );
+}
+
+#[test]
+fn a_participant_who_picks_the_worse_option_is_flagged_value_blind() {
+    // Choices that run against the offered values: with value_scale ≥ 0 the best the model can
+    // do is a value sensitivity of zero, where the choice probability no longer depends on the
+    // offer (every trial 1/2 for an unbiased start: Cox & Miller 1965, absorption probability
+    // at zero drift) and the effort weight is not identified.
+    let mut table = simulated_table(1, 160, None);
+    let model = load_model("offered-linear").unwrap();
+    for (i, t) in table.subjects[0].trials.iter_mut().enumerate() {
+        // Equal efforts, so no effort weight can turn the value difference around.
+        t.effort_a = 0.5;
+        t.effort_b = 0.5;
+        t.reward_a = Some(1.0 + (i % 4) as f64);
+        t.reward_b = Some(4.0 - (i % 4) as f64);
+        let a_better = t.reward_a > t.reward_b;
+        t.choice = Some(if a_better {
+            valuedrift::data::Choice::B
+        } else {
+            valuedrift::data::Choice::A
+        });
+    }
+    let lik = SubjectLikelihood::new(&model, &table.subjects[0], None).unwrap();
+    let fit = valuedrift::fit::fit_subject(&lik, &FitOptions::default());
+    assert!(!fit.converged, "{}", fit.status);
+    assert!(fit.status.contains("value-blind"), "{}", fit.status);
+}
