@@ -106,12 +106,16 @@ pub fn print_summary(selection: &Selection, samples: usize) {
             }
         );
         println!(
-            "{:<28} {:>9} {:>9} {:>9} {:>9} {:>6}",
-            "model", "alpha", "freq", "xp", "pxp", "won"
+            "{:<28} {:>10} {:>10} {:>11} {:>11} {:>8}",
+            "", "Dirichlet", "expected", "exceedance", "protected", "subjects"
+        );
+        println!(
+            "{:<28} {:>10} {:>10} {:>11} {:>11} {:>8}",
+            "model", "count", "frequency", "probability", "exceedance", "won"
         );
         for (k, model) in c.models.iter().enumerate() {
             println!(
-                "{model:<28} {:>9.3} {:>9.4} {:>9.4} {:>9.4} {:>6}",
+                "{model:<28} {:>10.3} {:>10.4} {:>11.4} {:>11.4} {:>8}",
                 bms.alpha[k],
                 bms.expected_frequency[k],
                 bms.exceedance[k],

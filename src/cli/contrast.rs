@@ -16,11 +16,27 @@ pub fn run(
     out: &Path,
     source: crate::results::EstimateSource,
 ) -> Result<(), Box<dyn std::error::Error>> {
+    if source == crate::results::EstimateSource::EmpiricalBayes && per_group_priors(fits) {
+        eprintln!(
+            "warning: these empirical-Bayes estimates were shrunk towards one prior per group, \
+             which pulls the groups apart: their contrast is anticonservative (p values too \
+             small). Contrast the per-subject estimates, or refit with one pooled prior \
+             (fit --hierarchical without --by)."
+        );
+    }
     let rows = contrast_and_write(fits, model, by, out, source)?;
     print_summary(&rows);
     println!("outputs in {}", out.display());
     println!("{}", super::RESEARCH_CAUTION);
     Ok(())
+}
+
+/// True when the fit folder's run.json records empirical-Bayes priors fitted per group.
+fn per_group_priors(fits: &Path) -> bool {
+    std::fs::read(fits.join("run.json"))
+        .ok()
+        .and_then(|bytes| serde_json::from_slice::<serde_json::Value>(&bytes).ok())
+        .is_some_and(|record| record["empirical_bayes"]["per_group"] == serde_json::json!(true))
 }
 
 /// The contrasts of `run`, with their tables written to `out` (all or nothing).

@@ -1,6 +1,6 @@
 //! `valuedrift demo`: the main job on the embedded demo study.
 
-use super::fit::{FitRun, Hierarchical, print_group_summary, print_summary};
+use super::fit::{FitRun, Hierarchical, print_diagnostics, print_group_summary, print_summary};
 use crate::data::ColumnMap;
 use crate::fit::{EmOptions, FitOptions};
 use crate::group::selection::{BmsOptions, Evidence};
@@ -68,6 +68,7 @@ pub fn run(
     );
     println!();
     print_summary(&fitted);
+    print_diagnostics(&fitted.fits, &fitted.models, out);
     print_group_summary(&fitted.groups);
     println!();
     let compare = super::compare::CompareRun {

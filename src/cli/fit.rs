@@ -102,6 +102,14 @@ pub struct Fitted {
 /// Reads, fits and writes; returns what was fitted for the caller's summary.
 pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn std::error::Error>> {
     let table = read_trials(run.data, &run.columns)?;
+    if run.hierarchical.as_ref().is_some_and(|h| h.per_group) && !table.has_column("group") {
+        return Err(format!(
+            "{}: --by {}: no such column; the file has no group column to give each group its own prior",
+            run.data.display(),
+            run.columns.file_name("group")
+        )
+        .into());
+    }
     let models = load_models(run.models)?;
     let bar = progress_bar(models.len() * table.subjects.len(), "fitting");
     let (fits, skipped) = fit_table(&models, &table, &run.options, run.threads, &|| bar.inc(1))?;
@@ -141,6 +149,24 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         for s in &not_fitted {
             eprintln!("empirical Bayes skipped for {}: {}", s.model, s.reason);
         }
+        for g in fitted
+            .iter()
+            .filter(|g| g.n_group_parameters > g.subjects.len())
+        {
+            eprintln!(
+                "warning: the group prior of {} ({}) has {} parameters but only {} subjects: \
+                 its variances{} are poorly determined and the shrinkage they imply is unreliable",
+                g.model,
+                g.scope,
+                g.n_group_parameters,
+                g.subjects.len(),
+                if settings.em.full_covariance {
+                    " and covariances"
+                } else {
+                    ""
+                }
+            );
+        }
         groups = fitted;
     }
     let bytes = std::fs::read(run.data)?;
@@ -153,6 +179,7 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         &fits,
         &skipped,
     );
+    record["group_column"] = serde_json::json!(run.columns.file_name("group"));
     let mut outputs = OutputSet::new();
     parameters_table(&fits).stage_both(
         &mut outputs,
@@ -324,6 +351,73 @@ pub fn print_summary(fitted: &Fitted) {
             "(models marked '-' use choices only: their BIC is not comparable with the others)"
         );
     }
+}
+
+/// Prints, per model, what a reader of the estimates must know before using them: how many
+/// estimates sit at a bound (by parameter), how many Hessians are not positive definite, how
+/// many fits did not converge and why (the status column of the summary table), and where the
+/// tables are.
+pub fn print_diagnostics(fits: &[SubjectFit], models: &[Model], out: &Path) {
+    println!();
+    for model in models {
+        let fits: Vec<&SubjectFit> = fits.iter().filter(|f| f.model == model.name).collect();
+        if fits.is_empty() {
+            continue;
+        }
+        let n = fits.len();
+        let bounds: Vec<String> = model
+            .parameters
+            .iter()
+            .filter(|p| p.is_free())
+            .filter_map(|p| {
+                let k = fits
+                    .iter()
+                    .filter(|f| f.estimates.iter().any(|e| e.name == p.name && e.at_bound))
+                    .count();
+                (k > 0).then(|| format!("{} {k}/{n}", p.name))
+            })
+            .collect();
+        let not_pd = fits.iter().filter(|f| !f.hessian_ok).count();
+        let mut reasons: Vec<(String, usize)> = Vec::new();
+        for f in fits.iter().filter(|f| !f.converged) {
+            let reason = f
+                .status
+                .trim_start_matches("not converged: ")
+                .split(':')
+                .next()
+                .unwrap_or_default()
+                .to_string();
+            match reasons.iter_mut().find(|(r, _)| *r == reason) {
+                Some((_, k)) => *k += 1,
+                None => reasons.push((reason, 1)),
+            }
+        }
+        let not_converged: usize = reasons.iter().map(|(_, k)| k).sum();
+        println!("{}:", model.name);
+        println!(
+            "  estimates at a bound: {}",
+            if bounds.is_empty() {
+                "none".to_string()
+            } else {
+                bounds.join(", ")
+            }
+        );
+        println!("  Hessian not positive definite (no standard errors): {not_pd}/{n}");
+        let why: Vec<String> = reasons.iter().map(|(r, k)| format!("{r} {k}")).collect();
+        println!(
+            "  not converged: {not_converged}/{n}{}",
+            if why.is_empty() {
+                String::new()
+            } else {
+                format!(" ({})", why.join("; "))
+            }
+        );
+    }
+    println!(
+        "per-subject estimates: {}; fit statistics and each fit's status: {}",
+        out.join("parameters.csv").display(),
+        out.join("fit_summary.csv").display()
+    );
 }
 
 /// Prints per model and scope of the empirical-Bayes fits: iBIC, EM convergence and the group

@@ -333,6 +333,20 @@ pub struct EstimatesArg {
     pub estimates: crate::results::EstimateSource,
 }
 
+/// The column of a fit folder's tables that holds what `--by` names: the tables call the group
+/// column `group`, so a `--by` that names the trial table's column the fit read its groups from
+/// (recorded as `group_column` in run.json) means `group`.
+pub fn group_column(fits: &std::path::Path, by: &str) -> String {
+    let recorded = std::fs::read(fits.join("run.json"))
+        .ok()
+        .and_then(|bytes| serde_json::from_slice::<serde_json::Value>(&bytes).ok())
+        .and_then(|record| record["group_column"].as_str().map(str::to_string));
+    match recorded {
+        Some(column) if column == by => "group".to_string(),
+        _ => by.to_string(),
+    }
+}
+
 /// Runs the parsed command.
 pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
     let command_line: Vec<String> = std::env::args().collect();
@@ -389,6 +403,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             };
             let fitted = fit::run(run, &command_line)?;
             fit::print_summary(&fitted);
+            fit::print_diagnostics(&fitted.fits, &fitted.models, &out);
             fit::print_group_summary(&fitted.groups);
             println!("outputs in {}", out.display());
             println!("{RESEARCH_CAUTION}");
@@ -429,7 +444,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
         } => contrast::run(
             &fits,
             &model,
-            &by,
+            &group_column(&fits, &by),
             out.as_deref().unwrap_or(&fits),
             estimates.estimates,
         ),
@@ -443,7 +458,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             seed,
         } => compare::run(compare::CompareRun {
             fits: &fits,
-            by: &by,
+            by: &group_column(&fits, &by),
             summary: &summary,
             out: out.as_deref().unwrap_or(&fits),
             evidence,

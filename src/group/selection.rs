@@ -864,7 +864,7 @@ impl Selection {
                 Column::Integer(rows.iter().map(|r| r.bms.assignment.len() as i64).collect()),
             )
             .with("evidence", text(&|_| self.evidence.label().to_string()))
-            .with("alpha", number(&|r| Some(r.bms.alpha[r.model])))
+            .with("dirichlet_count", number(&|r| Some(r.bms.alpha[r.model])))
             .with(
                 "expected_frequency",
                 number(&|r| Some(r.bms.expected_frequency[r.model])),
@@ -881,7 +881,7 @@ impl Selection {
                 "protected_exceedance_probability",
                 number(&|r| Some(r.bms.protected_exceedance[r.model])),
             )
-            .with("bor", number(&|r| Some(r.bms.bor)))
+            .with("bayesian_omnibus_risk", number(&|r| Some(r.bms.bor)))
             .with(
                 "subjects_won",
                 Column::Integer(rows.iter().map(|r| r.won as i64).collect()),
