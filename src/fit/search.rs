@@ -52,6 +52,9 @@ pub const ESCAPE_ROUNDS: usize = 5;
 /// Iterations of the first (held) stage of a search from the interior.
 const PROBE_ITERATIONS: u64 = 100;
 
+/// Iterations of a held face probe (it starts from the best point with one coordinate moved).
+const FACE_ITERATIONS: u64 = 40;
+
 /// A held face probe is released (optimised in every parameter) when it comes within this much
 /// log-posterior of the best point.
 const FACE_MARGIN: f64 = 1.0;
@@ -197,7 +200,7 @@ pub fn search(
                 }
                 let mut start = theta.clone();
                 start[j] = face;
-                let held = run_start(likelihood, start, PROBE_ITERATIONS, &[j]);
+                let held = run_start(likelihood, start, FACE_ITERATIONS, &[j]);
                 if held.objective > runs[best].objective - FACE_MARGIN {
                     runs.push(run_start(
                         likelihood,
