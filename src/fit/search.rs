@@ -296,6 +296,10 @@ fn judge(
             "gradient {:.1e} at the best point",
             findings.interior_gradient
         ))
+    } else if !verified && findings.at_bound.is_empty() {
+        Some(format!(
+            "still improving after {ESCAPE_ROUNDS} rounds of searches from the faces and the interior"
+        ))
     } else if !verified {
         Some(format!(
             "at a bound not confirmed by a search from the interior: {}",
