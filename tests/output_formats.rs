@@ -9,6 +9,22 @@ use std::process::Command;
 use valuedrift::data::{ColumnMap, TrialTable, read_trials};
 use valuedrift::results::number_text;
 
+/// Runs the binary with `args`, then each (option, path) of `paths`.
+fn valuedrift(args: &[&str], paths: &[(&str, &Path)]) -> std::process::Output {
+    let mut command = Command::new(env!("CARGO_BIN_EXE_valuedrift"));
+    command.args(args);
+    for (option, path) in paths {
+        command.arg(option).arg(path);
+    }
+    command.output().unwrap()
+}
+
+/// Asserts that a run succeeded, showing its error output when not.
+fn assert_success(output: &std::process::Output) {
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert!(output.status.success(), "{stderr}");
+}
+
 #[test]
 fn numbers_read_back_bit_for_bit_and_are_never_longer_than_either_rust_form() {
     // Source: IEEE 754 binary64; parsing the text back must give the same bits (round trip),
@@ -173,28 +189,17 @@ fn fit_writes_a_wide_estimates_table_equal_to_the_long_one_and_parquet_twins_equ
     let dir = tempfile::tempdir().unwrap();
     let data = small_demo_table(dir.path(), 6, 80);
     let out = dir.path().join("fits");
-    let output = Command::new(env!("CARGO_BIN_EXE_valuedrift"))
-        .args([
-            "fit",
-            "--model",
-            "gainloss-linear,delta-linear",
-            "--starts",
-            "2",
-            "--hierarchical",
-            "--ibic-samples",
-            "50",
-        ])
-        .arg("--data")
-        .arg(&data)
-        .arg("--out")
-        .arg(&out)
-        .output()
-        .unwrap();
-    assert!(
-        output.status.success(),
-        "{}",
-        String::from_utf8_lossy(&output.stderr)
-    );
+    let fit = [
+        "fit",
+        "--model",
+        "gainloss-linear,delta-linear",
+        "--starts",
+        "2",
+        "--hierarchical",
+        "--ibic-samples",
+        "50",
+    ];
+    assert_success(&valuedrift(&fit, &[("--data", &data), ("--out", &out)]));
     for (long, wide) in [
         ("parameters", "estimates_wide"),
         ("eb_parameters", "eb_estimates_wide"),
@@ -263,21 +268,11 @@ fn simulate_writes_parquet_that_reads_back_as_the_same_table_as_its_csv() {
     let mut tables = Vec::new();
     for name in ["sim.csv", "sim.parquet"] {
         let out = dir.path().join(name);
-        let output = Command::new(env!("CARGO_BIN_EXE_valuedrift"))
-            .args(["simulate", "--model", "gainloss-linear", "--seed", "5"])
-            .arg("--params")
-            .arg(params)
-            .arg("--design")
-            .arg(design)
-            .arg("--out")
-            .arg(&out)
-            .output()
-            .unwrap();
-        assert!(
-            output.status.success(),
-            "{}",
-            String::from_utf8_lossy(&output.stderr)
+        let output = valuedrift(
+            &["simulate", "--model", "gainloss-linear", "--seed", "5"],
+            &[("--params", params), ("--design", design), ("--out", &out)],
         );
+        assert_success(&output);
         tables.push(read_trials(&out, &ColumnMap::default()).unwrap());
     }
     // The Parquet file is Parquet (magic bytes PAR1 at both ends: Apache Parquet format
@@ -308,16 +303,10 @@ fn simulate_writes_parquet_that_reads_back_as_the_same_table_as_its_csv() {
 
     // Any other extension is refused by name, and nothing is written.
     let out = dir.path().join("sim.txt");
-    let output = Command::new(env!("CARGO_BIN_EXE_valuedrift"))
-        .args(["simulate", "--model", "gainloss-linear"])
-        .arg("--params")
-        .arg(params)
-        .arg("--design")
-        .arg(design)
-        .arg("--out")
-        .arg(&out)
-        .output()
-        .unwrap();
+    let output = valuedrift(
+        &["simulate", "--model", "gainloss-linear"],
+        &[("--params", params), ("--design", design), ("--out", &out)],
+    );
     assert!(!output.status.success());
     let stderr = String::from_utf8_lossy(&output.stderr);
     assert!(

@@ -4,7 +4,7 @@ use crate::data::{ColumnMap, Subject, Trial, TrialTable};
 use crate::files::OutputSet;
 use crate::fit::SubjectFit;
 use polars_arrow::array::{Array, BooleanArray, PrimitiveArray, Utf8Array};
-use polars_arrow::datatypes::{ArrowDataType, ArrowSchema, Field};
+use polars_arrow::datatypes::{ArrowSchema, Field};
 use polars_arrow::record_batch::RecordBatchT;
 use polars_parquet::write::{
     CompressionOptions, FileWriter, RowGroupIterator, StatisticsOptions, Version, WriteOptions,
@@ -123,39 +123,23 @@ impl Table {
         let mut fields = Vec::with_capacity(self.columns.len());
         let mut arrays: Vec<Box<dyn Array>> = Vec::with_capacity(self.columns.len());
         for (name, column) in &self.columns {
-            let (dtype, nullable, array): (_, _, Box<dyn Array>) = match column {
-                Column::Text(v) => (
-                    ArrowDataType::LargeUtf8,
-                    false,
-                    Box::new(Utf8Array::<i64>::from_slice(v)),
-                ),
-                Column::OptionalText(v) => (
-                    ArrowDataType::LargeUtf8,
-                    true,
-                    Box::new(Utf8Array::<i64>::from(v)),
-                ),
-                Column::Number(v) => (
-                    ArrowDataType::Float64,
-                    true,
-                    Box::new(PrimitiveArray::<f64>::from(v.as_slice())),
-                ),
-                Column::Integer(v) => (
-                    ArrowDataType::Int64,
-                    false,
-                    Box::new(PrimitiveArray::<i64>::from_slice(v)),
-                ),
-                Column::Flag(v) => (
-                    ArrowDataType::Boolean,
-                    false,
-                    Box::new(BooleanArray::from_slice(v)),
-                ),
-                Column::OptionalFlag(v) => (
-                    ArrowDataType::Boolean,
-                    true,
-                    Box::new(BooleanArray::from(v.as_slice())),
-                ),
+            let array: Box<dyn Array> = match column {
+                Column::Text(v) => Box::new(Utf8Array::<i64>::from_slice(v)),
+                Column::OptionalText(v) => Box::new(Utf8Array::<i64>::from(v)),
+                Column::Number(v) => Box::new(PrimitiveArray::<f64>::from(v.as_slice())),
+                Column::Integer(v) => Box::new(PrimitiveArray::<i64>::from_slice(v)),
+                Column::Flag(v) => Box::new(BooleanArray::from_slice(v)),
+                Column::OptionalFlag(v) => Box::new(BooleanArray::from(v.as_slice())),
             };
-            fields.push(Field::new(name.as_str().into(), dtype, nullable));
+            let nullable = matches!(
+                column,
+                Column::OptionalText(_) | Column::Number(_) | Column::OptionalFlag(_)
+            );
+            fields.push(Field::new(
+                name.as_str().into(),
+                array.dtype().clone(),
+                nullable,
+            ));
             arrays.push(array);
         }
         let schema: ArrowSchema = fields.into_iter().map(|f| (f.name.clone(), f)).collect();
@@ -247,33 +231,16 @@ pub fn estimates_wide_table(fits: &[SubjectFit]) -> Table {
     for name in names {
         let of = |f: &'_ SubjectFit| f.estimates.iter().find(|e| e.name == name).cloned();
         let cells: Vec<Option<crate::fit::ParameterEstimate>> = fits.iter().map(of).collect();
+        let number = |f: fn(&crate::fit::ParameterEstimate) -> Option<f64>| {
+            Column::Number(cells.iter().map(|e| e.as_ref().and_then(f)).collect())
+        };
+        let at_bound = cells.iter().map(|e| e.as_ref().map(|e| e.at_bound));
         table = table
-            .with(
-                name,
-                Column::Number(
-                    cells
-                        .iter()
-                        .map(|e| e.as_ref().map(|e| e.estimate))
-                        .collect(),
-                ),
-            )
-            .with(
-                &format!("{name}_se"),
-                Column::Number(
-                    cells
-                        .iter()
-                        .map(|e| e.as_ref().and_then(|e| e.std_error))
-                        .collect(),
-                ),
-            )
+            .with(name, number(|e| Some(e.estimate)))
+            .with(&format!("{name}_se"), number(|e| e.std_error))
             .with(
                 &format!("{name}_at_bound"),
-                Column::OptionalFlag(
-                    cells
-                        .iter()
-                        .map(|e| e.as_ref().map(|e| e.at_bound))
-                        .collect(),
-                ),
+                Column::OptionalFlag(at_bound.collect()),
             );
     }
     table
