@@ -7,7 +7,8 @@
 
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
-use valuedrift::data::{TrialTable, write_trials};
+use valuedrift::data::TrialTable;
+use valuedrift::results::trials_table;
 use valuedrift::simulate::orchard_design;
 
 const SEED: u64 = 20_261_201;
@@ -50,7 +51,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         present: Vec::new(),
     };
     let mut design = Vec::new();
-    write_trials(&table, &mut design)?;
+    trials_table(&table).write_csv(&mut design)?;
     std::fs::write("demo-data/orchard_design.csv", design)?;
     std::fs::write("demo-data/generating_values.csv", values)?;
     println!(

@@ -636,8 +636,10 @@ fn fit_control_writes_every_output() {
     );
     let expected: BTreeSet<PathBuf> = [
         "parameters.csv",
+        "estimates_wide.csv",
         "fit_summary.csv",
         "parameters.parquet",
+        "estimates_wide.parquet",
         "fit_summary.parquet",
         "run.json",
     ]

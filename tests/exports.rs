@@ -7,11 +7,12 @@ use rand_chacha::ChaCha8Rng;
 use std::collections::HashMap;
 use std::path::Path;
 use std::process::Command;
-use valuedrift::data::{Choice, Subject, Trial, TrialTable, write_trials};
+use valuedrift::data::{Choice, Subject, Trial, TrialTable};
 use valuedrift::exports::{
     Latent, Scale, bids_label, bids_labels, events_files, latents, run_indices, scale_values,
 };
 use valuedrift::model::{Model, load_model};
+use valuedrift::results::trials_table;
 use valuedrift::simulate::{SimulationSettings, orchard_design, simulate_subject};
 
 #[allow(clippy::too_many_arguments)]
@@ -301,9 +302,14 @@ fn modulators_are_centred_or_z_scored_within_each_run_with_n_a_where_expected() 
     let subject = worked_subject();
     let rows: Vec<Latent> = latents(&model, &subject, &natural(&model)).unwrap();
     for scale in [Scale::Center, Scale::Zscore] {
-        let files = events_files(&model, &subject, "w1", None, &rows, scale, true);
+        let files = events_files(&model, &subject, "w1", "choice", &rows, scale, true);
         assert_eq!(files.len(), 2);
-        assert_eq!(files[0].stem, "sub-w1_run-1_desc-gainlosslinear_events");
+        // BIDS derivative layout: sub-<label>/func/, task entity required for functional files
+        // (BIDS specification, common principles: file name structure; from memory).
+        assert_eq!(
+            files[0].stem,
+            "sub-w1/func/sub-w1_task-choice_run-1_desc-gainlosslinear_events"
+        );
         for file in &files {
             for name in MODULATORS {
                 let k = col(&file.header, name);
@@ -348,12 +354,12 @@ fn modulators_are_centred_or_z_scored_within_each_run_with_n_a_where_expected() 
     }
     // Centred prediction errors of run 1, by hand: d = 1 and 0 (trial 3 has none), mean 0.5,
     // so 0.5 and −0.5 (arithmetic from the worked example above).
-    let files = events_files(&model, &subject, "w1", None, &rows, Scale::Center, true);
+    let files = events_files(&model, &subject, "w1", "choice", &rows, Scale::Center, true);
     let k = col(&files[0].header, "prediction_error");
     let centred: Vec<f64> = files[0].rows.iter().filter_map(|r| parse(&r[k])).collect();
     assert_eq!(centred, vec![0.5, -0.5]);
     // Raw values are written unscaled.
-    let files = events_files(&model, &subject, "w1", None, &rows, Scale::None, true);
+    let files = events_files(&model, &subject, "w1", "choice", &rows, Scale::None, true);
     let raw: Vec<f64> = files[0].rows.iter().filter_map(|r| parse(&r[k])).collect();
     assert_eq!(raw, vec![1.0, 0.0]);
 }
@@ -407,7 +413,7 @@ fn simulated_data(dir: &Path) -> std::path::PathBuf {
     };
     let path = dir.join("trials.csv");
     let mut bytes = Vec::new();
-    write_trials(&table, &mut bytes).unwrap();
+    trials_table(&table).write_csv(&mut bytes).unwrap();
     std::fs::write(&path, bytes).unwrap();
     path
 }
@@ -498,27 +504,39 @@ fn export_writes_latents_and_bids_events_files() {
     assert_ne!(&no_response[h("value_difference")], "");
     assert!(out.join("latents.parquet").is_file());
 
-    // Subject labels mapped to BIDS labels.
-    let labels = std::fs::read_to_string(out.join("subject_labels.tsv")).unwrap();
+    // Subject labels mapped to BIDS labels in participants.tsv (BIDS specification:
+    // participant_id first, sub-<label>; from memory), described by participants.json.
+    let participants = std::fs::read_to_string(out.join("participants.tsv")).unwrap();
     assert!(
-        labels.contains("sub-01\t01") && labels.contains("p_02\tp02"),
-        "{labels}"
+        participants.starts_with("participant_id\tsubject\tgroup\n")
+            && participants.contains("sub-01\tsub-01\t")
+            && participants.contains("sub-p02\tp_02\t"),
+        "{participants}"
+    );
+    let dictionary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("participants.json")).unwrap())
+            .unwrap();
+    for column in ["participant_id", "subject", "group"] {
+        assert!(dictionary[column]["Description"].is_string(), "{column}");
+    }
+    // The files outside the specification are named in .bidsignore; a README describes the set.
+    let ignored = std::fs::read_to_string(out.join(".bidsignore")).unwrap();
+    assert!(ignored.lines().any(|l| l == "latents.csv") && ignored.contains("*_design.tsv"));
+    assert!(
+        std::fs::read_to_string(out.join("README"))
+            .unwrap()
+            .contains("gainloss-linear")
     );
 
-    // One events file per subject and run, with sidecars.
-    let mut names: Vec<String> = std::fs::read_dir(&out)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .filter(|n| n.ends_with("_events.tsv"))
-        .collect();
-    names.sort();
+    // One events file per subject and run, with sidecars, in the subject's func folder.
+    let names = func_files(&out, "_events.tsv");
     assert_eq!(
         names,
         [
-            "sub-01_run-1_desc-gainlosslinear_events.tsv",
-            "sub-01_run-2_desc-gainlosslinear_events.tsv",
-            "sub-p02_run-1_desc-gainlosslinear_events.tsv",
-            "sub-p02_run-2_desc-gainlosslinear_events.tsv",
+            "sub-01/func/sub-01_task-choice_run-1_desc-gainlosslinear_events.tsv",
+            "sub-01/func/sub-01_task-choice_run-2_desc-gainlosslinear_events.tsv",
+            "sub-p02/func/sub-p02_task-choice_run-1_desc-gainlosslinear_events.tsv",
+            "sub-p02/func/sub-p02_task-choice_run-2_desc-gainlosslinear_events.tsv",
         ]
     );
     let mut choice_events = 0;
@@ -544,8 +562,8 @@ fn export_writes_latents_and_bids_events_files() {
     assert_eq!(description["DatasetType"], "derivative");
     assert_eq!(description["GeneratedBy"][0]["Name"], "valuedrift");
 
-    // With --task the names carry the task entity after the subject (BIDS entity order: sub,
-    // ses, task, …, run, …, desc); a task label that is not alphanumeric is refused.
+    // --task sets the task entity, after the subject (BIDS entity order: sub, ses, task, …,
+    // run, …, desc); a task label that is not alphanumeric is refused.
     let with_task = |task: &str, out: &std::path::Path| {
         binary()
             .args(["export", "--model", "gainloss-linear", "--task", task])
@@ -562,7 +580,7 @@ fn export_writes_latents_and_bids_events_files() {
     assert!(with_task("orchard", &tasked).status.success());
     assert!(
         tasked
-            .join("sub-01_task-orchard_run-1_desc-gainlosslinear_events.tsv")
+            .join("sub-01/func/sub-01_task-orchard_run-1_desc-gainlosslinear_events.tsv")
             .is_file()
     );
     let refused = dir.path().join("refused");
@@ -735,6 +753,28 @@ fn export_with(dir: &Path, out: &Path, extra: &[&str]) -> std::process::Output {
         .unwrap()
 }
 
+/// The files of every subject's func folder in `out` whose names end in `suffix`, as paths
+/// relative to `out`, sorted.
+fn func_files(out: &Path, suffix: &str) -> Vec<String> {
+    let mut names = Vec::new();
+    for subject in std::fs::read_dir(out).unwrap() {
+        let subject = subject.unwrap().file_name().to_string_lossy().into_owned();
+        let func = out.join(&subject).join("func");
+        if !subject.starts_with("sub-") || !func.is_dir() {
+            continue;
+        }
+        names.extend(
+            std::fs::read_dir(&func)
+                .unwrap()
+                .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+                .filter(|n| n.ends_with(suffix))
+                .map(|n| format!("{subject}/func/{n}")),
+        );
+    }
+    names.sort();
+    names
+}
+
 /// Header and numeric rows of a tab-separated file.
 fn read_tsv(path: &Path) -> (Vec<String>, Vec<Vec<String>>) {
     let text = std::fs::read_to_string(path).unwrap();
@@ -766,19 +806,14 @@ fn export_with_tr_and_scans_writes_one_design_matrix_per_run() {
     );
     let stdout = String::from_utf8_lossy(&run.stdout);
     assert!(stdout.contains("4 design matrices"), "{stdout}");
-    let mut names: Vec<String> = std::fs::read_dir(&out)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .filter(|n| n.ends_with("_design.tsv"))
-        .collect();
-    names.sort();
+    let names = func_files(&out, "_design.tsv");
     assert_eq!(
         names,
         [
-            "sub-01_run-1_desc-gainlosslinear_design.tsv",
-            "sub-01_run-2_desc-gainlosslinear_design.tsv",
-            "sub-p02_run-1_desc-gainlosslinear_design.tsv",
-            "sub-p02_run-2_desc-gainlosslinear_design.tsv",
+            "sub-01/func/sub-01_task-choice_run-1_desc-gainlosslinear_design.tsv",
+            "sub-01/func/sub-01_task-choice_run-2_desc-gainlosslinear_design.tsv",
+            "sub-p02/func/sub-p02_task-choice_run-1_desc-gainlosslinear_design.tsv",
+            "sub-p02/func/sub-p02_task-choice_run-2_desc-gainlosslinear_design.tsv",
         ]
     );
     let timing = Timing {
@@ -889,10 +924,14 @@ fn design_matrices_warn_about_events_after_the_last_scan() {
         stderr.contains("start after the last scan") && stderr.contains("more than --scans 50"),
         "{stderr}"
     );
-    let (_, rows) = read_tsv(&out.join("sub-01_run-1_desc-gainlosslinear_design.tsv"));
+    let func = out.join("sub-01/func");
+    let (_, rows) = read_tsv(&func.join("sub-01_task-choice_run-1_desc-gainlosslinear_design.tsv"));
     assert_eq!(rows.len(), 50);
     let sidecar: serde_json::Value = serde_json::from_str(
-        &std::fs::read_to_string(out.join("sub-01_run-1_desc-gainlosslinear_design.json")).unwrap(),
+        &std::fs::read_to_string(
+            func.join("sub-01_task-choice_run-1_desc-gainlosslinear_design.json"),
+        )
+        .unwrap(),
     )
     .unwrap();
     assert_eq!(sidecar["TimeGridBinsPerScan"], 8);

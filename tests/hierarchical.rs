@@ -296,7 +296,9 @@ fn small_table_csv(dir: &std::path::Path) -> std::path::PathBuf {
     };
     let path = dir.join("trials.csv");
     let mut file = std::fs::File::create(&path).unwrap();
-    valuedrift::data::write_trials(&table, &mut file).unwrap();
+    valuedrift::results::trials_table(&table)
+        .write_csv(&mut file)
+        .unwrap();
     path
 }
 

@@ -10,7 +10,7 @@ use valuedrift::check::{
     CheckSettings, Mode, SubjectCheck, check_subjects, misfit, pooled, quantile_sorted,
     simulate_one_step_ahead,
 };
-use valuedrift::data::{Subject, TrialTable, write_trials};
+use valuedrift::data::{Subject, TrialTable};
 use valuedrift::likelihood::SubjectLikelihood;
 use valuedrift::model::{Model, load_model};
 use valuedrift::simulate::{SimulationSettings, orchard_design, simulate_subject};
@@ -234,7 +234,9 @@ fn inputs(dir: &Path) -> (std::path::PathBuf, std::path::PathBuf) {
         present: Vec::new(),
     };
     let mut bytes = Vec::new();
-    write_trials(&table, &mut bytes).unwrap();
+    valuedrift::results::trials_table(&table)
+        .write_csv(&mut bytes)
+        .unwrap();
     let data = dir.join("trials.csv");
     std::fs::write(&data, bytes).unwrap();
     (fits, data)

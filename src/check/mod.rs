@@ -682,11 +682,7 @@ fn statistic_table(rows: &[Row<'_>], extra: Vec<(&str, Column)>) -> Table {
         )
         .with(
             "outside_band",
-            Column::Text(
-                rows.iter()
-                    .map(|r| r.3.outside().map_or(String::new(), |o| o.to_string()))
-                    .collect(),
-            ),
+            Column::OptionalFlag(rows.iter().map(|r| r.3.outside()).collect()),
         )
 }
 

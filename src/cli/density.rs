@@ -89,8 +89,8 @@ fn compute(input: &Path) -> Result<Computed, InputError> {
         }
         let mut out: Vec<String> = record.iter().map(str::to_string).collect();
         out.resize(header.len(), String::new());
-        out.push(format!("{:.17e}", ln_density(rt, bound, &params)));
-        out.push(format!("{:.17e}", cdf(rt, bound, &params)));
+        out.push(crate::results::number_text(ln_density(rt, bound, &params)));
+        out.push(crate::results::number_text(cdf(rt, bound, &params)));
         records.push(out);
     }
     let mut header = header;

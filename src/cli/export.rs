@@ -4,8 +4,8 @@
 
 use crate::exports::hrf::{DesignFile, DoubleGamma, Timing, design_file};
 use crate::exports::{
-    Scale, bids_label, bids_labels, dataset_description, events_files, labels_table, latents,
-    latents_table,
+    BIDS_IGNORE, Scale, bids_label, bids_labels, dataset_description, dataset_readme, events_files,
+    latents, latents_table, participants_sidecar, participants_table,
 };
 use crate::files::OutputSet;
 use std::path::Path;
@@ -18,8 +18,8 @@ pub struct ExportRun<'a> {
     pub scale: Scale,
     /// Scan timing for design matrices (None: no design matrices).
     pub timing: Option<Timing>,
-    /// BIDS task label for the file names, if any.
-    pub task: Option<&'a str>,
+    /// BIDS task label for the file names.
+    pub task: &'a str,
 }
 
 /// The scan timing from `--tr`, `--scans` and `--microtime-bins`: both of the first two or
@@ -62,11 +62,10 @@ pub fn timing(
 /// Reads, computes and writes every output at once (nothing is written on error).
 pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     let out = run.input.out.as_path();
-    if let Some(task) = run.task
-        && bids_label(task).as_deref() != Some(task)
-    {
+    if bids_label(run.task).as_deref() != Some(run.task) {
         return Err(format!(
-            "--task {task}: expected a BIDS label (letters and digits only, e.g. orchard)"
+            "--task {}: expected a BIDS label (letters and digits only, e.g. orchard)",
+            run.task
         )
         .into());
     }
@@ -101,16 +100,24 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     };
     let mut outputs = OutputSet::new();
     latents_table(&all).stage_both(&mut outputs, out, "latents")?;
-    if has_onsets {
-        outputs.stage(&out.join("subject_labels.tsv"), |w| {
-            labels_table(&table.subjects, &labels).write_delimited(w, b'\t')
-        })?;
-    }
     if !events.is_empty() {
-        let description = dataset_description(&model, super::RESEARCH_CAUTION);
-        outputs.stage(&out.join("dataset_description.json"), |w| {
-            serde_json::to_writer_pretty(w, &description)
+        // The files a BIDS derivative dataset has at its root besides the subjects' folders.
+        for (name, value) in [
+            (
+                "dataset_description.json",
+                dataset_description(&model, super::RESEARCH_CAUTION),
+            ),
+            ("participants.json", participants_sidecar()),
+        ] {
+            outputs.stage(&out.join(name), |w| serde_json::to_writer_pretty(w, &value))?;
+        }
+        outputs.stage(&out.join("participants.tsv"), |w| {
+            participants_table(&table.subjects, &labels).write_delimited(w, b'\t')
         })?;
+        let readme = dataset_readme(&model, super::RESEARCH_CAUTION);
+        for (name, text) in [("README", readme.as_str()), (".bidsignore", BIDS_IGNORE)] {
+            outputs.stage(&out.join(name), |w| w.write_all(text.as_bytes()))?;
+        }
     }
     {
         // Each events file and design matrix: a TSV and its JSON sidecar.
@@ -142,7 +149,8 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         );
     } else {
         println!(
-            "{} events files (modulators {}) in {}",
+            "{} events files (modulators {}) in the BIDS derivative dataset {} \
+             (sub-<label>/func/)",
             events.len(),
             match run.scale {
                 Scale::Center => "mean-centred per run",

@@ -7,8 +7,8 @@ use crate::fit::{
 };
 use crate::model::{Model, load_model};
 use crate::results::{
-    EstimateSource, group_correlation_table, group_evidence_table, group_prior_table,
-    parameters_table, summary_table,
+    EstimateSource, estimates_wide_table, group_correlation_table, group_evidence_table,
+    group_prior_table, parameters_table, summary_table,
 };
 use indicatif::{ProgressBar, ProgressStyle};
 use sha2::{Digest, Sha256};
@@ -186,6 +186,7 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         run.out,
         EstimateSource::PerSubject.parameters_stem(),
     )?;
+    estimates_wide_table(&fits).stage_both(&mut outputs, run.out, "estimates_wide")?;
     summary_table(&fits).stage_both(
         &mut outputs,
         run.out,
@@ -207,6 +208,7 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             run.out,
             EstimateSource::EmpiricalBayes.parameters_stem(),
         )?;
+        estimates_wide_table(&shrunken).stage_both(&mut outputs, run.out, "eb_estimates_wide")?;
         summary_table(&shrunken).stage_both(
             &mut outputs,
             run.out,

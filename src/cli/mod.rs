@@ -50,7 +50,8 @@ pub enum Command {
     /// declares priors): several quasi-random starts of L-BFGS with exact gradients, standard
     /// errors and 95 % intervals from the observed information.
     ///
-    /// Writes DIR/parameters.csv, DIR/fit_summary.csv, their Parquet twins, and DIR/run.json.
+    /// Writes DIR/parameters.csv (one row per subject, model and parameter), DIR/estimates_wide.csv
+    /// (one row per subject and model), DIR/fit_summary.csv, their Parquet twins, and DIR/run.json.
     #[command(after_help = RESEARCH_CAUTION)]
     Fit {
         /// Trial table (.csv, .tsv or .parquet); see the README for its columns.
@@ -107,10 +108,12 @@ pub enum Command {
     /// at each subject's estimates in DIR/parameters.csv (from `valuedrift fit`).
     ///
     /// Writes OUT/latents.csv and OUT/latents.parquet (raw values, one row per trial) and, when
-    /// the trial table has onsets, one BIDS events file per subject and run
-    /// (sub-<label>[_run-<index>]_desc-<model>_events.tsv with a .json sidecar) with choice and
-    /// outcome events and one column per modulator, plus OUT/subject_labels.tsv and
-    /// OUT/dataset_description.json (a BIDS derivative dataset).
+    /// the trial table has onsets, makes OUT a BIDS derivative dataset: one events file per
+    /// subject and run, OUT/sub-<label>/func/sub-<label>_task-<task>[_run-<index>]_desc-<model>
+    /// _events.tsv with a .json sidecar, with choice and outcome events and one column per
+    /// modulator; OUT/dataset_description.json, README, participants.tsv (+ .json; the BIDS
+    /// label of each subject of the trial table) and .bidsignore (naming the latents tables and
+    /// design matrices, which the BIDS specification does not cover).
     #[command(after_help = RESEARCH_CAUTION)]
     Export {
         /// The fit folder, trial table, model and output folder.
@@ -120,7 +123,7 @@ pub enum Command {
         #[arg(long, value_enum, default_value_t = crate::exports::Scale::Center)]
         scale: crate::exports::Scale,
         /// Repetition time in seconds; with --scans, also write one design matrix per subject
-        /// and run (sub-<label>[_run-<index>]_desc-<model>_design.tsv + .json): the events'
+        /// and run (beside its events file, ending _desc-<model>_design.tsv + .json): the events'
         /// regressors convolved with the canonical double-gamma haemodynamic response
         /// (Friston et al. 1998; Glover 1999), sampled at the start of each scan.
         #[arg(long)]
@@ -131,10 +134,10 @@ pub enum Command {
         /// Microtime bins per scan for the convolution (default 16); needs --tr and --scans.
         #[arg(long)]
         microtime_bins: Option<usize>,
-        /// BIDS task label put in the events and design file names
-        /// (sub-<label>_task-<task>[_run-<index>]_desc-<model>_events.tsv).
-        #[arg(long)]
-        task: Option<String>,
+        /// BIDS task label put in the events and design file names (letters and digits; the
+        /// BIDS specification requires a task label in the names of functional files).
+        #[arg(long, default_value = "choice")]
+        task: String,
     },
     /// Predictive check of a fitted model: simulate each subject's data N times at its
     /// estimates in DIR/parameters.csv (freely where the table gives outcome_if_a and
@@ -242,7 +245,7 @@ pub enum Command {
         /// Trial design (.csv, .tsv or .parquet).
         #[arg(long)]
         design: PathBuf,
-        /// Output trial table (CSV).
+        /// Output trial table: .csv (comma-separated) or .parquet, chosen by the extension.
         #[arg(long)]
         out: PathBuf,
         /// Seed.
@@ -420,7 +423,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             input: &input,
             scale,
             timing: export::timing(tr, scans, microtime_bins)?,
-            task: task.as_deref(),
+            task: &task,
         }),
         Command::Check {
             input,

@@ -1,8 +1,9 @@
 //! `valuedrift simulate`: synthetic trials from a model, parameters and a design.
 
-use crate::data::{ColumnMap, TrialTable, read_trials, write_trials};
+use crate::data::{ColumnMap, TrialTable, read_trials};
 use crate::files::{InputError, write_atomically};
 use crate::model::{Model, load_model};
+use crate::results::trials_table;
 use crate::simulate::{SimulationSettings, simulate_subject};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
@@ -115,6 +116,34 @@ pub fn simulate_table(
     Ok(TrialTable { subjects, present })
 }
 
+/// The file format of the simulated trial table, from the extension of `--out`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum OutputFormat {
+    /// `.csv`: comma-separated text.
+    Csv,
+    /// `.parquet`: the same columns as Parquet.
+    Parquet,
+}
+
+impl OutputFormat {
+    /// `.csv` (any case) is CSV, `.parquet` Parquet; any other extension, or none, is an error
+    /// naming the expected ones.
+    pub fn of(out: &Path) -> Result<OutputFormat, String> {
+        let extension = out.extension().and_then(|e| e.to_str()).unwrap_or("");
+        if extension.eq_ignore_ascii_case("csv") {
+            Ok(OutputFormat::Csv)
+        } else if extension.eq_ignore_ascii_case("parquet") {
+            Ok(OutputFormat::Parquet)
+        } else {
+            Err(format!(
+                "--out {}: expected a file name ending in .csv or .parquet (the format is \
+                 chosen by the extension)",
+                out.display()
+            ))
+        }
+    }
+}
+
 /// The command.
 pub fn run(
     model: &str,
@@ -124,6 +153,7 @@ pub fn run(
     seed: u64,
     deadline: Option<f64>,
 ) -> Result<(), Box<dyn std::error::Error>> {
+    let format = OutputFormat::of(out)?;
     let model = load_model(model)?;
     let parameters = read_parameters(params, &model)?;
     let design_table = read_trials(design, &ColumnMap::default())?;
@@ -132,7 +162,11 @@ pub fn run(
         ..SimulationSettings::default()
     };
     let table = simulate_table(&model, &parameters, &design_table, settings, seed, design)?;
-    write_atomically(out, |w| write_trials(&table, w))?;
+    let trials = trials_table(&table);
+    match format {
+        OutputFormat::Csv => write_atomically(out, |w| trials.write_csv(w))?,
+        OutputFormat::Parquet => write_atomically(out, |w| trials.write_parquet(w))?,
+    }
     let n: usize = table.subjects.iter().map(|s| s.trials.len()).sum();
     println!(
         "simulated {} subjects, {n} trials, model {}, seed {seed} -> {}",

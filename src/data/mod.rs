@@ -19,10 +19,8 @@
 //! | `outcome_if_a`, `outcome_if_b` | number | no | what each option would deliver (designs for simulation) |
 
 mod read;
-mod write;
 
 pub use read::{ColumnMap, read_trials};
-pub use write::write_trials;
 
 /// The option chosen on a trial. Choosing `a` is the upper bound of the diffusion.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]

@@ -240,7 +240,9 @@ pub fn convolve(events: &[Event], hrf: &DoubleGamma, timing: Timing) -> Vec<f64>
 /// what fell outside the scans.
 #[derive(Clone, Debug, PartialEq)]
 pub struct DesignFile {
-    /// `sub-<label>[_run-<index>]_desc-<model>_design`.
+    /// Path relative to the dataset folder, without extension: the events file's with
+    /// `_design` for `_events` (`sub-<label>/func/sub-<label>_task-<task>[_run-<index>]
+    /// _desc-<model>_design`), so that the matrix sits beside its events file.
     pub stem: String,
     /// Run label of the trial table.
     pub run: String,
@@ -268,7 +270,7 @@ impl DesignFile {
             let row: Vec<String> = self
                 .columns
                 .iter()
-                .map(|c| format!("{}", c[n] + 0.0))
+                .map(|c| crate::results::number_text(c[n] + 0.0))
                 .collect();
             writeln!(w, "{}", row.join("\t"))?;
         }
@@ -290,6 +292,8 @@ pub fn design_file(
     with_outcomes: bool,
 ) -> DesignFile {
     use serde_json::json;
+    // The events file sits in the same folder: its name alone.
+    let events_name = events.stem.rsplit('/').next().unwrap_or(&events.stem);
     let types: &[&'static str] = if with_outcomes {
         &["choice", "outcome"]
     } else {
@@ -319,7 +323,7 @@ pub fn design_file(
                     "Every `{kind}` event of {}.tsv with amplitude 1 and the event's duration \
                      there ({}), convolved with the haemodynamic response and sampled at the \
                      start of each scan.",
-                    events.stem,
+                    events_name,
                     if kind == "choice" { "the response time; 0, an impulse, without response" }
                     else { "0: an impulse" }
                 ),
@@ -360,7 +364,7 @@ pub fn design_file(
                      haemodynamic response and sampled at the start of each scan. The events \
                      file says: {}",
                     m.name,
-                    events.stem,
+                    events_name,
                     m.trial_type,
                     source["Description"].as_str().unwrap_or("")
                 ),
@@ -407,7 +411,7 @@ pub fn design_file(
             Scale::Zscore => "z-scored within the run (sd with n - 1), as in the events file",
             Scale::None => "raw, as in the events file",
         },
-        "EventsFile": format!("{}.tsv", events.stem),
+        "EventsFile": format!("{}.tsv", events_name),
         "EventsAfterLastScan": events_after_last_scan,
         "Columns": header,
         "ColumnDescriptions": described,

@@ -20,7 +20,7 @@ use crate::data::{Choice, Subject};
 use crate::files::InputError;
 use crate::likelihood::{DataMismatch, SubjectLikelihood};
 use crate::model::Model;
-use crate::results::{Column, Table};
+use crate::results::{Column, Table, number_text};
 use std::collections::HashMap;
 use std::io::Write;
 use std::path::Path;
@@ -561,10 +561,11 @@ fn modulators(model: &Model) -> Vec<&'static Modulator> {
         .collect()
 }
 
-/// One events file: name stem (without extension), rows, sidecar.
+/// One events file: path stem (without extension), rows, sidecar.
 #[derive(Clone, Debug, PartialEq)]
 pub struct EventsFile {
-    /// `sub-<label>[_run-<index>]_desc-<model>_events`.
+    /// Path relative to the dataset folder, without extension:
+    /// `sub-<label>/func/sub-<label>_task-<task>[_run-<index>]_desc-<model>_events`.
     pub stem: String,
     /// Run label of the trial table.
     pub run: String,
@@ -631,34 +632,33 @@ pub fn desc_label(model_name: &str) -> String {
 }
 
 fn cell(x: Option<f64>) -> String {
-    x.map_or_else(|| "n/a".to_string(), |v| format!("{v}"))
+    x.map_or_else(|| "n/a".to_string(), number_text)
 }
 
 /// The events files of one subject (one per run), from its latents (in trial order) and BIDS
 /// label. Choice events are at the trial onset with the response time as duration (0 without
 /// response); outcome events at the outcome onset with duration 0, when the table has outcome
 /// onsets (`with_outcomes`). Events without onset are left out and counted. Modulators are
-/// scaled within each run. With a `task` label the names carry the BIDS task entity:
-/// `sub-<label>_task-<task>[_run-<index>]_desc-<model>_events`.
+/// scaled within each run. The files belong in the subject's `func` folder of a BIDS derivative
+/// dataset: `sub-<label>/func/sub-<label>_task-<task>[_run-<index>]_desc-<model>_events`
+/// (the task entity is required for functional files by the BIDS specification).
 pub fn events_files(
     model: &Model,
     subject: &Subject,
     label: &str,
-    task: Option<&str>,
+    task: &str,
     latents: &[Latent],
     scale: Scale,
     with_outcomes: bool,
 ) -> Vec<EventsFile> {
     let modulators = modulators(model);
     let desc = desc_label(&model.name);
-    let task = task.map_or(String::new(), |t| format!("_task-{t}"));
     run_indices(subject)
         .into_iter()
         .map(|(run, index)| {
-            let stem = match index {
-                Some(i) => format!("sub-{label}{task}_run-{i}_desc-{desc}_events"),
-                None => format!("sub-{label}{task}_desc-{desc}_events"),
-            };
+            let run_entity = index.map_or(String::new(), |i| format!("_run-{i}"));
+            let stem =
+                format!("sub-{label}/func/sub-{label}_task-{task}{run_entity}_desc-{desc}_events");
             // (onset, duration, trial_type, latent)
             let mut events: Vec<(f64, f64, &str, &Latent)> = Vec::new();
             let (mut skipped_choice, mut skipped_outcome) = (0, 0);
@@ -700,8 +700,8 @@ pub fn events_files(
                 .enumerate()
                 .map(|(k, e)| {
                     let mut row = vec![
-                        format!("{}", e.0),
-                        format!("{}", e.1),
+                        number_text(e.0),
+                        number_text(e.1),
                         e.2.to_string(),
                         e.3.trial.to_string(),
                         e.3.choice
@@ -828,12 +828,65 @@ fn sidecar(
     serde_json::Value::Object(map)
 }
 
-/// The subject label mapping as a two-column TSV table (subject, participant_label).
-pub fn labels_table(subjects: &[Subject], labels: &[String]) -> Table {
+/// The `participants.tsv` of the derivative dataset: `participant_id` (`sub-<label>`), the
+/// `subject` label of the trial table it stands for (labels keep letters and digits only, so
+/// they may differ) and the `group`.
+pub fn participants_table(subjects: &[Subject], labels: &[String]) -> Table {
     Table::default()
+        .with(
+            "participant_id",
+            Column::Text(labels.iter().map(|l| format!("sub-{l}")).collect()),
+        )
         .with(
             "subject",
             Column::Text(subjects.iter().map(|s| s.id.clone()).collect()),
         )
-        .with("participant_label", Column::Text(labels.to_vec()))
+        .with(
+            "group",
+            Column::Text(subjects.iter().map(|s| s.group.clone()).collect()),
+        )
+}
+
+/// The `participants.json` data dictionary of [`participants_table`].
+pub fn participants_sidecar() -> serde_json::Value {
+    serde_json::json!({
+        "participant_id": {
+            "LongName": "Participant identifier",
+            "Description": "BIDS participant label: the trial table's subject label with \
+                            everything but letters and digits removed",
+        },
+        "subject": {
+            "LongName": "Subject label in the trial table",
+            "Description": "The subject column of the trial table the model was fitted to",
+        },
+        "group": {
+            "LongName": "Group label",
+            "Description": "The group column of the trial table (empty without one)",
+        },
+    })
+}
+
+/// The `.bidsignore` of the export folder: the files that the BIDS specification does not name
+/// (the tidy latents table, and the design matrices, which have no BIDS suffix), one glob per
+/// line, so that validators of the specification skip them rather than report them.
+pub const BIDS_IGNORE: &str = "latents.csv\nlatents.parquet\n*_design.tsv\n*_design.json\n";
+
+/// The `README` of the derivative dataset: what the files are and how they were made.
+pub fn dataset_readme(model: &Model, caution: &str) -> String {
+    format!(
+        "Per-trial latent variables of the reinforcement-learning drift-diffusion model {name}, \
+         written by valuedrift {version} as a BIDS derivative dataset.\n\n\
+         sub-<label>/func/*_desc-{desc}_events.tsv: one events file per participant and run, \
+         with choice and outcome events and one column per parametric modulator (the model run \
+         forward at the participant's fitted parameters); each has a JSON sidecar describing \
+         every column and the scaling applied.\n\
+         sub-<label>/func/*_desc-{desc}_design.tsv (when the scan timing was given): the events \
+         convolved with the canonical haemodynamic response, one row per scan.\n\
+         participants.tsv: the participant labels and the trial table's subject labels.\n\
+         latents.csv and latents.parquet: every latent variable of every trial, unscaled.\n\n\
+         {caution}\n",
+        name = model.name,
+        version = env!("CARGO_PKG_VERSION"),
+        desc = desc_label(&model.name),
+    )
 }

@@ -1,40 +1,76 @@
 //! Tidy result tables (CSV and Parquet) and the run record (JSON) of a fit.
 
+use crate::data::{ColumnMap, Subject, Trial, TrialTable};
 use crate::files::OutputSet;
 use crate::fit::SubjectFit;
-use polars::prelude::{Column as PolarsColumn, DataFrame, NamedFrom, ParquetWriter, Series};
+use polars_arrow::array::{Array, BooleanArray, PrimitiveArray, Utf8Array};
+use polars_arrow::datatypes::{ArrowSchema, Field};
+use polars_arrow::record_batch::RecordBatchT;
+use polars_parquet::write::{
+    CompressionOptions, FileWriter, RowGroupIterator, StatisticsOptions, Version, WriteOptions,
+    get_dtype_encoding,
+};
 use std::io::Write;
 use std::path::Path;
+
+/// The shortest text that parses back to exactly `x`: Rust's `{}` (shortest round-trip digits,
+/// plain decimal) or `{:e}` (the same digits with an exponent), whichever is shorter, the plain
+/// form on a tie. Non-finite values are written as `inf`, `-inf` or `NaN`.
+///
+/// Rust's float formatting prints the shortest digit string that reads back to the same f64
+/// (Steele & White 1990; Adams 2018), but `{}` never uses an exponent, so a value near 0 or
+/// above 1e16 would otherwise be written with hundreds of digits. Every CSV and TSV writer of the
+/// crate formats its numbers here.
+pub fn number_text(x: f64) -> String {
+    let plain = format!("{x}");
+    if !x.is_finite() {
+        return plain;
+    }
+    let exponent = format!("{x:e}");
+    if exponent.len() < plain.len() {
+        exponent
+    } else {
+        plain
+    }
+}
 
 /// One column of a tidy table.
 #[derive(Clone, Debug, PartialEq)]
 pub enum Column {
     /// Text values.
     Text(Vec<String>),
+    /// Text values that may be missing: an empty CSV field and a Parquet null.
+    OptionalText(Vec<Option<String>>),
     /// Numbers; `None` is written as an empty CSV field and a Parquet null.
     Number(Vec<Option<f64>>),
     /// Whole numbers.
     Integer(Vec<i64>),
     /// Flags.
     Flag(Vec<bool>),
+    /// Flags that may be missing: an empty CSV field and a Parquet null.
+    OptionalFlag(Vec<Option<bool>>),
 }
 
 impl Column {
     fn len(&self) -> usize {
         match self {
             Column::Text(v) => v.len(),
+            Column::OptionalText(v) => v.len(),
             Column::Number(v) => v.len(),
             Column::Integer(v) => v.len(),
             Column::Flag(v) => v.len(),
+            Column::OptionalFlag(v) => v.len(),
         }
     }
 
     fn cell(&self, row: usize) -> String {
         match self {
             Column::Text(v) => v[row].clone(),
-            Column::Number(v) => v[row].map_or(String::new(), |x| format!("{x}")),
+            Column::OptionalText(v) => v[row].clone().unwrap_or_default(),
+            Column::Number(v) => v[row].map_or(String::new(), number_text),
             Column::Integer(v) => v[row].to_string(),
             Column::Flag(v) => v[row].to_string(),
+            Column::OptionalFlag(v) => v[row].map_or(String::new(), |b| b.to_string()),
         }
     }
 }
@@ -76,23 +112,57 @@ impl Table {
         Ok(())
     }
 
-    /// Writes the table as Parquet (polars).
+    /// Writes the table as Parquet that old and new Arrow readers read as it is (checked with
+    /// pyarrow 12.0.1 and the current pyarrow by tests/scripts/parquet_readers.sh): text as UTF-8
+    /// byte arrays, numbers as doubles, whole numbers as 64-bit integers,
+    /// flags as Parquet booleans, missing values as nulls; Snappy compression; no embedded Arrow
+    /// schema, so each reader derives the column types from the Parquet schema alone (the Arrow
+    /// schema polars' own writer embeds declares string views, which older readers reject:
+    /// pyarrow 12.0.1 fails with "Unrecognized type: 24").
     pub fn write_parquet(&self, w: &mut dyn Write) -> Result<(), polars::error::PolarsError> {
-        let columns: Vec<PolarsColumn> = self
-            .columns
-            .iter()
-            .map(|(name, c)| {
-                let series = match c {
-                    Column::Text(v) => Series::new(name.into(), v),
-                    Column::Number(v) => Series::new(name.into(), v),
-                    Column::Integer(v) => Series::new(name.into(), v),
-                    Column::Flag(v) => Series::new(name.into(), v),
-                };
-                series.into()
-            })
+        let mut fields = Vec::with_capacity(self.columns.len());
+        let mut arrays: Vec<Box<dyn Array>> = Vec::with_capacity(self.columns.len());
+        for (name, column) in &self.columns {
+            let array: Box<dyn Array> = match column {
+                Column::Text(v) => Box::new(Utf8Array::<i64>::from_slice(v)),
+                Column::OptionalText(v) => Box::new(Utf8Array::<i64>::from(v)),
+                Column::Number(v) => Box::new(PrimitiveArray::<f64>::from(v.as_slice())),
+                Column::Integer(v) => Box::new(PrimitiveArray::<i64>::from_slice(v)),
+                Column::Flag(v) => Box::new(BooleanArray::from_slice(v)),
+                Column::OptionalFlag(v) => Box::new(BooleanArray::from(v.as_slice())),
+            };
+            let nullable = matches!(
+                column,
+                Column::OptionalText(_) | Column::Number(_) | Column::OptionalFlag(_)
+            );
+            fields.push(Field::new(
+                name.as_str().into(),
+                array.dtype().clone(),
+                nullable,
+            ));
+            arrays.push(array);
+        }
+        let schema: ArrowSchema = fields.into_iter().map(|f| (f.name.clone(), f)).collect();
+        let options = WriteOptions {
+            statistics: StatisticsOptions::default(),
+            compression: CompressionOptions::Snappy,
+            version: Version::V1,
+            data_page_size: None,
+        };
+        let encodings = schema
+            .iter_values()
+            .map(|f| get_dtype_encoding(&f.dtype))
             .collect();
-        let mut frame = DataFrame::new_infer_height(columns)?;
-        ParquetWriter::new(w).finish(&mut frame)?;
+        let batch =
+            RecordBatchT::try_new(self.rows(), std::sync::Arc::new(schema.clone()), arrays)?;
+        let row_groups =
+            RowGroupIterator::try_new(std::iter::once(Ok(batch)), &schema, options, encodings)?;
+        let mut writer = FileWriter::try_new(w, schema, options)?;
+        for group in row_groups {
+            writer.write(self.rows() as u64, group?)?;
+        }
+        // An empty key-value list instead of the default embedded Arrow schema (see above).
+        writer.end(Some(Vec::new()))?;
         Ok(())
     }
 
@@ -139,6 +209,88 @@ pub fn parameters_table(fits: &[SubjectFit]) -> Table {
             "fixed",
             Column::Flag(rows.iter().map(|r| r.1.fixed).collect()),
         )
+}
+
+/// One row per subject and model: `subject`, `group`, `model`, then for every parameter
+/// `<name>` (the estimate, as in [`parameters_table`]), `<name>_se` (its standard error) and
+/// `<name>_at_bound`. Parameters are those of all models, in order of first appearance; a
+/// model without a parameter has empty cells (Parquet nulls) there.
+pub fn estimates_wide_table(fits: &[SubjectFit]) -> Table {
+    let mut names: Vec<&str> = Vec::new();
+    for e in fits.iter().flat_map(|f| &f.estimates) {
+        if !names.contains(&e.name.as_str()) {
+            names.push(&e.name);
+        }
+    }
+    let text =
+        |f: fn(&SubjectFit) -> &String| Column::Text(fits.iter().map(|x| f(x).clone()).collect());
+    let mut table = Table::default()
+        .with("subject", text(|f| &f.subject))
+        .with("group", text(|f| &f.group))
+        .with("model", text(|f| &f.model));
+    for name in names {
+        let of = |f: &'_ SubjectFit| f.estimates.iter().find(|e| e.name == name).cloned();
+        let cells: Vec<Option<crate::fit::ParameterEstimate>> = fits.iter().map(of).collect();
+        let number = |f: fn(&crate::fit::ParameterEstimate) -> Option<f64>| {
+            Column::Number(cells.iter().map(|e| e.as_ref().and_then(f)).collect())
+        };
+        let at_bound = cells.iter().map(|e| e.as_ref().map(|e| e.at_bound));
+        table = table
+            .with(name, number(|e| Some(e.estimate)))
+            .with(&format!("{name}_se"), number(|e| e.std_error))
+            .with(
+                &format!("{name}_at_bound"),
+                Column::OptionalFlag(at_bound.collect()),
+            );
+    }
+    table
+}
+
+/// Every column of a trial table, in the canonical order of [`crate::data`], one row per
+/// trial: text as text (a missing choice is empty), numbers as numbers (missing: empty or
+/// null), the trial number as a whole number. Response times are rounded to 0.1 ms, the
+/// resolution of the files `simulate` writes.
+pub fn trials_table(table: &TrialTable) -> Table {
+    let rows: Vec<(&Subject, &Trial)> = table
+        .subjects
+        .iter()
+        .flat_map(|s| s.trials.iter().map(move |t| (s, t)))
+        .collect();
+    let text = |f: &dyn Fn(&Subject, &Trial) -> String| {
+        Column::Text(rows.iter().map(|(s, t)| f(s, t)).collect())
+    };
+    let number = |f: &dyn Fn(&Trial) -> Option<f64>| {
+        Column::Number(rows.iter().map(|(_, t)| f(t)).collect())
+    };
+    let columns = [
+        text(&|s, _| s.id.clone()),
+        text(&|s, _| s.group.clone()),
+        text(&|_, t| t.run.clone()),
+        Column::Integer(rows.iter().map(|(_, t)| t.trial).collect()),
+        text(&|s, t| s.options[t.option_a].clone()),
+        text(&|s, t| s.options[t.option_b].clone()),
+        number(&|t| Some(t.effort_a)),
+        number(&|t| Some(t.effort_b)),
+        number(&|t| t.reward_a),
+        number(&|t| t.reward_b),
+        Column::OptionalText(
+            rows.iter()
+                .map(|(_, t)| t.choice.map(|c| c.as_str().to_string()))
+                .collect(),
+        ),
+        number(&|t| t.rt.map(|rt| (rt * 1e4).round() / 1e4)),
+        number(&|t| t.outcome),
+        number(&|t| t.onset),
+        number(&|t| t.outcome_onset),
+        number(&|t| t.outcome_if_a),
+        number(&|t| t.outcome_if_b),
+    ];
+    ColumnMap::CANONICAL
+        .iter()
+        .zip(columns)
+        .fold(Table::default(), |table, (name, column)| {
+            table.with(name, column)
+        })
 }
 
 /// One row per subject and model: fit statistics.
