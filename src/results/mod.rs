@@ -13,17 +13,18 @@ use polars_parquet::write::{
 use std::io::Write;
 use std::path::Path;
 
-/// The shortest text that parses back to exactly `x`: Rust's `{}` (shortest round-trip digits,
-/// plain decimal) or `{:e}` (the same digits with an exponent), whichever is shorter, the plain
-/// form on a tie. Non-finite values are written as `inf`, `-inf` or `NaN`.
+/// Text that parses back to exactly `x`, never longer than 24 characters: Rust's `{}` (the
+/// shortest round-trip digits, plain decimal) for 0 and for 10⁻⁵ ≤ |x| < 10¹⁶, where it is what
+/// a reader expects (`100`, `0.25`); outside that range the shorter of `{}` and `{:e}` (the same
+/// digits with an exponent), since `{}` never uses an exponent and would write a value near 0 with
+/// hundreds of digits. Non-finite values are written as `inf`, `-inf` or `NaN`.
 ///
 /// Rust's float formatting prints the shortest digit string that reads back to the same f64
-/// (Steele & White 1990; Adams 2018), but `{}` never uses an exponent, so a value near 0 or
-/// above 1e16 would otherwise be written with hundreds of digits. Every CSV and TSV writer of the
-/// crate formats its numbers here.
+/// (Steele & White 1990; Adams 2018). Every CSV and TSV writer of the crate formats its numbers
+/// here.
 pub fn number_text(x: f64) -> String {
     let plain = format!("{x}");
-    if !x.is_finite() {
+    if !x.is_finite() || x == 0.0 || (1e-5..1e16).contains(&x.abs()) {
         return plain;
     }
     let exponent = format!("{x:e}");
