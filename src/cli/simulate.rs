@@ -115,7 +115,7 @@ pub fn simulate_table(
     Ok(TrialTable { subjects, present })
 }
 
-/// The command.
+/// The command: simulates and writes `out` (an existing file only with `replace`).
 pub fn run(
     model: &str,
     params: &Path,
@@ -123,6 +123,7 @@ pub fn run(
     out: &Path,
     seed: u64,
     deadline: Option<f64>,
+    replace: bool,
 ) -> Result<(), Box<dyn std::error::Error>> {
     let model = load_model(model)?;
     let parameters = read_parameters(params, &model)?;
@@ -132,7 +133,7 @@ pub fn run(
         ..SimulationSettings::default()
     };
     let table = simulate_table(&model, &parameters, &design_table, settings, seed, design)?;
-    write_atomically(out, |w| write_trials(&table, w))?;
+    write_atomically(out, replace, |w| write_trials(&table, w))?;
     let n: usize = table.subjects.iter().map(|s| s.trials.len()).sum();
     println!(
         "simulated {} subjects, {n} trials, model {}, seed {seed} -> {}",
