@@ -86,7 +86,9 @@ impl Progress {
                 bar.reset();
             }
             Shown::Lines(lines) => {
-                lines.maybe_write(true);
+                if lines.done.load(Ordering::Relaxed) > 0 {
+                    lines.maybe_write(true);
+                }
                 *lock(&lines.what) = what.to_string();
                 lines.total.store(total as u64, Ordering::Relaxed);
                 lines.done.store(0, Ordering::Relaxed);
@@ -143,7 +145,10 @@ impl Lines {
         drop(times);
         let what = lock(&self.what).clone();
         let detail = lock(&self.detail).clone();
-        eprintln!("{}", progress_line(&what, done, total, elapsed, &detail));
+        eprintln!(
+            "{}",
+            progress_line(&what, done, total, elapsed, last_one, &detail)
+        );
     }
 }
 
@@ -214,14 +219,22 @@ fn lock<T>(m: &Mutex<T>) -> std::sync::MutexGuard<'_, T> {
 
 /// One progress line: `progress: WHAT DONE/TOTAL (P %), elapsed H:MM:SS, time left H:MM:SS`,
 /// then `, DETAIL` when there is one. The time left assumes the remaining units take as long as
-/// the done ones on average; it is "unknown" before the first unit is done.
-pub fn progress_line(what: &str, done: u64, total: u64, elapsed: Duration, detail: &str) -> String {
+/// the done ones on average; it is "unknown" before the first unit is done, and zero once the
+/// step has `ended` (also when it ended before the total, as EM does when it converges).
+pub fn progress_line(
+    what: &str,
+    done: u64,
+    total: u64,
+    elapsed: Duration,
+    ended: bool,
+    detail: &str,
+) -> String {
     let percent = if total == 0 {
         100.0
     } else {
         100.0 * done.min(total) as f64 / total as f64
     };
-    let left = if done >= total {
+    let left = if ended || done >= total {
         clock(Duration::ZERO)
     } else if done == 0 {
         "unknown".to_string()
@@ -252,17 +265,23 @@ mod tests {
     #[test]
     fn line_format_and_time_left() {
         // 30 of 120 units in 60 s: the remaining 90 take 180 s at the same rate (arithmetic).
-        let line = progress_line("fitting", 30, 120, Duration::from_secs(60), "");
+        let line = progress_line("fitting", 30, 120, Duration::from_secs(60), false, "");
         assert_eq!(
             line,
             "progress: fitting 30/120 (25.0 %), elapsed 0:01:00, time left 0:03:00"
         );
-        let end = progress_line("exporting", 7, 7, Duration::from_secs(3725), "x");
+        let end = progress_line("exporting", 7, 7, Duration::from_secs(3725), false, "x");
         assert_eq!(
             end,
             "progress: exporting 7/7 (100.0 %), elapsed 1:02:05, time left 0:00:00, x"
         );
-        let start = progress_line("simulating", 0, 4, Duration::from_secs(1), "");
+        let start = progress_line("simulating", 0, 4, Duration::from_secs(1), false, "");
         assert!(start.ends_with("time left unknown"), "{start}");
+        // A step that ended early (EM converged at iteration 14 of at most 200) has nothing left.
+        let early = progress_line("EM", 14, 200, Duration::from_secs(2), true, "");
+        assert!(
+            early.ends_with("(7.0 %), elapsed 0:00:02, time left 0:00:00"),
+            "{early}"
+        );
     }
 }
