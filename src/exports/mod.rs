@@ -396,9 +396,10 @@ pub fn check_recorded_model(fits: &Path, model: &Model) -> Result<bool, InputErr
 // ---------------------------------------------------------------------------------------------
 // BIDS labels and run indices
 
-/// Relative width of the band around a parameter's bounds within which an estimate counts as on
-/// the bound (and is set onto it): estimates written by `valuedrift fit` at a bound can differ from
-/// it by rounding in the back-transform (common practice: a few ulps, far below 1e-9 of the width).
+/// Width of the band around a parameter's bounds, relative to the larger of the bounds' width and
+/// magnitudes, within which an estimate counts as on the bound (and is set onto it): estimates
+/// written by `valuedrift fit` at a bound can differ from it by rounding in the back-transform
+/// (common practice: a few ulps, far below 1e-9 of that scale).
 const BOUND_TOLERANCE: f64 = 1e-9;
 
 /// The estimate `x` of `spec` if it lies within the model's bounds (values within
