@@ -17,5 +17,6 @@ pub mod fit;
 pub mod group;
 pub mod likelihood;
 pub mod model;
+pub mod progress;
 pub mod results;
 pub mod simulate;

@@ -34,14 +34,20 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     {
         return Err(format!("--deadline {d}: expected a number of seconds > 0").into());
     }
+    let mut outputs = OutputSet::create(out, run.input.replace.replace)?;
     let (table, model, estimates) = run.input.load()?;
-    let bar = super::fit::progress_bar(table.subjects.len(), "simulating");
+    let bar = crate::progress::Progress::new(
+        &format!(
+            "simulating {} replicate datasets of each subject",
+            run.settings.sims
+        ),
+        table.subjects.len(),
+    );
     let checks = check_subjects(&model, &estimates, &table.subjects, &run.settings, &|| {
-        bar.inc(1)
+        bar.inc()
     })?;
-    bar.finish_and_clear();
+    bar.finish();
     let pooled = pooled(&checks);
-    let mut outputs = OutputSet::new();
     choices_table(&checks, &pooled).stage_both(&mut outputs, out, "check_choices")?;
     let rt_figure = rt_quantile_figure(&pooled, POOLED)?;
     if let Some(svg) = &rt_figure {

@@ -22,6 +22,8 @@ pub struct CompareRun<'a> {
     pub samples: usize,
     /// Seed of the Monte Carlo draws.
     pub seed: u64,
+    /// Replace this command's earlier outputs (or an existing result set in another folder).
+    pub replace: bool,
 }
 
 /// Reads `fits/<summary>` (by default fit_summary.csv), runs the comparison, writes `model_selection`,
@@ -37,6 +39,7 @@ pub fn run(run: CompareRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
 
 /// The comparison of `run`, with its tables written (all or nothing).
 pub fn compare_and_write(run: &CompareRun<'_>) -> Result<Selection, Box<dyn std::error::Error>> {
+    let mut outputs = OutputSet::adding_to(run.out, run.fits, run.replace)?;
     let input = run.fits.join(run.summary);
     let rows = read_fit_summary(&input, run.by)?;
     let comparison = assemble(&input, &rows, run.evidence, run.by)?;
@@ -56,7 +59,6 @@ pub fn compare_and_write(run: &CompareRun<'_>) -> Result<Selection, Box<dyn std:
     };
     let selection = select(comparison, run.evidence, &options)
         .map_err(|e| format!("{}: {e}", input.display()))?;
-    let mut outputs = OutputSet::new();
     selection
         .selection_table()
         .stage_both(&mut outputs, run.out, "model_selection")?;

@@ -8,13 +8,15 @@ use std::path::Path;
 
 /// Reads the parameters table of `source` in `fits`, compares the free parameters of `model` across the groups of
 /// column `by`, writes `contrast.csv`, `contrast_groups.csv` and their Parquet twins to `out`
-/// (atomically, all or nothing) and prints a summary.
+/// (atomically, all or nothing; earlier outputs of the same names only with `replace`) and prints
+/// a summary.
 pub fn run(
     fits: &Path,
     model: &str,
     by: &str,
     out: &Path,
     source: crate::results::EstimateSource,
+    replace: bool,
 ) -> Result<(), Box<dyn std::error::Error>> {
     if source == crate::results::EstimateSource::EmpiricalBayes && per_group_priors(fits) {
         eprintln!(
@@ -24,7 +26,7 @@ pub fn run(
              (fit --hierarchical without --by)."
         );
     }
-    let rows = contrast_and_write(fits, model, by, out, source)?;
+    let rows = contrast_and_write(fits, model, by, out, source, replace)?;
     print_summary(&rows);
     println!("outputs in {}", out.display());
     println!("{}", super::RESEARCH_CAUTION);
@@ -46,11 +48,12 @@ pub fn contrast_and_write(
     by: &str,
     out: &Path,
     source: crate::results::EstimateSource,
+    replace: bool,
 ) -> Result<Vec<ParameterContrast>, Box<dyn std::error::Error>> {
+    let mut outputs = OutputSet::adding_to(out, fits, replace)?;
     let input = source.parameters_file(fits);
     let estimates = read_estimates(&input, model, by)?;
     let rows = contrast(&estimates).map_err(|e| format!("{}: {e}", input.display()))?;
-    let mut outputs = OutputSet::new();
     contrast_table(&rows).stage_both(&mut outputs, out, "contrast")?;
     groups_table(&rows).stage_both(&mut outputs, out, "contrast_groups")?;
     outputs.commit()?;

@@ -27,12 +27,17 @@ fn median(mut xs: Vec<f64>) -> f64 {
     }
 }
 
-/// Fits every built-in model to the demo study, prints the summary and writes the outputs.
+/// Fits every built-in model to the demo study, prints the summary and writes the outputs: the
+/// fit, the comparison and the contrast are written into one staging folder that replaces `out`
+/// as a whole (an existing non-empty `out` only with `replace`).
 pub fn run(
     out: &Path,
     threads: usize,
+    replace: bool,
     command_line: &[String],
 ) -> Result<(), Box<dyn std::error::Error>> {
+    let mut outputs = crate::files::OutputSet::create(out, replace)?;
+    let staging = outputs.staging_dir()?.to_path_buf();
     let dir = tempfile::tempdir()?;
     let data = dir.path().join("demo_trials.csv");
     std::fs::write(&data, TRIALS)?;
@@ -49,7 +54,8 @@ pub fn run(
         FitRun {
             data: &data,
             models: &names,
-            out,
+            out: &staging,
+            replace: false,
             options: FitOptions::default(),
             threads,
             columns: ColumnMap::default(),
@@ -61,35 +67,33 @@ pub fn run(
         },
         command_line,
     )?;
-    println!(
-        "fitted in {:.1} s; outputs in {}",
-        start.elapsed().as_secs_f64(),
-        out.display()
-    );
+    println!("fitted in {:.1} s", start.elapsed().as_secs_f64());
     println!();
     print_summary(&fitted);
     print_diagnostics(&fitted.fits, &fitted.models, out);
     print_group_summary(&fitted.groups);
     println!();
     let compare = super::compare::CompareRun {
-        fits: out,
+        fits: &staging,
         by: "group",
         summary: "fit_summary.csv",
-        out,
+        out: &staging,
         evidence: Evidence::Bic,
         samples: BmsOptions::default().samples,
         seed: 1,
+        replace: false,
     };
     let selection = super::compare::compare_and_write(&compare)?;
     super::compare::print_summary(&selection, compare.samples);
     println!();
     println!("{REFERENCE}: per-subject estimates, low-drive against steady");
     let rows = super::contrast::contrast_and_write(
-        out,
+        &staging,
         REFERENCE,
         "group",
-        out,
+        &staging,
         crate::results::EstimateSource::PerSubject,
+        false,
     )?;
     super::contrast::print_summary(&rows);
 
@@ -154,7 +158,9 @@ pub fn run(
         }
         println!();
     }
+    outputs.commit()?;
     println!();
+    println!("outputs in {}", out.display());
     println!("{}", super::RESEARCH_CAUTION);
     Ok(())
 }

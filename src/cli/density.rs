@@ -10,11 +10,15 @@ const REQUIRED: [&str; 6] = ["rt", "bound", "drift", "boundary", "start", "ndt"]
 const OPTIONAL: [&str; 3] = ["drift_sd", "start_range", "ndt_range"];
 
 /// Reads `input`, appends `log_density` and `cdf` to every row, and writes the result to
-/// `output` (atomically) or to standard output.
-pub fn run(input: &Path, output: Option<&Path>) -> Result<(), Box<dyn std::error::Error>> {
+/// `output` (atomically; an existing file only with `replace`) or to standard output.
+pub fn run(
+    input: &Path,
+    output: Option<&Path>,
+    replace: bool,
+) -> Result<(), Box<dyn std::error::Error>> {
     let rows = compute(input)?;
     match output {
-        Some(path) => write_atomically(path, |w| write_rows(w, &rows))?,
+        Some(path) => write_atomically(path, replace, |w| write_rows(w, &rows))?,
         None => write_rows(&mut std::io::stdout().lock(), &rows)?,
     }
     Ok(())

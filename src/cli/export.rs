@@ -8,6 +8,7 @@ use crate::exports::{
     latents, latents_table, participants_sidecar, participants_table,
 };
 use crate::files::OutputSet;
+use crate::progress::Progress;
 use std::path::Path;
 
 /// Everything `export` needs, resolved from the command line.
@@ -69,14 +70,17 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         )
         .into());
     }
+    let mut outputs = OutputSet::create(out, run.input.replace.replace)?;
     let (table, model, estimates) = run.input.load()?;
     let labels = bids_labels(&table.subjects)?;
     let has_onsets = table.has_column("onset");
     let with_outcomes = table.has_column("outcome_onset");
     let mut all = Vec::new();
     let mut events = Vec::new();
+    let progress = Progress::new("exporting: latents of subjects", table.subjects.len());
     for ((subject, natural), label) in table.subjects.iter().zip(&estimates).zip(&labels) {
         let rows = latents(&model, subject, natural)?;
+        progress.inc();
         if has_onsets {
             events.extend(events_files(
                 &model,
@@ -90,6 +94,7 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         }
         all.extend(rows);
     }
+    progress.finish();
     let hrf = DoubleGamma::CANONICAL;
     let designs: Vec<DesignFile> = match run.timing {
         Some(timing) if has_onsets => events
@@ -98,7 +103,6 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
             .collect(),
         _ => Vec::new(),
     };
-    let mut outputs = OutputSet::new();
     latents_table(&all).stage_both(&mut outputs, out, "latents")?;
     if !events.is_empty() {
         // The files a BIDS derivative dataset has at its root besides the subjects' folders.
@@ -128,12 +132,19 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
                 serde_json::to_writer_pretty(w, sidecar)
             })
         };
+        let files = Progress::new(
+            "exporting: events and design files",
+            events.len() + designs.len(),
+        );
         for f in &events {
             stage_pair(&f.stem, &f.sidecar, &|w| f.write_tsv(w))?;
+            files.inc();
         }
         for f in &designs {
             stage_pair(&f.stem, &f.sidecar, &|w| f.write_tsv(w))?;
+            files.inc();
         }
+        files.finish();
     }
     outputs.commit()?;
     println!(

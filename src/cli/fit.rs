@@ -6,11 +6,11 @@ use crate::fit::{
     EmOptions, FitOptions, GroupFit, Skipped, SubjectFit, fit_table, fit_table_hierarchical,
 };
 use crate::model::{Model, load_model};
+use crate::progress::Progress;
 use crate::results::{
     EstimateSource, estimates_wide_table, group_correlation_table, group_evidence_table,
     group_prior_table, parameters_table, summary_table,
 };
-use indicatif::{ProgressBar, ProgressStyle};
 use sha2::{Digest, Sha256};
 use std::collections::HashMap;
 use std::path::Path;
@@ -23,6 +23,8 @@ pub struct FitRun<'a> {
     pub models: &'a [String],
     /// Output folder.
     pub out: &'a Path,
+    /// Replace an existing result set in `out`.
+    pub replace: bool,
     /// Fit settings.
     pub options: FitOptions,
     /// Threads (0: all cores).
@@ -73,18 +75,6 @@ pub fn load_models(names: &[String]) -> Result<Vec<Model>, Box<dyn std::error::E
     Ok(models)
 }
 
-/// A progress bar over `total` fits, with elapsed and remaining time.
-pub fn progress_bar(total: usize, what: &str) -> ProgressBar {
-    let bar = ProgressBar::new(total as u64);
-    bar.set_style(
-        ProgressStyle::with_template(&format!(
-            "{what} {{bar:30}} {{pos}}/{{len}} [{{elapsed_precise}} elapsed, {{eta}} left]"
-        ))
-        .expect("valid template"),
-    );
-    bar
-}
-
 /// The outcome of fitting a table.
 pub struct Fitted {
     /// The table that was fitted.
@@ -101,6 +91,7 @@ pub struct Fitted {
 
 /// Reads, fits and writes; returns what was fitted for the caller's summary.
 pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn std::error::Error>> {
+    let mut outputs = OutputSet::create(run.out, run.replace)?;
     let table = read_trials(run.data, &run.columns)?;
     if run.hierarchical.as_ref().is_some_and(|h| h.per_group) && !table.has_column("group") {
         return Err(format!(
@@ -111,9 +102,9 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         .into());
     }
     let models = load_models(run.models)?;
-    let bar = progress_bar(models.len() * table.subjects.len(), "fitting");
-    let (fits, skipped) = fit_table(&models, &table, &run.options, run.threads, &|| bar.inc(1))?;
-    bar.finish_and_clear();
+    let bar = Progress::new("fitting", models.len() * table.subjects.len());
+    let (fits, skipped) = fit_table(&models, &table, &run.options, run.threads, &|| bar.inc())?;
+    bar.finish();
     if fits.is_empty() {
         let reasons: Vec<String> = skipped
             .iter()
@@ -124,12 +115,12 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
     }
     let mut groups = Vec::new();
     if let Some(settings) = &run.hierarchical {
-        let spinner = ProgressBar::new_spinner();
+        let spinner = crate::progress::Iterations::new(
+            "empirical Bayes: EM iterations of",
+            settings.em.max_iterations,
+        );
         let report = |model: &str, scope: &str, iteration: usize, change: f64| {
-            spinner.set_message(format!(
-                "empirical Bayes: {model} ({scope}) iteration {iteration}, change {change:.2e}"
-            ));
-            spinner.tick();
+            spinner.report(&format!("{model} ({scope})"), iteration, change);
         };
         let chosen: Vec<&Model> = models
             .iter()
@@ -145,7 +136,7 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             run.threads,
             &report,
         )?;
-        spinner.finish_and_clear();
+        spinner.finish();
         for s in &not_fitted {
             eprintln!("empirical Bayes skipped for {}: {}", s.model, s.reason);
         }
@@ -180,7 +171,6 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         &skipped,
     );
     record["group_column"] = serde_json::json!(run.columns.file_name("group"));
-    let mut outputs = OutputSet::new();
     parameters_table(&fits).stage_both(
         &mut outputs,
         run.out,

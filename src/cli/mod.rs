@@ -42,6 +42,9 @@ pub enum Command {
         /// Output folder.
         #[arg(long, default_value = "valuedrift-demo")]
         out: PathBuf,
+        /// Whether an existing result may be replaced.
+        #[command(flatten)]
+        replace: ReplaceArg,
         /// Threads (0: all cores); results do not depend on it.
         #[arg(long, default_value_t = 0)]
         threads: usize,
@@ -102,6 +105,9 @@ pub enum Command {
         /// parameters; writes eb_group_correlations.csv) instead of only the variances.
         #[arg(long, requires = "hierarchical")]
         full_covariance: bool,
+        /// Whether an existing result may be replaced.
+        #[command(flatten)]
+        replace: ReplaceArg,
     },
     /// Per-trial latent variables of a fitted model for imaging analyses: values, subjective
     /// values, value difference, prediction errors, drift, choice probability and expected times
@@ -185,12 +191,15 @@ pub enum Command {
         /// Column of parameters.csv that defines the groups.
         #[arg(long, default_value = "group")]
         by: String,
-        /// Output folder (default: the --fits folder).
+        /// Output folder (default: the --fits folder, whose other files stay).
         #[arg(long)]
         out: Option<PathBuf>,
         /// Per-subject or empirical-Bayes estimates.
         #[command(flatten)]
         estimates: EstimatesArg,
+        /// Whether an existing result may be replaced.
+        #[command(flatten)]
+        replace: ReplaceArg,
     },
     /// Compare models across the subjects of a fit folder: per subject AIC (Akaike 1974), BIC
     /// (Schwarz 1978), Akaike and Schwarz weights (Burnham & Anderson 2002; Wagenmakers &
@@ -216,7 +225,7 @@ pub enum Command {
         /// evidence under the fitted group prior).
         #[arg(long, default_value = "fit_summary.csv")]
         summary: String,
-        /// Output folder (default: the --fits folder).
+        /// Output folder (default: the --fits folder, whose other files stay).
         #[arg(long)]
         out: Option<PathBuf>,
         /// Log evidence used for selection: -BIC/2, -AIC/2 or the Laplace approximation.
@@ -228,6 +237,9 @@ pub enum Command {
         /// Seed of the Monte Carlo draws.
         #[arg(long, default_value_t = 1)]
         seed: u64,
+        /// Whether an existing result may be replaced.
+        #[command(flatten)]
+        replace: ReplaceArg,
     },
     /// Simulate choices, response times and outcomes from a model on a trial design.
     ///
@@ -254,6 +266,9 @@ pub enum Command {
         /// Responses later than this many seconds are recorded as no response.
         #[arg(long)]
         deadline: Option<f64>,
+        /// Whether an existing result may be replaced.
+        #[command(flatten)]
+        replace: ReplaceArg,
     },
     /// List the built-in models (or describe one, by name or file) with their components,
     /// equations and parameters.
@@ -277,6 +292,9 @@ pub enum Command {
         /// CSV file to write (written atomically); standard output when omitted.
         #[arg(long)]
         output: Option<PathBuf>,
+        /// Whether an existing result may be replaced.
+        #[command(flatten)]
+        replace: ReplaceArg,
     },
 }
 
@@ -302,19 +320,30 @@ pub struct FittedRun {
     /// Per-subject or empirical-Bayes estimates.
     #[command(flatten)]
     pub estimates: EstimatesArg,
+    /// Whether an existing output folder may be replaced.
+    #[command(flatten)]
+    pub replace: ReplaceArg,
 }
 
 /// The trial table, the model and each subject's estimates (all parameters, model order).
 pub type FittedInputs = (crate::data::TrialTable, crate::model::Model, Vec<Vec<f64>>);
 
 impl FittedRun {
-    /// Reads the trial table (with the column mapping), loads the model and reads each
-    /// subject's estimates of it from the fit folder, in table order.
+    /// Reads the trial table (with the column mapping), loads the model, checks it against the
+    /// definition recorded in the fit folder's run.json and reads each subject's estimates of it
+    /// (within the model's bounds) from the fit folder, in table order.
     pub fn load(&self) -> Result<FittedInputs, Box<dyn std::error::Error>> {
         let columns =
             crate::data::ColumnMap::parse(&self.columns).map_err(|e| format!("--columns: {e}"))?;
         let table = crate::data::read_trials(&self.data, &columns)?;
         let model = crate::model::load_model(self.model.trim())?;
+        if !crate::exports::check_recorded_model(&self.fits, &model)? {
+            eprintln!(
+                "note: {} has no run.json (the record of `valuedrift fit`): the model could not \
+                 be checked against the one that was fitted",
+                self.fits.display()
+            );
+        }
         let estimates = crate::exports::read_estimates(
             &self.estimates.estimates.parameters_file(&self.fits),
             &model,
@@ -322,6 +351,16 @@ impl FittedRun {
         )?;
         Ok((table, model, estimates))
     }
+}
+
+/// Whether a command may replace an existing result, shared by every command that writes.
+#[derive(Debug, Clone, Copy, clap::Args)]
+pub struct ReplaceArg {
+    /// Replace an existing result at the output path (a non-empty output folder, or an output
+    /// file); without it an existing result is refused. The old result is removed only once the
+    /// new one is complete, so the path always holds one whole result.
+    #[arg(long)]
+    pub replace: bool,
 }
 
 /// The choice of per-subject or empirical-Bayes estimates, shared by the commands that read a
@@ -354,7 +393,11 @@ pub fn group_column(fits: &std::path::Path, by: &str) -> String {
 pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
     let command_line: Vec<String> = std::env::args().collect();
     match cli.command {
-        Command::Demo { out, threads } => demo::run(&out, threads, &command_line),
+        Command::Demo {
+            out,
+            threads,
+            replace,
+        } => demo::run(&out, threads, replace.replace, &command_line),
         Command::Fit {
             data,
             model,
@@ -370,6 +413,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             em_iterations,
             ibic_samples,
             full_covariance,
+            replace,
         } => {
             let columns = fit::column_map(&columns, by.as_deref())?;
             if !(em_tolerance.is_finite() && em_tolerance > 0.0) {
@@ -384,6 +428,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 data: &data,
                 models: &model,
                 out: &out,
+                replace: replace.replace,
                 options: crate::fit::FitOptions {
                     starts: starts.max(1),
                     seed,
@@ -444,12 +489,14 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             by,
             out,
             estimates,
+            replace,
         } => contrast::run(
             &fits,
             &model,
             &group_column(&fits, &by),
             out.as_deref().unwrap_or(&fits),
             estimates.estimates,
+            replace.replace,
         ),
         Command::Compare {
             fits,
@@ -459,6 +506,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             evidence,
             samples,
             seed,
+            replace,
         } => compare::run(compare::CompareRun {
             fits: &fits,
             by: &group_column(&fits, &by),
@@ -467,6 +515,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             evidence,
             samples,
             seed,
+            replace: replace.replace,
         }),
         Command::Simulate {
             model,
@@ -475,8 +524,21 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             out,
             seed,
             deadline,
-        } => simulate::run(&model, &params, &design, &out, seed, deadline),
+            replace,
+        } => simulate::run(
+            &model,
+            &params,
+            &design,
+            &out,
+            seed,
+            deadline,
+            replace.replace,
+        ),
         Command::Models { name } => models::run(name.as_deref()),
-        Command::Density { input, output } => density::run(&input, output.as_deref()),
+        Command::Density {
+            input,
+            output,
+            replace,
+        } => density::run(&input, output.as_deref(), replace.replace),
     }
 }

@@ -144,7 +144,7 @@ impl OutputFormat {
     }
 }
 
-/// The command.
+/// The command: simulates and writes `out` (an existing file only with `replace`).
 pub fn run(
     model: &str,
     params: &Path,
@@ -152,6 +152,7 @@ pub fn run(
     out: &Path,
     seed: u64,
     deadline: Option<f64>,
+    replace: bool,
 ) -> Result<(), Box<dyn std::error::Error>> {
     let format = OutputFormat::of(out)?;
     let model = load_model(model)?;
@@ -164,8 +165,8 @@ pub fn run(
     let table = simulate_table(&model, &parameters, &design_table, settings, seed, design)?;
     let trials = trials_table(&table);
     match format {
-        OutputFormat::Csv => write_atomically(out, |w| trials.write_csv(w))?,
-        OutputFormat::Parquet => write_atomically(out, |w| trials.write_parquet(w))?,
+        OutputFormat::Csv => write_atomically(out, replace, |w| trials.write_csv(w))?,
+        OutputFormat::Parquet => write_atomically(out, replace, |w| trials.write_parquet(w))?,
     }
     let n: usize = table.subjects.iter().map(|s| s.trials.len()).sum();
     println!(
