@@ -131,3 +131,35 @@ fn bound_probabilities_and_mean_decision_times_match_mpmath_integrals() {
         }
     }
 }
+
+#[test]
+fn choice_only_log_probability_matches_the_mpmath_absorption_probabilities() {
+    // The value returned with the gradient of ln P(bound) (used for choices whose time was
+    // trimmed) against the mpmath integrals of the density in first_passage_moments.csv:
+    // p_upper at the upper bound and 1 − p_upper at the lower bound (the two absorption
+    // probabilities sum to one; Feller 1968, XIV.2).
+    use valuedrift::first_passage::ln_bound_probability_with_gradient;
+    let (header, rows) = read_table("first_passage_moments.csv");
+    assert!(rows.len() >= 30);
+    let get =
+        |row: &Vec<String>, name: &str| -> f64 { row[column(&header, name)].parse().unwrap() };
+    for row in &rows {
+        let p = DiffusionParams::new(
+            get(row, "drift"),
+            get(row, "boundary"),
+            get(row, "start"),
+            0.3,
+        )
+        .unwrap();
+        let upper = get(row, "p_upper");
+        for (bound, expected) in [(Bound::Upper, upper), (Bound::Lower, 1.0 - upper)] {
+            let (ln_p, _) = ln_bound_probability_with_gradient(bound, &p).unwrap();
+            let rel = ((ln_p.exp() - expected) / expected).abs();
+            assert!(
+                rel < 1e-9,
+                "{bound} for {p:?}: {} vs {expected} (rel {rel:e})",
+                ln_p.exp()
+            );
+        }
+    }
+}
