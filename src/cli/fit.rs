@@ -1,10 +1,8 @@
 //! `valuedrift fit`: per-subject fits of one or more models, with tidy outputs and a run record.
 
-use crate::data::{ColumnMap, TrialTable, read_trials};
+use crate::data::{ColumnMap, ScreenSettings, TrialTable};
 use crate::files::OutputSet;
-use crate::fit::{
-    EmOptions, FitOptions, GroupFit, Skipped, SubjectFit, fit_table, fit_table_hierarchical,
-};
+use crate::fit::{EmOptions, FitOptions, GroupFit, Skipped, SubjectFit, fit_table_hierarchical};
 use crate::model::{Model, load_model};
 use crate::results::{
     EstimateSource, group_correlation_table, group_evidence_table, group_prior_table,
@@ -31,6 +29,8 @@ pub struct FitRun<'a> {
     pub columns: ColumnMap,
     /// Empirical-Bayes group priors as well, when set.
     pub hierarchical: Option<Hierarchical>,
+    /// The data screen's settings (fast floor, trimming).
+    pub screen: ScreenSettings,
 }
 
 /// Settings of the empirical-Bayes fit.
@@ -101,10 +101,24 @@ pub struct Fitted {
 
 /// Reads, fits and writes; returns what was fitted for the caller's summary.
 pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn std::error::Error>> {
-    let table = read_trials(run.data, &run.columns)?;
+    let mut table = super::input::read_table(run.data, &run.columns)?;
     let models = load_models(run.models)?;
-    let bar = progress_bar(models.len() * table.subjects.len(), "fitting");
-    let (fits, skipped) = fit_table(&models, &table, &run.options, run.threads, &|| bar.inc(1))?;
+    let screened = super::input::screen_before_fit(
+        run.data,
+        &mut table,
+        &run.screen,
+        &models,
+        run.options.deadline,
+    )?;
+    let bar = progress_bar(super::input::screened_jobs(&screened), "fitting");
+    let (fits, skipped) = super::input::fit_screened(
+        &models,
+        &table,
+        &screened,
+        &run.options,
+        run.threads,
+        &|| bar.inc(1),
+    )?;
     bar.finish_and_clear();
     if fits.is_empty() {
         let reasons: Vec<String> = skipped
@@ -153,7 +167,9 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         &fits,
         &skipped,
     );
+    record["data_screen"] = super::input::screen_record(&screened);
     let mut outputs = OutputSet::new();
+    super::input::screen_table_output(&screened).stage_both(&mut outputs, run.out, "data_screen")?;
     parameters_table(&fits).stage_both(
         &mut outputs,
         run.out,

@@ -1,6 +1,6 @@
 //! `valuedrift simulate`: synthetic trials from a model, parameters and a design.
 
-use crate::data::{ColumnMap, TrialTable, read_trials, write_trials};
+use crate::data::{ColumnMap, TrialTable, write_trials};
 use crate::files::{InputError, write_atomically};
 use crate::model::{Model, load_model};
 use crate::simulate::{SimulationSettings, simulate_subject};
@@ -123,10 +123,11 @@ pub fn run(
     out: &Path,
     seed: u64,
     deadline: Option<f64>,
+    columns: &ColumnMap,
 ) -> Result<(), Box<dyn std::error::Error>> {
     let model = load_model(model)?;
     let parameters = read_parameters(params, &model)?;
-    let design_table = read_trials(design, &ColumnMap::default())?;
+    let design_table = super::input::read_table(design, columns)?;
     let settings = SimulationSettings {
         deadline,
         ..SimulationSettings::default()
