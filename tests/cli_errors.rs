@@ -160,9 +160,10 @@ fn fit_path_fails(
         model,
         "--out",
         out.to_str().unwrap(),
-        "--starts",
-        "1",
     ];
+    if !extra.contains(&"--starts") {
+        args.extend_from_slice(&["--starts", "1"]);
+    }
     args.extend_from_slice(extra);
     let needles: Vec<String> = needles
         .iter()
