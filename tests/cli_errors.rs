@@ -691,11 +691,31 @@ fn fit_options_out_of_range() {
     let many = (1000 * cores).to_string();
     let cores_text = format!("{cores} cores");
     let cases: Vec<(&str, Vec<&str>, Vec<&str>)> = vec![
-        ("starts 0", vec!["--starts", "0"], vec!["--starts 0", "at least 1"]),
-        ("threads far above the cores", vec!["--threads", &many], vec!["--threads", &cores_text]),
-        ("deadline 0", vec!["--deadline", "0"], vec!["--deadline 0", "> 0"]),
-        ("deadline negative", vec!["--deadline=-2"], vec!["--deadline -2", "> 0"]),
-        ("deadline NaN", vec!["--deadline", "NaN"], vec!["--deadline NaN", "> 0"]),
+        (
+            "starts 0",
+            vec!["--starts", "0"],
+            vec!["--starts 0", "at least 1"],
+        ),
+        (
+            "threads far above the cores",
+            vec!["--threads", &many],
+            vec!["--threads", &cores_text],
+        ),
+        (
+            "deadline 0",
+            vec!["--deadline", "0"],
+            vec!["--deadline 0", "> 0"],
+        ),
+        (
+            "deadline negative",
+            vec!["--deadline=-2"],
+            vec!["--deadline -2", "> 0"],
+        ),
+        (
+            "deadline NaN",
+            vec!["--deadline", "NaN"],
+            vec!["--deadline NaN", "> 0"],
+        ),
         (
             "em iterations 0",
             vec!["--hierarchical", "--em-iterations", "0"],
@@ -711,14 +731,26 @@ fn fit_options_out_of_range() {
             vec!["--hierarchical", "--em-tolerance", "0"],
             vec!["--em-tolerance 0", "> 0"],
         ),
-        ("fast floor 0", vec!["--fast-floor", "0"], vec!["--fast-floor 0", "> 0"]),
+        (
+            "fast floor 0",
+            vec!["--fast-floor", "0"],
+            vec!["--fast-floor 0", "> 0"],
+        ),
         (
             "responses per parameter 0",
             vec!["--responses-per-parameter", "0"],
             vec!["--responses-per-parameter 0", "at least 1"],
         ),
-        ("trim below negative", vec!["--trim-below=-0.1"], vec!["--trim-below -0.1", "> 0"]),
-        ("trim above infinite", vec!["--trim-above", "inf"], vec!["--trim-above inf", "> 0"]),
+        (
+            "trim below negative",
+            vec!["--trim-below=-0.1"],
+            vec!["--trim-below -0.1", "> 0"],
+        ),
+        (
+            "trim above infinite",
+            vec!["--trim-above", "inf"],
+            vec!["--trim-above inf", "> 0"],
+        ),
         (
             "trim limits crossed",
             vec!["--trim-below", "2", "--trim-above", "1"],
@@ -771,7 +803,12 @@ fn response_times_in_milliseconds() {
         "milliseconds",
         &data,
         &[],
-        &["{file}", "column rt", "look like milliseconds", "divide the rt column by 1000"],
+        &[
+            "{file}",
+            "column rt",
+            "look like milliseconds",
+            "divide the rt column by 1000",
+        ],
     );
 }
 
@@ -782,7 +819,12 @@ fn subjects_with_fewer_responses_than_parameters() {
     fit_option_fails(
         "fewer responses than parameters",
         &[],
-        &["{file}", "column subject", "\"s1\", \"s2\"", "6 free parameters"],
+        &[
+            "{file}",
+            "column subject",
+            "\"s1\", \"s2\"",
+            "6 free parameters",
+        ],
     );
 }
 
@@ -793,7 +835,12 @@ fn choice_codes_in_the_table() {
         "code without --choice-codes",
         &good_with_line(3, "s1,2,1,0,2,1.1"),
         &[],
-        &["{file}", "line 3", "column choice", "--choice-codes 1=a,2=b"],
+        &[
+            "{file}",
+            "line 3",
+            "column choice",
+            "--choice-codes 1=a,2=b",
+        ],
     );
     // With codes 1 and 2, line 4 writes 3.
     let data = good_csv()
@@ -913,7 +960,12 @@ fn simulate_deadline_not_positive() {
             "l=a,r=b",
         ],
         &[&out],
-        &[coded.to_str().unwrap(), "line 2", "column choice", "l (a), r (b)"],
+        &[
+            coded.to_str().unwrap(),
+            "line 2",
+            "column choice",
+            "l (a), r (b)",
+        ],
     );
 }
 
@@ -937,8 +989,16 @@ fn check_and_export_reader_options() {
         out.to_str().unwrap(),
     ];
     let cases: [(&str, &[&str], &[&str]); 4] = [
-        ("check", &["--choice-codes", "left=a"], &["--choice-codes", "no code for option b"]),
-        ("export", &["--missing", ",NA,"], &["--missing", "empty token"]),
+        (
+            "check",
+            &["--choice-codes", "left=a"],
+            &["--choice-codes", "no code for option b"],
+        ),
+        (
+            "export",
+            &["--missing", ",NA,"],
+            &["--missing", "empty token"],
+        ),
         ("check", &["--sims", "5"], &["--sims 5", "at least"]),
         ("check", &["--deadline", "0"], &["--deadline 0", "> 0"]),
     ];

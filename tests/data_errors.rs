@@ -696,7 +696,13 @@ fn choice_codes_not_given_or_not_listed_are_errors_at_their_cell() {
     let columns = ColumnMap::default().with_choice_codes("1=a,2=b").unwrap();
     let err = read_err(&path, &columns);
     // source: line 3 writes 3, which is not among the codes 1 and 2.
-    assert_at(&err, &path, Some(3), Some("choice"), "expected one of the choice codes 1 (a), 2 (b)");
+    assert_at(
+        &err,
+        &path,
+        Some(3),
+        Some("choice"),
+        "expected one of the choice codes 1 (a), 2 (b)",
+    );
 }
 
 #[test]
@@ -760,7 +766,9 @@ fn missing_value_tokens_read_as_empty_cells() {
 fn trial_numbers_may_restart_in_each_run() {
     let header = "subject,run,trial,effort_a,effort_b,choice,rt";
     let dir = tempfile::tempdir().unwrap();
-    let text = format!("{header}\nx,r1,1,0,1,a,0.7\nx,r1,2,0,1,a,0.7\nx,r2,1,0,1,b,0.7\nx,r2,2,0,1,a,0.7\n");
+    let text = format!(
+        "{header}\nx,r1,1,0,1,a,0.7\nx,r1,2,0,1,a,0.7\nx,r2,1,0,1,b,0.7\nx,r2,2,0,1,a,0.7\n"
+    );
     let table = read(&write(dir.path(), "runs.csv", text.as_bytes()));
     // source: two runs of two trials, numbered from 1 in each (module documentation).
     let runs: Vec<(&str, i64)> = table.subjects[0]
@@ -772,9 +780,21 @@ fn trial_numbers_may_restart_in_each_run() {
     let text = format!("{header}\nx,r1,1,0,1,a,0.7\nx,r2,1,0,1,a,0.7\nx,r1,2,0,1,b,0.7\n");
     let (path, err, _dir) = csv_err(&text);
     // source: run r1 returns on line 4 after run r2.
-    assert_at(&err, &path, Some(4), Some("run"), "appears again after run \"r2\"");
+    assert_at(
+        &err,
+        &path,
+        Some(4),
+        Some("run"),
+        "appears again after run \"r2\"",
+    );
     let text = format!("{header}\nx,r1,2,0,1,a,0.7\nx,r1,1,0,1,a,0.7\n");
     let (path, err, _dir) = csv_err(&text);
     // source: trial 1 follows trial 2 within run r1 on line 3.
-    assert_at(&err, &path, Some(3), Some("trial"), "within run \"r1\" of subject");
+    assert_at(
+        &err,
+        &path,
+        Some(3),
+        Some("trial"),
+        "within run \"r1\" of subject",
+    );
 }

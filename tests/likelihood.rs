@@ -254,8 +254,16 @@ fn a_trimmed_time_leaves_the_choice_scored_by_the_absorption_probability() {
     let trace = lik.trace(&values);
     let mut expected = 0.0;
     for ((t, tr), tr_full) in trimmed.trials.iter().zip(&trace).zip(&trace_full) {
-        assert_eq!(tr.value_a, tr_full.value_a, "trial {}: learning unchanged", t.trial);
-        assert_eq!(tr.value_b, tr_full.value_b, "trial {}: learning unchanged", t.trial);
+        assert_eq!(
+            tr.value_a, tr_full.value_a,
+            "trial {}: learning unchanged",
+            t.trial
+        );
+        assert_eq!(
+            tr.value_b, tr_full.value_b,
+            "trial {}: learning unchanged",
+            t.trial
+        );
         let drift = 3.0 * (tr.subjective_value_a - tr.subjective_value_b);
         let (a, w) = (1.5, 0.5);
         let p_upper = (1.0 - (-2.0 * drift * a * w).exp()) / (1.0 - (-2.0 * drift * a).exp());
@@ -265,12 +273,18 @@ fn a_trimmed_time_leaves_the_choice_scored_by_the_absorption_probability() {
             Bound::Lower
         };
         let ln_trial = match (t.rt, bound) {
-            (Some(rt), _) => ln_density(rt, bound, &DiffusionParams::new(drift, a, w, 0.3).unwrap()),
+            (Some(rt), _) => {
+                ln_density(rt, bound, &DiffusionParams::new(drift, a, w, 0.3).unwrap())
+            }
             (None, Bound::Upper) => p_upper.ln(),
             (None, Bound::Lower) => (1.0 - p_upper).ln(),
         };
         let got = tr.ln_likelihood.expect("every response counts");
-        assert!((got - ln_trial).abs() < 1e-10, "trial {}: {got} vs {ln_trial}", t.trial);
+        assert!(
+            (got - ln_trial).abs() < 1e-10,
+            "trial {}: {got} vs {ln_trial}",
+            t.trial
+        );
         expected += ln_trial;
     }
     let free: Vec<f64> = model.free_slots().iter().map(|&s| values[s]).collect();

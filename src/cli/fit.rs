@@ -169,7 +169,11 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
     );
     record["data_screen"] = super::input::screen_record(&screened);
     let mut outputs = OutputSet::new();
-    super::input::screen_table_output(&screened).stage_both(&mut outputs, run.out, "data_screen")?;
+    super::input::screen_table_output(&screened).stage_both(
+        &mut outputs,
+        run.out,
+        "data_screen",
+    )?;
     parameters_table(&fits).stage_both(
         &mut outputs,
         run.out,

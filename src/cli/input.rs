@@ -3,9 +3,8 @@
 //! data screen before fitting (summary, trimming, models a subject's data cannot support).
 
 use crate::data::{
-    ColumnMap, DEFAULT_FAST_FLOOR, ModelNeeds, ScreenSettings, SubjectScreen,
-    TRIALS_PER_PARAMETER, TrialTable, read_trials_noted, screen_table, share_slower_than,
-    unmet_needs,
+    ColumnMap, DEFAULT_FAST_FLOOR, ModelNeeds, ScreenSettings, SubjectScreen, TRIALS_PER_PARAMETER,
+    TrialTable, read_trials_noted, screen_table, share_slower_than, unmet_needs,
 };
 use crate::fit::{FitOptions, Skipped, SubjectFit, fit_table};
 use crate::likelihood::DataMismatch;
@@ -39,7 +38,10 @@ impl ReadingArgs {
 }
 
 /// Reads a trial table and prints the reader's notes (once per file) to standard error.
-pub fn read_table(path: &Path, columns: &ColumnMap) -> Result<TrialTable, crate::files::InputError> {
+pub fn read_table(
+    path: &Path,
+    columns: &ColumnMap,
+) -> Result<TrialTable, crate::files::InputError> {
     let (table, notes) = read_trials_noted(path, columns)?;
     for line in notes.lines(path) {
         eprintln!("{line}");
@@ -254,6 +256,14 @@ fn print_screen(screened: &Screened) {
             limit_text(screened.settings.trim_below),
             limit_text(screened.settings.trim_above)
         );
+        let trimmed: Vec<String> = subjects
+            .iter()
+            .filter(|s| s.trimmed.below + s.trimmed.above > 0)
+            .map(|s| format!("{} {}/{}", s.subject, s.trimmed.below, s.trimmed.above))
+            .collect();
+        if !trimmed.is_empty() && trimmed.len() <= PER_SUBJECT_LINES {
+            println!("  trimmed per subject (below/above): {}", trimmed.join(", "));
+        }
     }
     let one_sided = subjects
         .iter()
@@ -276,6 +286,9 @@ fn print_screen(screened: &Screened) {
         }
     }
 }
+
+/// Most subjects whose trimming counts are listed in the console (all are in the table).
+const PER_SUBJECT_LINES: usize = 20;
 
 fn limit_text(limit: Option<f64>) -> String {
     limit.map_or_else(|| "-".to_string(), |x| format!("{x} s"))
@@ -314,7 +327,13 @@ pub fn fit_screened(
         if kept.subjects.is_empty() {
             continue;
         }
-        let (f, s) = fit_table(std::slice::from_ref(model), &kept, options, threads, progress)?;
+        let (f, s) = fit_table(
+            std::slice::from_ref(model),
+            &kept,
+            options,
+            threads,
+            progress,
+        )?;
         fits.extend(f);
         skipped.extend(s);
     }
@@ -335,31 +354,50 @@ pub fn screened_jobs(screened: &Screened) -> usize {
 /// summary, shares, trimming, and one `needs_<model>` column per model (`met`, or the reasons).
 pub fn screen_table_output(screened: &Screened) -> Table {
     let s = &screened.subjects;
-    let number = |f: &dyn Fn(&SubjectScreen) -> Option<f64>| Column::Number(s.iter().map(f).collect());
+    let number =
+        |f: &dyn Fn(&SubjectScreen) -> Option<f64>| Column::Number(s.iter().map(f).collect());
     let count = |f: &dyn Fn(&SubjectScreen) -> usize| {
         Column::Integer(s.iter().map(|x| f(x) as i64).collect())
     };
     let mut table = Table::default()
-        .with("subject", Column::Text(s.iter().map(|x| x.subject.clone()).collect()))
-        .with("group", Column::Text(s.iter().map(|x| x.group.clone()).collect()))
+        .with(
+            "subject",
+            Column::Text(s.iter().map(|x| x.subject.clone()).collect()),
+        )
+        .with(
+            "group",
+            Column::Text(s.iter().map(|x| x.group.clone()).collect()),
+        )
         .with("trials", count(&|x| x.trials))
         .with("responses", count(&|x| x.responses))
         .with("timed_responses", count(&|x| x.timed))
         .with("rt_min", number(&|x| x.rt_min))
         .with("rt_median", number(&|x| x.rt_median))
         .with("rt_max", number(&|x| x.rt_max))
-        .with("fast_floor", number(&|_| Some(screened.settings.fast_floor)))
+        .with(
+            "fast_floor",
+            number(&|_| Some(screened.settings.fast_floor)),
+        )
         .with("fast_share", number(&|x| x.fast_share))
         .with("share_a", number(&|x| x.share_a))
         .with("share_b", number(&|x| x.share_b()))
         .with("trimmed_below", count(&|x| x.trimmed.below))
         .with("trimmed_above", count(&|x| x.trimmed.above))
-        .with("effort_varies", Column::Flag(s.iter().map(|x| x.effort_varies).collect()))
+        .with(
+            "effort_varies",
+            Column::Flag(s.iter().map(|x| x.effort_varies).collect()),
+        )
         .with("rewards_offered", count(&|x| x.rewards_offered));
     for (model, per_subject) in &screened.unmet {
         let column = per_subject
             .iter()
-            .map(|u| if u.is_empty() { "met".to_string() } else { u.join("; ") })
+            .map(|u| {
+                if u.is_empty() {
+                    "met".to_string()
+                } else {
+                    u.join("; ")
+                }
+            })
             .collect();
         table = table.with(&format!("needs_{model}"), Column::Text(column));
     }

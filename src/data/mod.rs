@@ -32,9 +32,9 @@ mod write;
 
 pub use read::{ColumnMap, ReadNotes, read_trials, read_trials_noted};
 pub use screen::{
-    DEFAULT_FAST_FLOOR, MILLISECOND_MEDIAN, ModelNeeds, ScreenError, ScreenSettings,
-    SubjectScreen, TRIALS_PER_PARAMETER, TrimCounts, screen, screen_table, share_slower_than,
-    trim_response_times, unmet_needs,
+    DEFAULT_FAST_FLOOR, MILLISECOND_MEDIAN, ModelNeeds, ScreenError, ScreenSettings, SubjectScreen,
+    TRIALS_PER_PARAMETER, TrimCounts, screen, screen_table, share_slower_than, trim_response_times,
+    unmet_needs,
 };
 pub use write::write_trials;
 

@@ -1205,8 +1205,15 @@ const COMMON_MISSING: [&str; 8] = ["NA", "N/A", "NaN", ".", "null", "None", "mis
 
 /// A hint to map `text` with `--missing` when it looks like a missing-value token.
 fn missing_hint(text: &str) -> String {
-    if COMMON_MISSING.iter().any(|m| m.eq_ignore_ascii_case(text.trim())) {
-        format!("; if {:?} marks a missing value, pass --missing {}", text.trim(), text.trim())
+    if COMMON_MISSING
+        .iter()
+        .any(|m| m.eq_ignore_ascii_case(text.trim()))
+    {
+        format!(
+            "; if {:?} marks a missing value, pass --missing {}",
+            text.trim(),
+            text.trim()
+        )
     } else {
         String::new()
     }

@@ -228,7 +228,11 @@ pub struct ModelNeeds {
 
 /// Why a subject's data do not meet a model's needs, asking for `per_parameter` responses per
 /// free parameter; empty when they do.
-pub fn unmet_needs(screen: &SubjectScreen, needs: &ModelNeeds, per_parameter: usize) -> Vec<String> {
+pub fn unmet_needs(
+    screen: &SubjectScreen,
+    needs: &ModelNeeds,
+    per_parameter: usize,
+) -> Vec<String> {
     let mut unmet = Vec::new();
     if needs.weights_effort && !screen.effort_varies {
         unmet.push(format!(

@@ -10,8 +10,7 @@ use super::{
 use crate::data::Choice;
 use crate::first_passage::{
     Bound, DiffusionParams, ln_bound_probability_with_gradient, ln_density_with_gradient,
-    ln_survival_with_gradient,
-    mean_decision_time, sample,
+    ln_survival_with_gradient, mean_decision_time, sample,
 };
 use crate::model::dual::{D, chain};
 use num_dual::DualNum;
