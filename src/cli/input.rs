@@ -262,7 +262,10 @@ fn print_screen(screened: &Screened) {
             .map(|s| format!("{} {}/{}", s.subject, s.trimmed.below, s.trimmed.above))
             .collect();
         if !trimmed.is_empty() && trimmed.len() <= PER_SUBJECT_LINES {
-            println!("  trimmed per subject (below/above): {}", trimmed.join(", "));
+            println!(
+                "  trimmed per subject (below/above): {}",
+                trimmed.join(", ")
+            );
         }
     }
     let one_sided = subjects
