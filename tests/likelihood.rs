@@ -124,20 +124,23 @@ fn log_likelihood_is_the_sum_of_engine_log_densities() {
     assert!((got - expected).abs() < 1e-10, "{got} vs {expected}");
 }
 
-#[test]
-fn gradient_matches_central_differences_for_every_built_in_model() {
-    // Central differences, step 1e-6 (common practice), against the forward-mode gradient.
-    let subject = {
-        let mut s = worked_subject();
-        for (i, t) in s.trials.iter_mut().enumerate() {
-            t.reward_a = Some(0.2 * i as f64);
-            t.reward_b = Some(0.5);
-        }
-        s
-    };
+/// `subject` with offered magnitudes on every trial, so that every built-in model applies.
+fn with_rewards(mut s: Subject) -> Subject {
+    for (i, t) in s.trials.iter_mut().enumerate() {
+        t.reward_a = Some(0.2 * i as f64);
+        t.reward_b = Some(0.5);
+    }
+    s
+}
+
+/// Central differences, step 1e-6 (common practice), against the forward-mode gradient of every
+/// built-in model at θ_j = offset − slope·j.
+fn assert_gradient_matches_central_differences(subject: &Subject, offset: f64, slope: f64) {
     for model in valuedrift::model::built_in_models() {
-        let lik = SubjectLikelihood::new(&model, &subject, None).unwrap();
-        let theta: Vec<f64> = (0..lik.n_free()).map(|j| 0.3 - 0.17 * j as f64).collect();
+        let lik = SubjectLikelihood::new(&model, subject, None).unwrap();
+        let theta: Vec<f64> = (0..lik.n_free())
+            .map(|j| offset - slope * j as f64)
+            .collect();
         let e = lik.evaluate(&theta);
         for j in 0..theta.len() {
             let h = 1e-6;
@@ -155,6 +158,11 @@ fn gradient_matches_central_differences_for_every_built_in_model() {
             );
         }
     }
+}
+
+#[test]
+fn gradient_matches_central_differences_for_every_built_in_model() {
+    assert_gradient_matches_central_differences(&with_rewards(worked_subject()), 0.3, 0.17);
 }
 
 #[test]
@@ -294,36 +302,9 @@ fn a_trimmed_time_leaves_the_choice_scored_by_the_absorption_probability() {
 
 #[test]
 fn gradient_with_trimmed_times_matches_central_differences() {
-    // As for the untimed trials above: central differences, step 1e-6 (common practice), against
-    // the forward-mode gradient through the absorption probability's analytic derivatives, for
-    // every built-in model (lapse-free and otherwise).
-    let subject = {
-        let mut s = trimmed_subject();
-        for (i, t) in s.trials.iter_mut().enumerate() {
-            t.reward_a = Some(0.2 * i as f64);
-            t.reward_b = Some(0.5);
-        }
-        s
-    };
-    for model in valuedrift::model::built_in_models() {
-        let lik = SubjectLikelihood::new(&model, &subject, None).unwrap();
-        let theta: Vec<f64> = (0..lik.n_free()).map(|j| 0.25 - 0.15 * j as f64).collect();
-        let e = lik.evaluate(&theta);
-        for j in 0..theta.len() {
-            let h = 1e-6;
-            let (mut up, mut down) = (theta.clone(), theta.clone());
-            up[j] += h;
-            down[j] -= h;
-            let numeric =
-                (lik.evaluate(&up).ln_likelihood - lik.evaluate(&down).ln_likelihood) / (2.0 * h);
-            assert!(
-                (numeric - e.gradient[j]).abs() < 1e-5 * numeric.abs().max(1.0),
-                "{} parameter {j}: analytic {} numeric {numeric}",
-                model.name,
-                e.gradient[j]
-            );
-        }
-    }
+    // As for the timed trials: the gradient through the absorption probability's analytic
+    // derivatives, for every built-in model (lapse-free and otherwise).
+    assert_gradient_matches_central_differences(&with_rewards(trimmed_subject()), 0.25, 0.15);
 }
 
 #[test]
