@@ -160,9 +160,10 @@ fn fit_path_fails(
         model,
         "--out",
         out.to_str().unwrap(),
-        "--starts",
-        "1",
     ];
+    if !extra.contains(&"--starts") {
+        args.extend_from_slice(&["--starts", "1"]);
+    }
     args.extend_from_slice(extra);
     let needles: Vec<String> = needles
         .iter()
@@ -516,14 +517,18 @@ const PARAMS_ROWS: [&str; 2] = [
     "s2,0.30,0.45,0.4,4.5,1.8,0.40",
 ];
 
-/// A design of 2 subjects × 30 trials: efforts 0–1 and fixed would-be outcomes (option a pays
+/// Trials per subject of the design: at least ten responses per free parameter of the six of
+/// gainloss-linear, the data screen's rule (source: src/data/screen.rs, TRIALS_PER_PARAMETER).
+const DESIGN_TRIALS: u32 = 70;
+
+/// A design of 2 subjects × DESIGN_TRIALS trials: efforts 0–1 and fixed would-be outcomes (option a pays
 /// on 7 of every 10 trials, option b on 3), with choice, rt and outcome left empty (source:
 /// src/cli/mod.rs, `simulate` help).
 fn design_csv() -> String {
     let mut text =
         String::from("subject,trial,effort_a,effort_b,choice,rt,outcome_if_a,outcome_if_b\n");
     for subject in ["s1", "s2"] {
-        for trial in 1..=30 {
+        for trial in 1..=DESIGN_TRIALS {
             let effort_a = f64::from(trial % 5) * 0.25;
             let effort_b = f64::from((trial * 3) % 5) * 0.25;
             let pays_a = u8::from(trial % 10 < 7);
@@ -603,17 +608,15 @@ fn fit_control_writes_every_output() {
         String::from_utf8_lossy(&simulated.stderr)
     );
     let text = std::fs::read_to_string(&trials).unwrap();
-    // Header plus 60 trials (source: design_csv above).
-    assert_eq!(text.lines().count(), 61, "simulated table:\n{text}");
+    // Header plus 140 trials (source: design_csv above).
+    assert_eq!(text.lines().count(), 141, "simulated table:\n{text}");
     let with_rt = text
         .lines()
         .skip(1)
         .filter(|l| l.split(',').nth(11).is_some_and(|rt| !rt.is_empty()))
         .count();
-    assert!(
-        with_rt >= 50,
-        "only {with_rt} of 60 simulated trials have an rt"
-    );
+    // Without a deadline every simulated trial has a response (source: src/simulate.rs).
+    assert_eq!(with_rt, 140, "simulated trials with an rt");
 
     let out = dir.path().join("out");
     let fitted = run(&[
@@ -641,6 +644,8 @@ fn fit_control_writes_every_output() {
         "parameters.parquet",
         "estimates_wide.parquet",
         "fit_summary.parquet",
+        "data_screen.csv",
+        "data_screen.parquet",
         "run.json",
     ]
     .map(PathBuf::from)
@@ -660,6 +665,355 @@ fn fit_control_writes_every_output() {
                 .lines()
                 .any(|l| l.starts_with(&format!("{subject},"))),
             "{subject} missing from parameters.csv:\n{parameters}"
+        );
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
+// Options that would otherwise be accepted as nonsense, the reader's options and the data screen
+
+/// Runs `fit` on the good table with `extra` options and checks the failure; `needles` may use
+/// `{file}` for the data path.
+fn fit_option_fails(case: &str, extra: &[&str], needles: &[&str]) {
+    fit_table_option_fails(case, &good_csv(), extra, needles);
+}
+
+/// Runs `fit` on `data` with `extra` options and checks the failure.
+fn fit_table_option_fails(case: &str, data: &str, extra: &[&str], needles: &[&str]) {
+    let dir = tempfile::tempdir().unwrap();
+    let path = write(dir.path(), "trials.csv", data);
+    fit_path_fails(case, dir.path(), &path, MODEL, extra, needles);
+}
+
+#[test]
+fn fit_options_out_of_range() {
+    // Each value below is outside what the option's help allows (source: src/cli/mod.rs and
+    // src/cli/input.rs); the message names the option, the value and what was expected.
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let many = (1000 * cores).to_string();
+    let cores_text = format!("{cores} cores");
+    let cases: Vec<(&str, Vec<&str>, Vec<&str>)> = vec![
+        (
+            "starts 0",
+            vec!["--starts", "0"],
+            vec!["--starts 0", "at least 1"],
+        ),
+        (
+            "threads far above the cores",
+            vec!["--threads", &many],
+            vec!["--threads", &cores_text],
+        ),
+        (
+            "deadline 0",
+            vec!["--deadline", "0"],
+            vec!["--deadline 0", "> 0"],
+        ),
+        (
+            "deadline negative",
+            vec!["--deadline=-2"],
+            vec!["--deadline -2", "> 0"],
+        ),
+        (
+            "deadline NaN",
+            vec!["--deadline", "NaN"],
+            vec!["--deadline NaN", "> 0"],
+        ),
+        (
+            "em iterations 0",
+            vec!["--hierarchical", "--em-iterations", "0"],
+            vec!["--em-iterations 0", "at least 1"],
+        ),
+        (
+            "ibic samples 1",
+            vec!["--hierarchical", "--ibic-samples", "1"],
+            vec!["--ibic-samples 1", "at least 2"],
+        ),
+        (
+            "em tolerance 0",
+            vec!["--hierarchical", "--em-tolerance", "0"],
+            vec!["--em-tolerance 0", "> 0"],
+        ),
+        (
+            "fast floor 0",
+            vec!["--fast-floor", "0"],
+            vec!["--fast-floor 0", "> 0"],
+        ),
+        (
+            "responses per parameter 0",
+            vec!["--responses-per-parameter", "0"],
+            vec!["--responses-per-parameter 0", "at least 1"],
+        ),
+        (
+            "trim below negative",
+            vec!["--trim-below=-0.1"],
+            vec!["--trim-below -0.1", "> 0"],
+        ),
+        (
+            "trim above infinite",
+            vec!["--trim-above", "inf"],
+            vec!["--trim-above inf", "> 0"],
+        ),
+        (
+            "trim limits crossed",
+            vec!["--trim-below", "2", "--trim-above", "1"],
+            vec!["--trim-below 2", "--trim-above 1", "lower limit"],
+        ),
+        (
+            "choice codes without b",
+            vec!["--choice-codes", "1=a"],
+            vec!["--choice-codes", "no code for option b"],
+        ),
+        (
+            "choice code to an unknown option",
+            vec!["--choice-codes", "1=a,2=c"],
+            vec!["--choice-codes", "`2=c`", "expected a or b"],
+        ),
+        (
+            "empty missing token",
+            vec!["--missing", "NA,,NaN"],
+            vec!["--missing", "empty token"],
+        ),
+        (
+            "missing token that is a choice code",
+            vec!["--choice-codes", "1=a,2=b", "--missing", "2"],
+            vec!["--missing", "`2`", "choice code"],
+        ),
+    ];
+    for (case, extra, needles) in cases {
+        fit_option_fails(case, &extra, &needles);
+    }
+}
+
+#[test]
+fn deadline_below_most_response_times() {
+    // The good table's times are 0.8, 1.1 and 0.7 s: all are slower than a 0.5 s deadline, which
+    // cannot be the time at which trials ended without response.
+    fit_option_fails(
+        "deadline below the response times",
+        &["--deadline", "0.5"],
+        &["--deadline 0.5", "100.0 % of the response times", "{file}"],
+    );
+}
+
+#[test]
+fn response_times_in_milliseconds() {
+    // Medians of 950 and 700 "seconds" (source: the rows below) are milliseconds.
+    let data = good_with_line(2, "s1,1,0,1,a,800");
+    let data = data.replace("s1,2,1,0,b,1.1", "s1,2,1,0,b,1100");
+    let data = data.replace("s2,1,0.5,0,a,0.7", "s2,1,0.5,0,a,700");
+    fit_table_option_fails(
+        "milliseconds",
+        &data,
+        &[],
+        &[
+            "{file}",
+            "column rt",
+            "look like milliseconds",
+            "divide the rt column by 1000",
+        ],
+    );
+}
+
+#[test]
+fn subjects_with_fewer_responses_than_parameters() {
+    // gainloss-linear has six free parameters (source: models/gainloss-linear.toml); s1 has two
+    // responses and s2 one (source: GOOD_ROWS).
+    fit_option_fails(
+        "fewer responses than parameters",
+        &[],
+        &[
+            "{file}",
+            "column subject",
+            "\"s1\", \"s2\"",
+            "6 free parameters",
+        ],
+    );
+}
+
+#[test]
+fn choice_codes_in_the_table() {
+    // Line 3 writes 2 where a or b is expected.
+    fit_table_option_fails(
+        "code without --choice-codes",
+        &good_with_line(3, "s1,2,1,0,2,1.1"),
+        &[],
+        &[
+            "{file}",
+            "line 3",
+            "column choice",
+            "--choice-codes 1=a,2=b",
+        ],
+    );
+    // With codes 1 and 2, line 4 writes 3.
+    let data = good_csv()
+        .replace(",a,", ",1,")
+        .replace(",b,", ",2,")
+        .replace("s2,1,0.5,0,1,0.7", "s2,1,0.5,0,3,0.7");
+    fit_table_option_fails(
+        "code not listed",
+        &data,
+        &["--choice-codes", "1=a,2=b"],
+        &["{file}", "line 4", "column choice", "1 (a), 2 (b)"],
+    );
+}
+
+#[test]
+fn missing_value_token_without_missing() {
+    // Line 2 writes NA for the response time, which the reader does not take as missing unless
+    // told.
+    fit_table_option_fails(
+        "NA without --missing",
+        &good_with_line(2, "s1,1,0,1,a,NA"),
+        &[],
+        &["{file}", "line 2", "column rt", "--missing NA"],
+    );
+}
+
+#[test]
+fn runs_out_of_order() {
+    // Subject s1's run r1 starts again on line 4, after run r2 (rows must be ordered by subject,
+    // run, trial; source: src/data/mod.rs).
+    let data = "subject,run,trial,effort_a,effort_b,choice,rt\n\
+                s1,r1,1,0,1,a,0.8\ns1,r2,1,1,0,b,1.1\ns1,r1,2,0.5,0,a,0.7\n";
+    fit_table_option_fails(
+        "run reappears",
+        data,
+        &[],
+        &["{file}", "line 4", "column run", "appears again"],
+    );
+    // Within run r1, trial 1 follows trial 2 on line 3.
+    let data = "subject,run,trial,effort_a,effort_b,choice,rt\n\
+                s1,r1,2,0,1,a,0.8\ns1,r1,1,1,0,b,1.1\n";
+    fit_table_option_fails(
+        "trial decreasing within a run",
+        data,
+        &[],
+        &["{file}", "line 3", "column trial", "within run \"r1\""],
+    );
+}
+
+#[test]
+fn demo_threads_far_above_the_cores() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("demo");
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let many = (1000 * cores).to_string();
+    expect_failure(
+        "demo threads",
+        dir.path(),
+        &["demo", "--out", out.to_str().unwrap(), "--threads", &many],
+        &[&out],
+        &["--threads", &format!("this machine has {cores} cores")],
+    );
+}
+
+#[test]
+fn simulate_deadline_not_positive() {
+    // A deadline is a number of seconds > 0 (source: src/cli/mod.rs, `simulate` help).
+    let dir = tempfile::tempdir().unwrap();
+    let design = write(dir.path(), "design.csv", &design_csv());
+    let params = write(
+        dir.path(),
+        "params.csv",
+        &format!("{PARAMS_HEADER}\n{}\n", PARAMS_ROWS.join("\n")),
+    );
+    let out = dir.path().join("simulated.csv");
+    for deadline in ["0", "-1", "inf"] {
+        let flag = format!("--deadline={deadline}");
+        expect_failure(
+            &format!("simulate deadline {deadline}"),
+            dir.path(),
+            &[
+                "simulate",
+                "--model",
+                MODEL,
+                "--params",
+                params.to_str().unwrap(),
+                "--design",
+                design.to_str().unwrap(),
+                "--out",
+                out.to_str().unwrap(),
+                &flag,
+            ],
+            &[&out],
+            &[&format!("--deadline {deadline}"), "seconds > 0"],
+        );
+    }
+    // A design whose choice column uses codes not given with --choice-codes.
+    let coded = write(
+        dir.path(),
+        "coded.csv",
+        &design_csv().replacen(",,,1,", ",left,0.9,1,", 1),
+    );
+    expect_failure(
+        "simulate design choice code",
+        dir.path(),
+        &[
+            "simulate",
+            "--model",
+            MODEL,
+            "--params",
+            params.to_str().unwrap(),
+            "--design",
+            coded.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--choice-codes",
+            "l=a,r=b",
+        ],
+        &[&out],
+        &[
+            coded.to_str().unwrap(),
+            "line 2",
+            "column choice",
+            "l (a), r (b)",
+        ],
+    );
+}
+
+#[test]
+fn check_and_export_reader_options() {
+    // `check` and `export` read the trial table with the same options as `fit`; bad
+    // specifications are refused before anything is read or written.
+    let dir = tempfile::tempdir().unwrap();
+    let data = write(dir.path(), "trials.csv", &good_csv());
+    let fits = dir.path().join("fits");
+    std::fs::create_dir(&fits).unwrap();
+    let out = dir.path().join("out");
+    let common = [
+        "--fits",
+        fits.to_str().unwrap(),
+        "--data",
+        data.to_str().unwrap(),
+        "--model",
+        MODEL,
+        "--out",
+        out.to_str().unwrap(),
+    ];
+    let cases: [(&str, &[&str], &[&str]); 4] = [
+        (
+            "check",
+            &["--choice-codes", "left=a"],
+            &["--choice-codes", "no code for option b"],
+        ),
+        (
+            "export",
+            &["--missing", ",NA,"],
+            &["--missing", "empty token"],
+        ),
+        ("check", &["--sims", "5"], &["--sims 5", "at least"]),
+        ("check", &["--deadline", "0"], &["--deadline 0", "> 0"]),
+    ];
+    for (command, extra, needles) in cases {
+        let mut args = vec![command];
+        args.extend_from_slice(&common);
+        args.extend_from_slice(extra);
+        expect_failure(
+            &format!("{command} {extra:?}"),
+            dir.path(),
+            &args,
+            &[&out],
+            needles,
         );
     }
 }

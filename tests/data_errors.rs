@@ -7,7 +7,7 @@
 use std::path::{Path, PathBuf};
 
 use polars::prelude::*;
-use valuedrift::data::{Choice, ColumnMap, TrialTable, read_trials};
+use valuedrift::data::{Choice, ColumnMap, TrialTable, read_trials, read_trials_noted};
 use valuedrift::files::InputError;
 
 const GOOD: &str = "\
@@ -553,12 +553,24 @@ fn negative_onsets() {
 }
 
 #[test]
-fn outcome_on_a_no_response_trial() {
+fn outcome_on_a_no_response_trial_is_accepted_with_a_note() {
+    // Task logs often write 0 or a penalty as the outcome of a missed trial (common practice);
+    // such a trial is read, counted in the notes with its line, and nothing is chosen on it (so
+    // the likelihood, which learns only after a response, learns nothing from it).
+    let dir = tempfile::tempdir().unwrap();
     let text = "subject,trial,effort_a,effort_b,choice,rt,outcome\n\
-                x,1,0,1,a,0.7,1\nx,2,0,1,,,1\n";
-    let (path, err, _dir) = csv_err(text);
-    // source: line 3 has no response but an outcome.
-    assert_at(&err, &path, Some(3), Some("outcome"), "without a response");
+                x,1,0,1,a,0.7,1\nx,2,0,1,,,0\nx,3,0,1,,,-1\n";
+    let path = write(dir.path(), "missed.csv", text.as_bytes());
+    let (table, notes) = read_trials_noted(&path, &ColumnMap::default()).unwrap();
+    // source: lines 3 and 4 have no response but an outcome.
+    assert_eq!(notes.outcomes_without_response, 2);
+    assert_eq!(notes.first_outcome_without_response, Some(3));
+    let lines = notes.lines(&path);
+    assert_eq!(lines.len(), 1, "one note per file: {lines:?}");
+    assert!(lines[0].contains(path.to_str().unwrap()) && lines[0].contains("2 trial(s)"));
+    let trials = &table.subjects[0].trials;
+    assert_eq!(trials[1].choice, None);
+    assert_eq!(trials[1].outcome, Some(0.0));
 }
 
 #[test]
@@ -641,4 +653,148 @@ fn display_names_file_line_and_column() {
     // source: InputError's documented Display format.
     let expected = format!("{} line 2, column rt: ", path.display());
     assert!(err.to_string().starts_with(&expected), "{err}");
+}
+
+// ---------------------------------------------------------------------------------------------
+// Choice codes, missing-value tokens and runs
+
+/// `MINIMAL` rows read with `columns`.
+fn read_with(text: &str, columns: &ColumnMap) -> Result<TrialTable, InputError> {
+    let dir = tempfile::tempdir().unwrap();
+    let path = write(dir.path(), "coded.csv", text.as_bytes());
+    read_trials(&path, columns)
+}
+
+#[test]
+fn choice_codes_map_to_a_and_b() {
+    // Button codes 1/2 and words accept/reject, as task software writes them (common practice).
+    let text = format!("{MINIMAL}\nx,1,0,1,1,0.7\nx,2,0,1,2,0.8\nx,3,0,1,,\n");
+    let columns = ColumnMap::default().with_choice_codes("1=a, 2=b").unwrap();
+    let table = read_with(&text, &columns).unwrap();
+    let choices: Vec<Option<Choice>> = table.subjects[0].trials.iter().map(|t| t.choice).collect();
+    assert_eq!(choices, [Some(Choice::A), Some(Choice::B), None]);
+    let text = format!("{MINIMAL}\nx,1,0,1,Accept,0.7\nx,2,0,1,reject,0.8\n");
+    let columns = ColumnMap::default()
+        .with_choice_codes("accept=a,reject=b")
+        .unwrap();
+    let table = read_with(&text, &columns).unwrap();
+    assert_eq!(table.subjects[0].trials[0].choice, Some(Choice::A));
+    assert_eq!(table.subjects[0].trials[1].choice, Some(Choice::B));
+}
+
+#[test]
+fn choice_codes_not_given_or_not_listed_are_errors_at_their_cell() {
+    let (path, err, _dir) = csv_err(&format!("{MINIMAL}\nx,1,0,1,1,0.7\n"));
+    // source: line 2 writes 1 where a/b is expected; the message points to --choice-codes.
+    assert_at(&err, &path, Some(2), Some("choice"), "--choice-codes");
+    let dir = tempfile::tempdir().unwrap();
+    let path = write(
+        dir.path(),
+        "coded.csv",
+        format!("{MINIMAL}\nx,1,0,1,1,0.7\nx,2,0,1,3,0.7\n").as_bytes(),
+    );
+    let columns = ColumnMap::default().with_choice_codes("1=a,2=b").unwrap();
+    let err = read_err(&path, &columns);
+    // source: line 3 writes 3, which is not among the codes 1 and 2.
+    assert_at(
+        &err,
+        &path,
+        Some(3),
+        Some("choice"),
+        "expected one of the choice codes 1 (a), 2 (b)",
+    );
+}
+
+#[test]
+fn choice_code_and_missing_token_specifications_are_checked() {
+    let cases: [(&str, &str, &str); 7] = [
+        ("codes", "1=a", "no code for option b"),
+        ("codes", "1=a,2=c", "expected a or b"),
+        ("codes", "1=a,1=b", "more than once"),
+        ("codes", "1a,2=b", "has no `=`"),
+        ("codes", "=a,2=b", "no code before"),
+        ("missing", "NA,,NaN", "empty token"),
+        ("both", "1=a,2=b", "also"),
+    ];
+    for (kind, spec, text) in cases {
+        let err = match kind {
+            "codes" => ColumnMap::default().with_choice_codes(spec).unwrap_err(),
+            "missing" => ColumnMap::default().with_missing(spec).unwrap_err(),
+            _ => ColumnMap::default()
+                .with_missing("1")
+                .unwrap()
+                .with_choice_codes(spec)
+                .unwrap_err(),
+        };
+        assert!(err.contains(text), "{kind} {spec:?}: {err}");
+    }
+}
+
+#[test]
+fn missing_value_tokens_read_as_empty_cells() {
+    // NA and NaN as written by R and pandas for a missing value (common practice).
+    let text = format!("{MINIMAL},outcome\nx,1,0,1,a,0.7,1\nx,2,0,1,NA,NA,NaN\nx,3,0,1,b,0.9,na\n");
+    let (path, err, _dir) = csv_err(&text);
+    // source: line 3 writes NA in choice; without --missing that is an error with a hint.
+    assert_at(&err, &path, Some(3), Some("choice"), "--missing NA");
+    let columns = ColumnMap::default().with_missing("NA,NaN").unwrap();
+    let table = read_with(&text, &columns).unwrap();
+    let t = &table.subjects[0].trials;
+    assert_eq!((t[1].choice, t[1].rt, t[1].outcome), (None, None, None));
+    assert_eq!((t[2].choice, t[2].outcome), (Some(Choice::B), None));
+    // Parquet: a floating-point NaN response time is missing when NaN is a token.
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("nan.parquet");
+    let mut frame = df!(
+        "subject" => ["x", "x"],
+        "trial" => [1i64, 2],
+        "effort_a" => [0.0, 1.0],
+        "effort_b" => [1.0, 0.0],
+        "choice" => [Some("a"), None],
+        "rt" => [0.7, f64::NAN],
+    )
+    .unwrap();
+    write_parquet(&path, &mut frame);
+    let err = read_err(&path, &ColumnMap::default());
+    // source: data row 2 holds NaN in rt.
+    assert_at(&err, &path, Some(2), Some("rt"), "expected a response time");
+    let table = read_trials(&path, &ColumnMap::default().with_missing("NaN").unwrap()).unwrap();
+    assert_eq!(table.subjects[0].trials[1].rt, None);
+}
+
+#[test]
+fn trial_numbers_may_restart_in_each_run() {
+    let header = "subject,run,trial,effort_a,effort_b,choice,rt";
+    let dir = tempfile::tempdir().unwrap();
+    let text = format!(
+        "{header}\nx,r1,1,0,1,a,0.7\nx,r1,2,0,1,a,0.7\nx,r2,1,0,1,b,0.7\nx,r2,2,0,1,a,0.7\n"
+    );
+    let table = read(&write(dir.path(), "runs.csv", text.as_bytes()));
+    // source: two runs of two trials, numbered from 1 in each (module documentation).
+    let runs: Vec<(&str, i64)> = table.subjects[0]
+        .trials
+        .iter()
+        .map(|t| (t.run.as_str(), t.trial))
+        .collect();
+    assert_eq!(runs, [("r1", 1), ("r1", 2), ("r2", 1), ("r2", 2)]);
+    let text = format!("{header}\nx,r1,1,0,1,a,0.7\nx,r2,1,0,1,a,0.7\nx,r1,2,0,1,b,0.7\n");
+    let (path, err, _dir) = csv_err(&text);
+    // source: run r1 returns on line 4 after run r2.
+    assert_at(
+        &err,
+        &path,
+        Some(4),
+        Some("run"),
+        "appears again after run \"r2\"",
+    );
+    let text = format!("{header}\nx,r1,2,0,1,a,0.7\nx,r1,1,0,1,a,0.7\n");
+    let (path, err, _dir) = csv_err(&text);
+    // source: trial 1 follows trial 2 within run r1 on line 3.
+    assert_at(
+        &err,
+        &path,
+        Some(3),
+        Some("trial"),
+        "within run \"r1\" of subject",
+    );
 }

@@ -432,6 +432,10 @@ fn export_writes_latents_and_bids_events_files() {
             "1",
             "--threads",
             "1",
+            // 39 responses for six free parameters: the data screen's default asks for ten
+            // per parameter (source: src/data/screen.rs); five suffice for this export test.
+            "--responses-per-parameter",
+            "5",
         ])
         .arg("--data")
         .arg(&data)

@@ -283,3 +283,53 @@ fn survival_gradient_matches_the_series_and_central_differences() {
         }
     }
 }
+
+#[test]
+fn choice_only_gradient_matches_central_differences() {
+    // ∂ ln P(bound)/∂(drift, boundary, start, drift_sd) of the analytic gradient against central
+    // differences of ln_bound_probability (common practice), across both signs of the drift,
+    // drift 0 (where the closed form's 1/λ terms cancel), biased starts and drift variability;
+    // P does not depend on the non-decision time, so that derivative is exactly zero.
+    use valuedrift::first_passage::{ln_bound_probability, ln_bound_probability_with_gradient};
+    for &(v, a, w, sd) in &[
+        (1.0, 1.6, 0.5, 0.0),
+        (-2.0, 2.2, 0.35, 0.0),
+        (0.0, 1.3, 0.7, 0.0),
+        (1e-4, 2.0, 0.4, 0.0),
+        (6.0, 3.0, 0.2, 0.0),
+        (-5.0, 4.0, 0.9, 0.0),
+        (0.7, 1.2, 0.6, 0.8),
+    ] {
+        let make = |x: [f64; 4]| {
+            DiffusionParams::new(x[0], x[1], x[2], 0.3)
+                .unwrap()
+                .with_variability(x[3], 0.0, 0.0)
+                .unwrap()
+        };
+        let x = [v, a, w, sd];
+        for bound in [Bound::Upper, Bound::Lower] {
+            let (ln_p, g) = ln_bound_probability_with_gradient(bound, &make(x)).unwrap();
+            let direct = ln_bound_probability(bound, &make(x));
+            assert!((ln_p - direct).abs() < 1e-9, "{ln_p} vs {direct}");
+            assert_eq!(g.ndt, 0.0, "P(bound) does not depend on ndt");
+            let analytic = [g.drift, g.boundary, g.start, g.drift_sd];
+            for k in 0..4 {
+                if k == 3 && sd == 0.0 {
+                    continue;
+                }
+                let h = 1e-5;
+                let (mut up, mut down) = (x, x);
+                up[k] += h;
+                down[k] -= h;
+                let numeric = (ln_bound_probability(bound, &make(up))
+                    - ln_bound_probability(bound, &make(down)))
+                    / (2.0 * h);
+                assert!(
+                    (numeric - analytic[k]).abs() < 1e-6 * numeric.abs().max(1.0),
+                    "{bound} v={v} a={a} w={w} sd={sd} k={k}: {} vs {numeric}",
+                    analytic[k]
+                );
+            }
+        }
+    }
+}

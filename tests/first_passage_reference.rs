@@ -98,23 +98,27 @@ fn log_density_and_cdf_match_mpmath_within_1e_8() {
     );
 }
 
+/// Each row of first_passage_moments.csv as a process (with non-decision time `ndt`, which the
+/// table's quantities do not depend on) and a lookup of the row's columns by name.
+fn moments_rows(ndt: f64) -> Vec<(DiffusionParams, impl Fn(&str) -> f64)> {
+    let (header, rows) = read_table("first_passage_moments.csv");
+    assert!(rows.len() >= 30);
+    rows.into_iter()
+        .map(|row| {
+            let header = header.clone();
+            let get = move |name: &str| -> f64 { row[column(&header, name)].parse().unwrap() };
+            let p = DiffusionParams::new(get("drift"), get("boundary"), get("start"), ndt).unwrap();
+            (p, get)
+        })
+        .collect()
+}
+
 #[test]
 fn bound_probabilities_and_mean_decision_times_match_mpmath_integrals() {
     // The reference obtains P(upper) and the mean decision times by numerically integrating the
     // densities (mpmath.quad); here they come from the closed forms of Grasman, Wagenmakers &
     // van der Maas (2009).
-    let (header, rows) = read_table("first_passage_moments.csv");
-    assert!(rows.len() >= 30);
-    let get =
-        |row: &Vec<String>, name: &str| -> f64 { row[column(&header, name)].parse().unwrap() };
-    for row in &rows {
-        let p = DiffusionParams::new(
-            get(row, "drift"),
-            get(row, "boundary"),
-            get(row, "start"),
-            0.0,
-        )
-        .unwrap();
+    for (p, get) in moments_rows(0.0) {
         let checks = [
             ("p_upper", bound_probability(Bound::Upper, &p)),
             ("mean_dt", mean_decision_time(&p)),
@@ -122,12 +126,41 @@ fn bound_probabilities_and_mean_decision_times_match_mpmath_integrals() {
             ("mean_dt_lower", mean_decision_time_given(Bound::Lower, &p)),
         ];
         for (name, value) in checks {
-            let expected = get(row, name);
+            let expected = get(name);
             let rel = ((value - expected) / expected).abs();
             assert!(
                 rel < 1e-10,
                 "{name} for {p:?}: {value} vs {expected} (rel {rel:e})"
             );
         }
+    }
+}
+
+#[test]
+fn choice_only_log_probability_matches_the_mpmath_absorption_probabilities() {
+    // The value returned with the gradient of ln P(bound) (used for choices whose time was
+    // trimmed) against the mpmath integrals of the density in first_passage_moments.csv:
+    // p_upper at the upper bound and 1 − p_upper at the lower bound (the two absorption
+    // probabilities sum to one; Feller 1968, XIV.2).
+    use valuedrift::first_passage::ln_bound_probability_with_gradient;
+    for (p, get) in moments_rows(0.3) {
+        let upper = get("p_upper");
+        // The table stores p_upper in double precision, so 1 − p_upper is known only to about
+        // 1e-16 absolute: the lower bound is compared in absolute terms.
+        let (ln_up, _) = ln_bound_probability_with_gradient(Bound::Upper, &p).unwrap();
+        let rel = ((ln_up.exp() - upper) / upper).abs();
+        assert!(
+            rel < 1e-9,
+            "upper for {p:?}: {} vs {upper} (rel {rel:e})",
+            ln_up.exp()
+        );
+        let (ln_low, _) = ln_bound_probability_with_gradient(Bound::Lower, &p).unwrap();
+        let diff = (ln_low.exp() - (1.0 - upper)).abs();
+        assert!(
+            diff < 1e-14,
+            "lower for {p:?}: {} vs {} (diff {diff:e})",
+            ln_low.exp(),
+            1.0 - upper
+        );
     }
 }

@@ -124,20 +124,23 @@ fn log_likelihood_is_the_sum_of_engine_log_densities() {
     assert!((got - expected).abs() < 1e-10, "{got} vs {expected}");
 }
 
-#[test]
-fn gradient_matches_central_differences_for_every_built_in_model() {
-    // Central differences, step 1e-6 (common practice), against the forward-mode gradient.
-    let subject = {
-        let mut s = worked_subject();
-        for (i, t) in s.trials.iter_mut().enumerate() {
-            t.reward_a = Some(0.2 * i as f64);
-            t.reward_b = Some(0.5);
-        }
-        s
-    };
+/// `subject` with offered magnitudes on every trial, so that every built-in model applies.
+fn with_rewards(mut s: Subject) -> Subject {
+    for (i, t) in s.trials.iter_mut().enumerate() {
+        t.reward_a = Some(0.2 * i as f64);
+        t.reward_b = Some(0.5);
+    }
+    s
+}
+
+/// Central differences, step 1e-6 (common practice), against the forward-mode gradient of every
+/// built-in model at θ_j = offset − slope·j.
+fn assert_gradient_matches_central_differences(subject: &Subject, offset: f64, slope: f64) {
     for model in valuedrift::model::built_in_models() {
-        let lik = SubjectLikelihood::new(&model, &subject, None).unwrap();
-        let theta: Vec<f64> = (0..lik.n_free()).map(|j| 0.3 - 0.17 * j as f64).collect();
+        let lik = SubjectLikelihood::new(&model, subject, None).unwrap();
+        let theta: Vec<f64> = (0..lik.n_free())
+            .map(|j| offset - slope * j as f64)
+            .collect();
         let e = lik.evaluate(&theta);
         for j in 0..theta.len() {
             let h = 1e-6;
@@ -155,6 +158,11 @@ fn gradient_matches_central_differences_for_every_built_in_model() {
             );
         }
     }
+}
+
+#[test]
+fn gradient_matches_central_differences_for_every_built_in_model() {
+    assert_gradient_matches_central_differences(&with_rewards(worked_subject()), 0.3, 0.17);
 }
 
 #[test]
@@ -226,4 +234,92 @@ fixed = 0.3
         - lik.evaluate(&[theta[0] - h]).ln_likelihood)
         / (2.0 * h);
     assert!((numeric - e.gradient[0]).abs() < 1e-5 * numeric.abs().max(1.0));
+}
+
+/// The worked subject with the times of trials 2 and 5 set aside (as trimming does).
+fn trimmed_subject() -> Subject {
+    let mut s = worked_subject();
+    s.trials[1].rt = None;
+    s.trials[4].rt = None;
+    s
+}
+
+#[test]
+fn a_trimmed_time_leaves_the_choice_scored_by_the_absorption_probability() {
+    // A choice without its time counts as ln P(bound) (Feller 1968: the absorption probability
+    // (1 − e^(−2vaw)) / (1 − e^(−2va)) at the upper bound); the trial's time does not count; its
+    // outcome still updates the values (the participant saw it), so every later trial's values
+    // equal those of the untrimmed subject. P is recomputed here with the closed form, apart from
+    // the engine's code path used by the likelihood.
+    let model = load_model("gainloss-linear").unwrap();
+    let full = worked_subject();
+    let trimmed = trimmed_subject();
+    let values = natural(&model);
+    let trace_full = SubjectLikelihood::new(&model, &full, None)
+        .unwrap()
+        .trace(&values);
+    let lik = SubjectLikelihood::new(&model, &trimmed, None).unwrap();
+    let trace = lik.trace(&values);
+    let mut expected = 0.0;
+    for ((t, tr), tr_full) in trimmed.trials.iter().zip(&trace).zip(&trace_full) {
+        assert_eq!(
+            tr.value_a, tr_full.value_a,
+            "trial {}: learning unchanged",
+            t.trial
+        );
+        assert_eq!(
+            tr.value_b, tr_full.value_b,
+            "trial {}: learning unchanged",
+            t.trial
+        );
+        let drift = 3.0 * (tr.subjective_value_a - tr.subjective_value_b);
+        let (a, w) = (1.5, 0.5);
+        let p_upper = (1.0 - (-2.0 * drift * a * w).exp()) / (1.0 - (-2.0 * drift * a).exp());
+        let bound = if t.choice == Some(Choice::A) {
+            Bound::Upper
+        } else {
+            Bound::Lower
+        };
+        let ln_trial = match (t.rt, bound) {
+            (Some(rt), _) => {
+                ln_density(rt, bound, &DiffusionParams::new(drift, a, w, 0.3).unwrap())
+            }
+            (None, Bound::Upper) => p_upper.ln(),
+            (None, Bound::Lower) => (1.0 - p_upper).ln(),
+        };
+        let got = tr.ln_likelihood.expect("every response counts");
+        assert!(
+            (got - ln_trial).abs() < 1e-10,
+            "trial {}: {got} vs {ln_trial}",
+            t.trial
+        );
+        expected += ln_trial;
+    }
+    let free: Vec<f64> = model.free_slots().iter().map(|&s| values[s]).collect();
+    let got = lik.evaluate(&lik.unconstrained(&free)).ln_likelihood;
+    assert!((got - expected).abs() < 1e-10, "{got} vs {expected}");
+}
+
+#[test]
+fn gradient_with_trimmed_times_matches_central_differences() {
+    // As for the timed trials: the gradient through the absorption probability's analytic
+    // derivatives, for every built-in model (lapse-free and otherwise).
+    assert_gradient_matches_central_differences(&with_rewards(trimmed_subject()), 0.25, 0.15);
+}
+
+#[test]
+fn a_subject_whose_every_time_was_trimmed_is_refused_by_time_models_only() {
+    // With no time left, a model of response times has nothing to bound its non-decision time
+    // by; a choices-only model still fits the choices.
+    let mut subject = worked_subject();
+    for t in &mut subject.trials {
+        t.rt = None;
+    }
+    let timed = load_model("gainloss-linear").unwrap();
+    let err = SubjectLikelihood::new(&timed, &subject, None)
+        .err()
+        .expect("refused");
+    assert!(err.message.contains("none of the 5 responses"), "{err}");
+    let choices = load_model("gainloss-linear-choices").unwrap();
+    assert!(SubjectLikelihood::new(&choices, &subject, None).is_ok());
 }

@@ -64,6 +64,7 @@ pub fn run(
                 em: EmOptions::default(),
                 models: vec![REFERENCE.to_string()],
             }),
+            screen: crate::data::ScreenSettings::default(),
         },
         command_line,
     )?;

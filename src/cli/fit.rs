@@ -1,10 +1,8 @@
 //! `valuedrift fit`: per-subject fits of one or more models, with tidy outputs and a run record.
 
-use crate::data::{ColumnMap, TrialTable, read_trials};
+use crate::data::{ColumnMap, ScreenSettings, TrialTable};
 use crate::files::OutputSet;
-use crate::fit::{
-    EmOptions, FitOptions, GroupFit, Skipped, SubjectFit, fit_table, fit_table_hierarchical,
-};
+use crate::fit::{EmOptions, FitOptions, GroupFit, Skipped, SubjectFit, fit_table_hierarchical};
 use crate::model::{Model, load_model};
 use crate::progress::Progress;
 use crate::results::{
@@ -33,6 +31,8 @@ pub struct FitRun<'a> {
     pub columns: ColumnMap,
     /// Empirical-Bayes group priors as well, when set.
     pub hierarchical: Option<Hierarchical>,
+    /// The data screen's settings (fast floor, trimming).
+    pub screen: ScreenSettings,
 }
 
 /// Settings of the empirical-Bayes fit.
@@ -92,7 +92,7 @@ pub struct Fitted {
 /// Reads, fits and writes; returns what was fitted for the caller's summary.
 pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn std::error::Error>> {
     let mut outputs = OutputSet::create(run.out, run.replace)?;
-    let table = read_trials(run.data, &run.columns)?;
+    let mut table = super::input::read_table(run.data, &run.columns)?;
     if run.hierarchical.as_ref().is_some_and(|h| h.per_group) && !table.has_column("group") {
         return Err(format!(
             "{}: --by {}: no such column; the file has no group column to give each group its own prior",
@@ -102,8 +102,22 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         .into());
     }
     let models = load_models(run.models)?;
-    let bar = Progress::new("fitting", models.len() * table.subjects.len());
-    let (fits, skipped) = fit_table(&models, &table, &run.options, run.threads, &|| bar.inc())?;
+    let screened = super::input::screen_before_fit(
+        run.data,
+        &mut table,
+        &run.screen,
+        &models,
+        run.options.deadline,
+    )?;
+    let bar = Progress::new("fitting", super::input::screened_jobs(&screened));
+    let (fits, skipped) = super::input::fit_screened(
+        &models,
+        &table,
+        &screened,
+        &run.options,
+        run.threads,
+        &|| bar.inc(),
+    )?;
     bar.finish();
     if fits.is_empty() {
         let reasons: Vec<String> = skipped
@@ -171,6 +185,12 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         &skipped,
     );
     record["group_column"] = serde_json::json!(run.columns.file_name("group"));
+    record["data_screen"] = super::input::screen_record(&screened);
+    super::input::screen_table_output(&screened).stage_both(
+        &mut outputs,
+        run.out,
+        "data_screen",
+    )?;
     parameters_table(&fits).stage_both(
         &mut outputs,
         run.out,

@@ -7,6 +7,7 @@ mod demo;
 mod density;
 mod export;
 mod fit;
+mod input;
 mod models;
 mod simulate;
 
@@ -82,6 +83,12 @@ pub enum Command {
         /// Column names of your file, as canonical=yours pairs: subject=participant,rt=RT.
         #[arg(long, default_value = "")]
         columns: String,
+        /// Choice codes and missing-value tokens of your file.
+        #[command(flatten)]
+        reading: input::ReadingArgs,
+        /// The data screen before fitting: fast floor and trimming of response times.
+        #[command(flatten)]
+        screen: input::ScreenArgs,
         /// Also fit empirical-Bayes group priors (EM with the Laplace approximation, Huys et
         /// al. 2011): a Gaussian on each free parameter's unconstrained scale, shrunken
         /// per-subject estimates and the integrated BIC. Writes eb_parameters.csv,
@@ -269,6 +276,9 @@ pub enum Command {
         /// Whether an existing result may be replaced.
         #[command(flatten)]
         replace: ReplaceArg,
+        /// Choice codes and missing-value tokens of the design file.
+        #[command(flatten)]
+        reading: input::ReadingArgs,
     },
     /// List the built-in models (or describe one, by name or file) with their components,
     /// equations and parameters.
@@ -317,6 +327,9 @@ pub struct FittedRun {
     /// Column names of your file, as canonical=yours pairs: subject=participant,rt=RT.
     #[arg(long, default_value = "")]
     pub columns: String,
+    /// Choice codes and missing-value tokens of your file.
+    #[command(flatten)]
+    pub reading: input::ReadingArgs,
     /// Per-subject or empirical-Bayes estimates.
     #[command(flatten)]
     pub estimates: EstimatesArg,
@@ -335,7 +348,8 @@ impl FittedRun {
     pub fn load(&self) -> Result<FittedInputs, Box<dyn std::error::Error>> {
         let columns =
             crate::data::ColumnMap::parse(&self.columns).map_err(|e| format!("--columns: {e}"))?;
-        let table = crate::data::read_trials(&self.data, &columns)?;
+        let columns = self.reading.apply(columns)?;
+        let table = input::read_table(&self.data, &columns)?;
         let model = crate::model::load_model(self.model.trim())?;
         if !crate::exports::check_recorded_model(&self.fits, &model)? {
             eprintln!(
@@ -397,7 +411,12 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             out,
             threads,
             replace,
-        } => demo::run(&out, threads, replace.replace, &command_line),
+        } => demo::run(
+            &out,
+            input::check_threads(threads)?,
+            replace.replace,
+            &command_line,
+        ),
         Command::Fit {
             data,
             model,
@@ -414,23 +433,32 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             ibic_samples,
             full_covariance,
             replace,
+            reading,
+            screen,
         } => {
-            let columns = fit::column_map(&columns, by.as_deref())?;
+            let columns = reading.apply(fit::column_map(&columns, by.as_deref())?)?;
+            let starts = input::check_at_least("--starts", starts, 1, "start per subject")?;
+            let threads = input::check_threads(threads)?;
+            let em_iterations =
+                input::check_at_least("--em-iterations", em_iterations, 1, "EM iteration")?;
+            let ibic_samples = input::check_at_least(
+                "--ibic-samples",
+                ibic_samples,
+                2,
+                "draws per subject (a Monte Carlo error needs two)",
+            )?;
+            let screen = screen.settings()?;
             if !(em_tolerance.is_finite() && em_tolerance > 0.0) {
                 return Err(format!("--em-tolerance {em_tolerance}: expected a number > 0").into());
             }
-            if let Some(d) = deadline
-                && !(d.is_finite() && d > 0.0)
-            {
-                return Err(format!("--deadline {d}: expected a number of seconds > 0").into());
-            }
+            let deadline = input::check_deadline(deadline)?;
             let run = fit::FitRun {
                 data: &data,
                 models: &model,
                 out: &out,
                 replace: replace.replace,
                 options: crate::fit::FitOptions {
-                    starts: starts.max(1),
+                    starts,
                     seed,
                     deadline,
                     ..crate::fit::FitOptions::default()
@@ -441,13 +469,14 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                     per_group: by.is_some(),
                     em: crate::fit::EmOptions {
                         tolerance: em_tolerance,
-                        max_iterations: em_iterations.max(1),
-                        ibic_samples: ibic_samples.max(2),
+                        max_iterations: em_iterations,
+                        ibic_samples,
                         seed,
                         full_covariance,
                     },
                     models: Vec::new(),
                 }),
+                screen,
             };
             let fitted = fit::run(run, &command_line)?;
             fit::print_summary(&fitted);
@@ -525,15 +554,21 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             seed,
             deadline,
             replace,
-        } => simulate::run(
-            &model,
-            &params,
-            &design,
-            &out,
-            seed,
-            deadline,
-            replace.replace,
-        ),
+            reading,
+        } => {
+            let columns = reading.apply(crate::data::ColumnMap::default())?;
+            let deadline = input::check_deadline(deadline)?;
+            simulate::run(
+                &model,
+                &params,
+                &design,
+                &out,
+                seed,
+                deadline,
+                &columns,
+                replace.replace,
+            )
+        }
         Command::Models { name } => models::run(name.as_deref()),
         Command::Density {
             input,

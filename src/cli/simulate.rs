@@ -1,6 +1,6 @@
 //! `valuedrift simulate`: synthetic trials from a model, parameters and a design.
 
-use crate::data::{ColumnMap, TrialTable, read_trials};
+use crate::data::{ColumnMap, TrialTable};
 use crate::files::{InputError, write_atomically};
 use crate::model::{Model, load_model};
 use crate::results::trials_table;
@@ -145,6 +145,7 @@ impl OutputFormat {
 }
 
 /// The command: simulates and writes `out` (an existing file only with `replace`).
+#[allow(clippy::too_many_arguments)]
 pub fn run(
     model: &str,
     params: &Path,
@@ -152,12 +153,13 @@ pub fn run(
     out: &Path,
     seed: u64,
     deadline: Option<f64>,
+    columns: &ColumnMap,
     replace: bool,
 ) -> Result<(), Box<dyn std::error::Error>> {
     let format = OutputFormat::of(out)?;
     let model = load_model(model)?;
     let parameters = read_parameters(params, &model)?;
-    let design_table = read_trials(design, &ColumnMap::default())?;
+    let design_table = super::input::read_table(design, columns)?;
     let settings = SimulationSettings {
         deadline,
         ..SimulationSettings::default()

@@ -1,26 +1,40 @@
 //! Trial data: one row per trial, read from CSV, TSV or Parquet and checked row by row.
 //!
-//! The table is sorted by subject, then trial. Columns (names can be remapped with
-//! [`ColumnMap`] without editing the file):
+//! Rows are ordered by subject, then run, then trial: all rows of a subject together, within a
+//! subject all rows of a run together, trial numbers increasing within a run (they may start
+//! again in each run). Columns (names can be remapped with [`ColumnMap`] without editing the
+//! file):
 //!
 //! | column | type | required | meaning |
 //! |---|---|---|---|
 //! | `subject` | text | yes | participant label (de-identified) |
 //! | `group` | text | no | cohort or condition label |
-//! | `run` | text | no | scanner run or block label |
-//! | `trial` | integer | yes | trial number, increasing within subject |
+//! | `run` | text | no | scanner run or block label; each run's rows together |
+//! | `trial` | integer | yes | trial number, increasing within subject and run |
 //! | `option_a`, `option_b` | text | no | identity of the option offered on each side, whose value is learned; default: fixed identities `a` and `b` |
 //! | `effort_a`, `effort_b` | number ≥ 0 | yes | effort demanded by each option |
 //! | `reward_a`, `reward_b` | number | no | offered magnitudes, for tasks where value is shown |
-//! | `choice` | `a`, `b` or empty | yes | the option chosen; empty for no response |
+//! | `choice` | `a`, `b` or empty | yes | the option chosen; empty for no response; other codes (1/2, accept/reject…) through [`ColumnMap::with_choice_codes`] |
 //! | `rt` | seconds > 0 or empty | yes | response time; empty for no response |
-//! | `outcome` | number or empty | no | what the chosen option delivered; empty when no feedback |
+//! | `outcome` | number or empty | no | what the chosen option delivered; empty when no feedback; on a trial without response it is accepted with a note and nothing is learned from it |
 //! | `onset`, `outcome_onset` | seconds ≥ 0 | no | from run start, for imaging exports |
 //! | `outcome_if_a`, `outcome_if_b` | number | no | what each option would deliver (designs for simulation) |
+//!
+//! An empty cell is a missing value; other tokens (NA, NaN, N/A, ., …) are read as missing
+//! through [`ColumnMap::with_missing`]. Before a fit, [`screen`] summarises each subject's data
+//! and [`trim_response_times`] can set aside response times outside given limits: a trimmed
+//! trial keeps its choice and outcome (the participant saw it, so values are still learned) and
+//! only its time is dropped.
 
 mod read;
+mod screen;
 
-pub use read::{ColumnMap, read_trials};
+pub use read::{ColumnMap, ReadNotes, read_trials, read_trials_noted};
+pub use screen::{
+    DEFAULT_FAST_FLOOR, MILLISECOND_MEDIAN, ModelNeeds, ScreenError, ScreenSettings, SubjectScreen,
+    TRIALS_PER_PARAMETER, TrimCounts, screen, screen_table, share_slower_than, trim_response_times,
+    unmet_needs,
+};
 
 /// The option chosen on a trial. Choosing `a` is the upper bound of the diffusion.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]
@@ -63,7 +77,8 @@ pub struct Trial {
     pub reward_b: Option<f64>,
     /// The choice, or `None` for no response.
     pub choice: Option<Choice>,
-    /// Response time in seconds (`Some` exactly when `choice` is).
+    /// Response time in seconds: `None` without a response; also `None` with a choice when the
+    /// time was trimmed ([`trim_response_times`]), so that the choice counts without its time.
     pub rt: Option<f64>,
     /// Outcome delivered by the chosen option, or `None` without feedback.
     pub outcome: Option<f64>,

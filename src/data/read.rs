@@ -7,7 +7,7 @@
 //! numbers or text; problems in them are reported by 1-based data row.
 
 use std::borrow::Cow;
-use std::collections::HashMap;
+use std::collections::{HashMap, HashSet};
 use std::io::Cursor;
 use std::path::Path;
 use std::str::FromStr;
@@ -48,21 +48,29 @@ const PAIRS: [(&str, &str); 3] = [
     ("outcome_if_a", "outcome_if_b"),
 ];
 
-/// Maps canonical column names to the names used in a file.
+/// How a file's columns and codes map to ours: column names, and optionally the file's choice
+/// codes and missing-value tokens.
 ///
-/// The default maps every canonical name to itself. [`ColumnMap::parse`] reads a comma-separated
-/// list of `canonical=file` pairs, such as `subject=participant,rt=RT_sec`; names not listed keep
-/// their canonical name.
+/// The default maps every canonical name to itself, reads choices as `a`/`b` and only empty cells
+/// as missing. [`ColumnMap::parse`] reads a comma-separated list of `canonical=file` pairs, such
+/// as `subject=participant,rt=RT_sec`; names not listed keep their canonical name.
+/// [`ColumnMap::with_choice_codes`] and [`ColumnMap::with_missing`] add the codes.
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub struct ColumnMap {
     /// File column name for each entry of [`CANONICAL`], in the same order.
     file: Vec<String>,
+    /// The file's choice codes and the option each stands for (empty: `a` and `b`).
+    choice_codes: Vec<(String, Choice)>,
+    /// Cell texts read as missing besides the empty cell.
+    missing: Vec<String>,
 }
 
 impl Default for ColumnMap {
     fn default() -> Self {
         ColumnMap {
             file: CANONICAL.iter().map(|c| c.to_string()).collect(),
+            choice_codes: Vec::new(),
+            missing: Vec::new(),
         }
     }
 }
@@ -120,6 +128,124 @@ impl ColumnMap {
         Ok(map)
     }
 
+    /// The same mapping reading the choice column through `spec`, comma-separated `code=option`
+    /// pairs with option `a` or `b`, such as `1=a,2=b` or `accept=a,reject=b` (codes compared
+    /// without regard to ASCII case, after trimming). An empty `spec` keeps `a`/`b`. Each code
+    /// once; both options must have a code; a code may not also be a missing-value token.
+    pub fn with_choice_codes(mut self, spec: &str) -> Result<ColumnMap, String> {
+        let mut codes: Vec<(String, Choice)> = Vec::new();
+        for item in spec.split(',').map(str::trim).filter(|i| !i.is_empty()) {
+            let Some((code, option)) = item.split_once('=') else {
+                return Err(format!(
+                    "choice code `{item}` has no `=`: expected code=a or code=b, e.g. 1=a,2=b"
+                ));
+            };
+            let (code, option) = (code.trim(), option.trim());
+            let choice = match option.to_ascii_lowercase().as_str() {
+                "a" => Choice::A,
+                "b" => Choice::B,
+                _ => {
+                    return Err(format!(
+                        "choice code `{item}` maps to `{option}`; expected a or b, e.g. 1=a,2=b"
+                    ));
+                }
+            };
+            if code.is_empty() {
+                return Err(format!(
+                    "choice code `{item}` has no code before `=`; expected code=a or code=b \
+                     (an empty cell is always no response)"
+                ));
+            }
+            if codes.iter().any(|(c, _)| c.eq_ignore_ascii_case(code)) {
+                return Err(format!("choice code `{code}` is given more than once"));
+            }
+            if self.is_missing_token(code) {
+                return Err(format!(
+                    "choice code `{code}` is also a missing-value token (--missing); expected \
+                     it in only one of them"
+                ));
+            }
+            codes.push((code.to_string(), choice));
+        }
+        if !codes.is_empty() {
+            for (choice, name) in [(Choice::A, "a"), (Choice::B, "b")] {
+                if !codes.iter().any(|(_, c)| *c == choice) {
+                    return Err(format!(
+                        "choice codes `{spec}` give no code for option {name}; expected at least \
+                         one code for each of a and b, e.g. 1=a,2=b"
+                    ));
+                }
+            }
+        }
+        self.choice_codes = codes;
+        Ok(self)
+    }
+
+    /// The same mapping reading every cell equal to one of the comma-separated tokens of `spec`
+    /// (such as `NA,NaN,N/A,.`; compared without regard to ASCII case, after trimming) as missing,
+    /// like an empty cell, in every column. In Parquet files a token `NaN` also matches
+    /// floating-point NaN, and a numeric token (such as `-99`) matches that number.
+    pub fn with_missing(mut self, spec: &str) -> Result<ColumnMap, String> {
+        let mut tokens: Vec<String> = Vec::new();
+        for token in spec.split(',').map(str::trim) {
+            if token.is_empty() {
+                if spec.trim().is_empty() {
+                    continue;
+                }
+                return Err(format!(
+                    "missing-value tokens `{spec}` include an empty token; expected tokens such \
+                     as NA,NaN separated by single commas (empty cells are always missing)"
+                ));
+            }
+            if let Some((code, _)) = self
+                .choice_codes
+                .iter()
+                .find(|(c, _)| c.eq_ignore_ascii_case(token))
+            {
+                return Err(format!(
+                    "missing-value token `{token}` is also the choice code `{code}`; expected it \
+                     in only one of them"
+                ));
+            }
+            if !tokens.iter().any(|t| t.eq_ignore_ascii_case(token)) {
+                tokens.push(token.to_string());
+            }
+        }
+        self.missing = tokens;
+        Ok(self)
+    }
+
+    /// The choice codes given with [`ColumnMap::with_choice_codes`] (empty: `a` and `b`).
+    pub fn choice_codes(&self) -> &[(String, Choice)] {
+        &self.choice_codes
+    }
+
+    /// The missing-value tokens given with [`ColumnMap::with_missing`].
+    pub fn missing_tokens(&self) -> &[String] {
+        &self.missing
+    }
+
+    fn is_missing_token(&self, text: &str) -> bool {
+        self.missing.iter().any(|t| t.eq_ignore_ascii_case(text))
+    }
+
+    /// True when a cell of the file stands for a missing value.
+    fn reads_as_missing(&self, cell: Cell<'_>) -> bool {
+        match cell {
+            Cell::Missing => true,
+            Cell::Text(s) => self.is_missing_token(s),
+            Cell::Int(i) => self
+                .missing
+                .iter()
+                .any(|t| t.parse::<f64>().is_ok_and(|x| x == i as f64)),
+            Cell::Float(x) if x.is_nan() => self.is_missing_token("NaN"),
+            Cell::Float(x) => self
+                .missing
+                .iter()
+                .any(|t| t.parse::<f64>().is_ok_and(|y| y == x)),
+        }
+    }
+
     /// The file's name for canonical column `canonical` (unknown names are returned unchanged).
     pub fn file_name<'a>(&'a self, canonical: &'a str) -> &'a str {
         match CANONICAL.iter().position(|c| *c == canonical) {
@@ -137,9 +263,45 @@ impl FromStr for ColumnMap {
     }
 }
 
+/// What the reader accepted but a user should hear about, counted over the whole file.
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct ReadNotes {
+    /// Trials without a response that record an outcome (task logs often write 0 or a penalty
+    /// there): accepted, and no learning follows them (nothing was chosen).
+    pub outcomes_without_response: usize,
+    /// Line (or Parquet row) of the first such trial.
+    pub first_outcome_without_response: Option<u64>,
+}
+
+impl ReadNotes {
+    /// One line per note, naming the file, for the console; empty when there is nothing to say.
+    pub fn lines(&self, path: &Path) -> Vec<String> {
+        let mut lines = Vec::new();
+        if self.outcomes_without_response > 0 {
+            lines.push(format!(
+                "note: {}: {} trial(s) without a response record an outcome (first at line/row \
+                 {}); accepted, and no learning follows them since nothing was chosen",
+                path.display(),
+                self.outcomes_without_response,
+                self.first_outcome_without_response.unwrap_or(0)
+            ));
+        }
+        lines
+    }
+}
+
 /// Reads and checks a trial table. The format follows the extension: `.csv` (comma-separated),
-/// `.tsv` or `.txt` (tab-separated) or `.parquet`. Column names are looked up through `columns`.
+/// `.tsv` or `.txt` (tab-separated) or `.parquet`. Column names, choice codes and missing-value
+/// tokens are looked up through `columns`.
 pub fn read_trials(path: &Path, columns: &ColumnMap) -> Result<TrialTable, InputError> {
+    read_trials_noted(path, columns).map(|(table, _)| table)
+}
+
+/// [`read_trials`], also returning what the reader accepted with a note.
+pub fn read_trials_noted(
+    path: &Path,
+    columns: &ColumnMap,
+) -> Result<(TrialTable, ReadNotes), InputError> {
     let extension = path
         .extension()
         .and_then(|e| e.to_str())
@@ -296,7 +458,11 @@ struct Scan {
     rows: Vec<u64>,
 }
 
-fn read_delimited(path: &Path, columns: &ColumnMap, sep: u8) -> Result<TrialTable, InputError> {
+fn read_delimited(
+    path: &Path,
+    columns: &ColumnMap,
+    sep: u8,
+) -> Result<(TrialTable, ReadNotes), InputError> {
     let bytes =
         std::fs::read(path).map_err(|e| InputError::file(path, format!("cannot be read: {e}")))?;
     if let Err(e) = std::str::from_utf8(&bytes) {
@@ -514,7 +680,7 @@ fn scan_delimited(path: &Path, bytes: &[u8], sep: u8) -> Result<Scan, InputError
 // ---------------------------------------------------------------------------------------------
 // Parquet
 
-fn read_parquet(path: &Path, columns: &ColumnMap) -> Result<TrialTable, InputError> {
+fn read_parquet(path: &Path, columns: &ColumnMap) -> Result<(TrialTable, ReadNotes), InputError> {
     let file = std::fs::File::open(path)
         .map_err(|e| InputError::file(path, format!("cannot be read: {e}")))?;
     let frame = ParquetReader::new(file)
@@ -596,7 +762,7 @@ fn build(
     series: &[Series],
     height: usize,
     positions: &Positions,
-) -> Result<TrialTable, InputError> {
+) -> Result<(TrialTable, ReadNotes), InputError> {
     let header_error = |column: &str, message: String| InputError {
         line: positions.header(),
         column: Some(column.to_string()),
@@ -679,12 +845,14 @@ fn build(
     let mut started: HashMap<String, u64> = HashMap::new();
     let mut option_index: HashMap<String, usize> = HashMap::new();
     let mut group_line: u64 = 0;
+    // Runs of the current subject seen so far (each run's rows must be together).
+    let mut runs_seen: HashSet<String> = HashSet::new();
+    let mut notes = ReadNotes::default();
 
     for row in 0..height {
-        if views
+        if CANONICAL
             .iter()
-            .flatten()
-            .all(|v| matches!(v.cell(row), Cell::Missing))
+            .all(|c| columns.reads_as_missing(reader.cell(row, c)))
         {
             continue; // an empty line or row carries no trial
         }
@@ -711,6 +879,8 @@ fn build(
             }
             started.insert(id.to_string(), at);
             option_index.clear();
+            runs_seen.clear();
+            runs_seen.insert(run.to_string());
             subjects.push(Subject {
                 id: id.to_string(),
                 group: String::new(),
@@ -746,23 +916,41 @@ fn build(
             }
         }
 
-        if let Some(last) = subject.trials.last()
-            && trial <= last.trial
-        {
-            let what = if trial == last.trial {
-                format!("trial {trial} is repeated")
-            } else {
-                format!("trial {trial} comes after trial {}", last.trial)
-            };
-            return Err(reader.error(
-                row,
-                "trial",
-                format!(
-                    "{what} within subject {:?}; expected trial numbers that increase within \
-                     each subject (sort by subject, then trial)",
-                    subject.id
-                ),
-            ));
+        if let Some(last) = subject.trials.last() {
+            if last.run != run.as_ref() {
+                // A new run: its trial numbers may start again.
+                if !runs_seen.insert(run.to_string()) {
+                    return Err(reader.error(
+                        row,
+                        "run",
+                        format!(
+                            "run {run:?} of subject {:?} appears again after run {:?}; expected \
+                             the rows of each run together (sorted by subject, run, trial)",
+                            subject.id, last.run
+                        ),
+                    ));
+                }
+            } else if trial <= last.trial {
+                let what = if trial == last.trial {
+                    format!("trial {trial} is repeated")
+                } else {
+                    format!("trial {trial} comes after trial {}", last.trial)
+                };
+                let (within, order) = if run.is_empty() {
+                    (String::new(), "subject, then trial")
+                } else {
+                    (format!("run {run:?} of "), "subject, run, trial")
+                };
+                return Err(reader.error(
+                    row,
+                    "trial",
+                    format!(
+                        "{what} within {within}subject {:?}; expected trial numbers that \
+                         increase within each subject and run (sort by {order})",
+                        subject.id
+                    ),
+                ));
+            }
         }
 
         let (option_a, option_b) = if has_options {
@@ -821,12 +1009,8 @@ fn build(
         }
         let outcome = reader.number(row, "outcome")?;
         if outcome.is_some() && choice.is_none() {
-            return Err(reader.error(
-                row,
-                "outcome",
-                "has an outcome on a trial without a response; expected it empty when nothing \
-                 was chosen",
-            ));
+            notes.outcomes_without_response += 1;
+            notes.first_outcome_without_response.get_or_insert(at);
         }
         let onset = reader.time(row, "onset")?;
         let outcome_onset = reader.time(row, "outcome_onset")?;
@@ -858,7 +1042,7 @@ fn build(
             "has no trials (every row is empty); expected one row per trial",
         ));
     }
-    Ok(TrialTable { subjects, present })
+    Ok((TrialTable { subjects, present }, notes))
 }
 
 /// Reads typed values from one row, turning problems into positioned errors.
@@ -870,12 +1054,18 @@ struct RowReader<'r, 'v> {
 }
 
 impl RowReader<'_, '_> {
+    /// The cell, with the user's missing-value tokens read as missing.
     fn cell(&self, row: usize, canonical: &str) -> Cell<'_> {
-        CANONICAL
+        let cell = CANONICAL
             .iter()
             .position(|c| *c == canonical)
             .and_then(|k| self.views[k].as_ref())
-            .map_or(Cell::Missing, |v| v.cell(row))
+            .map_or(Cell::Missing, |v| v.cell(row));
+        if self.columns.reads_as_missing(cell) {
+            Cell::Missing
+        } else {
+            cell
+        }
     }
 
     fn error(&self, row: usize, canonical: &str, message: impl Into<String>) -> InputError {
@@ -902,9 +1092,11 @@ impl RowReader<'_, '_> {
     }
 
     fn number(&self, row: usize, canonical: &str) -> Result<Option<f64>, InputError> {
-        self.cell(row, canonical)
-            .number()
-            .map_err(|m| self.error(row, canonical, m))
+        let cell = self.cell(row, canonical);
+        cell.number().map_err(|m| {
+            let hint = cell.text().map_or(String::new(), |t| missing_hint(&t));
+            self.error(row, canonical, format!("{m}{hint}"))
+        })
     }
 
     fn integer(&self, row: usize, canonical: &str) -> Result<i64, InputError> {
@@ -940,19 +1132,46 @@ impl RowReader<'_, '_> {
 
     fn choice(&self, row: usize) -> Result<Option<Choice>, InputError> {
         let cell = self.cell(row, "choice");
-        match cell.text().as_deref() {
-            None => Ok(None),
-            Some(s) if s.eq_ignore_ascii_case("a") => Ok(Some(Choice::A)),
-            Some(s) if s.eq_ignore_ascii_case("b") => Ok(Some(Choice::B)),
-            Some(_) => Err(self.error(
+        let Some(text) = cell.text() else {
+            return Ok(None);
+        };
+        let codes = self.columns.choice_codes();
+        if codes.is_empty() {
+            if text.eq_ignore_ascii_case("a") {
+                return Ok(Some(Choice::A));
+            }
+            if text.eq_ignore_ascii_case("b") {
+                return Ok(Some(Choice::B));
+            }
+            return Err(self.error(
                 row,
                 "choice",
                 format!(
-                    "is {}; expected a, b, or empty for no response",
-                    cell.shown()
+                    "is {}; expected a, b, or empty for no response (other codes such as 1/2 \
+                     are mapped with --choice-codes 1=a,2=b){}",
+                    cell.shown(),
+                    missing_hint(&text)
                 ),
-            )),
+            ));
         }
+        if let Some((_, choice)) = codes.iter().find(|(c, _)| c.eq_ignore_ascii_case(&text)) {
+            return Ok(Some(*choice));
+        }
+        let listed: Vec<String> = codes
+            .iter()
+            .map(|(c, o)| format!("{c} ({})", o.as_str()))
+            .collect();
+        Err(self.error(
+            row,
+            "choice",
+            format!(
+                "is {}; expected one of the choice codes {} (from --choice-codes), or empty for \
+                 no response{}",
+                cell.shown(),
+                listed.join(", "),
+                missing_hint(&text)
+            ),
+        ))
     }
 
     fn rt(&self, row: usize) -> Result<Option<f64>, InputError> {
@@ -962,8 +1181,9 @@ impl RowReader<'_, '_> {
                 row,
                 "rt",
                 format!(
-                    "is {}; expected a response time in seconds > 0, or empty for no response",
-                    cell.shown()
+                    "is {}; expected a response time in seconds > 0, or empty for no response{}",
+                    cell.shown(),
+                    cell.text().map_or(String::new(), |t| missing_hint(&t))
                 ),
             )
         })?;
@@ -977,5 +1197,24 @@ impl RowReader<'_, '_> {
             )),
             other => Ok(other),
         }
+    }
+}
+
+/// Texts that task software commonly writes for a missing value (common practice).
+const COMMON_MISSING: [&str; 8] = ["NA", "N/A", "NaN", ".", "null", "None", "missing", "-"];
+
+/// A hint to map `text` with `--missing` when it looks like a missing-value token.
+fn missing_hint(text: &str) -> String {
+    if COMMON_MISSING
+        .iter()
+        .any(|m| m.eq_ignore_ascii_case(text.trim()))
+    {
+        format!(
+            "; if {:?} marks a missing value, pass --missing {}",
+            text.trim(),
+            text.trim()
+        )
+    } else {
+        String::new()
     }
 }

@@ -46,8 +46,8 @@ mod series;
 
 pub use density::{DensityGradient, GradientUnavailable, ln_density, ln_density_with_gradient};
 pub use distribution::{
-    bound_probability, cdf, ln_bound_probability, ln_cdf, ln_prob_no_response, ln_survival,
-    ln_survival_with_gradient, survival,
+    bound_probability, cdf, ln_bound_probability, ln_bound_probability_with_gradient, ln_cdf,
+    ln_prob_no_response, ln_survival, ln_survival_with_gradient, survival,
 };
 pub use moments::{mean_decision_time, mean_decision_time_given, mean_response_time};
 pub use normal::ln_normal_cdf;

@@ -1,6 +1,7 @@
 //! The per-subject likelihood: the learning recursion run over a subject's trials, each trial's
 //! choice (and response time) scored by the model's choice stage, with the exact gradient with
-//! respect to the unconstrained free parameters.
+//! respect to the unconstrained free parameters. A response whose time was trimmed still counts
+//! by its choice alone (and its outcome still updates the values).
 //!
 //! Per trial, with values before the trial's outcome (see [`SubjectLikelihood::trace`]):
 //! SV_i = cost(Q(option_i), effort_i), signal = drift(SV_a − SV_b) (or SV_a − SV_b for stages
@@ -94,11 +95,13 @@ impl<'a> SubjectLikelihood<'a> {
             return Err(mismatch("no trial with a response".into()));
         }
         let rts: Vec<f64> = subject.response_times().collect();
-        if model.uses_response_times() && rts.len() < subject.n_responses() {
+        // A response without a time (trimmed) is scored by its choice alone; the time range
+        // (ndt's bound, the lapse density) comes from the responses that keep their time.
+        if model.uses_response_times() && rts.is_empty() {
             return Err(mismatch(format!(
-                "model {} uses response times, but {} responses have none",
+                "model {} uses response times, but none of the {} responses has one",
                 model.name,
-                subject.n_responses() - rts.len()
+                subject.n_responses()
             )));
         }
         if !model.learns()

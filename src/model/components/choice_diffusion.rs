@@ -1,15 +1,16 @@
 //! Diffusion choice stage: choices and response times jointly through the Wiener first-passage
 //! density (Ratcliff 1978; Navarro & Fuss 2009), choosing `a` at the upper bound. Optional
 //! across-trial drift variability and a lapse mixture in which, with probability `lapse`, a
-//! response is a guess (either option, time uniform over the subject's observed range).
+//! response is a guess (either option, time uniform over the subject's observed range). A
+//! choice whose time is not used (trimmed) scores the absorption probability of its bound alone.
 
 use super::{
     ChoiceStage, Entry, Observation, Options, PreparedChoice, Slots, SubjectContext, only_options,
 };
 use crate::data::Choice;
 use crate::first_passage::{
-    Bound, DiffusionParams, ln_density_with_gradient, ln_survival_with_gradient,
-    mean_decision_time, sample,
+    Bound, DiffusionParams, ln_bound_probability_with_gradient, ln_density_with_gradient,
+    ln_survival_with_gradient, mean_decision_time, sample,
 };
 use crate::model::dual::{D, chain};
 use num_dual::DualNum;
@@ -144,7 +145,22 @@ impl PreparedChoice for Prepared<'_> {
                     None => total,
                 })
             }
-            (Some(_), None) => None,
+            (Some(choice), None) => {
+                // A choice without a usable time (trimmed): ln P(bound), the absorption
+                // probability (Feller 1968); with lapses (1 − lapse)·P + lapse·½.
+                let bound = match choice {
+                    Choice::A => Bound::Upper,
+                    Choice::B => Bound::Lower,
+                };
+                let (ln_p, g) = ln_bound_probability_with_gradient(bound, &params).ok()?;
+                let ln_p = self.chained(ln_p, g, &signal);
+                Some(match self.lapse {
+                    Some((ln_keep, _)) => {
+                        ln_add_exp(ln_keep + ln_p, self.p[self.stage.lapse].ln() + 0.5f64.ln())
+                    }
+                    None => ln_p,
+                })
+            }
         }
     }
 

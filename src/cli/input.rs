@@ -1,0 +1,436 @@
+//! What the user gives, checked before any work: how a trial table is read (choice codes,
+//! missing-value tokens), numeric options that would otherwise be accepted as nonsense, and the
+//! data screen before fitting (summary, trimming, models a subject's data cannot support).
+
+use crate::data::{
+    ColumnMap, DEFAULT_FAST_FLOOR, ModelNeeds, ScreenSettings, SubjectScreen, TRIALS_PER_PARAMETER,
+    TrialTable, read_trials_noted, screen_table, share_slower_than, unmet_needs,
+};
+use crate::fit::{FitOptions, Skipped, SubjectFit, fit_table};
+use crate::likelihood::DataMismatch;
+use crate::model::Model;
+use crate::results::{Column, Table};
+use std::path::Path;
+
+/// Options of every command that reads a trial table: the file's choice codes and its
+/// missing-value tokens.
+#[derive(Clone, Debug, Default, clap::Args)]
+pub struct ReadingArgs {
+    /// Choice codes of your file, as code=a / code=b pairs, e.g. 1=a,2=b or accept=a,reject=b
+    /// (default: the file writes a and b).
+    #[arg(long, default_value = "")]
+    pub choice_codes: String,
+    /// Cell texts that mean "missing" in your file besides an empty cell, comma-separated,
+    /// e.g. NA,NaN,N/A,.
+    #[arg(long, default_value = "")]
+    pub missing: String,
+}
+
+impl ReadingArgs {
+    /// `columns` with the choice codes and missing-value tokens added.
+    pub fn apply(&self, columns: ColumnMap) -> Result<ColumnMap, String> {
+        columns
+            .with_missing(&self.missing)
+            .map_err(|e| format!("--missing: {e}"))?
+            .with_choice_codes(&self.choice_codes)
+            .map_err(|e| format!("--choice-codes: {e}"))
+    }
+}
+
+/// Reads a trial table and prints the reader's notes (once per file) to standard error.
+pub fn read_table(
+    path: &Path,
+    columns: &ColumnMap,
+) -> Result<TrialTable, crate::files::InputError> {
+    let (table, notes) = read_trials_noted(path, columns)?;
+    for line in notes.lines(path) {
+        eprintln!("{line}");
+    }
+    Ok(table)
+}
+
+/// Options of the data screen (`fit`).
+#[derive(Clone, Debug, clap::Args)]
+pub struct ScreenArgs {
+    /// Responses faster than this many seconds are counted as very fast in the data screen
+    /// (default 0.2 s, common practice).
+    #[arg(long, default_value_t = DEFAULT_FAST_FLOOR)]
+    pub fast_floor: f64,
+    /// Set aside response times below this many seconds: the choice still counts (scored
+    /// without its time) and its outcome is still learned from.
+    #[arg(long)]
+    pub trim_below: Option<f64>,
+    /// Set aside response times above this many seconds (as --trim-below).
+    #[arg(long)]
+    pub trim_above: Option<f64>,
+    /// A model is fitted to a subject only with at least this many responses per free
+    /// parameter (default 10, the rule of about ten observations per estimated parameter).
+    #[arg(long, default_value_t = TRIALS_PER_PARAMETER)]
+    pub responses_per_parameter: usize,
+}
+
+impl ScreenArgs {
+    /// The checked settings.
+    pub fn settings(&self) -> Result<ScreenSettings, String> {
+        let settings = ScreenSettings {
+            fast_floor: self.fast_floor,
+            trim_below: self.trim_below,
+            trim_above: self.trim_above,
+            responses_per_parameter: self.responses_per_parameter,
+        };
+        settings.validate()?;
+        Ok(settings)
+    }
+}
+
+/// Most threads accepted, as a multiple of the machine's cores: more only add switching.
+const THREADS_PER_CORE: usize = 4;
+
+/// Refuses a thread count far above the machine's cores (0, all cores, is always accepted).
+pub fn check_threads(threads: usize) -> Result<usize, String> {
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    if threads > THREADS_PER_CORE * cores {
+        return Err(format!(
+            "--threads {threads}: this machine has {cores} cores; expected at most {} threads \
+             ({THREADS_PER_CORE} per core), or 0 for all cores",
+            THREADS_PER_CORE * cores
+        ));
+    }
+    Ok(threads)
+}
+
+/// Refuses a count below `least` for the option `name`, saying what it counts.
+pub fn check_at_least(name: &str, value: usize, least: usize, what: &str) -> Result<usize, String> {
+    if value < least {
+        return Err(format!("{name} {value}: expected at least {least} {what}"));
+    }
+    Ok(value)
+}
+
+/// Refuses a deadline that is not a finite number of seconds > 0.
+pub fn check_deadline(deadline: Option<f64>) -> Result<Option<f64>, String> {
+    match deadline {
+        Some(d) if !(d.is_finite() && d > 0.0) => Err(format!(
+            "--deadline {d}: expected a number of seconds > 0 (the time at which a trial ends \
+             without a response)"
+        )),
+        other => Ok(other),
+    }
+}
+
+/// What a model needs of the data, from the model.
+pub fn model_needs(model: &Model) -> ModelNeeds {
+    ModelNeeds {
+        name: model.name.clone(),
+        weights_effort: model.component_names[1] != "none",
+        uses_offered_values: !model.learns(),
+        uses_response_times: model.uses_response_times(),
+        free_parameters: model.free_slots().len(),
+    }
+}
+
+/// The data screen of a fit: per-subject summaries and, per model, the subjects it is not fitted
+/// to with the reasons.
+pub struct Screened {
+    /// Settings used.
+    pub settings: ScreenSettings,
+    /// One per subject, in table order.
+    pub subjects: Vec<SubjectScreen>,
+    /// Per model (in the order given), per subject: the unmet needs (empty: fitted).
+    pub unmet: Vec<(String, Vec<Vec<String>>)>,
+}
+
+/// Share of a deadline's responses that may be slower than it before the deadline is refused.
+const DEADLINE_SLOWER_LIMIT: f64 = 0.5;
+
+/// Screens `table` (trimming it with the settings) for `models`: refuses response times that
+/// look like milliseconds, a deadline below most response times and subjects with fewer
+/// responses than a model's free parameters, naming the file; prints the summary.
+pub fn screen_before_fit(
+    path: &Path,
+    table: &mut TrialTable,
+    settings: &ScreenSettings,
+    models: &[Model],
+    deadline: Option<f64>,
+) -> Result<Screened, String> {
+    let file = path.display();
+    if let Some(d) = deadline
+        && let Some(share) = share_slower_than(table, d)
+    {
+        if share > DEADLINE_SLOWER_LIMIT {
+            return Err(format!(
+                "--deadline {d}: {:.1} % of the response times in {file} are slower than it; \
+                 expected a deadline after most responses (the time at which a trial ended \
+                 without a response). Are the times in seconds?",
+                100.0 * share
+            ));
+        }
+        if share > 0.0 {
+            eprintln!(
+                "warning: {:.1} % of the response times in {file} are slower than --deadline {d}",
+                100.0 * share
+            );
+        }
+    }
+    let needs: Vec<ModelNeeds> = models.iter().map(model_needs).collect();
+    let subjects = screen_table(table, settings, &needs)
+        .map_err(|e| format!("{file}: column {}: {e}", screen_column(&e)))?;
+    let unmet = needs
+        .iter()
+        .map(|n| {
+            let per_subject = subjects
+                .iter()
+                .map(|s| unmet_needs(s, n, settings.responses_per_parameter))
+                .collect();
+            (n.name.clone(), per_subject)
+        })
+        .collect();
+    let screened = Screened {
+        settings: *settings,
+        subjects,
+        unmet,
+    };
+    print_screen(&screened);
+    Ok(screened)
+}
+
+/// The column a screen error is about.
+fn screen_column(error: &crate::data::ScreenError) -> &'static str {
+    match error {
+        crate::data::ScreenError::Milliseconds { .. } => "rt",
+        crate::data::ScreenError::TooFewResponses { .. } => "subject",
+    }
+}
+
+/// The median of `xs`, NaN when empty.
+fn median_of(mut xs: Vec<f64>) -> f64 {
+    xs.sort_by(f64::total_cmp);
+    match xs.len() {
+        0 => f64::NAN,
+        n if n % 2 == 1 => xs[n / 2],
+        n => 0.5 * (xs[n / 2 - 1] + xs[n / 2]),
+    }
+}
+
+/// Prints the short summary of the screen.
+fn print_screen(screened: &Screened) {
+    let subjects = &screened.subjects;
+    let n = subjects.len();
+    let trials: usize = subjects.iter().map(|s| s.trials).sum();
+    let responses: usize = subjects.iter().map(|s| s.responses).sum();
+    let timed: usize = subjects.iter().map(|s| s.timed).sum();
+    let medians = median_of(subjects.iter().filter_map(|s| s.rt_median).collect());
+    let lo = subjects
+        .iter()
+        .filter_map(|s| s.rt_min)
+        .fold(f64::INFINITY, f64::min);
+    let hi = subjects
+        .iter()
+        .filter_map(|s| s.rt_max)
+        .fold(f64::NEG_INFINITY, f64::max);
+    let fast: f64 = subjects
+        .iter()
+        .map(|s| s.fast_share.unwrap_or(0.0) * s.timed as f64)
+        .sum();
+    println!(
+        "data screen: {n} subjects, {trials} trials, {responses} responses ({timed} with a time)"
+    );
+    if timed > 0 {
+        println!(
+            "  response times {lo:.3}-{hi:.3} s, median of subject medians {medians:.3} s; \
+             {:.1} % faster than {} s ({} subjects above 10 %)",
+            100.0 * fast / timed as f64,
+            screened.settings.fast_floor,
+            subjects
+                .iter()
+                .filter(|s| s.fast_share.is_some_and(|f| f > 0.1))
+                .count()
+        );
+    }
+    let below: usize = subjects.iter().map(|s| s.trimmed.below).sum();
+    let above: usize = subjects.iter().map(|s| s.trimmed.above).sum();
+    if screened.settings.trim_below.is_some() || screened.settings.trim_above.is_some() {
+        println!(
+            "  trimmed: {below} times below {}, {above} above {} (their choices still count, \
+             without the time); per subject in data_screen.csv",
+            limit_text(screened.settings.trim_below),
+            limit_text(screened.settings.trim_above)
+        );
+        let trimmed: Vec<String> = subjects
+            .iter()
+            .filter(|s| s.trimmed.below + s.trimmed.above > 0)
+            .map(|s| format!("{} {}/{}", s.subject, s.trimmed.below, s.trimmed.above))
+            .collect();
+        if !trimmed.is_empty() && trimmed.len() <= PER_SUBJECT_LINES {
+            println!(
+                "  trimmed per subject (below/above): {}",
+                trimmed.join(", ")
+            );
+        }
+    }
+    let one_sided = subjects
+        .iter()
+        .filter(|s| s.share_a.is_some_and(|a| a == 0.0 || a == 1.0))
+        .count();
+    if one_sided > 0 {
+        println!(
+            "  {one_sided} subjects chose the same option on every response (choices carry \
+             no information on value there)"
+        );
+    }
+    for (model, per_subject) in &screened.unmet {
+        let refused: Vec<&Vec<String>> = per_subject.iter().filter(|u| !u.is_empty()).collect();
+        if let Some(first) = refused.first() {
+            println!(
+                "  {model}: not fitted to {} of {n} subjects (e.g. {})",
+                refused.len(),
+                first.join("; ")
+            );
+        }
+    }
+}
+
+/// Most subjects whose trimming counts are listed in the console (all are in the table).
+const PER_SUBJECT_LINES: usize = 20;
+
+fn limit_text(limit: Option<f64>) -> String {
+    limit.map_or_else(|| "-".to_string(), |x| format!("{x} s"))
+}
+
+/// Fits each model to the subjects whose data meet its needs; the others are returned as
+/// skipped with the reason. Results are in (model, subject) order, as from [`fit_table`].
+pub fn fit_screened(
+    models: &[Model],
+    table: &TrialTable,
+    screened: &Screened,
+    options: &FitOptions,
+    threads: usize,
+    progress: &(dyn Fn() + Sync),
+) -> Result<(Vec<SubjectFit>, Vec<Skipped>), rayon::ThreadPoolBuildError> {
+    let mut fits = Vec::new();
+    let mut skipped = Vec::new();
+    for (model, (_, per_subject)) in models.iter().zip(&screened.unmet) {
+        let mut kept = TrialTable {
+            subjects: Vec::new(),
+            present: table.present.clone(),
+        };
+        for (subject, unmet) in table.subjects.iter().zip(per_subject) {
+            if unmet.is_empty() {
+                kept.subjects.push(subject.clone());
+            } else {
+                skipped.push(Skipped {
+                    model: model.name.clone(),
+                    reason: DataMismatch {
+                        subject: subject.id.clone(),
+                        message: unmet.join("; "),
+                    },
+                });
+            }
+        }
+        if kept.subjects.is_empty() {
+            continue;
+        }
+        let (f, s) = fit_table(
+            std::slice::from_ref(model),
+            &kept,
+            options,
+            threads,
+            progress,
+        )?;
+        fits.extend(f);
+        skipped.extend(s);
+    }
+    Ok((fits, skipped))
+}
+
+/// Number of (model, subject) fits the screen lets through.
+pub fn screened_jobs(screened: &Screened) -> usize {
+    screened
+        .unmet
+        .iter()
+        .flat_map(|(_, per_subject)| per_subject)
+        .filter(|u| u.is_empty())
+        .count()
+}
+
+/// The per-subject screen as a tidy table (data_screen.csv): the counts, the response-time
+/// summary, shares, trimming, and one `needs_<model>` column per model (`met`, or the reasons).
+pub fn screen_table_output(screened: &Screened) -> Table {
+    let s = &screened.subjects;
+    let number =
+        |f: &dyn Fn(&SubjectScreen) -> Option<f64>| Column::Number(s.iter().map(f).collect());
+    let count = |f: &dyn Fn(&SubjectScreen) -> usize| {
+        Column::Integer(s.iter().map(|x| f(x) as i64).collect())
+    };
+    let mut table = Table::default()
+        .with(
+            "subject",
+            Column::Text(s.iter().map(|x| x.subject.clone()).collect()),
+        )
+        .with(
+            "group",
+            Column::Text(s.iter().map(|x| x.group.clone()).collect()),
+        )
+        .with("trials", count(&|x| x.trials))
+        .with("responses", count(&|x| x.responses))
+        .with("timed_responses", count(&|x| x.timed))
+        .with("rt_min", number(&|x| x.rt_min))
+        .with("rt_median", number(&|x| x.rt_median))
+        .with("rt_max", number(&|x| x.rt_max))
+        .with(
+            "fast_floor",
+            number(&|_| Some(screened.settings.fast_floor)),
+        )
+        .with("fast_share", number(&|x| x.fast_share))
+        .with("share_a", number(&|x| x.share_a))
+        .with("share_b", number(&|x| x.share_b()))
+        .with("trimmed_below", count(&|x| x.trimmed.below))
+        .with("trimmed_above", count(&|x| x.trimmed.above))
+        .with(
+            "effort_varies",
+            Column::Flag(s.iter().map(|x| x.effort_varies).collect()),
+        )
+        .with("rewards_offered", count(&|x| x.rewards_offered));
+    for (model, per_subject) in &screened.unmet {
+        let column = per_subject
+            .iter()
+            .map(|u| {
+                if u.is_empty() {
+                    "met".to_string()
+                } else {
+                    u.join("; ")
+                }
+            })
+            .collect();
+        table = table.with(&format!("needs_{model}"), Column::Text(column));
+    }
+    table
+}
+
+/// The screen's part of run.json: settings, the per-parameter rule and per-subject trimming.
+pub fn screen_record(screened: &Screened) -> serde_json::Value {
+    let trimmed: Vec<serde_json::Value> = screened
+        .subjects
+        .iter()
+        .filter(|s| s.trimmed.below + s.trimmed.above > 0)
+        .map(|s| {
+            serde_json::json!({
+                "subject": s.subject,
+                "below": s.trimmed.below,
+                "above": s.trimmed.above,
+            })
+        })
+        .collect();
+    serde_json::json!({
+        "fast_floor": screened.settings.fast_floor,
+        "trim_below": screened.settings.trim_below,
+        "trim_above": screened.settings.trim_above,
+        "trimmed_total": {
+            "below": screened.subjects.iter().map(|s| s.trimmed.below).sum::<usize>(),
+            "above": screened.subjects.iter().map(|s| s.trimmed.above).sum::<usize>(),
+        },
+        "trimmed_per_subject": trimmed,
+        "responses_per_free_parameter": screened.settings.responses_per_parameter,
+        "table": "data_screen.csv",
+    })
+}
