@@ -41,12 +41,9 @@ fn text(bytes: &[u8]) -> String {
     String::from_utf8_lossy(bytes).into_owned()
 }
 
-#[test]
-fn by_a_missing_column_is_an_error_naming_it() {
-    let dir = tempfile::tempdir().unwrap();
-    let data = subset(dir.path());
-    let out = dir.path().join("fit");
-    let output = run(&[
+/// `fit --hierarchical --by <by>` of gainloss-linear on `data` into `out` (2 starts).
+fn fit_by(data: &Path, out: &Path, by: &str) -> Output {
+    run(&[
         "fit",
         "--data",
         data.to_str().unwrap(),
@@ -56,10 +53,18 @@ fn by_a_missing_column_is_an_error_naming_it() {
         out.to_str().unwrap(),
         "--hierarchical",
         "--by",
-        "clinic",
+        by,
         "--starts",
         "2",
-    ]);
+    ])
+}
+
+#[test]
+fn by_a_missing_column_is_an_error_naming_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let data = subset(dir.path());
+    let out = dir.path().join("fit");
+    let output = fit_by(&data, &out, "clinic");
     let stderr = text(&output.stderr);
     assert!(!output.status.success(), "accepted a missing --by column");
     assert!(
@@ -74,20 +79,7 @@ fn fit_by_a_column_then_contrast_by_it_with_the_console_diagnostics_and_warnings
     let dir = tempfile::tempdir().unwrap();
     let data = subset(dir.path());
     let out = dir.path().join("fit");
-    let output = run(&[
-        "fit",
-        "--data",
-        data.to_str().unwrap(),
-        "--model",
-        "gainloss-linear",
-        "--out",
-        out.to_str().unwrap(),
-        "--hierarchical",
-        "--by",
-        "site",
-        "--starts",
-        "2",
-    ]);
+    let output = fit_by(&data, &out, "site");
     let stdout = text(&output.stdout);
     let stderr = text(&output.stderr);
     assert!(output.status.success(), "{stderr}");

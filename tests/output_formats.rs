@@ -60,7 +60,11 @@ fn numbers_read_back_bit_for_bit_and_are_never_longer_than_either_rust_form() {
         assert_eq!(back.to_bits(), x.to_bits(), "{x:e} written as {text}");
         assert!(text.len() <= 24, "{x:e} written as {text}");
         if x == 0.0 || (1e-5..1e16).contains(&x.abs()) {
-            assert_eq!(text, format!("{x}"), "ordinary magnitudes stay plain decimals");
+            assert_eq!(
+                text,
+                format!("{x}"),
+                "ordinary magnitudes stay plain decimals"
+            );
         } else {
             let shorter = format!("{x}").len().min(format!("{x:e}").len());
             assert_eq!(text.len(), shorter, "{x:e} written as {text}");

@@ -2,7 +2,10 @@
 //! fitted back. Thresholds from the acceptance criteria; the design is the orchard task
 //! of `valuedrift::simulate`. Fixed seed.
 
-use rand::{RngExt, SeedableRng};
+mod common;
+
+use common::{draw_values, pearson};
+use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use valuedrift::fit::{FitOptions, fit_subject};
 use valuedrift::likelihood::SubjectLikelihood;
@@ -19,16 +22,6 @@ const RANGES: [(&str, f64, f64); 6] = [
     ("ndt", 0.2, 0.5),
 ];
 
-fn pearson(x: &[f64], y: &[f64]) -> f64 {
-    // Pearson (1896) product-moment correlation.
-    let n = x.len() as f64;
-    let (mx, my) = (x.iter().sum::<f64>() / n, y.iter().sum::<f64>() / n);
-    let sxy: f64 = x.iter().zip(y).map(|(a, b)| (a - mx) * (b - my)).sum();
-    let sxx: f64 = x.iter().map(|a| (a - mx).powi(2)).sum();
-    let syy: f64 = y.iter().map(|b| (b - my).powi(2)).sum();
-    sxy / (sxx * syy).sqrt()
-}
-
 #[test]
 fn reference_model_parameters_are_recovered() {
     let model = load_model("gainloss-linear").unwrap();
@@ -39,14 +32,7 @@ fn reference_model_parameters_are_recovered() {
     let (mut covered, mut intervals) = (0, 0);
     for i in 0..30 {
         let design = orchard_design(&format!("r{i:02}"), "sim", 300, &mut rng);
-        let values: Vec<f64> = model
-            .parameters
-            .iter()
-            .map(|p| match RANGES.iter().find(|r| r.0 == p.name) {
-                Some(&(_, lo, hi)) => rng.random_range(lo..hi),
-                None => p.fixed.unwrap(),
-            })
-            .collect();
+        let values = draw_values(&model, &RANGES, &mut rng);
         let subject = simulate_subject(
             &model,
             &values,

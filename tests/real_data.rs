@@ -15,7 +15,10 @@
 //!   must still reach at least the likelihood of the generating values (the defining property
 //!   of a maximum-likelihood estimate, so a fit below it has missed the maximum).
 
-use rand::{RngExt, SeedableRng};
+mod common;
+
+use common::{draw_values, pearson};
+use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use std::path::Path;
 use valuedrift::data::{ColumnMap, TrialTable, read_trials};
@@ -33,16 +36,6 @@ fn real_table() -> TrialTable {
 fn estimate(fit: &SubjectFit, name: &str) -> (f64, bool) {
     let e = fit.estimates.iter().find(|e| e.name == name).unwrap();
     (e.estimate, e.at_bound)
-}
-
-fn pearson(x: &[f64], y: &[f64]) -> f64 {
-    // Pearson (1896) product-moment correlation.
-    let n = x.len() as f64;
-    let (mx, my) = (x.iter().sum::<f64>() / n, y.iter().sum::<f64>() / n);
-    let sxy: f64 = x.iter().zip(y).map(|(a, b)| (a - mx) * (b - my)).sum();
-    let sxx: f64 = x.iter().map(|a| (a - mx).powi(2)).sum();
-    let syy: f64 = y.iter().map(|b| (b - my).powi(2)).sum();
-    sxy / (sxx * syy).sqrt()
 }
 
 #[test]
@@ -105,14 +98,7 @@ fn recovery(repeats: usize) -> (Vec<Vec<f64>>, Vec<SubjectFit>, Vec<f64>) {
                 })
             })
             .collect();
-        let values: Vec<f64> = model
-            .parameters
-            .iter()
-            .map(|p| match ranges.iter().find(|r| r.0 == p.name) {
-                Some(&(_, lo, hi)) => rng.random_range(lo..hi),
-                None => p.fixed.unwrap(),
-            })
-            .collect();
+        let values = draw_values(&model, &ranges, &mut rng);
         subjects.push(simulate_subject(
             &model,
             &values,

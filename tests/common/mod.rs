@@ -1,4 +1,5 @@
-//! Helpers shared by the tests that run the binary on the demo study.
+//! Helpers shared by the test files (each test binary uses a part of them).
+#![allow(dead_code)]
 
 use std::path::{Path, PathBuf};
 use std::process::Command;
@@ -16,4 +17,32 @@ pub fn demo_file(name: &str) -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR"))
         .join("demo-data")
         .join(name)
+}
+
+/// Pearson (1896) product-moment correlation.
+pub fn pearson(x: &[f64], y: &[f64]) -> f64 {
+    let n = x.len() as f64;
+    let (mx, my) = (x.iter().sum::<f64>() / n, y.iter().sum::<f64>() / n);
+    let sxy: f64 = x.iter().zip(y).map(|(a, b)| (a - mx) * (b - my)).sum();
+    let sxx: f64 = x.iter().map(|a| (a - mx).powi(2)).sum();
+    let syy: f64 = y.iter().map(|b| (b - my).powi(2)).sum();
+    sxy / (sxx * syy).sqrt()
+}
+
+/// Every parameter of `model` (model order): a uniform draw from `ranges` for the parameters it
+/// names, the fixed value for the others.
+pub fn draw_values(
+    model: &valuedrift::model::Model,
+    ranges: &[(&str, f64, f64)],
+    rng: &mut impl rand::Rng,
+) -> Vec<f64> {
+    use rand::RngExt;
+    model
+        .parameters
+        .iter()
+        .map(|p| match ranges.iter().find(|r| r.0 == p.name) {
+            Some(&(_, lo, hi)) => rng.random_range(lo..hi),
+            None => p.fixed.expect("parameters without a range are fixed"),
+        })
+        .collect()
 }
