@@ -38,17 +38,20 @@ fn binomial_upper_half(a: u64, b: u64) -> f64 {
 fn two_model_exceedance_is_one_minus_the_incomplete_beta_at_one_half() {
     // Exact path against an independent value: for whole-number a, b,
     // I_{1/2}(a, b) = P(Binomial(a + b − 1, 1/2) ≥ a) (Abramowitz & Stegun 1964, 26.5.24), so
-    // xp₁ = P(r₁ > 1/2) = 1 − I_{1/2}(α₁, α₂) = P(Binomial(α₁ + α₂ − 1, 1/2) < α₁)
+    // P₁ = P(r₁ > 1/2) = 1 − I_{1/2}(α₁, α₂) = P(Binomial(α₁ + α₂ − 1, 1/2) < α₁)
     // (Stephan et al. 2009, two-model exceedance probability).
     for (a1, a2) in [(1, 1), (3, 2), (7, 12), (20, 5), (16, 16), (2, 30)] {
-        let xp = exceedance_two([a1 as f64, a2 as f64]);
+        let exceedance = exceedance_two([a1 as f64, a2 as f64]);
         let expected = 1.0 - binomial_upper_half(a1, a2);
         assert!(
-            (xp[0] - expected).abs() < 1e-12,
-            "α = ({a1}, {a2}): xp₁ {} vs binomial identity {expected}",
-            xp[0]
+            (exceedance[0] - expected).abs() < 1e-12,
+            "α = ({a1}, {a2}): P₁ {} vs binomial identity {expected}",
+            exceedance[0]
         );
-        assert!((xp[0] + xp[1] - 1.0).abs() < 1e-12, "xp must sum to 1");
+        assert!(
+            (exceedance[0] + exceedance[1] - 1.0).abs() < 1e-12,
+            "exceedance must sum to 1"
+        );
     }
     // Monte Carlo path at K = 2 against the exact formula 1 − I_{1/2}(α₁, α₂) (statrs beta_reg),
     // to 1e-3 (common practice for a Monte Carlo check; with 4·10⁶ draws the standard error is ≤ 2.5e-4).
@@ -133,12 +136,17 @@ fn bayesian_model_selection_matches_the_numpy_reference() {
             let se_ref = per_model("exceedance_se", j);
             let se_own = bms.exceedance_se.as_ref().map_or(0.0, |s| s[j]);
             let tol = 4.0 * (se_ref * se_ref + se_own * se_own).sqrt() + 1e-9;
-            close(bms.exceedance[j], per_model("exceedance", j), tol, "xp");
+            close(
+                bms.exceedance[j],
+                per_model("exceedance", j),
+                tol,
+                "exceedance",
+            );
             close(
                 bms.protected_exceedance[j],
                 per_model("protected_exceedance", j),
                 tol + 1e-7,
-                "pxp",
+                "protected",
             );
             for i in 0..n {
                 close(
@@ -197,10 +205,10 @@ fn bayesian_model_selection_matches_the_numpy_reference() {
             );
         }
         assert!(
-            (bms.bor - scalar("bor")).abs() < 1e-7,
-            "{name}, BOR: {} vs reference {}",
-            bms.bor,
-            scalar("bor")
+            (bms.omnibus_risk - scalar("omnibus_risk")).abs() < 1e-7,
+            "{name}, omnibus risk: {} vs reference {}",
+            bms.omnibus_risk,
+            scalar("omnibus_risk")
         );
     }
 }
@@ -291,15 +299,15 @@ fn generating_model_has_protected_exceedance_of_at_least_095_in_a_cohort_of_30()
         .collect();
     let bms = random_effects_bms(&evidence, &BmsOptions::default()).unwrap();
     println!(
-        "alpha {:?}, xp {:?}, pxp {:?}, BOR {}",
-        bms.alpha, bms.exceedance, bms.protected_exceedance, bms.bor
+        "alpha {:?}, exceedance {:?}, protected {:?}, omnibus risk {}",
+        bms.alpha, bms.exceedance, bms.protected_exceedance, bms.omnibus_risk
     );
     assert!(
         bms.protected_exceedance[0] >= 0.95,
-        "generating model's PXP {} < 0.95 (alpha {:?}, BOR {})",
+        "generating model's protected exceedance probability {} < 0.95 (alpha {:?}, omnibus risk {})",
         bms.protected_exceedance[0],
         bms.alpha,
-        bms.bor
+        bms.omnibus_risk
     );
 }
 

@@ -100,7 +100,7 @@ pub fn print_summary(selection: &Selection, samples: usize) {
         println!(
             "\n[{scope}] {} subjects, Bayesian omnibus risk {:.4}{}",
             bms.assignment.len(),
-            bms.bor,
+            bms.omnibus_risk,
             if bms.converged {
                 ""
             } else {

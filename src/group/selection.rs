@@ -524,21 +524,24 @@ pub fn null_free_energy(log_evidence: &[Vec<f64>]) -> f64 {
 /// Bayesian omnibus risk (Rigoux et al. 2014), the posterior probability of the null
 /// of equal frequencies against the random-effects model under equal prior odds:
 ///
-/// BOR = 1 / (1 + exp(F₁ − F₀)) (computed as a logistic of F₀ − F₁, no overflow).
+/// omnibus risk = 1 / (1 + exp(F₁ − F₀)) (computed as a logistic of F₀ − F₁, no overflow).
 pub fn bayesian_omnibus_risk(f1: f64, f0: f64) -> f64 {
     logistic(f0 - f1)
 }
 
 /// Protected exceedance probabilities (Rigoux et al. 2014):
-/// pxp_k = (1 − BOR) xp_k + BOR / K.
-pub fn protected_exceedance(xp: &[f64], bor: f64) -> Vec<f64> {
-    let k = xp.len() as f64;
-    xp.iter().map(|x| (1.0 - bor) * x + bor / k).collect()
+/// protected_k = (1 − omnibus risk) exceedance_k + omnibus risk / K.
+pub fn protected_exceedance(exceedance: &[f64], omnibus_risk: f64) -> Vec<f64> {
+    let k = exceedance.len() as f64;
+    exceedance
+        .iter()
+        .map(|x| (1.0 - omnibus_risk) * x + omnibus_risk / k)
+        .collect()
 }
 
 /// Exact exceedance probabilities of two models (Stephan et al. 2009): with
-/// r₁ ~ Beta(α₁, α₂), xp₁ = P(r₁ > 1/2) = 1 − I_{1/2}(α₁, α₂) and xp₂ = I_{1/2}(α₁, α₂)
-/// (I_x the regularised incomplete beta function, statrs `beta_reg`). xp₁ is evaluated as
+/// r₁ ~ Beta(α₁, α₂), P₁ = P(r₁ > 1/2) = 1 − I_{1/2}(α₁, α₂) and P₂ = I_{1/2}(α₁, α₂)
+/// (I_x the regularised incomplete beta function, statrs `beta_reg`). P₁ is evaluated as
 /// I_{1/2}(α₂, α₁) (by I_x(a, b) = 1 − I_{1−x}(b, a)) so that small values keep their relative
 /// accuracy.
 pub fn exceedance_two(alpha: [f64; 2]) -> [f64; 2] {
@@ -548,10 +551,10 @@ pub fn exceedance_two(alpha: [f64; 2]) -> [f64; 2] {
     ]
 }
 
-/// Monte Carlo exceedance probabilities xp_k = P(r_k > r_j for all j ≠ k) for r ~ Dir(α)
+/// Monte Carlo exceedance probabilities exceedance_k = P(r_k > r_j for all j ≠ k) for r ~ Dir(α)
 /// (Stephan et al. 2009): `samples` draws of r_k = γ_k / Σγ with γ_k ~ Gamma(α_k, 1)
 /// (the Dirichlet as normalised gammas; the arg max needs no normalising). Standard error of
-/// each estimate √(xp(1 − xp)/samples) (≤ 0.0005 at 10⁶ samples). Deterministic for a seed.
+/// each estimate √(exceedance(1 − exceedance)/samples) (≤ 0.0005 at 10⁶ samples). Deterministic for a seed.
 /// Returns `None` when an α is not finite and positive.
 pub fn exceedance_monte_carlo(
     alpha: &[f64],
@@ -593,7 +596,7 @@ pub struct Bms {
     /// Protected exceedance probabilities.
     pub protected_exceedance: Vec<f64>,
     /// Bayesian omnibus risk.
-    pub bor: f64,
+    pub omnibus_risk: f64,
     /// Free energy F₁ of the random-effects model.
     pub free_energy: f64,
     /// Log evidence F₀ of the equal-frequency null.
@@ -654,24 +657,24 @@ pub fn random_effects_bms(log_evidence: &[Vec<f64>], options: &BmsOptions) -> Re
         let mut rng = ChaCha8Rng::seed_from_u64(options.seed);
         rng.set_stream(options.stream);
         let samples = options.samples.max(1);
-        let xp = exceedance_monte_carlo(&alpha, samples, &mut rng)
+        let exceedance = exceedance_monte_carlo(&alpha, samples, &mut rng)
             .ok_or_else(|| format!("posterior counts {alpha:?} are not all positive"))?;
-        let se = xp
+        let se = exceedance
             .iter()
             .map(|p| (p * (1.0 - p) / samples as f64).sqrt())
             .collect();
-        (xp, Some(se))
+        (exceedance, Some(se))
     };
     let f1 = free_energy(log_evidence, options.alpha0, &alpha, &assignment);
     let f0 = null_free_energy(log_evidence);
-    let bor = bayesian_omnibus_risk(f1, f0);
+    let omnibus_risk = bayesian_omnibus_risk(f1, f0);
     Ok(Bms {
-        protected_exceedance: protected_exceedance(&exceedance, bor),
+        protected_exceedance: protected_exceedance(&exceedance, omnibus_risk),
         alpha,
         expected_frequency,
         exceedance,
         exceedance_se,
-        bor,
+        omnibus_risk,
         free_energy: f1,
         null_free_energy: f0,
         assignment,
@@ -881,7 +884,10 @@ impl Selection {
                 "protected_exceedance_probability",
                 number(&|r| Some(r.bms.protected_exceedance[r.model])),
             )
-            .with("bayesian_omnibus_risk", number(&|r| Some(r.bms.bor)))
+            .with(
+                "bayesian_omnibus_risk",
+                number(&|r| Some(r.bms.omnibus_risk)),
+            )
             .with(
                 "subjects_won",
                 Column::Integer(rows.iter().map(|r| r.won as i64).collect()),

@@ -556,10 +556,10 @@ def check_likelihood(model, subjects, rng):
             worst_val = max(worst_val, abs(ll - ls) / max(1.0, abs(ll)))
             for j, (lo, hi) in enumerate(bounds):
                 h = 1e-6 * (hi - lo)
-                xp, xm = x.copy(), x.copy()
-                xp[j] += h
-                xm[j] -= h
-                fd = (log_likelihood(model, subj, xp, False) - log_likelihood(model, subj, xm, False)) / (2 * h)
+                x_up, x_down = x.copy(), x.copy()
+                x_up[j] += h
+                x_down[j] -= h
+                fd = (log_likelihood(model, subj, x_up, False) - log_likelihood(model, subj, x_down, False)) / (2 * h)
                 worst_grad = max(worst_grad, abs(fd - g[j]) / max(1.0, abs(g[j])))
     print(f"self-check 4 [{model.name}]: vectorised vs scalar ln L {worst_val:.1e}, "
           f"analytic vs finite-difference gradient {worst_grad:.1e}")

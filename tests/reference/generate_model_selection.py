@@ -4,11 +4,11 @@ Implements, independently of the Rust code and with numpy/scipy only:
   * the variational Dirichlet scheme of Stephan, Penny, Daunizeau, Moran & Friston (2009),
     "Bayesian model selection for group studies", NeuroImage 46:1004-1017;
   * its free energy F1, the null log evidence F0 (all models equally frequent), the Bayesian
-    omnibus risk BOR = 1 / (1 + exp(F1 - F0)) and the protected exceedance probabilities
-    pxp = (1 - BOR) xp + BOR / K of Rigoux, Stephan, Friston & Daunizeau (2014), "Bayesian model
+    omnibus risk omnibus risk = 1 / (1 + exp(F1 - F0)) and the protected exceedance probabilities
+    protected = (1 - omnibus risk) exceedance + omnibus risk / K of Rigoux, Stephan, Friston & Daunizeau (2014), "Bayesian model
     selection for group studies - revisited", NeuroImage 84:971-985;
   * exceedance probabilities by numpy Monte Carlo from Dirichlet(alpha) (4e6 draws, seeded; the
-    standard error sqrt(xp (1 - xp) / draws) is written beside each value) and, for two models,
+    standard error sqrt(exceedance (1 - exceedance) / draws) is written beside each value) and, for two models,
     exactly as 1 - I_{1/2}(alpha_1, alpha_2) with scipy.special.betainc.
 
 Limitation: F1 here follows the same expansion of the free energy as the Rust code (expected
@@ -22,7 +22,7 @@ so the Rust test reads its inputs and the expected outputs from the same committ
 Output: tests/reference/model_selection_reference.csv in long form with columns
   case, quantity, subject, model, value
 where quantity is one of log_evidence (subject, model), alpha, expected_frequency, exceedance,
-exceedance_se (model), protected_exceedance (model), assignment (subject, model), bor,
+exceedance_se (model), protected_exceedance (model), assignment (subject, model), omnibus_risk,
 free_energy, null_free_energy (neither); for the between-group case also group (subject: 0 or
 1), free_energy_same, free_energy_different and probability_same (neither). Indices are 0-based; empty when not applicable.
 
@@ -91,8 +91,8 @@ def exceedance_mc(alpha, rng):
         r = rng.dirichlet(alpha, size=size)
         counts += np.bincount(np.argmax(r, axis=1), minlength=len(alpha))
         remaining -= size
-    xp = counts / DRAWS
-    return xp, np.sqrt(xp * (1 - xp) / DRAWS)
+    exceedance = counts / DRAWS
+    return exceedance, np.sqrt(exceedance * (1 - exceedance) / DRAWS)
 
 
 def cases(rng):
@@ -146,14 +146,14 @@ def main():
         alpha, g = vb_dirichlet(L)
         f1 = free_energy(L, 1.0, alpha, g)
         f0 = null_log_evidence(L)
-        bor = 1.0 / (1.0 + np.exp(f1 - f0))
+        omnibus_risk = 1.0 / (1.0 + np.exp(f1 - f0))
         if k == 2:
-            xp1 = 1.0 - betainc(alpha[0], alpha[1], 0.5)
-            xp = np.array([xp1, 1.0 - xp1])
+            exceedance_1 = 1.0 - betainc(alpha[0], alpha[1], 0.5)
+            exceedance = np.array([exceedance_1, 1.0 - exceedance_1])
             se = np.zeros(2)
         else:
-            xp, se = exceedance_mc(alpha, rng)
-        pxp = (1 - bor) * xp + bor / k
+            exceedance, se = exceedance_mc(alpha, rng)
+        protected = (1 - omnibus_risk) * exceedance + omnibus_risk / k
         for i in range(n):
             for j in range(k):
                 rows.append((name, "log_evidence", i, j, L[i, j]))
@@ -161,10 +161,10 @@ def main():
         for j in range(k):
             rows.append((name, "alpha", "", j, alpha[j]))
             rows.append((name, "expected_frequency", "", j, alpha[j] / alpha.sum()))
-            rows.append((name, "exceedance", "", j, xp[j]))
+            rows.append((name, "exceedance", "", j, exceedance[j]))
             rows.append((name, "exceedance_se", "", j, se[j]))
-            rows.append((name, "protected_exceedance", "", j, pxp[j]))
-        rows.append((name, "bor", "", "", bor))
+            rows.append((name, "protected_exceedance", "", j, protected[j]))
+        rows.append((name, "omnibus_risk", "", "", omnibus_risk))
         rows.append((name, "free_energy", "", "", f1))
         rows.append((name, "null_free_energy", "", "", f0))
         if name in GROUPS:
