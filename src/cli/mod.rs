@@ -51,11 +51,16 @@ pub enum Command {
         threads: usize,
     },
     /// Fit models to each subject of a trial table (maximum likelihood, or MAP where a model
-    /// declares priors): several quasi-random starts of L-BFGS with exact gradients, standard
-    /// errors and 95 % intervals from the observed information.
+    /// declares priors): quasi-random starts from the declared start ranges (Halton 1960),
+    /// screened, then L-BFGS (Liu & Nocedal 1989) with exact gradients; the best point is checked
+    /// on the natural scale (bounds confirmed from the interior, the faces of the parameter box
+    /// tried, flat and value-blind optima escaped) so that a fit is a real optimum or says what
+    /// is wrong; standard errors and 95 % intervals from the observed information. A data screen
+    /// runs first.
     ///
     /// Writes DIR/parameters.csv (one row per subject, model and parameter), DIR/estimates_wide.csv
-    /// (one row per subject and model), DIR/fit_summary.csv, their Parquet twins, and DIR/run.json.
+    /// (one row per subject and model), DIR/fit_summary.csv (with each fit's status),
+    /// DIR/data_screen.csv, their Parquet twins, and DIR/run.json.
     #[command(after_help = RESEARCH_CAUTION)]
     Fit {
         /// Trial table (.csv, .tsv or .parquet); see the README for its columns.
