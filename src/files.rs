@@ -167,6 +167,15 @@ pub fn write_atomically<E>(
     Ok(())
 }
 
+/// Refuses an existing `path` unless `replace` is set: the rule [`write_atomically`] applies
+/// when it writes, checked before a command does its work so that a refusal costs nothing.
+pub fn refuse_existing(path: &Path, replace: bool) -> Result<(), WriteError<String>> {
+    if !replace && std::fs::symlink_metadata(path).is_ok() {
+        return Err(WriteError::Exists(path.to_path_buf()));
+    }
+    Ok(())
+}
+
 /// Failure of [`write_atomically`]: the content could not be produced, the destination exists, or
 /// the file system refused.
 #[derive(Debug, thiserror::Error)]

@@ -461,3 +461,44 @@ fn simulate_refuses_an_existing_file_without_replace() {
     );
     assert!(leftovers(dir.path(), "trials.csv").is_empty());
 }
+
+#[test]
+fn single_file_outputs_are_refused_before_any_work() {
+    // simulate and density check the replace rule first: an existing --out is refused even
+    // when the inputs would fail later (here the parameter and input files do not exist), and
+    // the existing file is left as it was.
+    let dir = tempfile::tempdir().unwrap();
+    let existing = dir.path().join("existing.csv");
+    std::fs::write(&existing, "kept\n").unwrap();
+    let missing = dir.path().join("missing.csv");
+    for args in [
+        vec![
+            "simulate",
+            "--model",
+            MODEL,
+            "--params",
+            missing.to_str().unwrap(),
+            "--design",
+            demo_file("orchard_design.csv").to_str().unwrap(),
+            "--out",
+            existing.to_str().unwrap(),
+        ],
+        vec![
+            "density",
+            "--input",
+            missing.to_str().unwrap(),
+            "--output",
+            existing.to_str().unwrap(),
+        ],
+    ] {
+        let output = bin().args(&args).output().unwrap();
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(!output.status.success());
+        assert!(
+            stderr.contains("already exists") && stderr.contains("--replace"),
+            "{}: {stderr}",
+            args[0]
+        );
+        assert_eq!(std::fs::read_to_string(&existing).unwrap(), "kept\n");
+    }
+}

@@ -1,7 +1,7 @@
 //! `valuedrift density`: the first-passage engine on a table of trials, for checking a
 //! likelihood by hand.
 
-use crate::files::{InputError, csv_rows, finite_number, write_atomically};
+use crate::files::{InputError, csv_rows, finite_number, refuse_existing, write_atomically};
 use crate::first_passage::{Bound, DiffusionParams, cdf, ln_density};
 use std::io::Write;
 use std::path::Path;
@@ -16,6 +16,9 @@ pub fn run(
     output: Option<&Path>,
     replace: bool,
 ) -> Result<(), Box<dyn std::error::Error>> {
+    if let Some(path) = output {
+        refuse_existing(path, replace)?;
+    }
     let rows = compute(input)?;
     match output {
         Some(path) => write_atomically(path, replace, |w| write_rows(w, &rows))?,

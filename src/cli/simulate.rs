@@ -1,7 +1,7 @@
 //! `valuedrift simulate`: synthetic trials from a model, parameters and a design.
 
 use crate::data::{ColumnMap, TrialTable};
-use crate::files::{InputError, write_atomically};
+use crate::files::{InputError, refuse_existing, write_atomically};
 use crate::model::{Model, load_model};
 use crate::results::trials_table;
 use crate::simulate::{SimulationSettings, simulate_subject};
@@ -157,6 +157,7 @@ pub fn run(
     replace: bool,
 ) -> Result<(), Box<dyn std::error::Error>> {
     let format = OutputFormat::of(out)?;
+    refuse_existing(out, replace)?;
     let model = load_model(model)?;
     let parameters = read_parameters(params, &model)?;
     let design_table = super::input::read_table(design, columns)?;
