@@ -11,6 +11,9 @@
 //! the hand-written file of the same test.
 
 use std::collections::BTreeSet;
+
+mod common;
+use common::contents;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
@@ -64,19 +67,7 @@ fn replace_once(text: &str, from: &str, to: &str) -> String {
 
 /// Every file (not folder) below `dir`, as paths relative to it.
 fn files_below(dir: &Path) -> BTreeSet<PathBuf> {
-    let mut found = BTreeSet::new();
-    let mut pending = vec![dir.to_path_buf()];
-    while let Some(folder) = pending.pop() {
-        for entry in std::fs::read_dir(&folder).unwrap() {
-            let path = entry.unwrap().path();
-            if path.is_dir() {
-                pending.push(path);
-            } else {
-                found.insert(path.strip_prefix(dir).unwrap().to_path_buf());
-            }
-        }
-    }
-    found
+    contents(dir).into_keys().collect()
 }
 
 fn run(args: &[&str]) -> Output {

@@ -10,12 +10,11 @@
 //! moments are found by polling the staging folder, never by timing; whichever moment a kill
 //! actually hits, the folder must hold one whole set.
 
-use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output, Stdio};
 
 mod common;
-use common::{MODEL, bin, demo_file};
+use common::{MODEL, bin, contents, demo_file};
 
 /// A fit folder holding parameters.csv (the layout of `valuedrift fit`: subject, group, model,
 /// parameter, estimate) at the generating values of the demo study.
@@ -65,24 +64,6 @@ fn succeed(mut command: Command) -> Output {
         String::from_utf8_lossy(&output.stderr)
     );
     output
-}
-
-/// Every file below `dir` with its bytes, by path relative to `dir`.
-fn contents(dir: &Path) -> BTreeMap<PathBuf, Vec<u8>> {
-    let mut found = BTreeMap::new();
-    let mut pending = vec![dir.to_path_buf()];
-    while let Some(folder) = pending.pop() {
-        for entry in std::fs::read_dir(&folder).unwrap() {
-            let path = entry.unwrap().path();
-            if path.is_dir() {
-                pending.push(path);
-            } else {
-                let bytes = std::fs::read(&path).unwrap();
-                found.insert(path.strip_prefix(dir).unwrap().to_path_buf(), bytes);
-            }
-        }
-    }
-    found
 }
 
 /// Names in `dir` that are hidden siblings of `name` (staging or old folders of valuedrift).

@@ -1,6 +1,7 @@
 //! Helpers shared by the test files (each test binary uses a part of them).
 #![allow(dead_code)]
 
+use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
@@ -45,4 +46,22 @@ pub fn draw_values(
             None => p.fixed.expect("parameters without a range are fixed"),
         })
         .collect()
+}
+
+/// Every file below `dir` with its bytes, by path relative to `dir`.
+pub fn contents(dir: &Path) -> BTreeMap<PathBuf, Vec<u8>> {
+    let mut found = BTreeMap::new();
+    let mut pending = vec![dir.to_path_buf()];
+    while let Some(folder) = pending.pop() {
+        for entry in std::fs::read_dir(&folder).unwrap() {
+            let path = entry.unwrap().path();
+            if path.is_dir() {
+                pending.push(path);
+            } else {
+                let bytes = std::fs::read(&path).unwrap();
+                found.insert(path.strip_prefix(dir).unwrap().to_path_buf(), bytes);
+            }
+        }
+    }
+    found
 }
