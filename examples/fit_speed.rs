@@ -42,6 +42,7 @@ fn main() {
                 SimulationSettings::default(),
                 &mut rng,
             )
+            .expect("the design suits the model")
         })
         .collect();
     let options = FitOptions::default();

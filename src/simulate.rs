@@ -6,7 +6,7 @@
 //! sampler; a response later than the deadline (if given) is recorded as no response.
 
 use crate::data::{Choice, Subject, Trial};
-use crate::likelihood::Values;
+use crate::likelihood::{DataMismatch, TrialParameters, Values};
 use crate::model::Model;
 use crate::model::components::{PreparedChoice, SubjectContext};
 use crate::model::dual::{D, constant};
@@ -19,6 +19,9 @@ pub struct SimulationSettings {
     pub deadline: Option<f64>,
     /// Range of the uniform response time of lapse guesses.
     pub guess_rt_range: (f64, f64),
+    /// Response lock (s): no response earlier; draws before it are redrawn, so that responses
+    /// follow the process conditioned on no bound before the lock, as in the likelihood.
+    pub lock: Option<f64>,
 }
 
 impl Default for SimulationSettings {
@@ -26,38 +29,50 @@ impl Default for SimulationSettings {
         SimulationSettings {
             deadline: None,
             guess_rt_range: (0.2, 2.5),
+            lock: None,
         }
     }
 }
 
 /// Simulates one subject: `natural` holds every model parameter (by model slot) on the natural
-/// scale; the design's trials give offers and potential outcomes. Returns the subject with
-/// choices, response times and outcomes filled in.
+/// scale; the design's trials give offers, potential outcomes and the columns that parameters
+/// varying over trials read ([`crate::model::varying`]). Returns the subject with choices,
+/// response times and outcomes filled in, or the design's mismatch with the model (a condition
+/// level the model does not list, a missing covariate).
 pub fn simulate_subject(
     model: &Model,
     natural: &[f64],
     design: &Subject,
     settings: SimulationSettings,
     rng: &mut dyn Rng,
-) -> Subject {
-    let p: Vec<D> = natural.iter().map(|&x| constant(x)).collect();
+) -> Result<Subject, DataMismatch> {
     let context = SubjectContext {
         rt_min: settings.guess_rt_range.0,
         rt_max: settings.guess_rt_range.1,
         deadline: settings.deadline,
+        lock: settings.lock,
     };
-    let prepared = model.choice.prepare(&p, context);
-    let mut values = Values::new(model, &p, design.options.len());
+    let per_trial = TrialParameters::bind(model, design)?;
+    let constant_p: Vec<D> = natural.iter().map(|&x| constant(x)).collect();
+    let mut values: Option<Values> = None;
     let mut trials = Vec::with_capacity(design.trials.len());
-    for trial in &design.trials {
-        let offer = values.offer(model, trial, &p);
+    for (t, trial) in design.trials.iter().enumerate() {
+        let trial_p = if model.varies() {
+            per_trial.natural_values(model, t, natural)
+        } else {
+            constant_p.clone()
+        };
+        let values =
+            values.get_or_insert_with(|| Values::new(model, &trial_p, design.options.len()));
+        let prepared = model.choice.prepare(&trial_p, context);
+        let offer = values.offer(model, trial, &trial_p);
         let (choice, rt) = draw_trial(prepared.as_ref(), offer.signal.re, settings.deadline, rng);
         let outcome = choice.and_then(|c| match c {
             Choice::A => trial.outcome_if_a,
             Choice::B => trial.outcome_if_b,
         });
         if let (Some(c), Some(r)) = (choice, outcome) {
-            values.learn(model, trial, c, r, &p);
+            values.learn(model, trial, c, r, &trial_p);
         }
         trials.push(Trial {
             choice,
@@ -66,10 +81,10 @@ pub fn simulate_subject(
             ..trial.clone()
         });
     }
-    Subject {
+    Ok(Subject {
         trials,
         ..design.clone()
-    }
+    })
 }
 
 /// Draws one trial's choice and response time from a prepared choice stage at decision signal
@@ -133,6 +148,7 @@ pub fn orchard_design(id: &str, group: &str, n_trials: usize, rng: &mut dyn Rng)
                 outcome_onset: Some(6.0 * (i % (n_trials / 2).max(1)) as f64 + 2.5),
                 outcome_if_a: Some(outcome_if_a),
                 outcome_if_b: Some(outcome_if_b),
+                covariates: Vec::new(),
             }
         })
         .collect();
@@ -143,5 +159,6 @@ pub fn orchard_design(id: &str, group: &str, n_trials: usize, rng: &mut dyn Rng)
             .map(String::from)
             .to_vec(),
         trials,
+        covariates: std::sync::Arc::from([]),
     }
 }

@@ -42,6 +42,7 @@ fn trial(
         outcome_onset: onset.map(|t| t + 2.0),
         outcome_if_a: None,
         outcome_if_b: None,
+        covariates: Vec::new(),
     }
 }
 
@@ -106,6 +107,7 @@ fn worked_subject() -> Subject {
                 Some(12.0),
             ),
         ],
+        covariates: std::sync::Arc::from([]),
     }
 }
 
@@ -398,7 +400,8 @@ fn simulated_data(dir: &Path) -> std::path::PathBuf {
             &design,
             SimulationSettings::default(),
             &mut rng,
-        );
+        )
+        .expect("the design suits the model");
         if id == "sub-01" {
             let t = &mut s.trials[2];
             (t.choice, t.rt, t.outcome) = (None, None, None);

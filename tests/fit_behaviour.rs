@@ -33,6 +33,7 @@ fn simulated_table(n_subjects: usize, n_trials: usize, deadline: Option<f64>) ->
         .map(|i| {
             let design = orchard_design(&format!("d{i}"), "g", n_trials, &mut rng);
             simulate_subject(&model, &values, &design, settings, &mut rng)
+                .expect("the design suits the model")
         })
         .collect();
     TrialTable {

@@ -54,13 +54,16 @@ fn empirical_bayes_beats_maximum_likelihood_with_few_trials() {
                 None => p.fixed.unwrap(),
             })
             .collect();
-        subjects.push(simulate_subject(
-            &model,
-            &values,
-            &design,
-            SimulationSettings::default(),
-            &mut rng,
-        ));
+        subjects.push(
+            simulate_subject(
+                &model,
+                &values,
+                &design,
+                SimulationSettings::default(),
+                &mut rng,
+            )
+            .expect("the design suits the model"),
+        );
         truth.push(values);
         true_theta.push(theta);
     }
@@ -288,6 +291,7 @@ fn small_table_csv(dir: &std::path::Path) -> std::path::PathBuf {
                 SimulationSettings::default(),
                 &mut rng,
             )
+            .expect("the design suits the model")
         })
         .collect();
     let table = TrialTable {

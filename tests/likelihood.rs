@@ -30,6 +30,7 @@ fn trial(
         outcome_onset: None,
         outcome_if_a: None,
         outcome_if_b: None,
+        covariates: Vec::new(),
     }
 }
 
@@ -46,6 +47,7 @@ fn worked_subject() -> Subject {
             trial(4, 0, 2, (0.6, 0.2), Choice::A, 0.55, None),
             trial(5, 2, 0, (0.2, 0.4), Choice::B, 1.20, Some(0.0)),
         ],
+        covariates: std::sync::Arc::from([]),
     }
 }
 

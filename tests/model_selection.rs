@@ -268,6 +268,7 @@ fn generating_model_has_protected_exceedance_of_at_least_095_in_a_cohort_of_30()
                 SimulationSettings::default(),
                 &mut rng,
             )
+            .expect("the design suits the model")
         })
         .collect();
     let table = TrialTable {

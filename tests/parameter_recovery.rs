@@ -39,7 +39,8 @@ fn reference_model_parameters_are_recovered() {
             &design,
             SimulationSettings::default(),
             &mut rng,
-        );
+        )
+        .expect("the design suits the model");
         let lik = SubjectLikelihood::new(&model, &subject, None).unwrap();
         let fit = fit_subject(&lik, &options);
         for (k, (name, _, _)) in RANGES.iter().enumerate() {

@@ -44,6 +44,7 @@ fn orchard_subjects(model: &Model, n: usize, trials: usize, seed: u64) -> Vec<Su
                 SimulationSettings::default(),
                 &mut rng,
             )
+            .expect("the design suits the model")
         })
         .collect()
 }
@@ -65,7 +66,7 @@ fn expected_response_time_matches_the_mean_of_simulated_trials() {
     let mut rng = ChaCha8Rng::seed_from_u64(11);
     let n = 5000;
     let replicates: Vec<Subject> = (0..n)
-        .map(|_| simulate_one_step_ahead(&model, &values, subject, &traces, None, &mut rng))
+        .map(|_| simulate_one_step_ahead(&model, &values, subject, &traces, (None, None), &mut rng))
         .collect();
     let mut order: Vec<usize> = (0..traces.len()).collect();
     order.sort_by(|&i, &j| traces[i].signal.abs().total_cmp(&traces[j].signal.abs()));
@@ -134,6 +135,7 @@ fn data_from_the_model_fall_inside_their_own_bands_and_wrong_parameters_do_not()
         sims: 60,
         seed: 9,
         deadline: None,
+        lock: None,
     };
     let right = vec![natural(&model, 1.0); subjects.len()];
     let checks = check_subjects(&model, &right, &subjects, &settings, &|| {}).unwrap();
@@ -198,6 +200,7 @@ fn results_do_not_depend_on_the_thread_count() {
         sims: 12,
         seed: 4,
         deadline: Some(2.5),
+        lock: None,
     };
     let run = |threads: usize| {
         rayon::ThreadPoolBuilder::new()

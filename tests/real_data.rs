@@ -99,13 +99,16 @@ fn recovery(repeats: usize) -> (Vec<Vec<f64>>, Vec<SubjectFit>, Vec<f64>) {
             })
             .collect();
         let values = draw_values(&model, &ranges, &mut rng);
-        subjects.push(simulate_subject(
-            &model,
-            &values,
-            &offers,
-            SimulationSettings::default(),
-            &mut rng,
-        ));
+        subjects.push(
+            simulate_subject(
+                &model,
+                &values,
+                &offers,
+                SimulationSettings::default(),
+                &mut rng,
+            )
+            .expect("the design suits the model"),
+        );
         truth.push(values);
     }
     let table = TrialTable {

@@ -282,6 +282,8 @@ pub struct CheckSettings {
     pub seed: u64,
     /// Responses later than this (s) become no response, as in the fit.
     pub deadline: Option<f64>,
+    /// Response lock (s), as in the fit.
+    pub lock: Option<f64>,
 }
 
 /// One classified trial of a dataset.
@@ -427,8 +429,8 @@ fn keys_for(cuts: &[Vec<f64>; 2], with_times: bool) -> Vec<Key> {
 }
 
 /// The choice-stage context the likelihood uses: the observed response-time range (for lapse
-/// guesses) and the deadline.
-fn context_of(subject: &Subject, deadline: Option<f64>) -> SubjectContext {
+/// guesses), the deadline and the lock.
+fn context_of(subject: &Subject, deadline: Option<f64>, lock: Option<f64>) -> SubjectContext {
     let rts: Vec<f64> = subject.response_times().collect();
     let lo = rts.iter().copied().fold(f64::INFINITY, f64::min);
     let hi = rts.iter().copied().fold(f64::NEG_INFINITY, f64::max);
@@ -436,6 +438,7 @@ fn context_of(subject: &Subject, deadline: Option<f64>) -> SubjectContext {
         rt_min: if lo.is_finite() { lo } else { 0.0 },
         rt_max: if hi.is_finite() { hi } else { 1.0 },
         deadline,
+        lock,
     }
 }
 
@@ -443,21 +446,29 @@ fn context_of(subject: &Subject, deadline: Option<f64>) -> SubjectContext {
 /// observed history (`traces`, from [`SubjectLikelihood::trace`] at `natural`) and each trial's
 /// choice and response time is drawn from the choice stage at that trial's decision signal
 /// ([`draw_trial`]; for the diffusion stage an exact first-passage draw), with the lapse guesses
-/// over the subject's observed response-time range as in the likelihood. Outcomes stay as
-/// observed.
+/// over the subject's observed response-time range as in the likelihood, and the response
+/// window (`lock`, `deadline`) of the fit. Outcomes stay as observed.
 pub fn simulate_one_step_ahead(
     model: &Model,
     natural: &[f64],
     subject: &Subject,
     traces: &[TrialTrace],
-    deadline: Option<f64>,
+    (lock, deadline): (Option<f64>, Option<f64>),
     rng: &mut dyn Rng,
 ) -> Subject {
     let p: Vec<D> = natural.iter().map(|&x| constant(x)).collect();
-    let prepared = model.choice.prepare(&p, context_of(subject, deadline));
+    let context = context_of(subject, deadline, lock);
+    let prepared = model.choice.prepare(&p, context);
     let mut simulated = subject.clone();
     for (trial, trace) in simulated.trials.iter_mut().zip(traces) {
-        (trial.choice, trial.rt) = draw_trial(prepared.as_ref(), trace.signal, deadline, rng);
+        (trial.choice, trial.rt) = if trace.parameters.is_empty() {
+            draw_trial(prepared.as_ref(), trace.signal, deadline, rng)
+        } else {
+            // Parameters that vary over trials: the stage with this trial's values.
+            let trial_p: Vec<D> = trace.parameters.iter().map(|&x| constant(x)).collect();
+            let prepared = model.choice.prepare(&trial_p, context);
+            draw_trial(prepared.as_ref(), trace.signal, deadline, rng)
+        };
     }
     simulated
 }
@@ -472,7 +483,9 @@ pub fn check_subject(
     stream: u64,
 ) -> Result<SubjectCheck, DataMismatch> {
     let mode = Mode::for_subject(subject);
-    let observed_traces = SubjectLikelihood::new(model, subject, settings.deadline)?.trace(natural);
+    let observed_traces = SubjectLikelihood::new(model, subject, settings.deadline)?
+        .with_lock(settings.lock)
+        .trace(natural);
     let observed = classify(subject, &observed_traces);
     let cuts = [
         cuts(&observed, Factor::ValueDifference),
@@ -482,8 +495,9 @@ pub fn check_subject(
     let observed_stats = statistics_of(&observed, &cuts, &keys);
     let mut rng = ChaCha8Rng::seed_from_u64(settings.seed);
     rng.set_stream(stream);
-    let context = context_of(subject, settings.deadline);
+    let context = context_of(subject, settings.deadline, settings.lock);
     let simulation = SimulationSettings {
+        lock: settings.lock,
         deadline: settings.deadline,
         guess_rt_range: (context.rt_min, context.rt_max),
     };
@@ -491,12 +505,13 @@ pub fn check_subject(
     for _ in 0..settings.sims {
         let classified = match mode {
             Mode::Free => {
-                let simulated = simulate_subject(model, natural, subject, simulation, &mut rng);
+                let simulated = simulate_subject(model, natural, subject, simulation, &mut rng)?;
                 if simulated.n_responses() == 0 {
                     // Every simulated response missed the deadline: every cell is empty.
                     Vec::new()
                 } else {
                     let traces = SubjectLikelihood::new(model, &simulated, settings.deadline)?
+                        .with_lock(settings.lock)
                         .trace(natural);
                     classify(&simulated, &traces)
                 }
@@ -507,7 +522,7 @@ pub fn check_subject(
                     natural,
                     subject,
                     &observed_traces,
-                    settings.deadline,
+                    (settings.lock, settings.deadline),
                     &mut rng,
                 );
                 classify(&simulated, &observed_traces)

@@ -107,7 +107,7 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         &mut table,
         &run.screen,
         &models,
-        run.options.deadline,
+        (run.options.lock, run.options.deadline),
     )?;
     let bar = Progress::new("fitting", super::input::screened_jobs(&screened));
     let (fits, skipped) = super::input::fit_screened(
@@ -265,6 +265,7 @@ pub fn run_record(
         "starts": options.starts,
         "max_iterations": options.max_iterations,
         "deadline": options.deadline,
+        "lock": options.lock,
         "data": {
             "path": data.display().to_string(),
             "sha256": format!("{:x}", Sha256::digest(bytes)),

@@ -118,6 +118,20 @@ pub fn check_deadline(deadline: Option<f64>) -> Result<Option<f64>, String> {
     }
 }
 
+/// Refuses a response lock that is not a finite number of seconds ≥ 0 before the deadline.
+pub fn check_lock(lock: Option<f64>, deadline: Option<f64>) -> Result<Option<f64>, String> {
+    match (lock, deadline) {
+        (Some(l), _) if !(l.is_finite() && l >= 0.0) => Err(format!(
+            "--lock {l}: expected a number of seconds ≥ 0 (the time from offer onset before \
+             which no response can be given)"
+        )),
+        (Some(l), Some(d)) if l >= d => Err(format!(
+            "--lock {l}: expected a lock before the deadline ({d} s)"
+        )),
+        (other, _) => Ok(other),
+    }
+}
+
 /// What a model needs of the data, from the model.
 pub fn model_needs(model: &Model) -> ModelNeeds {
     ModelNeeds {
@@ -151,9 +165,33 @@ pub fn screen_before_fit(
     table: &mut TrialTable,
     settings: &ScreenSettings,
     models: &[Model],
-    deadline: Option<f64>,
+    (lock, deadline): (Option<f64>, Option<f64>),
 ) -> Result<Screened, String> {
     let file = path.display();
+    if let Some(l) = lock {
+        let rts: Vec<f64> = table
+            .subjects
+            .iter()
+            .flat_map(|s| s.response_times())
+            .collect();
+        let faster = rts.iter().filter(|&&t| t < l).count();
+        if !rts.is_empty() && faster as f64 > DEADLINE_SLOWER_LIMIT * rts.len() as f64 {
+            return Err(format!(
+                "--lock {l}: {faster} of the {} response times in {file} are faster than it; \
+                 expected a lock before most responses (the time from offer onset at which \
+                 responses became possible). Are the times in seconds?",
+                rts.len()
+            ));
+        }
+        if faster > 0 {
+            eprintln!(
+                "warning: {faster} of the {} response times in {file} are faster than --lock \
+                 {l}; the likelihood conditions on no response before the lock, so these are \
+                 scored as if the lock were their time's jitter (check the lock's value)",
+                rts.len()
+            );
+        }
+    }
     if let Some(d) = deadline
         && let Some(share) = share_slower_than(table, d)
     {

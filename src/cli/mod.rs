@@ -85,6 +85,10 @@ pub enum Command {
         /// reached by the deadline".
         #[arg(long)]
         deadline: Option<f64>,
+        /// Response lock in seconds from offer onset, for tasks whose buttons unlock only then:
+        /// each trial scores the process conditioned on no bound before the lock.
+        #[arg(long)]
+        lock: Option<f64>,
         /// Column names of your file, as canonical=yours pairs: subject=participant,rt=RT.
         #[arg(long, default_value = "")]
         columns: String,
@@ -278,6 +282,10 @@ pub enum Command {
         /// Responses later than this many seconds are recorded as no response.
         #[arg(long)]
         deadline: Option<f64>,
+        /// Response lock in seconds: processes that end before it are redrawn (the simulated
+        /// responses follow the process conditioned on no bound before the lock).
+        #[arg(long)]
+        lock: Option<f64>,
         /// Whether an existing result may be replaced.
         #[command(flatten)]
         replace: ReplaceArg,
@@ -398,14 +406,19 @@ pub struct EstimatesArg {
 /// column `group`, so a `--by` that names the trial table's column the fit read its groups from
 /// (recorded as `group_column` in run.json) means `group`.
 pub fn group_column(fits: &std::path::Path, by: &str) -> String {
-    let recorded = std::fs::read(fits.join("run.json"))
-        .ok()
-        .and_then(|bytes| serde_json::from_slice::<serde_json::Value>(&bytes).ok())
-        .and_then(|record| record["group_column"].as_str().map(str::to_string));
-    match recorded {
+    match recorded(fits, "group_column").and_then(|v| v.as_str().map(str::to_string)) {
         Some(column) if column == by => "group".to_string(),
         _ => by.to_string(),
     }
+}
+
+/// The value of `key` in a fit folder's run.json, when the record and the key exist.
+pub fn recorded(fits: &std::path::Path, key: &str) -> Option<serde_json::Value> {
+    std::fs::read(fits.join("run.json"))
+        .ok()
+        .and_then(|bytes| serde_json::from_slice::<serde_json::Value>(&bytes).ok())
+        .map(|record| record[key].clone())
+        .filter(|v| !v.is_null())
 }
 
 /// Runs the parsed command.
@@ -430,6 +443,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             seed,
             threads,
             deadline,
+            lock,
             columns,
             hierarchical,
             by,
@@ -457,6 +471,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 return Err(format!("--em-tolerance {em_tolerance}: expected a number > 0").into());
             }
             let deadline = input::check_deadline(deadline)?;
+            let lock = input::check_lock(lock, deadline)?;
             let run = fit::FitRun {
                 data: &data,
                 models: &model,
@@ -466,6 +481,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                     starts,
                     seed,
                     deadline,
+                    lock,
                     ..crate::fit::FitOptions::default()
                 },
                 threads,
@@ -515,6 +531,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 sims,
                 seed,
                 deadline,
+                lock: recorded(&input.fits, "lock").and_then(|v| v.as_f64()),
             },
         }),
         Command::Contrast {
@@ -558,18 +575,20 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             out,
             seed,
             deadline,
+            lock,
             replace,
             reading,
         } => {
             let columns = reading.apply(crate::data::ColumnMap::default())?;
             let deadline = input::check_deadline(deadline)?;
+            let lock = input::check_lock(lock, deadline)?;
             simulate::run(
                 &model,
                 &params,
                 &design,
                 &out,
                 seed,
-                deadline,
+                (lock, deadline),
                 &columns,
                 replace.replace,
             )

@@ -105,7 +105,10 @@ pub fn simulate_table(
         })?;
         let mut rng = ChaCha8Rng::seed_from_u64(seed);
         rng.set_stream(i as u64);
-        subjects.push(simulate_subject(model, values, subject, settings, &mut rng));
+        subjects.push(
+            simulate_subject(model, values, subject, settings, &mut rng)
+                .map_err(|e| InputError::file(design_path, e.to_string()))?,
+        );
     }
     let mut present = design.present.clone();
     for column in ["outcome"] {
@@ -152,7 +155,7 @@ pub fn run(
     design: &Path,
     out: &Path,
     seed: u64,
-    deadline: Option<f64>,
+    (lock, deadline): (Option<f64>, Option<f64>),
     columns: &ColumnMap,
     replace: bool,
 ) -> Result<(), Box<dyn std::error::Error>> {
@@ -163,6 +166,7 @@ pub fn run(
     let design_table = super::input::read_table(design, columns)?;
     let settings = SimulationSettings {
         deadline,
+        lock,
         ..SimulationSettings::default()
     };
     let table = simulate_table(&model, &parameters, &design_table, settings, seed, design)?;

@@ -19,6 +19,7 @@
 //! | `outcome` | number or empty | no | what the chosen option delivered; empty when no feedback; on a trial without response it is accepted with a note and nothing is learned from it |
 //! | `onset`, `outcome_onset` | seconds ≥ 0 | no | from run start, for imaging exports |
 //! | `outcome_if_a`, `outcome_if_b` | number | no | what each option would deliver (designs for simulation) |
+//! | any other column | text or number | no | kept as a per-trial covariate ([`Trial::covariates`]): a condition, block or session label, a per-trial signal (pupil size, EEG amplitude), a participant's score |
 //!
 //! An empty cell is a missing value; other tokens (NA, NaN, N/A, ., …) are read as missing
 //! through [`ColumnMap::with_missing`]. Before a fit, [`screen`] summarises each subject's data
@@ -90,6 +91,34 @@ pub struct Trial {
     pub outcome_if_a: Option<f64>,
     /// What option b would deliver if chosen (simulation designs).
     pub outcome_if_b: Option<f64>,
+    /// Cells of the table's other columns, in the order of [`Subject::covariates`], as written
+    /// (`None` when missing); a model reads them as condition levels or as numbers.
+    pub covariates: Vec<Option<String>>,
+}
+
+impl Trial {
+    /// The cell of covariate column `index`, or of the canonical columns `run` and `trial`, as
+    /// text; `None` when missing.
+    pub fn covariate(&self, index: CovariateColumn) -> Option<std::borrow::Cow<'_, str>> {
+        use std::borrow::Cow;
+        match index {
+            CovariateColumn::Run => Some(Cow::Borrowed(self.run.as_str())),
+            CovariateColumn::Trial => Some(Cow::Owned(self.trial.to_string())),
+            CovariateColumn::Extra(k) => self.covariates.get(k)?.as_deref().map(Cow::Borrowed),
+        }
+    }
+}
+
+/// Where a covariate's values are: the canonical `run` or `trial` column, or one of the
+/// table's other columns (by index into [`Subject::covariates`]).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum CovariateColumn {
+    /// The run (block, session) label.
+    Run,
+    /// The trial number.
+    Trial,
+    /// Another column of the table.
+    Extra(usize),
 }
 
 /// All trials of one subject, in file order.
@@ -103,9 +132,26 @@ pub struct Subject {
     pub options: Vec<String>,
     /// The trials.
     pub trials: Vec<Trial>,
+    /// Names of the table's other columns, kept as per-trial covariates (shared by all
+    /// subjects of a table).
+    pub covariates: std::sync::Arc<[String]>,
 }
 
 impl Subject {
+    /// Where the column called `name` is, for covariates: `run`, `trial` or another column of
+    /// the table; `None` when the table has no such column.
+    pub fn covariate_column(&self, name: &str) -> Option<CovariateColumn> {
+        match name {
+            "run" => Some(CovariateColumn::Run),
+            "trial" => Some(CovariateColumn::Trial),
+            _ => self
+                .covariates
+                .iter()
+                .position(|c| c == name)
+                .map(CovariateColumn::Extra),
+        }
+    }
+
     /// Response times of the trials with a response.
     pub fn response_times(&self) -> impl Iterator<Item = f64> + '_ {
         self.trials.iter().filter_map(|t| t.rt)

@@ -695,16 +695,21 @@ fn read_parquet(path: &Path, columns: &ColumnMap) -> Result<(TrialTable, ReadNot
     let mut series = Vec::with_capacity(frame.width());
     for column in frame.columns() {
         let s = column.as_materialized_series();
-        if !used.contains(&column.name().trim()) {
-            // Columns this reader does not use may hold any type.
+        let dtype = s.dtype();
+        let scalar = dtype.is_integer()
+            || dtype.is_float()
+            || dtype == &DataType::String
+            || dtype == &DataType::Boolean;
+        if !used.contains(&column.name().trim()) && !scalar {
+            // Other columns may hold any type; those that are not numbers or text cannot be
+            // covariates and are left out.
             series.push(Series::full_null(
                 column.name().clone(),
                 s.len(),
-                &DataType::String,
+                &DataType::Null,
             ));
             continue;
         }
-        let dtype = s.dtype();
         let converted = if dtype.is_integer() {
             s.strict_cast(&DataType::Int64)
         } else if dtype.is_float() {
@@ -832,6 +837,20 @@ fn build(
         .map(|(c, _)| c.to_string())
         .collect();
 
+    // Every other named column of numbers or text is kept as a per-trial covariate, cells as
+    // written (columns of other types, such as lists in a Parquet file, cannot be covariates).
+    let extra: Vec<usize> = (0..header.len())
+        .filter(|&i| {
+            let s = &series[i];
+            !index.contains(&Some(i))
+                && !header[i].trim().is_empty()
+                && (s.i64().is_ok() || s.f64().is_ok() || s.str().is_ok())
+        })
+        .collect();
+    let covariate_names: std::sync::Arc<[String]> =
+        extra.iter().map(|&i| header[i].clone()).collect();
+    let extra_views: Vec<Values<'_>> = extra.iter().map(|&i| values_of(&series[i])).collect();
+
     let reader = RowReader {
         path,
         columns,
@@ -890,6 +909,7 @@ fn build(
                     vec!["a".to_string(), "b".to_string()]
                 },
                 trials: Vec::new(),
+                covariates: covariate_names.clone(),
             });
         }
         let Some(subject) = subjects.last_mut() else {
@@ -1033,6 +1053,17 @@ fn build(
             outcome_onset,
             outcome_if_a,
             outcome_if_b,
+            covariates: extra_views
+                .iter()
+                .map(|v| {
+                    let cell = v.cell(row);
+                    if columns.reads_as_missing(cell) {
+                        None
+                    } else {
+                        cell.text().map(Cow::into_owned)
+                    }
+                })
+                .collect(),
         });
     }
 

@@ -158,7 +158,9 @@ pub fn fit_group(
     }
     let likelihoods: Vec<SubjectLikelihood<'_>> = subjects
         .iter()
-        .map(|(_, s)| SubjectLikelihood::new(model, s, options.deadline))
+        .map(|(_, s)| {
+            SubjectLikelihood::new(model, s, options.deadline).map(|l| l.with_lock(options.lock))
+        })
         .collect::<Result<_, _>>()?;
     let k = model.free_slots().len();
     let mut modes: Vec<Vec<f64>> = initial

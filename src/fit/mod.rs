@@ -43,6 +43,8 @@ pub struct FitOptions {
     pub max_iterations: u64,
     /// Response deadline in seconds (trials without response then enter the likelihood).
     pub deadline: Option<f64>,
+    /// Response lock in seconds from offer onset (no response possible before it).
+    pub lock: Option<f64>,
 }
 
 impl Default for FitOptions {
@@ -52,6 +54,7 @@ impl Default for FitOptions {
             seed: 1,
             max_iterations: 400,
             deadline: None,
+            lock: None,
         }
     }
 }
@@ -189,7 +192,7 @@ pub fn fit_table(
         jobs.par_iter()
             .map(|&(model, subject)| {
                 let outcome = SubjectLikelihood::new(model, subject, options.deadline)
-                    .map(|lik| fit_subject(&lik, options))
+                    .map(|lik| fit_subject(&lik.with_lock(options.lock), options))
                     .map_err(|reason| Skipped {
                         model: model.name.clone(),
                         reason,

@@ -9,8 +9,10 @@
 //! feedback r, Q(chosen) ← rule(Q(chosen), r) and, with forgetting, every other option
 //! Q ← Q + forget_rate·(initial_value − Q).
 
+mod design;
 mod group_prior;
 
+pub use design::TrialParameters;
 pub use group_prior::GroupPrior;
 
 use crate::data::{Choice, Subject, Trial};
@@ -60,6 +62,9 @@ pub struct TrialTrace {
     pub probability_a: f64,
     /// Expected decision time and response time, where the model has time.
     pub expected_times: Option<(f64, f64)>,
+    /// The components' parameters on this trial (in the order of
+    /// [`Model::component_parameters`]) when some vary over trials; empty otherwise.
+    pub parameters: Vec<f64>,
 }
 
 /// One subject's data bound to one model.
@@ -74,6 +79,10 @@ pub struct SubjectLikelihood<'a> {
     transforms: Vec<Transform>,
     /// A Gaussian prior on θ that replaces the declared priors (empirical Bayes).
     group_prior: Option<GroupPrior>,
+    /// Levels and covariates of the parameters that vary over trials.
+    design: TrialParameters,
+    /// Transform of every model parameter by slot (free ones as in `transforms`).
+    slot_transforms: Vec<Transform>,
 }
 
 /// Upper limit of ndt relative to the fastest response: the density is zero below ndt.
@@ -121,22 +130,35 @@ impl<'a> SubjectLikelihood<'a> {
             rt_min: if rt_min.is_finite() { rt_min } else { 0.0 },
             rt_max: if rt_max.is_finite() { rt_max } else { 1.0 },
             deadline,
+            lock: None,
         };
+        let design = TrialParameters::bind(model, subject)?;
         let free = model.free_slots();
         let mut transforms = Vec::with_capacity(free.len());
+        let mut slot_transforms: Vec<Transform> =
+            model.parameters.iter().map(|p| p.transform()).collect();
         for &slot in &free {
             let spec = &model.parameters[slot];
             let mut upper = spec.upper;
-            if spec.name == "ndt" && model.uses_response_times() {
-                upper = upper.min(NDT_BELOW_FASTEST * context.rt_min);
+            if model.component_parameter_of(slot) == "ndt" && model.uses_response_times() {
+                // Below the fastest response of the trials that use this ndt (all trials, or
+                // those of its level when ndt differs by condition).
+                let fastest = ndt_trials(model, subject, &design, slot)
+                    .filter_map(|t| t.rt)
+                    .fold(f64::INFINITY, f64::min);
+                if fastest.is_finite() {
+                    upper = upper.min(NDT_BELOW_FASTEST * fastest);
+                }
                 if upper <= spec.lower {
                     return Err(mismatch(format!(
-                        "the fastest response ({rt_min} s) is not above the lower bound of ndt ({})",
-                        spec.lower
+                        "the fastest response ({fastest} s) is not above the lower bound of {} ({})",
+                        spec.name, spec.lower
                     )));
                 }
             }
-            transforms.push(Transform::from_bounds(spec.lower, upper));
+            let transform = Transform::from_bounds(spec.lower, upper);
+            slot_transforms[slot] = transform;
+            transforms.push(transform);
         }
         Ok(SubjectLikelihood {
             model,
@@ -145,6 +167,8 @@ impl<'a> SubjectLikelihood<'a> {
             free,
             transforms,
             group_prior: None,
+            design,
+            slot_transforms,
         })
     }
 
@@ -152,6 +176,14 @@ impl<'a> SubjectLikelihood<'a> {
     pub fn with_group_prior(mut self, prior: GroupPrior) -> Self {
         assert_eq!(prior.dimension(), self.free.len());
         self.group_prior = Some(prior);
+        self
+    }
+
+    /// The same likelihood with a response lock (seconds from offer onset) before which no
+    /// response can be given: each trial then scores the process conditioned on no bound before
+    /// the lock (see the diffusion choice stage).
+    pub fn with_lock(mut self, lock: Option<f64>) -> Self {
+        self.context.lock = lock;
         self
     }
 
@@ -227,24 +259,33 @@ impl<'a> SubjectLikelihood<'a> {
     }
 
     fn natural_duals(&self, theta: &[f64]) -> Vec<D> {
+        self.duals(theta).0
+    }
+
+    /// Natural values and unconstrained values (θ) of every model parameter by slot, as dual
+    /// numbers carrying ∂/∂θ of the free parameters (fixed ones are constants; their θ is
+    /// never used).
+    fn duals(&self, theta: &[f64]) -> (Vec<D>, Vec<D>) {
         let mut values: Vec<D> = self
             .model
             .parameters
             .iter()
             .map(|p| constant(p.fixed.unwrap_or(f64::NAN)))
             .collect();
+        let mut thetas = vec![constant(f64::NAN); values.len()];
         for (j, (&slot, transform)) in self.free.iter().zip(&self.transforms).enumerate() {
-            values[slot] = transform.to_natural(D::from_re(theta[j]).derivative(j));
+            thetas[slot] = D::from_re(theta[j]).derivative(j);
+            values[slot] = transform.to_natural(thetas[slot]);
         }
-        values
+        (values, thetas)
     }
 
     /// ln L + ln prior and its gradient at θ. The prior is the group prior on θ when one is
     /// set, else the product of the declared priors on the natural scale.
     pub fn evaluate(&self, theta: &[f64]) -> Evaluation {
         assert!(theta.len() == self.free.len() && self.free.len() <= MAX_FREE);
-        let p = self.natural_duals(theta);
-        let ln_l = self.run(&p, |_, _| {});
+        let (p, thetas) = self.duals(theta);
+        let ln_l = self.run(&p, &thetas, |_, _| {});
         if let Some(prior) = &self.group_prior {
             let (ln_prior, slope) = prior.ln_density_with_gradient(theta);
             return Evaluation {
@@ -279,48 +320,117 @@ impl<'a> SubjectLikelihood<'a> {
     /// [`SubjectLikelihood::natural`]).
     pub fn trace(&self, natural: &[f64]) -> Vec<TrialTrace> {
         let p: Vec<D> = natural.iter().map(|&x| constant(x)).collect();
+        let thetas: Vec<D> = natural
+            .iter()
+            .zip(&self.slot_transforms)
+            .map(|(&x, g)| constant(g.unconstrained(x)))
+            .collect();
         let mut out = Vec::with_capacity(self.subject.trials.len());
-        self.run(&p, |trace, _| out.push(trace));
+        self.run(&p, &thetas, |trace, _| out.push(trace));
         out
     }
 
-    /// Runs the recursion; `visit` sees every trial's quantities (with its index).
-    fn run(&self, p: &[D], mut visit: impl FnMut(TrialTrace, usize)) -> D {
+    /// Runs the recursion; `visit` sees every trial's quantities (with its index). `p` and
+    /// `thetas` hold every model parameter by slot, on the natural and the unconstrained scale.
+    fn run(&self, p: &[D], thetas: &[D], mut visit: impl FnMut(TrialTrace, usize)) -> D {
         let model = self.model;
-        let mut values = Values::new(model, p, self.subject.options.len());
-        let prepared = model.choice.prepare(p, self.context);
         let mut total = constant(0.0);
+        if !model.varies() {
+            // Every parameter is the same on every trial: the components' parameters are the
+            // model's, and the choice stage is prepared once.
+            let mut values = Values::new(model, p, self.subject.options.len());
+            let prepared = model.choice.prepare(p, self.context);
+            for (index, trial) in self.subject.trials.iter().enumerate() {
+                let (ln_trial, trace) = self.step(trial, p, prepared.as_ref(), &mut values, false);
+                if let Some(l) = ln_trial {
+                    total += l;
+                }
+                visit(trace, index);
+            }
+            return total;
+        }
+        let mut trial_p = Vec::with_capacity(model.sources.len());
+        let mut values: Option<Values> = None;
         for (index, trial) in self.subject.trials.iter().enumerate() {
-            let step = values.offer(model, trial, p);
-            let observation = Observation {
-                choice: trial.choice,
-                rt: trial.rt,
-            };
-            let ln_trial = prepared.ln_likelihood(step.signal, &observation);
+            self.design
+                .values_into(model, index, p, thetas, &self.slot_transforms, &mut trial_p);
+            let values = values
+                .get_or_insert_with(|| Values::new(model, &trial_p, self.subject.options.len()));
+            let prepared = model.choice.prepare(&trial_p, self.context);
+            let (ln_trial, trace) = self.step(trial, &trial_p, prepared.as_ref(), values, true);
             if let Some(l) = ln_trial {
                 total += l;
             }
-            let prediction_error = match (trial.choice, trial.outcome) {
-                (Some(choice), Some(r)) => values.learn(model, trial, choice, r, p),
-                _ => None,
-            };
-            visit(
-                TrialTrace {
-                    value_a: step.q_a.re,
-                    value_b: step.q_b.re,
-                    subjective_value_a: step.sv_a.re,
-                    subjective_value_b: step.sv_b.re,
-                    signal: step.signal.re,
-                    prediction_error,
-                    ln_likelihood: ln_trial.map(|l| l.re),
-                    probability_a: prepared.probability_a(step.signal.re),
-                    expected_times: prepared.expected_times(step.signal.re),
-                },
-                index,
-            );
+            visit(trace, index);
         }
         total
     }
+
+    /// Scores one trial with the components' parameters `p` and learns from its outcome;
+    /// `record_parameters` keeps `p` in the trace (for models whose parameters vary).
+    fn step(
+        &self,
+        trial: &Trial,
+        p: &[D],
+        prepared: &dyn crate::model::components::PreparedChoice,
+        values: &mut Values,
+        record_parameters: bool,
+    ) -> (Option<D>, TrialTrace) {
+        let model = self.model;
+        let step = values.offer(model, trial, p);
+        let observation = Observation {
+            choice: trial.choice,
+            rt: trial.rt,
+        };
+        let ln_trial = prepared.ln_likelihood(step.signal, &observation);
+        let prediction_error = match (trial.choice, trial.outcome) {
+            (Some(choice), Some(r)) => values.learn(model, trial, choice, r, p),
+            _ => None,
+        };
+        let trace = TrialTrace {
+            value_a: step.q_a.re,
+            value_b: step.q_b.re,
+            subjective_value_a: step.sv_a.re,
+            subjective_value_b: step.sv_b.re,
+            signal: step.signal.re,
+            prediction_error,
+            ln_likelihood: ln_trial.map(|l| l.re),
+            probability_a: prepared.probability_a(step.signal.re),
+            expected_times: prepared.expected_times(step.signal.re),
+            parameters: if record_parameters {
+                p.iter().map(|x| x.re).collect()
+            } else {
+                Vec::new()
+            },
+        };
+        (ln_trial, trace)
+    }
+}
+
+/// The trials whose ndt is the model parameter in `slot`: every trial, or those of its level.
+fn ndt_trials<'s>(
+    model: &Model,
+    subject: &'s Subject,
+    design: &TrialParameters,
+    slot: usize,
+) -> impl Iterator<Item = &'s Trial> {
+    let k = model
+        .component_parameters
+        .iter()
+        .position(|c| c == "ndt")
+        .unwrap_or(0);
+    // Index of ndt among the varying parameters, if it varies.
+    let varying_index = model.sources[..k]
+        .iter()
+        .filter(|s| matches!(s, crate::model::varying::Source::Varying(_)))
+        .count();
+    let varies = matches!(model.sources[k], crate::model::varying::Source::Varying(_));
+    subject
+        .trials
+        .iter()
+        .enumerate()
+        .filter(move |(t, _)| !varies || design.levels_of(*t)[varying_index] == slot)
+        .map(|(_, trial)| trial)
 }
 
 /// What the model computes for one trial's offer, before its outcome.

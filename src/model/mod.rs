@@ -9,6 +9,7 @@ pub mod dual;
 pub mod params;
 mod registry;
 mod spec;
+pub mod varying;
 
 pub use params::{ParameterSpec, Prior, Transform};
 pub use registry::{built_in_models, load_model};
@@ -30,8 +31,14 @@ pub struct Model {
     pub component_names: [&'static str; 4],
     /// Equations of the four components with their sources.
     pub equations: [&'static str; 4],
-    /// Every parameter: declared ones in file order, then defaults the components need.
+    /// Every estimated (or fixed) parameter: declared ones in file order, a parameter that
+    /// varies over trials replaced by its levels and slopes ([`varying`]), then defaults the
+    /// components need.
     pub parameters: Vec<ParameterSpec>,
+    /// The parameters the components use, by name, in the order of their slots.
+    pub component_parameters: Vec<String>,
+    /// Where each component parameter's value comes from on a trial.
+    pub(crate) sources: Vec<varying::Source>,
     pub(crate) learning: Box<dyn LearningRule>,
     pub(crate) cost: Box<dyn CostShape>,
     pub(crate) drift: Option<Box<dyn DriftMapping>>,
@@ -66,6 +73,30 @@ impl Model {
     /// True when values are learned from outcomes (false: offered magnitudes).
     pub fn learns(&self) -> bool {
         self.learning.learns()
+    }
+
+    /// True when some parameter varies over trials (by condition or with covariates).
+    pub fn varies(&self) -> bool {
+        self.sources
+            .iter()
+            .any(|s| matches!(s, varying::Source::Varying(_)))
+    }
+
+    /// The component parameter (as named in [`Model::component_parameters`]) that the model
+    /// parameter in `slot` belongs to: itself, or the parameter whose level or slope it is.
+    pub fn component_parameter_of(&self, slot: usize) -> &str {
+        let k = self
+            .sources
+            .iter()
+            .position(|s| match s {
+                varying::Source::Constant(c) => *c == slot,
+                varying::Source::Varying(v) => {
+                    v.levels.iter().any(|(_, s)| *s == slot)
+                        || v.slopes.iter().any(|(_, s)| *s == slot)
+                }
+            })
+            .expect("every model parameter belongs to a component parameter");
+        &self.component_parameters[k]
     }
 
     /// True when response times enter the likelihood.

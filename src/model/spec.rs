@@ -25,6 +25,7 @@ use super::components::{
     CHOICE_STAGES, COST_SHAPES, DRIFT_MAPPINGS, Entry, LEARNING_RULES, Options, find,
 };
 use super::params::{ParameterSpec, Prior};
+use super::varying::{self, VariationSpec};
 use std::collections::BTreeMap;
 
 /// A problem in a model file, naming the file and the key.
@@ -106,7 +107,11 @@ impl Reader<'_> {
         Ok((entry, options))
     }
 
-    fn parameter(&self, name: &str, value: &toml::Value) -> Result<ParameterSpec, ModelError> {
+    fn parameter(
+        &self,
+        name: &str,
+        value: &toml::Value,
+    ) -> Result<(ParameterSpec, Option<VariationSpec>), ModelError> {
         let prefix = format!("parameters.{name}");
         let toml::Value::Table(t) = value else {
             return Err(self.error(
@@ -114,7 +119,17 @@ impl Reader<'_> {
                 "expected a table with lower, upper and start (or fixed)",
             ));
         };
-        const KNOWN: [&str; 6] = ["lower", "upper", "start", "fixed", "prior", "description"];
+        const KNOWN: [&str; 9] = [
+            "lower",
+            "upper",
+            "start",
+            "fixed",
+            "prior",
+            "description",
+            "by",
+            "levels",
+            "slopes",
+        ];
         if let Some(key) = t.keys().find(|k| !KNOWN.contains(&k.as_str())) {
             return Err(self.error(
                 &dotted(&prefix, key),
@@ -131,21 +146,24 @@ impl Reader<'_> {
             if !x.is_finite() {
                 return Err(self.error(&dotted(&prefix, "fixed"), "expected a finite number"));
             }
-            if let Some(key) = ["lower", "upper", "start", "prior"]
+            if let Some(key) = ["lower", "upper", "start", "prior", "by", "levels", "slopes"]
                 .iter()
                 .find(|k| t.contains_key(**k))
             {
                 return Err(self.error(&dotted(&prefix, key), "not allowed with 'fixed'"));
             }
-            return Ok(ParameterSpec {
-                name: name.to_string(),
-                lower: x,
-                upper: x,
-                start_range: (x, x),
-                fixed: Some(x),
-                prior: None,
-                description,
-            });
+            return Ok((
+                ParameterSpec {
+                    name: name.to_string(),
+                    lower: x,
+                    upper: x,
+                    start_range: (x, x),
+                    fixed: Some(x),
+                    prior: None,
+                    description,
+                },
+                None,
+            ));
         }
         let bound = |key: &str| -> Result<f64, ModelError> {
             let v = t.get(key).ok_or_else(|| {
@@ -198,15 +216,20 @@ impl Reader<'_> {
                 Some(prior)
             }
         };
-        Ok(ParameterSpec {
-            name: name.to_string(),
-            lower,
-            upper,
-            start_range: start,
-            fixed: None,
-            prior,
-            description,
-        })
+        let variation = varying::parse(t)
+            .map_err(|(key, message)| self.error(&dotted(&prefix, &key), message))?;
+        Ok((
+            ParameterSpec {
+                name: name.to_string(),
+                lower,
+                upper,
+                start_range: start,
+                fixed: None,
+                prior,
+                description,
+            },
+            variation,
+        ))
     }
 }
 
@@ -301,6 +324,7 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
         }
     }
     let mut parameters = Vec::new();
+    let mut variations = Vec::new();
     for (pname, value) in &declared {
         if !needed.contains(&pname.as_str()) {
             return Err(r.error(
@@ -311,7 +335,9 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
                 ),
             ));
         }
-        parameters.push(r.parameter(pname, value)?);
+        let (spec, variation) = r.parameter(pname, value)?;
+        parameters.push(spec);
+        variations.push(variation);
     }
     for pname in &needed {
         if parameters.iter().any(|p| p.name == *pname) {
@@ -332,16 +358,7 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
             prior: None,
             description: "default".into(),
         });
-    }
-    let n_free = parameters.iter().filter(|p| p.is_free()).count();
-    if n_free > super::dual::MAX_FREE {
-        return Err(r.error(
-            "parameters",
-            format!(
-                "{n_free} free parameters; at most {}",
-                super::dual::MAX_FREE
-            ),
-        ));
+        variations.push(None);
     }
     let slot = |n: &str| {
         parameters
@@ -385,6 +402,36 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
     for non_negative in ["ndt", "drift_sd"] {
         check_range(non_negative, 0.0, f64::INFINITY)?;
     }
+    let forget_slot = (forgetting && learning.name != "none").then(|| slot("forget_rate"));
+    for (spec, variation) in parameters.iter().zip(&variations) {
+        let Some(variation) = variation else { continue };
+        let key = format!("parameters.{}", spec.name);
+        if spec.name == "initial_value" {
+            return Err(r.error(
+                &key,
+                "the initial value is used once, before the first trial; it cannot vary over trials",
+            ));
+        }
+        if spec.name == "ndt" && !variation.slopes.is_empty() {
+            return Err(r.error(
+                &format!("{key}.slopes"),
+                "ndt is kept below each condition's fastest response, which a slope cannot \
+                 guarantee; let ndt differ by a column's levels (`by`) instead",
+            ));
+        }
+    }
+    let component_parameters: Vec<String> = parameters.iter().map(|p| p.name.clone()).collect();
+    let (parameters, sources) = varying::expand(parameters.into_iter().zip(variations).collect());
+    let n_free = parameters.iter().filter(|p| p.is_free()).count();
+    if n_free > super::dual::MAX_FREE {
+        return Err(r.error(
+            "parameters",
+            format!(
+                "{n_free} free parameters (levels and slopes included); at most {}",
+                super::dual::MAX_FREE
+            ),
+        ));
+    }
     Ok(Model {
         name,
         description,
@@ -402,9 +449,13 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
             drift.as_ref().map_or("", |(d, _)| d.equation),
             choice.equation,
         ],
-        forget_slot: (forgetting && learning.name != "none").then(|| slot("forget_rate")),
-        initial_slot: parameters.iter().position(|p| p.name == "initial_value"),
+        forget_slot,
+        initial_slot: component_parameters
+            .iter()
+            .position(|p| p == "initial_value"),
         parameters,
+        component_parameters,
+        sources,
         learning: learning_rule,
         cost: cost_shape,
         drift: drift_mapping,

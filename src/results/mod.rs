@@ -286,12 +286,28 @@ pub fn trials_table(table: &TrialTable) -> Table {
         number(&|t| t.outcome_if_a),
         number(&|t| t.outcome_if_b),
     ];
-    ColumnMap::CANONICAL
+    let canonical = ColumnMap::CANONICAL
         .iter()
         .zip(columns)
         .fold(Table::default(), |table, (name, column)| {
             table.with(name, column)
-        })
+        });
+    // The other columns of the table (per-trial covariates), cells as read.
+    let names = table
+        .subjects
+        .first()
+        .map(|s| s.covariates.clone())
+        .unwrap_or_default();
+    names.iter().enumerate().fold(canonical, |out, (k, name)| {
+        out.with(
+            name,
+            Column::OptionalText(
+                rows.iter()
+                    .map(|(_, t)| t.covariates.get(k).cloned().flatten())
+                    .collect(),
+            ),
+        )
+    })
 }
 
 /// One row per subject and model: fit statistics.

@@ -3,6 +3,18 @@
 //! across-trial drift variability and a lapse mixture in which, with probability `lapse`, a
 //! response is a guess (either option, time uniform over the subject's observed range). A
 //! choice whose time is not used (trimmed) scores the absorption probability of its bound alone.
+//!
+//! # Response windows
+//! With a deadline D, a trial without response scores S(D) = S_a(D) + S_b(D), the probability
+//! that no bound is reached by D, where S_c(t) = P(bound c, T > t) and T = decision time + ndt.
+//! With a lock L (no response possible before L: the buttons unlock then), what is observed
+//! is the process conditioned on not having ended before L. By Bayes' rule, for a response c at
+//! time t ≥ L, f(c, t | T > L) = f(c, t)/S(L); a trial without response scores S(D)/S(L); a
+//! choice without its time scores S_c(L)/S(L), the probability of c among processes still
+//! running at L. When L ≤ ndt, S(L) = 1 and nothing changes. Lapse guesses (uniform over the
+//! observed times, all after the lock) are mixed in after the conditioning. The simulator
+//! matches it by rejection: draws with T < L are redrawn, which yields exactly the conditioned
+//! process (tests/response_window.rs compares the two).
 
 use super::{
     ChoiceStage, Entry, Observation, Options, PreparedChoice, Slots, SubjectContext, only_options,
@@ -10,7 +22,7 @@ use super::{
 use crate::data::Choice;
 use crate::first_passage::{
     Bound, DiffusionParams, ln_bound_probability_with_gradient, ln_density_with_gradient,
-    ln_survival_with_gradient, mean_decision_time, sample,
+    ln_survival, ln_survival_with_gradient, mean_decision_time, sample,
 };
 use crate::model::dual::{D, chain};
 use num_dual::DualNum;
@@ -109,12 +121,42 @@ impl Prepared<'_> {
     }
 }
 
+impl Prepared<'_> {
+    /// ln S_c(t) for a bound, with its gradient.
+    fn ln_survival(&self, t: f64, bound: Bound, params: &DiffusionParams, signal: &D) -> Option<D> {
+        let (ln_s, g) = ln_survival_with_gradient(t, bound, params).ok()?;
+        Some(self.chained(ln_s, g, signal))
+    }
+
+    /// ln S(t) = ln(S_a(t) + S_b(t)), the probability that no bound is reached by time t.
+    fn ln_undecided_by(&self, t: f64, params: &DiffusionParams, signal: &D) -> Option<D> {
+        Some(ln_add_exp(
+            self.ln_survival(t, Bound::Upper, params, signal)?,
+            self.ln_survival(t, Bound::Lower, params, signal)?,
+        ))
+    }
+
+    /// The lock when it is after ndt (so that it conditions the process), else `None`.
+    fn active_lock(&self, params: &DiffusionParams) -> Option<f64> {
+        self.context.lock.filter(|&lock| lock > params.ndt())
+    }
+}
+
 impl PreparedChoice for Prepared<'_> {
     fn ln_likelihood(&self, signal: D, observation: &Observation) -> Option<D> {
         let Some(base) = self.base else {
             return Some(D::from_re(f64::NEG_INFINITY));
         };
         let params = base.with_drift(signal.re);
+        // ln S(lock): what every observation is conditioned on.
+        let ln_window = match self.active_lock(&params) {
+            Some(lock) => Some(self.ln_undecided_by(lock, &params, &signal)?),
+            None => None,
+        };
+        let conditioned = |x: D| match ln_window {
+            Some(w) => x - w,
+            None => x,
+        };
         match (observation.choice, observation.rt) {
             (Some(choice), Some(rt)) => {
                 let bound = match choice {
@@ -122,7 +164,7 @@ impl PreparedChoice for Prepared<'_> {
                     Choice::B => Bound::Lower,
                 };
                 let (ln_f, g) = ln_density_with_gradient(rt, bound, &params).ok()?;
-                let ln_f = self.chained(ln_f, g, &signal);
+                let ln_f = conditioned(self.chained(ln_f, g, &signal));
                 Some(match self.lapse {
                     Some((ln_keep, ln_guess)) => ln_add_exp(ln_keep + ln_f, ln_guess),
                     None => ln_f,
@@ -130,16 +172,7 @@ impl PreparedChoice for Prepared<'_> {
             }
             (None, _) => {
                 let deadline = self.context.deadline?;
-                let mut total: Option<D> = None;
-                for bound in [Bound::Upper, Bound::Lower] {
-                    let (ln_s, g) = ln_survival_with_gradient(deadline, bound, &params).ok()?;
-                    let ln_s = self.chained(ln_s, g, &signal);
-                    total = Some(match total {
-                        Some(t) => ln_add_exp(t, ln_s),
-                        None => ln_s,
-                    });
-                }
-                let total = total?;
+                let total = conditioned(self.ln_undecided_by(deadline, &params, &signal)?);
                 Some(match self.lapse {
                     Some((ln_keep, _)) => ln_keep + total,
                     None => total,
@@ -152,8 +185,13 @@ impl PreparedChoice for Prepared<'_> {
                     Choice::A => Bound::Upper,
                     Choice::B => Bound::Lower,
                 };
-                let (ln_p, g) = ln_bound_probability_with_gradient(bound, &params).ok()?;
-                let ln_p = self.chained(ln_p, g, &signal);
+                let ln_p = match self.active_lock(&params) {
+                    Some(lock) => conditioned(self.ln_survival(lock, bound, &params, &signal)?),
+                    None => {
+                        let (ln_p, g) = ln_bound_probability_with_gradient(bound, &params).ok()?;
+                        self.chained(ln_p, g, &signal)
+                    }
+                };
                 Some(match self.lapse {
                     Some((ln_keep, _)) => {
                         ln_add_exp(ln_keep + ln_p, self.p[self.stage.lapse].ln() + 0.5f64.ln())
@@ -168,7 +206,18 @@ impl PreparedChoice for Prepared<'_> {
         let Some(base) = self.base else {
             return f64::NAN;
         };
-        let p = crate::first_passage::bound_probability(Bound::Upper, &base.with_drift(signal));
+        let params = base.with_drift(signal);
+        let p = match self.active_lock(&params) {
+            // P(a | no bound before the lock) = S_a(L)/S(L).
+            Some(lock) => {
+                let (a, b) = (
+                    ln_survival(lock, Bound::Upper, &params),
+                    ln_survival(lock, Bound::Lower, &params),
+                );
+                1.0 / (1.0 + (b - a).exp())
+            }
+            None => crate::first_passage::bound_probability(Bound::Upper, &params),
+        };
         match self.lapse {
             Some((ln_keep, _)) => ln_keep.re.exp() * p + 0.5 * (1.0 - ln_keep.re.exp()),
             None => p,
@@ -191,13 +240,27 @@ impl PreparedChoice for Prepared<'_> {
             } else {
                 Choice::B
             };
-            let (lo, hi) = (self.context.rt_min, self.context.rt_max);
+            let lo = self.context.rt_min.max(self.context.lock.unwrap_or(0.0));
+            let hi = self.context.rt_max.max(lo);
             return (choice, Some(lo + (hi - lo) * rng.random::<f64>()));
         }
         let Some(base) = self.base else {
             return (Choice::A, None);
         };
-        let (bound, rt) = sample(&base.with_drift(signal), rng);
+        let params = base.with_drift(signal);
+        let (mut bound, mut rt) = sample(&params, rng);
+        if let Some(lock) = self.active_lock(&params) {
+            // Rejection: a draw that ends before the lock is redrawn, which samples the process
+            // conditioned on T > lock exactly. After REDRAWS failures (S(lock) below about
+            // 1e-5) the response is put at the lock.
+            const REDRAWS: usize = 1_000_000;
+            let mut tries = 0;
+            while rt < lock && tries < REDRAWS {
+                (bound, rt) = sample(&params, rng);
+                tries += 1;
+            }
+            rt = rt.max(lock);
+        }
         let choice = match bound {
             Bound::Upper => Choice::A,
             Bound::Lower => Choice::B,

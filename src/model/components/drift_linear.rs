@@ -1,5 +1,7 @@
-//! Linear drift mapping, v = value_scale·(SV_a − SV_b): the drift rate grows with the value
-//! difference (Fontanesi, Gluth, Spektor & Rieskamp 2019).
+//! Linear drift mapping, v = drift_intercept + value_scale·(SV_a − SV_b): the drift rate grows
+//! with the value difference (Fontanesi, Gluth, Spektor & Rieskamp 2019); the intercept (default
+//! 0) is a drift towards option a whatever the values, as in the drift bias of the diffusion
+//! model (Ratcliff & McKoon 2008).
 
 use super::{DriftMapping, Entry, Options, Slots, only_options};
 use crate::model::dual::D;
@@ -7,25 +9,27 @@ use crate::model::dual::D;
 /// The table entry.
 pub const ENTRY: Entry<dyn DriftMapping> = Entry {
     name: "linear",
-    parameters: &["value_scale"],
-    defaults: &[],
-    equation: "drift = value_scale·(SV_a − SV_b)  (Fontanesi et al. 2019)",
+    parameters: &["value_scale", "drift_intercept"],
+    defaults: &[("drift_intercept", 0.0)],
+    equation: "drift = drift_intercept + value_scale·(SV_a − SV_b)  (Fontanesi et al. 2019)",
     build,
 };
 
 struct Linear {
     scale: usize,
+    intercept: usize,
 }
 
 fn build(options: &Options, slots: Slots<'_>) -> Result<Box<dyn DriftMapping>, String> {
     only_options(options, &[])?;
     Ok(Box::new(Linear {
         scale: slots("value_scale"),
+        intercept: slots("drift_intercept"),
     }))
 }
 
 impl DriftMapping for Linear {
     fn drift(&self, value_difference: D, p: &[D]) -> D {
-        p[self.scale] * value_difference
+        p[self.intercept] + p[self.scale] * value_difference
     }
 }

@@ -89,6 +89,9 @@ pub struct SubjectContext {
     /// Response deadline in seconds: a trial without response then contributes the probability
     /// that no bound is reached by the deadline.
     pub deadline: Option<f64>,
+    /// Response lock in seconds from offer onset: no response can be given earlier (buttons
+    /// unlock then), so what is observed is the process conditioned on no bound before it.
+    pub lock: Option<f64>,
 }
 
 /// Turns a decision signal (the drift rate for stages that use a drift mapping, otherwise the

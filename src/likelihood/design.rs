@@ -1,0 +1,206 @@
+//! A model's varying parameters bound to one subject's trials: for every trial, the level
+//! intercept each varying parameter takes and the covariate values its slopes multiply
+//! (the equation is in [`crate::model::varying`]).
+
+use super::DataMismatch;
+use crate::data::{CovariateColumn, Subject};
+use crate::model::dual::{D, constant};
+use crate::model::varying::{Source, Variation};
+use crate::model::{Model, Transform};
+
+/// Per trial, where each varying parameter's value comes from.
+#[derive(Clone, Debug, Default)]
+pub struct TrialParameters {
+    /// Number of varying component parameters.
+    n_varying: usize,
+    /// Number of slopes over all varying parameters.
+    n_slopes: usize,
+    /// Per trial and varying parameter: the model slot of the trial's level intercept.
+    level_slots: Vec<usize>,
+    /// Per trial and slope: the trial's covariate value.
+    covariates: Vec<f64>,
+}
+
+impl TrialParameters {
+    /// Binds the model's varying parameters to the subject's columns; a trial whose condition
+    /// is not among the declared levels, or whose covariate is missing or not a number, is an
+    /// error naming the trial and the column.
+    pub fn bind(model: &Model, subject: &Subject) -> Result<Self, DataMismatch> {
+        let mismatch = |message: String| DataMismatch {
+            subject: subject.id.clone(),
+            message,
+        };
+        let variations: Vec<(&str, &Variation)> = model
+            .sources
+            .iter()
+            .zip(&model.component_parameters)
+            .filter_map(|(source, name)| match source {
+                Source::Varying(v) => Some((name.as_str(), v)),
+                Source::Constant(_) => None,
+            })
+            .collect();
+        let column = |name: &str, parameter: &str| {
+            subject.covariate_column(name).ok_or_else(|| {
+                mismatch(format!(
+                    "{parameter} of model {} varies with column `{name}`, which the trial table \
+                     does not have (its other columns: {})",
+                    model.name,
+                    if subject.covariates.is_empty() {
+                        "none".to_string()
+                    } else {
+                        subject.covariates.join(", ")
+                    }
+                ))
+            })
+        };
+        let mut by_columns: Vec<Option<CovariateColumn>> = Vec::new();
+        let mut slope_columns: Vec<CovariateColumn> = Vec::new();
+        for (name, v) in &variations {
+            by_columns.push(match &v.column {
+                Some(c) => Some(column(c, name)?),
+                None => None,
+            });
+            for (c, _) in &v.slopes {
+                slope_columns.push(column(c, name)?);
+            }
+        }
+        let n_trials = subject.trials.len();
+        let mut level_slots = Vec::with_capacity(n_trials * variations.len());
+        let mut covariates = Vec::with_capacity(n_trials * slope_columns.len());
+        for trial in &subject.trials {
+            let at = if trial.run.is_empty() {
+                format!("trial {}", trial.trial)
+            } else {
+                format!("trial {} of run {:?}", trial.trial, trial.run)
+            };
+            for ((name, v), by) in variations.iter().zip(&by_columns) {
+                let slot = match (by, &v.column) {
+                    (Some(col), Some(cname)) => {
+                        let cell = trial.covariate(*col).ok_or_else(|| {
+                            mismatch(format!(
+                                "{at}: column `{cname}` is empty; expected one of the levels of \
+                                 {name} ({})",
+                                level_list(v)
+                            ))
+                        })?;
+                        let cell = cell.trim();
+                        v.levels
+                            .iter()
+                            .find(|(level, _)| same_level(level, cell))
+                            .map(|(_, slot)| *slot)
+                            .ok_or_else(|| {
+                                mismatch(format!(
+                                    "{at}: column `{cname}` is {cell:?}, which is not a level of \
+                                     {name} in model {} (expected one of: {}); add it to the \
+                                     parameter's `levels`",
+                                    model.name,
+                                    level_list(v)
+                                ))
+                            })?
+                    }
+                    _ => v.levels[0].1,
+                };
+                level_slots.push(slot);
+            }
+            let mut k = 0;
+            for (name, v) in &variations {
+                for (cname, _) in &v.slopes {
+                    let cell = trial.covariate(slope_columns[k]);
+                    let x = cell
+                        .as_deref()
+                        .map(str::trim)
+                        .and_then(|s| s.parse::<f64>().ok())
+                        .filter(|x| x.is_finite())
+                        .ok_or_else(|| {
+                            mismatch(format!(
+                                "{at}: column `{cname}` is {}; expected a finite number (the \
+                                 covariate of {name}'s slope)",
+                                cell.as_deref()
+                                    .map_or("empty".to_string(), |s| format!("{s:?}"))
+                            ))
+                        })?;
+                    covariates.push(x);
+                    k += 1;
+                }
+            }
+        }
+        Ok(TrialParameters {
+            n_varying: variations.len(),
+            n_slopes: slope_columns.len(),
+            level_slots,
+            covariates,
+        })
+    }
+
+    /// The model slots of the level intercepts used on trial `t`, one per varying parameter.
+    pub fn levels_of(&self, t: usize) -> &[usize] {
+        &self.level_slots[t * self.n_varying..(t + 1) * self.n_varying]
+    }
+
+    /// The component parameters on trial `t` (in the order of
+    /// [`Model::component_parameters`]), written into `out`: a constant parameter's value from
+    /// `natural`; a varying one as g(θ_level + Σ β_j·c_j) with g the transform of its level's
+    /// slot, θ and β from `theta` (by model slot).
+    pub(crate) fn values_into(
+        &self,
+        model: &Model,
+        t: usize,
+        natural: &[D],
+        theta: &[D],
+        transforms: &[Transform],
+        out: &mut Vec<D>,
+    ) {
+        out.clear();
+        let levels = self.levels_of(t);
+        let xs = &self.covariates[t * self.n_slopes..(t + 1) * self.n_slopes];
+        let (mut v, mut k) = (0, 0);
+        for source in &model.sources {
+            match source {
+                Source::Constant(slot) => out.push(natural[*slot]),
+                Source::Varying(variation) => {
+                    let slot = levels[v];
+                    v += 1;
+                    if variation.slopes.is_empty() {
+                        out.push(natural[slot]);
+                    } else {
+                        let mut linear = theta[slot];
+                        for (_, slope) in &variation.slopes {
+                            linear += theta[*slope] * xs[k];
+                            k += 1;
+                        }
+                        out.push(transforms[slot].to_natural(linear));
+                    }
+                }
+            }
+        }
+    }
+
+    /// The component parameters on trial `t` from natural values of every model parameter
+    /// (for simulation and checks), slopes applied on the scale of the declared bounds.
+    pub fn natural_values(&self, model: &Model, t: usize, natural: &[f64]) -> Vec<D> {
+        let transforms: Vec<Transform> = model.parameters.iter().map(|p| p.transform()).collect();
+        let theta: Vec<D> = natural
+            .iter()
+            .zip(&transforms)
+            .map(|(&x, g)| constant(g.unconstrained(x)))
+            .collect();
+        let duals: Vec<D> = natural.iter().map(|&x| constant(x)).collect();
+        let mut out = Vec::with_capacity(model.sources.len());
+        self.values_into(model, t, &duals, &theta, &transforms, &mut out);
+        out
+    }
+}
+
+/// A level as written in the model matches a cell as written in the table, or as the same
+/// number (so that level "1" matches a cell 1.0 from a Parquet file).
+fn same_level(level: &str, cell: &str) -> bool {
+    level == cell || matches!((level.parse::<f64>(), cell.parse::<f64>()), (Ok(a), Ok(b)) if a == b)
+}
+
+fn level_list(v: &Variation) -> String {
+    v.levels
+        .iter()
+        .map(|(l, _)| l.as_str())
+        .collect::<Vec<_>>()
+        .join(", ")
+}
