@@ -6,7 +6,7 @@
 //! sampler; a response later than the deadline (if given) is recorded as no response.
 
 use crate::data::{Choice, Subject, Trial};
-use crate::likelihood::{DataMismatch, TrialParameters, Values};
+use crate::likelihood::{DataMismatch, TrialColumns, Values};
 use crate::model::Model;
 use crate::model::components::{PreparedChoice, SubjectContext};
 use crate::model::dual::{D, constant};
@@ -52,7 +52,7 @@ pub fn simulate_subject(
         deadline: settings.deadline,
         lock: settings.lock,
     };
-    let per_trial = TrialParameters::bind(model, design)?;
+    let per_trial = TrialColumns::bind(model, design)?;
     let constant_p: Vec<D> = natural.iter().map(|&x| constant(x)).collect();
     let mut values: Option<Values> = None;
     let mut trials = Vec::with_capacity(design.trials.len());
@@ -65,7 +65,7 @@ pub fn simulate_subject(
         let values =
             values.get_or_insert_with(|| Values::new(model, &trial_p, design.options.len()));
         let prepared = model.choice.prepare(&trial_p, context);
-        let offer = values.offer(model, trial, &trial_p);
+        let offer = values.offer(model, trial, &trial_p, per_trial.attribute_values(t));
         let (choice, rt) = draw_trial(prepared.as_ref(), offer.signal.re, settings.deadline, rng);
         let outcome = choice.and_then(|c| match c {
             Choice::A => trial.outcome_if_a,

@@ -487,3 +487,67 @@ fn a_boundary_difference_and_a_value_scale_slope_are_recovered() {
         "coverage {coverage:.3} of {intervals} intervals"
     );
 }
+
+/// Two cost attributes: effort (linear, effort_weight) then delay (hyperbolic, delay_weight),
+/// choices by softmax.
+const TWO_COSTS: &str = r#"
+name = "two-costs"
+[learning]
+rule = "none"
+[cost.effort]
+shape = "linear"
+[cost.delay]
+shape = "hyperbolic"
+[choice]
+stage = "softmax"
+[parameters.effort_weight]
+lower = 0.0
+upper = 10.0
+start = [0.1, 2.0]
+[parameters.delay_weight]
+lower = 0.0
+upper = 10.0
+start = [0.1, 2.0]
+[parameters.inverse_temperature]
+lower = 0.0
+upper = 20.0
+start = [0.5, 5.0]
+"#;
+
+#[test]
+fn two_cost_attributes_apply_in_order_with_their_own_weights() {
+    // By hand (checked with Python's math module): effort weight 0.5, delay weight 0.25,
+    // inverse temperature 1.5; SV = (R − 0.5·E)/(1 + 0.25·D).
+    // Trial 1: SV_a = (4 − 0.5)/(1 + 0.5) = 2.3333…, SV_b = 2; chose a:
+    //   ln σ(1.5·0.3333…) = −0.47407698418010646.
+    // Trial 2: SV_a = (3 − 1)/(1 + 1) = 1, SV_b = 3/1.25 = 2.4; chose b:
+    //   ln(1 − σ(1.5·(−1.4))) = −0.11551952317975495.
+    let subject = subject_from_csv(
+        "subject,trial,effort_a,effort_b,reward_a,reward_b,delay_a,delay_b,choice,rt\n\
+         s1,1,1,0,4,2,2,0,a,0.8\n\
+         s1,2,2,0,3,3,4,1,b,0.9\n",
+    );
+    let model = parse_model(TWO_COSTS, "two-costs.toml").unwrap();
+    let names: Vec<&str> = model.parameters.iter().map(|p| p.name.as_str()).collect();
+    assert!(names.starts_with(&["effort_weight", "delay_weight", "inverse_temperature"]));
+    let lik = SubjectLikelihood::new(&model, &subject, None).unwrap();
+    let theta = lik.unconstrained(&[0.5, 0.25, 1.5]);
+    let got = lik.evaluate(&theta).ln_likelihood;
+    let expected = -0.47407698418010646 - 0.11551952317975495;
+    assert!((got - expected).abs() < 1e-12, "{got} vs {expected}");
+    assert_gradient(&lik, &theta, "two cost attributes");
+
+    // A table without the attribute's columns is refused, naming them.
+    let without = subject_from_csv(
+        "subject,trial,effort_a,effort_b,reward_a,reward_b,choice,rt\ns1,1,1,0,4,2,a,0.8\n",
+    );
+    let err = SubjectLikelihood::new(&model, &without, None)
+        .err()
+        .unwrap()
+        .to_string();
+    // source: common practice (the error names the missing column and what was expected).
+    assert!(
+        err.contains("`delay_a`") && err.contains("delay_b"),
+        "{err}"
+    );
+}

@@ -136,7 +136,10 @@ pub fn check_lock(lock: Option<f64>, deadline: Option<f64>) -> Result<Option<f64
 pub fn model_needs(model: &Model) -> ModelNeeds {
     ModelNeeds {
         name: model.name.clone(),
-        weights_effort: model.component_names[1] != "none",
+        weights_effort: model
+            .costs
+            .iter()
+            .any(|c| c.is_effort() && c.shape_name != "none"),
         uses_offered_values: !model.learns(),
         uses_response_times: model.uses_response_times(),
         free_parameters: model.free_slots().len(),

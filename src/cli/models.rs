@@ -9,8 +9,14 @@ fn describe(model: &Model) {
     }
     let kinds = ["learning", "cost", "drift", "choice"];
     for ((kind, name), equation) in kinds.iter().zip(model.component_names).zip(model.equations) {
-        if name != "-" {
-            println!("  {kind:<9} {name:<12} {equation}");
+        if kind == &"cost" {
+            // Every cost attribute, in the order applied.
+            for cost in &model.costs {
+                let label = format!("{} ({})", cost.shape_name, cost.name);
+                println!("  {kind:<9} {label:<20} {}", cost.equation);
+            }
+        } else if name != "-" {
+            println!("  {kind:<9} {name:<20} {equation}");
         }
     }
     for p in &model.parameters {

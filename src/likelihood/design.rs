@@ -1,6 +1,7 @@
-//! A model's varying parameters bound to one subject's trials: for every trial, the level
-//! intercept each varying parameter takes and the covariate values its slopes multiply
-//! (the equation is in [`crate::model::varying`]).
+//! What a model reads from a subject's other columns, bound once per subject: for every trial,
+//! the level intercept each varying parameter takes and the covariate values its slopes multiply
+//! (the equation is in [`crate::model::varying`]), and the values of cost attributes other than
+//! effort (columns `<attribute>_a`, `<attribute>_b`).
 
 use super::DataMismatch;
 use crate::data::{CovariateColumn, Subject};
@@ -8,9 +9,13 @@ use crate::model::dual::{D, constant};
 use crate::model::varying::{Source, Variation};
 use crate::model::{Model, Transform};
 
-/// Per trial, where each varying parameter's value comes from.
+/// Per trial, where each varying parameter's value comes from, and the extra cost attributes.
 #[derive(Clone, Debug, Default)]
-pub struct TrialParameters {
+pub struct TrialColumns {
+    /// Values per trial of the cost attributes other than effort: (a, b) per attribute.
+    attribute_values: Vec<f64>,
+    /// Number of those values per trial (2 per attribute).
+    n_attribute_values: usize,
     /// Number of varying component parameters.
     n_varying: usize,
     /// Number of slopes over all varying parameters.
@@ -21,7 +26,7 @@ pub struct TrialParameters {
     covariates: Vec<f64>,
 }
 
-impl TrialParameters {
+impl TrialColumns {
     /// Binds the model's varying parameters to the subject's columns; a trial whose condition
     /// is not among the declared levels, or whose covariate is missing or not a number, is an
     /// error naming the trial and the column.
@@ -124,12 +129,21 @@ impl TrialParameters {
                 }
             }
         }
-        Ok(TrialParameters {
+        let (attribute_values, n_attribute_values) = bind_cost_attributes(model, subject)?;
+        Ok(TrialColumns {
+            attribute_values,
+            n_attribute_values,
             n_varying: variations.len(),
             n_slopes: slope_columns.len(),
             level_slots,
             covariates,
         })
+    }
+
+    /// The values on trial `t` of the cost attributes other than effort, in the model's order:
+    /// (a, b) for each.
+    pub fn attribute_values(&self, t: usize) -> &[f64] {
+        &self.attribute_values[t * self.n_attribute_values..(t + 1) * self.n_attribute_values]
     }
 
     /// The model slots of the level intercepts used on trial `t`, one per varying parameter.
@@ -189,6 +203,57 @@ impl TrialParameters {
         self.values_into(model, t, &duals, &theta, &transforms, &mut out);
         out
     }
+}
+
+/// Reads every trial's values of the model's cost attributes other than effort from the
+/// columns `<attribute>_a` and `<attribute>_b`: finite numbers, else an error naming the trial
+/// and the column.
+fn bind_cost_attributes(
+    model: &Model,
+    subject: &Subject,
+) -> Result<(Vec<f64>, usize), DataMismatch> {
+    let mismatch = |message: String| DataMismatch {
+        subject: subject.id.clone(),
+        message,
+    };
+    let mut columns = Vec::new();
+    for cost in model.costs.iter().filter(|c| !c.is_effort()) {
+        for side in ["a", "b"] {
+            let name = format!("{}_{side}", cost.name);
+            let column = subject.covariate_column(&name).ok_or_else(|| {
+                mismatch(format!(
+                    "model {} weighs the cost attribute `{attribute}`, but the trial table has \
+                     no column `{name}` (expected {attribute}_a and {attribute}_b: the attribute \
+                     of each option)",
+                    model.name,
+                    attribute = cost.name
+                ))
+            })?;
+            columns.push((name, column));
+        }
+    }
+    let mut values = Vec::with_capacity(subject.trials.len() * columns.len());
+    for trial in &subject.trials {
+        for (name, column) in &columns {
+            let cell = trial.covariate(*column);
+            let x = cell
+                .as_deref()
+                .map(str::trim)
+                .and_then(|s| s.parse::<f64>().ok())
+                .filter(|x| x.is_finite())
+                .ok_or_else(|| {
+                    mismatch(format!(
+                        "trial {}: column `{name}` is {}; expected a finite number (a cost \
+                         attribute of the option)",
+                        trial.trial,
+                        cell.as_deref()
+                            .map_or("empty".to_string(), |s| format!("{s:?}"))
+                    ))
+                })?;
+            values.push(x);
+        }
+    }
+    Ok((values, columns.len()))
 }
 
 /// A level as written in the model matches a cell as written in the table, or as the same

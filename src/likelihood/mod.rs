@@ -12,7 +12,7 @@
 mod design;
 mod group_prior;
 
-pub use design::TrialParameters;
+pub use design::TrialColumns;
 pub use group_prior::GroupPrior;
 
 use crate::data::{Choice, Subject, Trial};
@@ -80,7 +80,7 @@ pub struct SubjectLikelihood<'a> {
     /// A Gaussian prior on θ that replaces the declared priors (empirical Bayes).
     group_prior: Option<GroupPrior>,
     /// Levels and covariates of the parameters that vary over trials.
-    design: TrialParameters,
+    design: TrialColumns,
     /// Transform of every model parameter by slot (free ones as in `transforms`).
     slot_transforms: Vec<Transform>,
 }
@@ -132,7 +132,7 @@ impl<'a> SubjectLikelihood<'a> {
             deadline,
             lock: None,
         };
-        let design = TrialParameters::bind(model, subject)?;
+        let design = TrialColumns::bind(model, subject)?;
         let free = model.free_slots();
         let mut transforms = Vec::with_capacity(free.len());
         let mut slot_transforms: Vec<Transform> =
@@ -341,7 +341,8 @@ impl<'a> SubjectLikelihood<'a> {
             let mut values = Values::new(model, p, self.subject.options.len());
             let prepared = model.choice.prepare(p, self.context);
             for (index, trial) in self.subject.trials.iter().enumerate() {
-                let (ln_trial, trace) = self.step(trial, p, prepared.as_ref(), &mut values, false);
+                let (ln_trial, trace) =
+                    self.step(index, trial, p, prepared.as_ref(), &mut values, false);
                 if let Some(l) = ln_trial {
                     total += l;
                 }
@@ -357,7 +358,8 @@ impl<'a> SubjectLikelihood<'a> {
             let values = values
                 .get_or_insert_with(|| Values::new(model, &trial_p, self.subject.options.len()));
             let prepared = model.choice.prepare(&trial_p, self.context);
-            let (ln_trial, trace) = self.step(trial, &trial_p, prepared.as_ref(), values, true);
+            let (ln_trial, trace) =
+                self.step(index, trial, &trial_p, prepared.as_ref(), values, true);
             if let Some(l) = ln_trial {
                 total += l;
             }
@@ -370,6 +372,7 @@ impl<'a> SubjectLikelihood<'a> {
     /// `record_parameters` keeps `p` in the trace (for models whose parameters vary).
     fn step(
         &self,
+        index: usize,
         trial: &Trial,
         p: &[D],
         prepared: &dyn crate::model::components::PreparedChoice,
@@ -377,7 +380,7 @@ impl<'a> SubjectLikelihood<'a> {
         record_parameters: bool,
     ) -> (Option<D>, TrialTrace) {
         let model = self.model;
-        let step = values.offer(model, trial, p);
+        let step = values.offer(model, trial, p, self.design.attribute_values(index));
         let observation = Observation {
             choice: trial.choice,
             rt: trial.rt,
@@ -411,7 +414,7 @@ impl<'a> SubjectLikelihood<'a> {
 fn ndt_trials<'s>(
     model: &Model,
     subject: &'s Subject,
-    design: &TrialParameters,
+    design: &TrialColumns,
     slot: usize,
 ) -> impl Iterator<Item = &'s Trial> {
     let k = model
@@ -458,8 +461,9 @@ impl Values {
         }
     }
 
-    /// Values, subjective values and decision signal of a trial's offer.
-    pub(crate) fn offer(&self, model: &Model, trial: &Trial, p: &[D]) -> Offer {
+    /// Values, subjective values and decision signal of a trial's offer; `attributes` holds the
+    /// trial's values of the cost attributes other than effort, (a, b) for each in model order.
+    pub(crate) fn offer(&self, model: &Model, trial: &Trial, p: &[D], attributes: &[f64]) -> Offer {
         let (q_a, q_b) = if model.learns() {
             (self.values[trial.option_a], self.values[trial.option_b])
         } else {
@@ -468,8 +472,19 @@ impl Values {
                 constant(trial.reward_b.unwrap_or(f64::NAN)),
             )
         };
-        let sv_a = model.cost.subjective_value(q_a, trial.effort_a, p);
-        let sv_b = model.cost.subjective_value(q_b, trial.effort_b, p);
+        // The cost attributes in order: SV = f_n(…f_1(Q, E_1)…, E_n).
+        let (mut sv_a, mut sv_b) = (q_a, q_b);
+        let mut others = attributes.chunks_exact(2);
+        for cost in &model.costs {
+            let (e_a, e_b) = if cost.is_effort() {
+                (trial.effort_a, trial.effort_b)
+            } else {
+                let pair = others.next().expect("bound with the model's attributes");
+                (pair[0], pair[1])
+            };
+            sv_a = cost.shape.subjective_value(sv_a, e_a, p);
+            sv_b = cost.shape.subjective_value(sv_b, e_b, p);
+        }
         let difference = sv_a - sv_b;
         let signal = match &model.drift {
             Some(mapping) => mapping.drift(difference, p),

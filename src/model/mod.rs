@@ -13,7 +13,7 @@ pub mod varying;
 
 pub use params::{ParameterSpec, Prior, Transform};
 pub use registry::{built_in_models, load_model};
-pub use spec::{ModelError, parse_model};
+pub use spec::{EFFORT, ModelError, for_attribute, parse_model};
 
 use components::{ChoiceStage, CostShape, DriftMapping, LearningRule};
 
@@ -40,11 +40,30 @@ pub struct Model {
     /// Where each component parameter's value comes from on a trial.
     pub(crate) sources: Vec<varying::Source>,
     pub(crate) learning: Box<dyn LearningRule>,
-    pub(crate) cost: Box<dyn CostShape>,
+    /// The cost attributes, applied in order: SV = f_n(…f_1(Q, E_1)…, E_n).
+    pub costs: Vec<CostAttribute>,
     pub(crate) drift: Option<Box<dyn DriftMapping>>,
     pub(crate) choice: Box<dyn ChoiceStage>,
     pub(crate) forget_slot: Option<usize>,
     pub(crate) initial_slot: Option<usize>,
+}
+
+/// One cost attribute of a model: its name (the column prefix of the trial table), its shape.
+pub struct CostAttribute {
+    /// Attribute name: `effort` (columns effort_a, effort_b) or another (columns <name>_a, …).
+    pub name: String,
+    /// Name of the cost shape.
+    pub shape_name: &'static str,
+    /// Equation of the shape with its source (written for effort).
+    pub equation: &'static str,
+    pub(crate) shape: Box<dyn CostShape>,
+}
+
+impl CostAttribute {
+    /// True for the canonical effort attribute.
+    pub fn is_effort(&self) -> bool {
+        self.name == spec::EFFORT
+    }
 }
 
 impl std::fmt::Debug for Model {

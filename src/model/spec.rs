@@ -22,7 +22,7 @@
 
 use super::Model;
 use super::components::{
-    CHOICE_STAGES, COST_SHAPES, DRIFT_MAPPINGS, Entry, LEARNING_RULES, Options, find,
+    CHOICE_STAGES, COST_SHAPES, CostShape, DRIFT_MAPPINGS, Entry, LEARNING_RULES, Options, find,
 };
 use super::params::{ParameterSpec, Prior};
 use super::varying::{self, VariationSpec};
@@ -38,6 +38,24 @@ pub struct ModelError {
     pub key: String,
     /// What is wrong and what was expected.
     pub message: String,
+}
+
+/// A cost attribute's name, its shape and the shape's options.
+type CostEntry = (String, &'static Entry<dyn CostShape>, Options);
+
+/// The cost attribute of the canonical effort_a/effort_b columns.
+pub const EFFORT: &str = "effort";
+
+/// Names that cannot be cost attributes: the other per-option columns of the trial table.
+const RESERVED_ATTRIBUTES: [&str; 3] = ["option", "reward", "outcome_if"];
+
+/// A component parameter's name for a cost attribute: cost shapes name their parameters for
+/// effort (`effort_weight`); for attribute `delay` that is `delay_weight`.
+pub fn for_attribute(parameter: &str, attribute: &str) -> String {
+    match parameter.strip_prefix("effort_") {
+        Some(rest) if attribute != EFFORT => format!("{attribute}_{rest}"),
+        _ => parameter.to_string(),
+    }
 }
 
 /// Model-level parameters with their fixed default when not declared.
@@ -105,6 +123,61 @@ impl Reader<'_> {
             options.remove(*key);
         }
         Ok((entry, options))
+    }
+
+    /// The cost attributes of `[cost]`: `shape = "…"` for the one attribute `effort` (columns
+    /// effort_a, effort_b), or one table per named attribute (`[cost.delay] shape = "…"`, columns
+    /// delay_a, delay_b), applied in the order written.
+    fn cost_attributes(&self, root: &toml::Table) -> Result<Vec<CostEntry>, ModelError> {
+        let table = self.table(root, "cost")?;
+        if table.contains_key("shape") {
+            let (entry, options) = self.component(root, "cost", "shape", COST_SHAPES, &[])?;
+            return Ok(vec![(EFFORT.to_string(), entry, options)]);
+        }
+        if table.is_empty() {
+            return Err(self.error(
+                "cost",
+                "expected shape = \"…\" (the effort cost) or one table per cost attribute, \
+                 such as [cost.effort] and [cost.delay]",
+            ));
+        }
+        let mut out = Vec::new();
+        for (attribute, value) in table {
+            let key = format!("cost.{attribute}");
+            let toml::Value::Table(sub) = value else {
+                return Err(self.error(
+                    &key,
+                    "expected a table with shape = \"…\" for this cost attribute",
+                ));
+            };
+            let valid = !attribute.is_empty()
+                && attribute
+                    .chars()
+                    .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_')
+                && !RESERVED_ATTRIBUTES.contains(&attribute.as_str());
+            if !valid {
+                return Err(self.error(
+                    &key,
+                    format!(
+                        "expected an attribute name of lower-case letters, digits and _ other \
+                         than {} (its columns are <name>_a and <name>_b)",
+                        RESERVED_ATTRIBUTES.join(", ")
+                    ),
+                ));
+            }
+            let name = self.string(sub, &key, "shape")?;
+            let entry = find(COST_SHAPES, &name).ok_or_else(|| {
+                let known: Vec<&str> = COST_SHAPES.iter().map(|e| e.name).collect();
+                self.error(
+                    &dotted(&key, "shape"),
+                    format!("unknown shape '{name}' (known: {})", known.join(", ")),
+                )
+            })?;
+            let mut options = sub.clone();
+            options.remove("shape");
+            out.push((attribute.clone(), entry, options));
+        }
+        Ok(out)
     }
 
     fn parameter(
@@ -279,7 +352,7 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
         Some(toml::Value::Boolean(b)) => *b,
         Some(_) => return Err(r.error("learning.forgetting", "expected true or false")),
     };
-    let (cost, cost_options) = r.component(&root, "cost", "shape", COST_SHAPES, &[])?;
+    let costs = r.cost_attributes(&root)?;
     let (choice, choice_options) = r.component(&root, "choice", "stage", CHOICE_STAGES, &[])?;
     let uses_drift = (choice.build)(&choice_options, &|_| 0)
         .map_err(|m| r.error("choice", m))?
@@ -305,28 +378,33 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
         Some(_) => return Err(r.error("parameters", "expected a table of parameter tables")),
         None => toml::Table::new(),
     };
-    let mut needed: Vec<&str> = Vec::new();
-    let mut defaults: BTreeMap<&str, f64> = MODEL_DEFAULTS.iter().copied().collect();
-    let mut need = |params: &[&'static str], defs: &[(&'static str, f64)]| {
-        needed.extend_from_slice(params);
-        defaults.extend(defs.iter().copied());
+    let mut needed: Vec<String> = Vec::new();
+    let mut defaults: BTreeMap<String, f64> = MODEL_DEFAULTS
+        .iter()
+        .map(|(n, x)| (n.to_string(), *x))
+        .collect();
+    let mut need = |params: &[&'static str], defs: &[(&'static str, f64)], attribute: &str| {
+        needed.extend(params.iter().map(|n| for_attribute(n, attribute)));
+        defaults.extend(defs.iter().map(|(n, x)| (for_attribute(n, attribute), *x)));
     };
-    need(learning.parameters, learning.defaults);
-    need(cost.parameters, cost.defaults);
-    need(choice.parameters, choice.defaults);
+    need(learning.parameters, learning.defaults, EFFORT);
+    for (attribute, entry, _) in &costs {
+        need(entry.parameters, entry.defaults, attribute);
+    }
+    need(choice.parameters, choice.defaults, EFFORT);
     if let Some((d, _)) = &drift {
-        need(d.parameters, d.defaults);
+        need(d.parameters, d.defaults, EFFORT);
     }
     if learning.name != "none" {
-        needed.push("initial_value");
+        needed.push("initial_value".into());
         if forgetting {
-            needed.push("forget_rate");
+            needed.push("forget_rate".into());
         }
     }
     let mut parameters = Vec::new();
     let mut variations = Vec::new();
     for (pname, value) in &declared {
-        if !needed.contains(&pname.as_str()) {
+        if !needed.contains(pname) {
             return Err(r.error(
                 &format!("parameters.{pname}"),
                 format!(
@@ -368,7 +446,17 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
     };
     let learning_rule =
         (learning.build)(&learning_options, &slot).map_err(|m| r.error("learning", m))?;
-    let cost_shape = (cost.build)(&cost_options, &slot).map_err(|m| r.error("cost", m))?;
+    let mut cost_attributes = Vec::with_capacity(costs.len());
+    for (attribute, entry, options) in &costs {
+        let renamed = |n: &str| slot(&for_attribute(n, attribute));
+        let shape = (entry.build)(options, &renamed).map_err(|m| r.error("cost", m))?;
+        cost_attributes.push(super::CostAttribute {
+            name: attribute.clone(),
+            shape_name: entry.name,
+            equation: entry.equation,
+            shape,
+        });
+    }
     let choice_stage = (choice.build)(&choice_options, &slot).map_err(|m| r.error("choice", m))?;
     let drift_mapping = match &drift {
         Some((d, options)) => Some((d.build)(options, &slot).map_err(|m| r.error("drift", m))?),
@@ -439,13 +527,13 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
         text: text.to_string(),
         component_names: [
             learning.name,
-            cost.name,
+            costs[0].1.name,
             drift.as_ref().map_or("-", |(d, _)| d.name),
             choice.name,
         ],
         equations: [
             learning.equation,
-            cost.equation,
+            costs[0].1.equation,
             drift.as_ref().map_or("", |(d, _)| d.equation),
             choice.equation,
         ],
@@ -457,7 +545,7 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
         component_parameters,
         sources,
         learning: learning_rule,
-        cost: cost_shape,
+        costs: cost_attributes,
         drift: drift_mapping,
         choice: choice_stage,
     })
