@@ -65,12 +65,10 @@ pub fn simulate_subject(
         let values =
             values.get_or_insert_with(|| Values::new(model, &trial_p, design.options.len()));
         let prepared = model.choice.prepare(&trial_p, context);
-        let offer = values.offer(model, trial, &trial_p, per_trial.attribute_values(t));
-        let (choice, rt) = draw_trial(prepared.as_ref(), offer.signal.re, settings.deadline, rng);
-        let outcome = choice.and_then(|c| match c {
-            Choice::A => trial.outcome_if_a,
-            Choice::B => trial.outcome_if_b,
-        });
+        values.appraise(model, trial, &trial_p, per_trial.attribute_values(t));
+        let signal: Vec<f64> = values.appraisal.signal.iter().map(|d| d.re).collect();
+        let (choice, rt) = draw_trial(prepared.as_ref(), &signal, settings.deadline, rng);
+        let outcome = choice.and_then(|c| trial.offers[c.index()].outcome_if);
         if let (Some(c), Some(r)) = (choice, outcome) {
             values.learn(model, trial, c, r, &trial_p);
         }
@@ -94,7 +92,7 @@ pub fn simulate_subject(
 /// predictive check ([`crate::check`]).
 pub fn draw_trial(
     prepared: &dyn PreparedChoice,
-    signal: f64,
+    signal: &[f64],
     deadline: Option<f64>,
     rng: &mut dyn Rng,
 ) -> (Option<Choice>, Option<f64>) {
@@ -132,22 +130,24 @@ pub fn orchard_design(id: &str, group: &str, n_trials: usize, rng: &mut dyn Rng)
             };
             let outcome_if_a = harvest(a);
             let outcome_if_b = harvest(b);
+            let offer = |option: usize, effort: f64, outcome: f64| crate::data::Offer {
+                option,
+                effort,
+                reward: None,
+                outcome_if: Some(outcome),
+            };
             Trial {
                 trial: i as i64 + 1,
                 run: if i < n_trials / 2 { "1" } else { "2" }.to_string(),
-                option_a: a,
-                option_b: b,
-                effort_a: EFFORTS[rng.random_range(0..4usize)],
-                effort_b: EFFORTS[rng.random_range(0..4usize)],
-                reward_a: None,
-                reward_b: None,
+                offers: vec![
+                    offer(a, EFFORTS[rng.random_range(0..4usize)], outcome_if_a),
+                    offer(b, EFFORTS[rng.random_range(0..4usize)], outcome_if_b),
+                ],
                 choice: None,
                 rt: None,
                 outcome: None,
                 onset: Some(6.0 * (i % (n_trials / 2).max(1)) as f64),
                 outcome_onset: Some(6.0 * (i % (n_trials / 2).max(1)) as f64 + 2.5),
-                outcome_if_a: Some(outcome_if_a),
-                outcome_if_b: Some(outcome_if_b),
                 covariates: Vec::new(),
             }
         })

@@ -756,8 +756,8 @@ fn fit_options_out_of_range() {
         ),
         (
             "choice code to an unknown option",
-            vec!["--choice-codes", "1=a,2=c"],
-            vec!["--choice-codes", "`2=c`", "expected a or b"],
+            vec!["--choice-codes", "1=a,2=left"],
+            vec!["--choice-codes", "`2=left`", "expected an option a, b, c"],
         ),
         (
             "empty missing token",

@@ -72,13 +72,17 @@ fn good_csv_structure() {
     let s1 = &table.subjects[0];
     assert_eq!((s1.id.as_str(), s1.group.as_str()), ("s01", "control"));
     assert_eq!(s1.options, ["apple", "pear", "fig"]); // order of first appearance
-    let sides: Vec<(usize, usize)> = s1.trials.iter().map(|t| (t.option_a, t.option_b)).collect();
+    let sides: Vec<(usize, usize)> = s1
+        .trials
+        .iter()
+        .map(|t| (t.offers[0].option, t.offers[1].option))
+        .collect();
     assert_eq!(sides, [(0, 1), (1, 2), (2, 0)]);
     assert_eq!(s1.trials[0].choice, Some(Choice::A));
     assert_eq!(s1.trials[1].choice, Some(Choice::B)); // "B" accepted
     assert_eq!(s1.trials[1].rt, Some(1.25));
     assert_eq!(s1.trials[1].outcome, None); // empty optional cell
-    assert_eq!(s1.trials[1].effort_a, 1.5);
+    assert_eq!(s1.trials[1].offers[0].effort, 1.5);
     let missed = &s1.trials[2];
     assert_eq!(
         (missed.choice, missed.rt, missed.outcome),
@@ -91,15 +95,22 @@ fn good_csv_structure() {
     let s2 = &table.subjects[1];
     assert_eq!((s2.id.as_str(), s2.group.as_str()), ("s02", "patient"));
     assert_eq!(s2.options, ["fig", "apple", "pear"]); // per subject, own order
-    let sides: Vec<(usize, usize)> = s2.trials.iter().map(|t| (t.option_a, t.option_b)).collect();
+    let sides: Vec<(usize, usize)> = s2
+        .trials
+        .iter()
+        .map(|t| (t.offers[0].option, t.offers[1].option))
+        .collect();
     assert_eq!(sides, [(0, 1), (1, 2)]);
     assert_eq!(s2.trials[0].choice, Some(Choice::A)); // " a " trimmed
     assert_eq!(
         s2.trials.iter().map(|t| t.trial).collect::<Vec<_>>(),
         [1, 5]
     );
-    assert_eq!((s2.trials[1].reward_a, s2.trials[1].reward_b), (None, None));
-    assert_eq!(s2.trials[1].outcome_if_a, None); // column absent
+    assert_eq!(
+        (s2.trials[1].offers[0].reward, s2.trials[1].offers[1].reward),
+        (None, None)
+    );
+    assert_eq!(s2.trials[1].offers[0].outcome_if, None); // column absent
 
     assert_eq!(
         table.present,
@@ -126,7 +137,11 @@ fn default_options_are_a_and_b() {
     // source: module documentation ("default: fixed identities a and b").
     let s = &table.subjects[0];
     assert_eq!(s.options, ["a", "b"]);
-    assert!(s.trials.iter().all(|t| (t.option_a, t.option_b) == (0, 1)));
+    assert!(
+        s.trials
+            .iter()
+            .all(|t| (t.offers[0].option, t.offers[1].option) == (0, 1))
+    );
     assert_eq!(s.group, ""); // no group column
     assert_eq!(s.trials[0].run, ""); // no run column
     assert!(table.present.is_empty());
@@ -710,7 +725,7 @@ fn choice_codes_not_given_or_not_listed_are_errors_at_their_cell() {
 fn choice_code_and_missing_token_specifications_are_checked() {
     let cases: [(&str, &str, &str); 7] = [
         ("codes", "1=a", "no code for option b"),
-        ("codes", "1=a,2=c", "expected a or b"),
+        ("codes", "1=a,2=left", "expected an option a, b, c"),
         ("codes", "1=a,1=b", "more than once"),
         ("codes", "1a,2=b", "has no `=`"),
         ("codes", "=a,2=b", "no code before"),

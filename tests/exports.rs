@@ -7,7 +7,7 @@ use rand_chacha::ChaCha8Rng;
 use std::collections::HashMap;
 use std::path::Path;
 use std::process::Command;
-use valuedrift::data::{Choice, Subject, Trial, TrialTable};
+use valuedrift::data::{Choice, Offer, Subject, Trial, TrialTable};
 use valuedrift::exports::{
     Latent, Scale, bids_label, bids_labels, events_files, latents, run_indices, scale_values,
 };
@@ -29,19 +29,25 @@ fn trial(
     Trial {
         trial: n,
         run: run.into(),
-        option_a: a,
-        option_b: b,
-        effort_a: effort.0,
-        effort_b: effort.1,
-        reward_a: None,
-        reward_b: None,
+        offers: vec![
+            Offer {
+                option: a,
+                effort: effort.0,
+                reward: None,
+                outcome_if: None,
+            },
+            Offer {
+                option: b,
+                effort: effort.1,
+                reward: None,
+                outcome_if: None,
+            },
+        ],
         choice,
         rt,
         outcome,
         onset,
         outcome_onset: onset.map(|t| t + 2.0),
-        outcome_if_a: None,
-        outcome_if_b: None,
         covariates: Vec::new(),
     }
 }
@@ -49,7 +55,8 @@ fn trial(
 /// Six trials over options x (0) and y (1), two runs of three; trial 3 has no response, trial 5
 /// no outcome.
 fn worked_subject() -> Subject {
-    use Choice::{A, B};
+    const A: Choice = Choice::A;
+    const B: Choice = Choice::B;
     Subject {
         id: "sub-w_1".into(),
         group: "g".into(),
@@ -175,20 +182,20 @@ fn latents_match_a_hand_computed_worked_example() {
     assert_eq!(rows.len(), 6);
     for (k, (r, e)) in rows.iter().zip(expected).enumerate() {
         assert!(
-            close(Some(r.value_a), Some(e.0)),
+            close(Some(r.values[0]), Some(e.0)),
             "trial {}: value_a {}",
             k + 1,
-            r.value_a
+            r.values[0]
         );
         assert!(
-            close(Some(r.value_b), Some(e.1)),
+            close(Some(r.values[1]), Some(e.1)),
             "trial {}: value_b {}",
             k + 1,
-            r.value_b
+            r.values[1]
         );
         assert!(
-            close(Some(r.value_difference), Some(e.2)),
-            "trial {}: value_difference {}",
+            close(r.value_difference, Some(e.2)),
+            "trial {}: value_difference {:?}",
             k + 1,
             r.value_difference
         );

@@ -154,8 +154,8 @@ fn a_parameter_without_effect_is_flagged_not_reported_as_converged() {
     // depend on it: a fact of the trade, common practice), so the likelihood is flat in it.
     let mut table = simulated_table(1, 160, None);
     for t in &mut table.subjects[0].trials {
-        t.effort_a = 0.0;
-        t.effort_b = 0.0;
+        t.offers[0].effort = 0.0;
+        t.offers[1].effort = 0.0;
     }
     let model = load_model("gainloss-linear").unwrap();
     let lik = SubjectLikelihood::new(&model, &table.subjects[0], None).unwrap();
@@ -178,11 +178,11 @@ fn a_participant_who_picks_the_worse_option_is_flagged_value_blind() {
     let model = load_model("offered-linear").unwrap();
     for (i, t) in table.subjects[0].trials.iter_mut().enumerate() {
         // Equal efforts, so no effort weight can turn the value difference around.
-        t.effort_a = 0.5;
-        t.effort_b = 0.5;
-        t.reward_a = Some(1.0 + (i % 4) as f64);
-        t.reward_b = Some(4.0 - (i % 4) as f64);
-        let a_better = t.reward_a > t.reward_b;
+        t.offers[0].effort = 0.5;
+        t.offers[1].effort = 0.5;
+        t.offers[0].reward = Some(1.0 + (i % 4) as f64);
+        t.offers[1].reward = Some(4.0 - (i % 4) as f64);
+        let a_better = t.offers[0].reward > t.offers[1].reward;
         t.choice = Some(if a_better {
             valuedrift::data::Choice::B
         } else {

@@ -1,6 +1,6 @@
 //! The per-subject likelihood against hand computation and against the first-passage engine.
 
-use valuedrift::data::{Choice, Subject, Trial};
+use valuedrift::data::{Choice, Offer, Subject, Trial};
 use valuedrift::first_passage::{Bound, DiffusionParams, ln_density};
 use valuedrift::likelihood::SubjectLikelihood;
 use valuedrift::model::load_model;
@@ -17,19 +17,25 @@ fn trial(
     Trial {
         trial: n,
         run: String::new(),
-        option_a: a,
-        option_b: b,
-        effort_a: effort.0,
-        effort_b: effort.1,
-        reward_a: None,
-        reward_b: None,
+        offers: vec![
+            Offer {
+                option: a,
+                effort: effort.0,
+                reward: None,
+                outcome_if: None,
+            },
+            Offer {
+                option: b,
+                effort: effort.1,
+                reward: None,
+                outcome_if: None,
+            },
+        ],
         choice: Some(choice),
         rt: Some(rt),
         outcome,
         onset: None,
         outcome_onset: None,
-        outcome_if_a: None,
-        outcome_if_b: None,
         covariates: Vec::new(),
     }
 }
@@ -83,7 +89,7 @@ fn learning_recursion_matches_a_hand_computed_example() {
     let subject = worked_subject();
     let lik = SubjectLikelihood::new(&model, &subject, None).unwrap();
     let trace = lik.trace(&natural(&model));
-    let values: Vec<(f64, f64)> = trace.iter().map(|t| (t.value_a, t.value_b)).collect();
+    let values: Vec<(f64, f64)> = trace.iter().map(|t| (t.values[0], t.values[1])).collect();
     assert_eq!(
         values,
         vec![(0.0, 0.0), (0.5, 0.0), (0.0, 0.0), (0.5, 0.0), (0.0, 0.5)]
@@ -94,10 +100,10 @@ fn learning_recursion_matches_a_hand_computed_example() {
         vec![Some(1.0), Some(0.0), Some(1.0), None, Some(-0.5)]
     );
     // SV = Q − k·E with k = 0.5: trial 2, SV_a = 0.5 − 0.2 = 0.3, SV_b = 0 − 0.2 = −0.2.
-    assert!((trace[1].subjective_value_a - 0.3).abs() < 1e-15);
-    assert!((trace[1].subjective_value_b + 0.2).abs() < 1e-15);
+    assert!((trace[1].subjective_values[0] - 0.3).abs() < 1e-15);
+    assert!((trace[1].subjective_values[1] + 0.2).abs() < 1e-15);
     // drift = 3·(0.3 − (−0.2)) = 1.5
-    assert!((trace[1].signal - 1.5).abs() < 1e-14);
+    assert!((trace[1].signal[0] - 1.5).abs() < 1e-14);
 }
 
 #[test]
@@ -111,7 +117,7 @@ fn log_likelihood_is_the_sum_of_engine_log_densities() {
     let trace = lik.trace(&values);
     let mut expected = 0.0;
     for (t, tr) in subject.trials.iter().zip(&trace) {
-        let drift = 3.0 * (tr.subjective_value_a - tr.subjective_value_b);
+        let drift = 3.0 * (tr.subjective_values[0] - tr.subjective_values[1]);
         let p = DiffusionParams::new(drift, 1.5, 0.5, 0.3).unwrap();
         let bound = if t.choice == Some(Choice::A) {
             Bound::Upper
@@ -129,8 +135,8 @@ fn log_likelihood_is_the_sum_of_engine_log_densities() {
 /// `subject` with offered magnitudes on every trial, so that every built-in model applies.
 fn with_rewards(mut s: Subject) -> Subject {
     for (i, t) in s.trials.iter_mut().enumerate() {
-        t.reward_a = Some(0.2 * i as f64);
-        t.reward_b = Some(0.5);
+        t.offers[0].reward = Some(0.2 * i as f64);
+        t.offers[1].reward = Some(0.5);
     }
     s
 }
@@ -216,15 +222,15 @@ fixed = 0.3
         .collect();
     let trace = lik.trace(&natural);
     let close = |a: f64, b: f64| (a - b).abs() < 1e-12;
-    assert!(close(trace[0].value_a, 0.1) && close(trace[0].value_b, 0.1));
-    assert!(close(trace[1].value_a, 0.55) && close(trace[1].value_b, 0.1));
+    assert!(close(trace[0].values[0], 0.1) && close(trace[0].values[1], 0.1));
+    assert!(close(trace[1].values[0], 0.55) && close(trace[1].values[1], 0.1));
     assert!(
-        close(trace[2].value_a, 0.05) && close(trace[2].value_b, 0.1),
+        close(trace[2].values[0], 0.05) && close(trace[2].values[1], 0.1),
         "{:?}",
         trace[2]
     );
     assert!(
-        close(trace[3].value_a, 0.46 + 0.2 * (0.1 - 0.46)),
+        close(trace[3].values[0], 0.46 + 0.2 * (0.1 - 0.46)),
         "x decays again on t3: {:?}",
         trace[3]
     );
@@ -265,16 +271,16 @@ fn a_trimmed_time_leaves_the_choice_scored_by_the_absorption_probability() {
     let mut expected = 0.0;
     for ((t, tr), tr_full) in trimmed.trials.iter().zip(&trace).zip(&trace_full) {
         assert_eq!(
-            tr.value_a, tr_full.value_a,
+            tr.values[0], tr_full.values[0],
             "trial {}: learning unchanged",
             t.trial
         );
         assert_eq!(
-            tr.value_b, tr_full.value_b,
+            tr.values[1], tr_full.values[1],
             "trial {}: learning unchanged",
             t.trial
         );
-        let drift = 3.0 * (tr.subjective_value_a - tr.subjective_value_b);
+        let drift = 3.0 * (tr.subjective_values[0] - tr.subjective_values[1]);
         let (a, w) = (1.5, 0.5);
         let p_upper = (1.0 - (-2.0 * drift * a * w).exp()) / (1.0 - (-2.0 * drift * a).exp());
         let bound = if t.choice == Some(Choice::A) {

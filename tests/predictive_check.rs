@@ -69,7 +69,11 @@ fn expected_response_time_matches_the_mean_of_simulated_trials() {
         .map(|_| simulate_one_step_ahead(&model, &values, subject, &traces, (None, None), &mut rng))
         .collect();
     let mut order: Vec<usize> = (0..traces.len()).collect();
-    order.sort_by(|&i, &j| traces[i].signal.abs().total_cmp(&traces[j].signal.abs()));
+    order.sort_by(|&i, &j| {
+        traces[i].signal[0]
+            .abs()
+            .total_cmp(&traces[j].signal[0].abs())
+    });
     for &i in &[order[0], order[order.len() / 2], order[order.len() - 1]] {
         let expected = traces[i].expected_times.unwrap().1;
         let rts: Vec<f64> = replicates.iter().map(|r| r.trials[i].rt.unwrap()).collect();
@@ -79,11 +83,11 @@ fn expected_response_time_matches_the_mean_of_simulated_trials() {
         assert!(
             (mean - expected).abs() < 4.0 * se,
             "drift {}: simulated mean {mean} vs expected {expected} (SE {se})",
-            traces[i].signal
+            traces[i].signal[0]
         );
         // Likewise the share of choices of a against the closed-form probability of the upper
         // bound, P = (1 − e^(−2vaw))/(1 − e^(−2va)) (Cox & Miller 1965), binomial SE.
-        let p = traces[i].probability_a;
+        let p = traces[i].probabilities[0];
         let share = replicates
             .iter()
             .filter(|r| r.trials[i].choice == Some(valuedrift::data::Choice::A))
@@ -93,7 +97,7 @@ fn expected_response_time_matches_the_mean_of_simulated_trials() {
         assert!(
             (share - p).abs() < 4.0 * se,
             "drift {}: simulated share of a {share} vs P(a) {p} (SE {se})",
-            traces[i].signal
+            traces[i].signal[0]
         );
     }
 }
@@ -158,7 +162,9 @@ fn data_from_the_model_fall_inside_their_own_bands_and_wrong_parameters_do_not()
         .map(|s| {
             let mut s = s.clone();
             for t in &mut s.trials {
-                (t.outcome_if_a, t.outcome_if_b) = (None, None);
+                for o in &mut t.offers {
+                    o.outcome_if = None;
+                }
             }
             s
         })

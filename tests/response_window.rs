@@ -6,7 +6,7 @@ mod common;
 
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
-use valuedrift::data::{Choice, Subject, Trial};
+use valuedrift::data::{Choice, Offer, Subject, Trial};
 use valuedrift::first_passage::{Bound, DiffusionParams, survival};
 use valuedrift::fit::{FitOptions, fit_subject};
 use valuedrift::likelihood::SubjectLikelihood;
@@ -44,22 +44,21 @@ fn design(n: usize, rewards: impl Fn(usize) -> (f64, f64)) -> Subject {
         trials: (0..n)
             .map(|i| {
                 let (ra, rb) = rewards(i);
+                let offer = |option: usize, reward: f64| Offer {
+                    option,
+                    effort: 0.0,
+                    reward: Some(reward),
+                    outcome_if: None,
+                };
                 Trial {
                     trial: i as i64 + 1,
                     run: String::new(),
-                    option_a: 0,
-                    option_b: 1,
-                    effort_a: 0.0,
-                    effort_b: 0.0,
-                    reward_a: Some(ra),
-                    reward_b: Some(rb),
+                    offers: vec![offer(0, ra), offer(1, rb)],
                     choice: None,
                     rt: None,
                     outcome: None,
                     onset: None,
                     outcome_onset: None,
-                    outcome_if_a: None,
-                    outcome_if_b: None,
                     covariates: Vec::new(),
                 }
             })
@@ -166,7 +165,7 @@ fn the_conditioned_likelihood_integrates_to_one_over_times_after_the_lock() {
         survival(lock, Bound::Upper, &params),
         survival(lock, Bound::Lower, &params),
     );
-    assert!((traces[0].probability_a - s_upper / (s_upper + s_lower)).abs() < 1e-9);
+    assert!((traces[0].probabilities[0] - s_upper / (s_upper + s_lower)).abs() < 1e-9);
 }
 
 #[test]

@@ -87,12 +87,13 @@ impl Mode {
         }
     }
 
-    /// Free when every trial has `outcome_if_a` and `outcome_if_b`, else one step ahead.
+    /// Free when every offer of every trial has its outcome_if (`outcome_if_a`, `outcome_if_b`,
+    /// …), else one step ahead.
     pub fn for_subject(subject: &Subject) -> Mode {
         if subject
             .trials
             .iter()
-            .all(|t| t.outcome_if_a.is_some() && t.outcome_if_b.is_some())
+            .all(|t| t.offers.iter().all(|o| o.outcome_if.is_some()))
         {
             Mode::Free
         } else {
@@ -302,19 +303,19 @@ fn classify(subject: &Subject, traces: &[TrialTrace]) -> Vec<Classified> {
         .iter()
         .zip(traces)
         .filter_map(|(t, tr)| {
-            let difference = tr.subjective_value_a - tr.subjective_value_b;
-            if difference.is_nan() || difference.abs() <= TIE {
+            // The best option by subjective value and its margin over the next best.
+            let sv = &tr.subjective_values;
+            let best = (0..sv.len()).max_by(|&i, &j| sv[i].total_cmp(&sv[j]))?;
+            let runner_up = (0..sv.len())
+                .filter(|&k| k != best)
+                .map(|k| sv[k])
+                .fold(f64::NEG_INFINITY, f64::max);
+            let difference = sv[best] - runner_up;
+            if difference.is_nan() || difference <= TIE {
                 return None;
             }
-            let better = if difference > 0.0 {
-                Choice::A
-            } else {
-                Choice::B
-            };
-            let effort_level = match better {
-                Choice::A => t.effort_a,
-                Choice::B => t.effort_b,
-            };
+            let better = Choice(best);
+            let effort_level = t.offers[best].effort;
             let response = t.choice.map(|c| {
                 let kind = if c == better {
                     Response::CorrectByValue
@@ -462,12 +463,12 @@ pub fn simulate_one_step_ahead(
     let mut simulated = subject.clone();
     for (trial, trace) in simulated.trials.iter_mut().zip(traces) {
         (trial.choice, trial.rt) = if trace.parameters.is_empty() {
-            draw_trial(prepared.as_ref(), trace.signal, deadline, rng)
+            draw_trial(prepared.as_ref(), &trace.signal, deadline, rng)
         } else {
             // Parameters that vary over trials: the stage with this trial's values.
             let trial_p: Vec<D> = trace.parameters.iter().map(|&x| constant(x)).collect();
             let prepared = model.choice.prepare(&trial_p, context);
-            draw_trial(prepared.as_ref(), trace.signal, deadline, rng)
+            draw_trial(prepared.as_ref(), &trace.signal, deadline, rng)
         };
     }
     simulated

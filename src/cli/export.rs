@@ -103,7 +103,11 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
             .collect(),
         _ => Vec::new(),
     };
-    latents_table(&all).stage_both(&mut outputs, out, "latents")?;
+    latents_table(&all, &crate::exports::varying_parameter_names(&model)).stage_both(
+        &mut outputs,
+        out,
+        "latents",
+    )?;
     if !events.is_empty() {
         // The files a BIDS derivative dataset has at its root besides the subjects' folders.
         for (name, value) in [

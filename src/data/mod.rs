@@ -14,12 +14,20 @@
 //! | `option_a`, `option_b` | text | no | identity of the option offered on each side, whose value is learned; default: fixed identities `a` and `b` |
 //! | `effort_a`, `effort_b` | number ≥ 0 | yes | effort demanded by each option |
 //! | `reward_a`, `reward_b` | number | no | offered magnitudes, for tasks where value is shown |
-//! | `choice` | `a`, `b` or empty | yes | the option chosen; empty for no response; other codes (1/2, accept/reject…) through [`ColumnMap::with_choice_codes`] |
+//! | `choice` | `a`, `b` (`c`, …) or empty | yes | the side chosen; empty for no response; other codes (1/2, accept/reject…) through [`ColumnMap::with_choice_codes`] |
 //! | `rt` | seconds > 0 or empty | yes | response time; empty for no response |
 //! | `outcome` | number or empty | no | what the chosen option delivered; empty when no feedback; on a trial without response it is accepted with a note and nothing is learned from it |
 //! | `onset`, `outcome_onset` | seconds ≥ 0 | no | from run start, for imaging exports |
 //! | `outcome_if_a`, `outcome_if_b` | number | no | what each option would deliver (designs for simulation) |
+//! | `effort_c`, `option_c`, `reward_c`, `outcome_if_c`, then `_d`, … | as for a and b | no | a third (fourth, …) option: each further side whose `effort_<side>` column exists, in the order c, d, e, …; its other columns as for a and b; the choice may then name it |
 //! | any other column | text or number | no | kept as a per-trial covariate ([`Trial::covariates`]): a condition, block or session label, a per-trial signal (pupil size, EEG amplitude), a participant's score |
+//!
+//! A spreadsheet with one row per trial and one column per option attribute is thus read as it
+//! is: a three-option task writes `effort_a, effort_b, effort_c` (and `reward_…`, `option_…`) and
+//! a choice of `a`, `b` or `c`. Cost attributes besides effort (delay, pain, risk) are further
+//! columns `<attribute>_a`, `<attribute>_b`, … read by models that weigh them. An accept/reject
+//! offer against a fixed default is two options, the default's columns constant (as in the
+//! shared effort-offer data: `option_b` = `rest`, `effort_b` = 0, `reward_b` = 1).
 //!
 //! An empty cell is a missing value; other tokens (NA, NaN, N/A, ., …) are read as missing
 //! through [`ColumnMap::with_missing`]. Before a fit, [`screen`] summarises each subject's data
@@ -37,24 +45,54 @@ pub use screen::{
     unmet_needs,
 };
 
-/// The option chosen on a trial. Choosing `a` is the upper bound of the diffusion.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]
-#[serde(rename_all = "lowercase")]
-pub enum Choice {
-    /// The option shown as `a`.
-    A,
-    /// The option shown as `b`.
-    B,
-}
+/// Labels of the options offered on a trial, in column order: the per-option columns of a trial
+/// table end in these (effort_a, effort_b, effort_c, …), and the choice column names one.
+pub const SIDES: [&str; 26] = [
+    "a", "b", "c", "d", "e", "f", "g", "h", "i", "j", "k", "l", "m", "n", "o", "p", "q", "r", "s",
+    "t", "u", "v", "w", "x", "y", "z",
+];
+
+/// The option chosen on a trial: the index of its side (0 for `a`, 1 for `b`, …). With two
+/// options, choosing `a` is the upper bound of the diffusion.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub struct Choice(pub usize);
 
 impl Choice {
-    /// `"a"` or `"b"`.
+    /// The option shown as `a`.
+    pub const A: Choice = Choice(0);
+    /// The option shown as `b`.
+    pub const B: Choice = Choice(1);
+
+    /// The side's label: `"a"`, `"b"`, `"c"`, ….
     pub fn as_str(self) -> &'static str {
-        match self {
-            Choice::A => "a",
-            Choice::B => "b",
-        }
+        SIDES.get(self.0).copied().unwrap_or("?")
     }
+
+    /// The choice of the side labelled `label` (ASCII case ignored).
+    pub fn from_label(label: &str) -> Option<Choice> {
+        SIDES
+            .iter()
+            .position(|s| s.eq_ignore_ascii_case(label))
+            .map(Choice)
+    }
+
+    /// Index of the chosen side among the trial's offers.
+    pub fn index(self) -> usize {
+        self.0
+    }
+}
+
+/// One option as offered on a trial.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Offer {
+    /// Index into [`Subject::options`] of the option's identity, whose value is learned.
+    pub option: usize,
+    /// Effort it demands (≥ 0).
+    pub effort: f64,
+    /// Offered magnitude, where the task shows it.
+    pub reward: Option<f64>,
+    /// What it would deliver if chosen (simulation designs).
+    pub outcome_if: Option<f64>,
 }
 
 /// One trial of one subject.
@@ -64,18 +102,8 @@ pub struct Trial {
     pub trial: i64,
     /// Run label (empty string when the file has no `run` column).
     pub run: String,
-    /// Index into [`Subject::options`] of the option offered as `a`.
-    pub option_a: usize,
-    /// Index into [`Subject::options`] of the option offered as `b`.
-    pub option_b: usize,
-    /// Effort demanded by option a (≥ 0).
-    pub effort_a: f64,
-    /// Effort demanded by option b (≥ 0).
-    pub effort_b: f64,
-    /// Offered magnitude of option a, where the task shows it.
-    pub reward_a: Option<f64>,
-    /// Offered magnitude of option b, where the task shows it.
-    pub reward_b: Option<f64>,
+    /// The options offered, by side (a, b, c, …); at least two.
+    pub offers: Vec<Offer>,
     /// The choice, or `None` for no response.
     pub choice: Option<Choice>,
     /// Response time in seconds: `None` without a response; also `None` with a choice when the
@@ -87,16 +115,17 @@ pub struct Trial {
     pub onset: Option<f64>,
     /// Outcome onset in seconds from run start.
     pub outcome_onset: Option<f64>,
-    /// What option a would deliver if chosen (simulation designs).
-    pub outcome_if_a: Option<f64>,
-    /// What option b would deliver if chosen (simulation designs).
-    pub outcome_if_b: Option<f64>,
     /// Cells of the table's other columns, in the order of [`Subject::covariates`], as written
     /// (`None` when missing); a model reads them as condition levels or as numbers.
     pub covariates: Vec<Option<String>>,
 }
 
 impl Trial {
+    /// The offer on the chosen side, when there was a response.
+    pub fn chosen(&self) -> Option<&Offer> {
+        self.choice.and_then(|c| self.offers.get(c.0))
+    }
+
     /// The cell of covariate column `index`, or of the canonical columns `run` and `trial`, as
     /// text; `None` when missing.
     pub fn covariate(&self, index: CovariateColumn) -> Option<std::borrow::Cow<'_, str>> {

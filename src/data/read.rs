@@ -14,7 +14,7 @@ use std::str::FromStr;
 
 use polars::prelude::*;
 
-use super::{Choice, Subject, Trial, TrialTable};
+use super::{Choice, Offer, SIDES, Subject, Trial, TrialTable};
 use crate::files::InputError;
 
 /// Canonical column names, in the order of the column table in [`crate::data`].
@@ -129,9 +129,10 @@ impl ColumnMap {
     }
 
     /// The same mapping reading the choice column through `spec`, comma-separated `code=option`
-    /// pairs with option `a` or `b`, such as `1=a,2=b` or `accept=a,reject=b` (codes compared
-    /// without regard to ASCII case, after trimming). An empty `spec` keeps `a`/`b`. Each code
-    /// once; both options must have a code; a code may not also be a missing-value token.
+    /// pairs with option `a`, `b` (or `c`, … for more options), such as `1=a,2=b` or
+    /// `accept=a,reject=b` (codes compared without regard to ASCII case, after trimming). An
+    /// empty `spec` keeps the side labels. Each code once; a and b must have a code; a code may
+    /// not also be a missing-value token.
     pub fn with_choice_codes(mut self, spec: &str) -> Result<ColumnMap, String> {
         let mut codes: Vec<(String, Choice)> = Vec::new();
         for item in spec.split(',').map(str::trim).filter(|i| !i.is_empty()) {
@@ -141,14 +142,11 @@ impl ColumnMap {
                 ));
             };
             let (code, option) = (code.trim(), option.trim());
-            let choice = match option.to_ascii_lowercase().as_str() {
-                "a" => Choice::A,
-                "b" => Choice::B,
-                _ => {
-                    return Err(format!(
-                        "choice code `{item}` maps to `{option}`; expected a or b, e.g. 1=a,2=b"
-                    ));
-                }
+            let Some(choice) = Choice::from_label(option) else {
+                return Err(format!(
+                    "choice code `{item}` maps to `{option}`; expected an option a, b, c, …, \
+                     e.g. 1=a,2=b"
+                ));
             };
             if code.is_empty() {
                 return Err(format!(
@@ -837,12 +835,70 @@ fn build(
         .map(|(c, _)| c.to_string())
         .collect();
 
+    // Further options (c, d, …): each side whose effort_<side> column exists, in order; their
+    // columns are named as written (not remapped).
+    let mut sides: Vec<&str> = SIDES[..2].to_vec();
+    for side in &SIDES[2..] {
+        if header.iter().any(|h| *h == format!("effort_{side}")) {
+            sides.push(side);
+        } else {
+            break;
+        }
+    }
+    if let Some(h) = header.iter().find(|h| {
+        h.strip_prefix("effort_")
+            .is_some_and(|s| SIDES[2..].contains(&s) && !sides.contains(&s))
+    }) {
+        return Err(header_error(
+            h,
+            format!(
+                "column `{h}` has no option before it (the file's options are {}); expected \
+                 the sides a, b, c, … without a gap",
+                sides.join(", ")
+            ),
+        ));
+    }
+    let mut side_columns: Vec<(String, Values<'_>)> = Vec::new();
+    let mut side_indices: Vec<usize> = Vec::new();
+    for side in &sides[2..] {
+        for (prefix, canonical_a) in [
+            ("option", "option_a"),
+            ("effort", "effort_a"),
+            ("reward", "reward_a"),
+            ("outcome_if", "outcome_if_a"),
+        ] {
+            let name = format!("{prefix}_{side}");
+            let found = header.iter().position(|h| *h == name);
+            if found.is_some() != index[slot(canonical_a)].is_some() {
+                return Err(header_error(
+                    &name,
+                    format!(
+                        "column `{name}` is {} but `{}` is {}; expected the same columns for \
+                         every option",
+                        if found.is_some() {
+                            "present"
+                        } else {
+                            "missing"
+                        },
+                        columns.file_name(canonical_a),
+                        if found.is_some() { "not" } else { "present" },
+                    ),
+                ));
+            }
+            if let Some(i) = found {
+                side_indices.push(i);
+                side_columns.push((name, values_of(&series[i])));
+            }
+        }
+    }
+
     // Every other named column of numbers or text is kept as a per-trial covariate, cells as
     // written (columns of other types, such as lists in a Parquet file, cannot be covariates).
     let extra: Vec<usize> = (0..header.len())
         .filter(|&i| {
             let s = &series[i];
             !index.contains(&Some(i))
+                && !side_indices.contains(&i)
                 && !header[i].trim().is_empty()
                 && (s.i64().is_ok() || s.f64().is_ok() || s.str().is_ok())
         })
@@ -855,6 +911,8 @@ fn build(
         path,
         columns,
         views: &views,
+        side_columns: &side_columns,
+        n_sides: sides.len(),
         positions,
     };
     let has_options = index[slot("option_a")].is_some();
@@ -906,7 +964,7 @@ fn build(
                 options: if has_options {
                     Vec::new()
                 } else {
-                    vec!["a".to_string(), "b".to_string()]
+                    sides.iter().map(|s| s.to_string()).collect()
                 },
                 trials: Vec::new(),
                 covariates: covariate_names.clone(),
@@ -973,34 +1031,51 @@ fn build(
             }
         }
 
-        let (option_a, option_b) = if has_options {
-            let a = reader.required_text(row, "option_a", "an option identity")?;
-            let b = reader.required_text(row, "option_b", "an option identity")?;
-            if a == b {
-                return Err(reader.error(
-                    row,
-                    "option_b",
-                    format!("offers option {a:?} on both sides; expected two different options"),
-                ));
-            }
-            let mut index_of = |name: &str| match option_index.get(name) {
-                Some(&i) => i,
-                None => {
-                    let i = subject.options.len();
-                    subject.options.push(name.to_string());
-                    option_index.insert(name.to_string(), i);
-                    i
+        let mut offers = Vec::with_capacity(sides.len());
+        for (k, side) in sides.iter().enumerate() {
+            let option = if has_options {
+                let column = format!("option_{side}");
+                let name = reader.required_text(row, &column, "an option identity")?;
+                if let Some(same) = offers
+                    .iter()
+                    .position(|o: &Offer| subject.options[o.option] == name.as_ref())
+                {
+                    return Err(reader.error(
+                        row,
+                        &column,
+                        if sides.len() == 2 {
+                            format!(
+                                "offers option {name:?} on both sides; expected two different \
+                                 options"
+                            )
+                        } else {
+                            format!(
+                                "offers option {name:?} on sides {} and {side}; expected a \
+                                 different option on every side",
+                                SIDES[same]
+                            )
+                        },
+                    ));
                 }
+                match option_index.get(name.as_ref()) {
+                    Some(&i) => i,
+                    None => {
+                        let i = subject.options.len();
+                        subject.options.push(name.to_string());
+                        option_index.insert(name.to_string(), i);
+                        i
+                    }
+                }
+            } else {
+                k
             };
-            (index_of(&a), index_of(&b))
-        } else {
-            (0, 1)
-        };
-
-        let effort_a = reader.effort(row, "effort_a")?;
-        let effort_b = reader.effort(row, "effort_b")?;
-        let reward_a = reader.number(row, "reward_a")?;
-        let reward_b = reader.number(row, "reward_b")?;
+            offers.push(Offer {
+                option,
+                effort: reader.effort(row, &format!("effort_{side}"))?,
+                reward: reader.number(row, &format!("reward_{side}"))?,
+                outcome_if: reader.number(row, &format!("outcome_if_{side}"))?,
+            });
+        }
         let choice = reader.choice(row)?;
         let rt = reader.rt(row)?;
         match (choice, rt) {
@@ -1034,25 +1109,16 @@ fn build(
         }
         let onset = reader.time(row, "onset")?;
         let outcome_onset = reader.time(row, "outcome_onset")?;
-        let outcome_if_a = reader.number(row, "outcome_if_a")?;
-        let outcome_if_b = reader.number(row, "outcome_if_b")?;
 
         subject.trials.push(Trial {
             trial,
             run: run.to_string(),
-            option_a,
-            option_b,
-            effort_a,
-            effort_b,
-            reward_a,
-            reward_b,
+            offers,
             choice,
             rt,
             outcome,
             onset,
             outcome_onset,
-            outcome_if_a,
-            outcome_if_b,
             covariates: extra_views
                 .iter()
                 .map(|v| {
@@ -1081,17 +1147,25 @@ struct RowReader<'r, 'v> {
     path: &'r Path,
     columns: &'r ColumnMap,
     views: &'r [Option<Values<'v>>],
+    /// Columns of the options after a and b (effort_c, …), by name.
+    side_columns: &'r [(String, Values<'v>)],
+    /// Number of options on every trial.
+    n_sides: usize,
     positions: &'r Positions,
 }
 
 impl RowReader<'_, '_> {
     /// The cell, with the user's missing-value tokens read as missing.
     fn cell(&self, row: usize, canonical: &str) -> Cell<'_> {
-        let cell = CANONICAL
-            .iter()
-            .position(|c| *c == canonical)
-            .and_then(|k| self.views[k].as_ref())
-            .map_or(Cell::Missing, |v| v.cell(row));
+        let cell = match CANONICAL.iter().position(|c| *c == canonical) {
+            Some(k) => self.views[k].as_ref(),
+            None => self
+                .side_columns
+                .iter()
+                .find(|(name, _)| name == canonical)
+                .map(|(_, v)| v),
+        }
+        .map_or(Cell::Missing, |v| v.cell(row));
         if self.columns.reads_as_missing(cell) {
             Cell::Missing
         } else {
@@ -1167,26 +1241,43 @@ impl RowReader<'_, '_> {
             return Ok(None);
         };
         let codes = self.columns.choice_codes();
-        if codes.is_empty() {
-            if text.eq_ignore_ascii_case("a") {
-                return Ok(Some(Choice::A));
+        let sides = &SIDES[..self.n_sides];
+        let on_a_side = |choice: Choice| -> Result<Option<Choice>, InputError> {
+            if choice.index() < self.n_sides {
+                Ok(Some(choice))
+            } else {
+                Err(self.error(
+                    row,
+                    "choice",
+                    format!(
+                        "is {}; expected {}, or empty for no response (the file has no \
+                         effort_{} column, so no option {})",
+                        cell.shown(),
+                        sides.join(", "),
+                        choice.as_str(),
+                        choice.as_str()
+                    ),
+                ))
             }
-            if text.eq_ignore_ascii_case("b") {
-                return Ok(Some(Choice::B));
+        };
+        if codes.is_empty() {
+            if let Some(choice) = Choice::from_label(&text) {
+                return on_a_side(choice);
             }
             return Err(self.error(
                 row,
                 "choice",
                 format!(
-                    "is {}; expected a, b, or empty for no response (other codes such as 1/2 \
+                    "is {}; expected {}, or empty for no response (other codes such as 1/2 \
                      are mapped with --choice-codes 1=a,2=b){}",
                     cell.shown(),
+                    sides.join(", "),
                     missing_hint(&text)
                 ),
             ));
         }
         if let Some((_, choice)) = codes.iter().find(|(c, _)| c.eq_ignore_ascii_case(&text)) {
-            return Ok(Some(*choice));
+            return on_a_side(*choice);
         }
         let listed: Vec<String> = codes
             .iter()

@@ -202,11 +202,12 @@ pub fn screen(subject: &Subject, fast_floor: f64, trimmed: TrimCounts) -> Subjec
         fast_share: share(fast, timed),
         share_a: share(chose_a, responses),
         trimmed,
-        effort_varies: varies(&|t| t.effort_a) || varies(&|t| t.effort_b),
+        effort_varies: (0..subject.trials.first().map_or(0, |t| t.offers.len()))
+            .any(|k| varies(&|t| t.offers.get(k).map_or(0.0, |o| o.effort))),
         rewards_offered: subject
             .trials
             .iter()
-            .filter(|t| t.reward_a.is_some() && t.reward_b.is_some())
+            .filter(|t| t.offers.iter().all(|o| o.reward.is_some()))
             .count(),
     }
 }

@@ -46,20 +46,17 @@ pub struct Latent {
     pub rt: Option<f64>,
     /// Outcome delivered.
     pub outcome: Option<f64>,
-    /// Value of option a before the outcome.
-    pub value_a: f64,
-    /// Value of option b before the outcome.
-    pub value_b: f64,
-    /// Subjective value of a after the effort cost.
-    pub subjective_value_a: f64,
-    /// Subjective value of b after the effort cost.
-    pub subjective_value_b: f64,
+    /// Value of each offered option (a, b, …) before the outcome.
+    pub values: Vec<f64>,
+    /// Subjective value of each offered option after its costs.
+    pub subjective_values: Vec<f64>,
     /// Subjective value of the chosen option.
     pub value_chosen: Option<f64>,
-    /// Subjective value of the option not chosen.
+    /// Subjective value of the option not chosen (with more than two options, the mean of the
+    /// options not chosen).
     pub value_unchosen: Option<f64>,
-    /// subjective_value_a − subjective_value_b.
-    pub value_difference: f64,
+    /// subjective_value_a − subjective_value_b (trials of two options).
+    pub value_difference: Option<f64>,
     /// Outcome minus the chosen option's value (None without response, outcome or learning).
     pub prediction_error: Option<f64>,
     /// Effort demanded by the chosen option.
@@ -74,6 +71,20 @@ pub struct Latent {
     pub expected_decision_time: Option<f64>,
     /// Expected response time = decision time + non-decision time (models of time only).
     pub expected_rt: Option<f64>,
+    /// The value on this trial of each component parameter that varies over trials (by
+    /// condition or covariate), in the order of [`varying_parameter_names`].
+    pub varying: Vec<f64>,
+}
+
+/// Names of the component parameters of `model` that vary over trials, in model order.
+pub fn varying_parameter_names(model: &Model) -> Vec<String> {
+    model
+        .component_parameters
+        .iter()
+        .enumerate()
+        .filter(|(k, _)| model.component_varies(*k))
+        .map(|(_, name)| name.clone())
+        .collect()
 }
 
 /// The latent variables of every trial of `subject` at natural-scale parameter values `natural`
@@ -86,24 +97,19 @@ pub fn latents(
     let likelihood = SubjectLikelihood::new(model, subject, None)?;
     let diffusion = model.uses_response_times();
     let traces = likelihood.trace(natural);
+    let varying: Vec<usize> = (0..model.component_parameters.len())
+        .filter(|&k| model.component_varies(k))
+        .collect();
     Ok(subject
         .trials
         .iter()
         .zip(traces)
         .map(|(t, tr)| {
-            let chosen = t.choice.map(|c| match c {
-                Choice::A => (
-                    tr.subjective_value_a,
-                    tr.subjective_value_b,
-                    t.effort_a,
-                    tr.probability_a,
-                ),
-                Choice::B => (
-                    tr.subjective_value_b,
-                    tr.subjective_value_a,
-                    t.effort_b,
-                    1.0 - tr.probability_a,
-                ),
+            let sv = &tr.subjective_values;
+            let chosen = t.choice.map(|c| {
+                let k = c.index();
+                let unchosen = (sv.iter().sum::<f64>() - sv[k]) / (sv.len() - 1) as f64;
+                (sv[k], unchosen, t.offers[k].effort, tr.probabilities[k])
             });
             Latent {
                 subject: subject.id.clone(),
@@ -115,30 +121,34 @@ pub fn latents(
                 choice: t.choice,
                 rt: t.rt,
                 outcome: t.outcome,
-                value_a: tr.value_a,
-                value_b: tr.value_b,
-                subjective_value_a: tr.subjective_value_a,
-                subjective_value_b: tr.subjective_value_b,
                 value_chosen: chosen.map(|c| c.0),
                 value_unchosen: chosen.map(|c| c.1),
-                value_difference: tr.subjective_value_a - tr.subjective_value_b,
+                value_difference: (sv.len() == 2).then(|| sv[0] - sv[1]),
                 prediction_error: tr.prediction_error,
                 effort_chosen: chosen.map(|c| c.2),
-                drift: diffusion.then_some(tr.signal),
-                decision_signal: tr.signal,
+                drift: diffusion.then(|| tr.signal[0]),
+                decision_signal: tr.decision_signal(),
                 choice_probability: chosen.map(|c| c.3),
                 expected_decision_time: tr.expected_times.map(|e| e.0),
                 expected_rt: tr.expected_times.map(|e| e.1),
+                varying: varying
+                    .iter()
+                    .map(|&k| tr.parameters.get(k).copied().unwrap_or(f64::NAN))
+                    .collect(),
+                values: tr.values,
+                subjective_values: tr.subjective_values,
             }
         })
         .collect())
 }
 
-/// One row per trial; missing values are empty (CSV) or null (Parquet). Values are raw.
-pub fn latents_table(rows: &[Latent]) -> Table {
+/// One row per trial; missing values are empty (CSV) or null (Parquet). Values are raw. Per
+/// option: `value_<side>` and `subjective_value_<side>`; per component parameter that varies
+/// over trials (`varying`, from [`varying_parameter_names`]): `<name>_on_trial`.
+pub fn latents_table(rows: &[Latent], varying: &[String]) -> Table {
     let text = |f: &dyn Fn(&Latent) -> String| Column::Text(rows.iter().map(f).collect());
     let number = |f: &dyn Fn(&Latent) -> Option<f64>| Column::Number(rows.iter().map(f).collect());
-    Table::default()
+    let table = Table::default()
         .with("subject", text(&|r| r.subject.clone()))
         .with("group", text(&|r| r.group.clone()))
         .with("run", text(&|r| r.run.clone()))
@@ -154,19 +164,9 @@ pub fn latents_table(rows: &[Latent]) -> Table {
         )
         .with("rt", number(&|r| r.rt))
         .with("outcome", number(&|r| r.outcome))
-        .with("value_a", number(&|r| Some(r.value_a)))
-        .with("value_b", number(&|r| Some(r.value_b)))
-        .with(
-            "subjective_value_a",
-            number(&|r| Some(r.subjective_value_a)),
-        )
-        .with(
-            "subjective_value_b",
-            number(&|r| Some(r.subjective_value_b)),
-        )
         .with("value_chosen", number(&|r| r.value_chosen))
         .with("value_unchosen", number(&|r| r.value_unchosen))
-        .with("value_difference", number(&|r| Some(r.value_difference)))
+        .with("value_difference", number(&|r| r.value_difference))
         .with("prediction_error", number(&|r| r.prediction_error))
         .with("effort_chosen", number(&|r| r.effort_chosen))
         .with("drift", number(&|r| r.drift))
@@ -176,7 +176,28 @@ pub fn latents_table(rows: &[Latent]) -> Table {
             "expected_decision_time",
             number(&|r| r.expected_decision_time),
         )
-        .with("expected_rt", number(&|r| r.expected_rt))
+        .with("expected_rt", number(&|r| r.expected_rt));
+    let n_sides = rows.iter().map(|r| r.values.len()).max().unwrap_or(2);
+    let table = crate::data::SIDES[..n_sides]
+        .iter()
+        .enumerate()
+        .fold(table, |table, (k, side)| {
+            table
+                .with(
+                    &format!("value_{side}"),
+                    number(&|r| r.values.get(k).copied()),
+                )
+                .with(
+                    &format!("subjective_value_{side}"),
+                    number(&|r| r.subjective_values.get(k).copied()),
+                )
+        });
+    varying.iter().enumerate().fold(table, |table, (k, name)| {
+        table.with(
+            &format!("{name}_on_trial"),
+            number(&|r| r.varying.get(k).copied()),
+        )
+    })
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -618,10 +639,10 @@ static MODULATORS: [Modulator; 8] = [
         name: "value_difference",
         long_name: "Subjective value difference",
         description: "Subjective value of option a minus subjective value of option b, before \
-                      the outcome",
+                      the outcome; n/a on trials of more than two options",
         units: "outcome units",
         at_outcome: false,
-        value: |l| Some(l.value_difference),
+        value: |l| l.value_difference,
     },
     Modulator {
         name: "effort_chosen",

@@ -355,7 +355,7 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
         .iter()
         .zip(&trace)
         .filter(|(t, _)| t.choice.is_some())
-        .map(|(_, r)| r.probability_a)
+        .map(|(_, r)| r.probabilities[0])
         .collect();
     let (lo, hi) = probabilities
         .iter()
@@ -374,17 +374,19 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
     }
 }
 
-/// n_a ln p̂ + n_b ln(1 − p̂), the log-likelihood of the responses under the constant choice
-/// probability that fits them best (p̂ = n_a/n; 0 ln 0 = 0).
+/// Σ_k n_k ln(n_k/n) over the sides chosen (a, b, …), the log-likelihood of the responses under
+/// the constant choice probabilities that fit them best (p̂_k = n_k/n; 0 ln 0 = 0).
 fn constant_choice_baseline(likelihood: &SubjectLikelihood<'_>) -> f64 {
-    let choices: Vec<bool> = likelihood
-        .subject()
-        .trials
+    let mut counts: Vec<f64> = Vec::new();
+    for c in likelihood.subject().trials.iter().filter_map(|t| t.choice) {
+        if counts.len() <= c.index() {
+            counts.resize(c.index() + 1, 0.0);
+        }
+        counts[c.index()] += 1.0;
+    }
+    let n: f64 = counts.iter().sum();
+    counts
         .iter()
-        .filter_map(|t| t.choice.map(|c| c == crate::data::Choice::A))
-        .collect();
-    let n = choices.len() as f64;
-    let n_a = choices.iter().filter(|&&a| a).count() as f64;
-    let term = |k: f64| if k > 0.0 { k * (k / n).ln() } else { 0.0 };
-    term(n_a) + term(n - n_a)
+        .map(|&k| if k > 0.0 { k * (k / n).ln() } else { 0.0 })
+        .sum()
 }

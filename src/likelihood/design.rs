@@ -141,7 +141,7 @@ impl TrialColumns {
     }
 
     /// The values on trial `t` of the cost attributes other than effort, in the model's order:
-    /// (a, b) for each.
+    /// one per offered option (a, b, …) for each.
     pub fn attribute_values(&self, t: usize) -> &[f64] {
         &self.attribute_values[t * self.n_attribute_values..(t + 1) * self.n_attribute_values]
     }
@@ -216,9 +216,15 @@ fn bind_cost_attributes(
         subject: subject.id.clone(),
         message,
     };
+    let n_sides = subject
+        .trials
+        .iter()
+        .map(|t| t.offers.len())
+        .max()
+        .unwrap_or(2);
     let mut columns = Vec::new();
     for cost in model.costs.iter().filter(|c| !c.is_effort()) {
-        for side in ["a", "b"] {
+        for side in &crate::data::SIDES[..n_sides] {
             let name = format!("{}_{side}", cost.name);
             let column = subject.covariate_column(&name).ok_or_else(|| {
                 mismatch(format!(

@@ -44,27 +44,35 @@ pub struct Evaluation {
 /// Every model quantity of one trial, from [`SubjectLikelihood::trace`].
 #[derive(Clone, Debug, PartialEq)]
 pub struct TrialTrace {
-    /// Learned (or offered) value of option a before the trial's outcome.
-    pub value_a: f64,
-    /// Value of option b.
-    pub value_b: f64,
-    /// Subjective value of a after the effort cost.
-    pub subjective_value_a: f64,
-    /// Subjective value of b.
-    pub subjective_value_b: f64,
-    /// Drift rate (or softmax signal).
-    pub signal: f64,
+    /// Learned (or offered) value of each offered option (a, b, …) before the trial's outcome.
+    pub values: Vec<f64>,
+    /// Subjective value of each offered option after its costs.
+    pub subjective_values: Vec<f64>,
+    /// What the choice stage sees: the drift rate (one value) for stages with a drift mapping,
+    /// otherwise the subjective values.
+    pub signal: Vec<f64>,
     /// Prediction error at the outcome (None without response or feedback, or without learning).
     pub prediction_error: Option<f64>,
     /// ln P(observation) of the trial, None when it carries no information.
     pub ln_likelihood: Option<f64>,
-    /// Model probability of choosing a.
-    pub probability_a: f64,
+    /// Model probability of choosing each offered option.
+    pub probabilities: Vec<f64>,
     /// Expected decision time and response time, where the model has time.
     pub expected_times: Option<(f64, f64)>,
     /// The components' parameters on this trial (in the order of
     /// [`Model::component_parameters`]) when some vary over trials; empty otherwise.
     pub parameters: Vec<f64>,
+}
+
+impl TrialTrace {
+    /// The drift rate or other decision signal when it is one number (two-option stages with
+    /// a drift mapping), else the difference of the first two subjective values.
+    pub fn decision_signal(&self) -> f64 {
+        match self.signal.as_slice() {
+            [one] => *one,
+            _ => self.subjective_values[0] - self.subjective_values[1],
+        }
+    }
 }
 
 /// One subject's data bound to one model.
@@ -117,11 +125,24 @@ impl<'a> SubjectLikelihood<'a> {
             && let Some(t) = subject
                 .trials
                 .iter()
-                .find(|t| t.reward_a.is_none() || t.reward_b.is_none())
+                .find(|t| t.offers.iter().any(|o| o.reward.is_none()))
         {
             return Err(mismatch(format!(
-                "model {} uses offered values, but trial {} has no reward_a/reward_b",
+                "model {} uses offered values, but trial {} lacks the reward of an option \
+                 (reward_a, reward_b, …)",
                 model.name, t.trial
+            )));
+        }
+        if let Some(most) = model.choice.max_options()
+            && let Some(t) = subject.trials.iter().find(|t| t.offers.len() > most)
+        {
+            return Err(mismatch(format!(
+                "the {} choice stage of model {} chooses between {most} options, but trial {} \
+                 offers {}; use a stage for more options (softmax)",
+                model.component_names[3],
+                model.name,
+                t.trial,
+                t.offers.len()
             )));
         }
         let rt_min = rts.iter().copied().fold(f64::INFINITY, f64::min);
@@ -285,7 +306,7 @@ impl<'a> SubjectLikelihood<'a> {
     pub fn evaluate(&self, theta: &[f64]) -> Evaluation {
         assert!(theta.len() == self.free.len() && self.free.len() <= MAX_FREE);
         let (p, thetas) = self.duals(theta);
-        let ln_l = self.run(&p, &thetas, |_, _| {});
+        let ln_l = self.run(&p, &thetas, None);
         if let Some(prior) = &self.group_prior {
             let (ln_prior, slope) = prior.ln_density_with_gradient(theta);
             return Evaluation {
@@ -326,13 +347,19 @@ impl<'a> SubjectLikelihood<'a> {
             .map(|(&x, g)| constant(g.unconstrained(x)))
             .collect();
         let mut out = Vec::with_capacity(self.subject.trials.len());
-        self.run(&p, &thetas, |trace, _| out.push(trace));
+        self.run(&p, &thetas, Some(&mut |trace, _| out.push(trace)));
         out
     }
 
-    /// Runs the recursion; `visit` sees every trial's quantities (with its index). `p` and
-    /// `thetas` hold every model parameter by slot, on the natural and the unconstrained scale.
-    fn run(&self, p: &[D], thetas: &[D], mut visit: impl FnMut(TrialTrace, usize)) -> D {
+    /// Runs the recursion; `visit`, when given, sees every trial's quantities (with its index).
+    /// `p` and `thetas` hold every model parameter by slot, on the natural and the unconstrained
+    /// scale.
+    fn run(
+        &self,
+        p: &[D],
+        thetas: &[D],
+        mut visit: Option<&mut dyn FnMut(TrialTrace, usize)>,
+    ) -> D {
         let model = self.model;
         let mut total = constant(0.0);
         if !model.varies() {
@@ -341,12 +368,15 @@ impl<'a> SubjectLikelihood<'a> {
             let mut values = Values::new(model, p, self.subject.options.len());
             let prepared = model.choice.prepare(p, self.context);
             for (index, trial) in self.subject.trials.iter().enumerate() {
-                let (ln_trial, trace) =
-                    self.step(index, trial, p, prepared.as_ref(), &mut values, false);
-                if let Some(l) = ln_trial {
+                let step = Step {
+                    index,
+                    trial,
+                    p,
+                    record_parameters: false,
+                };
+                if let Some(l) = self.step(step, prepared.as_ref(), &mut values, &mut visit) {
                     total += l;
                 }
-                visit(trace, index);
             }
             return total;
         }
@@ -358,56 +388,82 @@ impl<'a> SubjectLikelihood<'a> {
             let values = values
                 .get_or_insert_with(|| Values::new(model, &trial_p, self.subject.options.len()));
             let prepared = model.choice.prepare(&trial_p, self.context);
-            let (ln_trial, trace) =
-                self.step(index, trial, &trial_p, prepared.as_ref(), values, true);
-            if let Some(l) = ln_trial {
+            let step = Step {
+                index,
+                trial,
+                p: &trial_p,
+                record_parameters: true,
+            };
+            if let Some(l) = self.step(step, prepared.as_ref(), values, &mut visit) {
                 total += l;
             }
-            visit(trace, index);
         }
         total
     }
 
-    /// Scores one trial with the components' parameters `p` and learns from its outcome;
-    /// `record_parameters` keeps `p` in the trace (for models whose parameters vary).
+    /// Scores one trial with the components' parameters and learns from its outcome; when
+    /// `visit` is given it sees the trial's quantities.
     fn step(
         &self,
-        index: usize,
-        trial: &Trial,
-        p: &[D],
+        step: Step<'_>,
         prepared: &dyn crate::model::components::PreparedChoice,
         values: &mut Values,
-        record_parameters: bool,
-    ) -> (Option<D>, TrialTrace) {
+        visit: &mut Option<&mut dyn FnMut(TrialTrace, usize)>,
+    ) -> Option<D> {
         let model = self.model;
-        let step = values.offer(model, trial, p, self.design.attribute_values(index));
+        let Step {
+            index,
+            trial,
+            p,
+            record_parameters,
+        } = step;
+        values.appraise(model, trial, p, self.design.attribute_values(index));
         let observation = Observation {
             choice: trial.choice,
             rt: trial.rt,
         };
-        let ln_trial = prepared.ln_likelihood(step.signal, &observation);
+        let ln_trial = prepared.ln_likelihood(&values.appraisal.signal, &observation);
+        let trace = visit.as_ref().map(|_| {
+            let re = |x: &[D]| -> Vec<f64> { x.iter().map(|d| d.re).collect() };
+            let signal = re(&values.appraisal.signal);
+            TrialTrace {
+                values: re(&values.appraisal.values),
+                subjective_values: re(&values.appraisal.subjective),
+                probabilities: prepared.probabilities(&signal),
+                expected_times: prepared.expected_times(&signal),
+                signal,
+                prediction_error: None,
+                ln_likelihood: ln_trial.map(|l| l.re),
+                parameters: if record_parameters {
+                    p.iter().map(|x| x.re).collect()
+                } else {
+                    Vec::new()
+                },
+            }
+        });
         let prediction_error = match (trial.choice, trial.outcome) {
             (Some(choice), Some(r)) => values.learn(model, trial, choice, r, p),
             _ => None,
         };
-        let trace = TrialTrace {
-            value_a: step.q_a.re,
-            value_b: step.q_b.re,
-            subjective_value_a: step.sv_a.re,
-            subjective_value_b: step.sv_b.re,
-            signal: step.signal.re,
-            prediction_error,
-            ln_likelihood: ln_trial.map(|l| l.re),
-            probability_a: prepared.probability_a(step.signal.re),
-            expected_times: prepared.expected_times(step.signal.re),
-            parameters: if record_parameters {
-                p.iter().map(|x| x.re).collect()
-            } else {
-                Vec::new()
-            },
-        };
-        (ln_trial, trace)
+        if let (Some(visit), Some(trace)) = (visit.as_mut(), trace) {
+            visit(
+                TrialTrace {
+                    prediction_error,
+                    ..trace
+                },
+                index,
+            );
+        }
+        ln_trial
     }
+}
+
+/// One trial to score: its index and data, and the components' parameters on it.
+struct Step<'s> {
+    index: usize,
+    trial: &'s Trial,
+    p: &'s [D],
+    record_parameters: bool,
 }
 
 /// The trials whose ndt is the model parameter in `slot`: every trial, or those of its level.
@@ -436,20 +492,25 @@ fn ndt_trials<'s>(
         .map(|(_, trial)| trial)
 }
 
-/// What the model computes for one trial's offer, before its outcome.
-pub(crate) struct Offer {
-    pub q_a: D,
-    pub q_b: D,
-    pub sv_a: D,
-    pub sv_b: D,
-    pub signal: D,
+/// What the model computes for one trial's offers, before its outcome (buffers reused from
+/// trial to trial).
+#[derive(Default)]
+pub(crate) struct Appraisal {
+    /// Learned (or offered) value of each offered option.
+    pub values: Vec<D>,
+    /// Subjective value of each offered option.
+    pub subjective: Vec<D>,
+    /// The choice stage's input: the drift (stages with a drift mapping) or the subjective
+    /// values.
+    pub signal: Vec<D>,
 }
 
 /// The learned values of a subject's options during the recursion (shared by the likelihood
-/// and the simulator, so that both run the same model).
+/// and the simulator, so that both run the same model), with the current trial's appraisal.
 pub(crate) struct Values {
     values: Vec<D>,
     initial: D,
+    pub appraisal: Appraisal,
 }
 
 impl Values {
@@ -458,44 +519,46 @@ impl Values {
         Values {
             values: vec![initial; n_options.max(2)],
             initial,
+            appraisal: Appraisal::default(),
         }
     }
 
-    /// Values, subjective values and decision signal of a trial's offer; `attributes` holds the
-    /// trial's values of the cost attributes other than effort, (a, b) for each in model order.
-    pub(crate) fn offer(&self, model: &Model, trial: &Trial, p: &[D], attributes: &[f64]) -> Offer {
-        let (q_a, q_b) = if model.learns() {
-            (self.values[trial.option_a], self.values[trial.option_b])
-        } else {
-            (
-                constant(trial.reward_a.unwrap_or(f64::NAN)),
-                constant(trial.reward_b.unwrap_or(f64::NAN)),
-            )
-        };
-        // The cost attributes in order: SV = f_n(…f_1(Q, E_1)…, E_n).
-        let (mut sv_a, mut sv_b) = (q_a, q_b);
-        let mut others = attributes.chunks_exact(2);
-        for cost in &model.costs {
-            let (e_a, e_b) = if cost.is_effort() {
-                (trial.effort_a, trial.effort_b)
+    /// Appraises a trial's offers into [`Values::appraisal`]: values, subjective values after
+    /// the cost attributes in order (SV = f_n(…f_1(Q, E_1)…, E_n)) and the decision signal;
+    /// `attributes` holds the trial's values of the cost attributes other than effort, one per
+    /// offered option for each attribute in model order.
+    pub(crate) fn appraise(&mut self, model: &Model, trial: &Trial, p: &[D], attributes: &[f64]) {
+        let n = trial.offers.len();
+        let a = &mut self.appraisal;
+        a.values.clear();
+        a.subjective.clear();
+        a.signal.clear();
+        for offer in &trial.offers {
+            a.values.push(if model.learns() {
+                self.values[offer.option]
             } else {
-                let pair = others.next().expect("bound with the model's attributes");
-                (pair[0], pair[1])
-            };
-            sv_a = cost.shape.subjective_value(sv_a, e_a, p);
-            sv_b = cost.shape.subjective_value(sv_b, e_b, p);
+                constant(offer.reward.unwrap_or(f64::NAN))
+            });
         }
-        let difference = sv_a - sv_b;
-        let signal = match &model.drift {
-            Some(mapping) => mapping.drift(difference, p),
-            None => difference,
-        };
-        Offer {
-            q_a,
-            q_b,
-            sv_a,
-            sv_b,
-            signal,
+        a.subjective.extend_from_slice(&a.values);
+        let mut others = attributes.chunks_exact(n.max(1));
+        for cost in &model.costs {
+            let extra = if cost.is_effort() {
+                None
+            } else {
+                Some(others.next().expect("bound with the model's attributes"))
+            };
+            for (k, sv) in a.subjective.iter_mut().enumerate() {
+                let amount = extra.map_or(trial.offers[k].effort, |e| e[k]);
+                *sv = cost.shape.subjective_value(*sv, amount, p);
+            }
+        }
+        match &model.drift {
+            // Stages with a drift mapping choose between two options (checked when binding).
+            Some(mapping) => a
+                .signal
+                .push(mapping.drift(a.subjective[0] - a.subjective[1], p)),
+            None => a.signal.extend_from_slice(&a.subjective),
         }
     }
 
@@ -512,10 +575,7 @@ impl Values {
         if !model.learns() {
             return None;
         }
-        let chosen = match choice {
-            Choice::A => trial.option_a,
-            Choice::B => trial.option_b,
-        };
+        let chosen = trial.offers[choice.index()].option;
         let prediction_error = r - self.values[chosen].re;
         self.values[chosen] = model.learning.update(self.values[chosen], r, p);
         if let Some(slot) = model.forget_slot {

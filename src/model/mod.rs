@@ -101,6 +101,12 @@ impl Model {
             .any(|s| matches!(s, varying::Source::Varying(_)))
     }
 
+    /// True when the component parameter at index `k` (of [`Model::component_parameters`])
+    /// varies over trials.
+    pub fn component_varies(&self, k: usize) -> bool {
+        matches!(self.sources.get(k), Some(varying::Source::Varying(_)))
+    }
+
     /// The component parameter (as named in [`Model::component_parameters`]) that the model
     /// parameter in `slot` belongs to: itself, or the parameter whose level or slope it is.
     pub fn component_parameter_of(&self, slot: usize) -> &str {

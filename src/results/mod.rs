@@ -268,12 +268,12 @@ pub fn trials_table(table: &TrialTable) -> Table {
         text(&|s, _| s.group.clone()),
         text(&|_, t| t.run.clone()),
         Column::Integer(rows.iter().map(|(_, t)| t.trial).collect()),
-        text(&|s, t| s.options[t.option_a].clone()),
-        text(&|s, t| s.options[t.option_b].clone()),
-        number(&|t| Some(t.effort_a)),
-        number(&|t| Some(t.effort_b)),
-        number(&|t| t.reward_a),
-        number(&|t| t.reward_b),
+        text(&|s, t| s.options[t.offers[0].option].clone()),
+        text(&|s, t| s.options[t.offers[1].option].clone()),
+        number(&|t| Some(t.offers[0].effort)),
+        number(&|t| Some(t.offers[1].effort)),
+        number(&|t| t.offers[0].reward),
+        number(&|t| t.offers[1].reward),
         Column::OptionalText(
             rows.iter()
                 .map(|(_, t)| t.choice.map(|c| c.as_str().to_string()))
@@ -283,15 +283,41 @@ pub fn trials_table(table: &TrialTable) -> Table {
         number(&|t| t.outcome),
         number(&|t| t.onset),
         number(&|t| t.outcome_onset),
-        number(&|t| t.outcome_if_a),
-        number(&|t| t.outcome_if_b),
+        number(&|t| t.offers[0].outcome_if),
+        number(&|t| t.offers[1].outcome_if),
     ];
-    let canonical = ColumnMap::CANONICAL
+    let mut canonical = ColumnMap::CANONICAL
         .iter()
         .zip(columns)
         .fold(Table::default(), |table, (name, column)| {
             table.with(name, column)
         });
+    // Options after a and b (c, d, …), in the reader's layout.
+    let n_sides = rows.iter().map(|(_, t)| t.offers.len()).max().unwrap_or(2);
+    for (k, side) in crate::data::SIDES.iter().enumerate().take(n_sides).skip(2) {
+        let offer = |t: &Trial| t.offers.get(k).cloned();
+        canonical = canonical
+            .with(
+                &format!("option_{side}"),
+                Column::OptionalText(
+                    rows.iter()
+                        .map(|(s, t)| offer(t).map(|o| s.options[o.option].clone()))
+                        .collect(),
+                ),
+            )
+            .with(
+                &format!("effort_{side}"),
+                number(&|t| offer(t).map(|o| o.effort)),
+            )
+            .with(
+                &format!("reward_{side}"),
+                number(&|t| offer(t).and_then(|o| o.reward)),
+            )
+            .with(
+                &format!("outcome_if_{side}"),
+                number(&|t| offer(t).and_then(|o| o.outcome_if)),
+            );
+    }
     // The other columns of the table (per-trial covariates), cells as read.
     let names = table
         .subjects

@@ -66,6 +66,10 @@ impl ChoiceStage for Diffusion {
         true
     }
 
+    fn max_options(&self) -> Option<usize> {
+        Some(2)
+    }
+
     fn prepare<'a>(&'a self, p: &'a [D], context: SubjectContext) -> Box<dyn PreparedChoice + 'a> {
         let value = |slot: usize| p[slot].re;
         // The fitter keeps every parameter inside its declared bounds, so this cannot fail for
@@ -143,7 +147,8 @@ impl Prepared<'_> {
 }
 
 impl PreparedChoice for Prepared<'_> {
-    fn ln_likelihood(&self, signal: D, observation: &Observation) -> Option<D> {
+    fn ln_likelihood(&self, signal: &[D], observation: &Observation) -> Option<D> {
+        let signal = signal[0];
         let Some(base) = self.base else {
             return Some(D::from_re(f64::NEG_INFINITY));
         };
@@ -159,10 +164,7 @@ impl PreparedChoice for Prepared<'_> {
         };
         match (observation.choice, observation.rt) {
             (Some(choice), Some(rt)) => {
-                let bound = match choice {
-                    Choice::A => Bound::Upper,
-                    Choice::B => Bound::Lower,
-                };
+                let bound = bound_of(choice);
                 let (ln_f, g) = ln_density_with_gradient(rt, bound, &params).ok()?;
                 let ln_f = conditioned(self.chained(ln_f, g, &signal));
                 Some(match self.lapse {
@@ -181,10 +183,7 @@ impl PreparedChoice for Prepared<'_> {
             (Some(choice), None) => {
                 // A choice without a usable time (trimmed): ln P(bound), the absorption
                 // probability (Feller 1968); with lapses (1 − lapse)·P + lapse·½.
-                let bound = match choice {
-                    Choice::A => Bound::Upper,
-                    Choice::B => Bound::Lower,
-                };
+                let bound = bound_of(choice);
                 let ln_p = match self.active_lock(&params) {
                     Some(lock) => conditioned(self.ln_survival(lock, bound, &params, &signal)?),
                     None => {
@@ -202,6 +201,33 @@ impl PreparedChoice for Prepared<'_> {
         }
     }
 
+    fn probabilities(&self, signal: &[f64]) -> Vec<f64> {
+        let p = self.probability_a(signal[0]);
+        vec![p, 1.0 - p]
+    }
+
+    fn expected_times(&self, signal: &[f64]) -> Option<(f64, f64)> {
+        let params = self.base?.with_drift(signal[0]);
+        let decision = mean_decision_time(&params);
+        Some((decision, decision + params.ndt()))
+    }
+
+    fn simulate(&self, signal: &[f64], rng: &mut dyn Rng) -> (Choice, Option<f64>) {
+        self.draw(signal[0], rng)
+    }
+}
+
+/// The bound of a choice: a (index 0) is the upper bound, b the lower.
+fn bound_of(choice: Choice) -> Bound {
+    if choice == Choice::A {
+        Bound::Upper
+    } else {
+        Bound::Lower
+    }
+}
+
+impl Prepared<'_> {
+    /// P(choose a | drift), conditioned on the lock when there is one, with the lapse mixture.
     fn probability_a(&self, signal: f64) -> f64 {
         let Some(base) = self.base else {
             return f64::NAN;
@@ -224,13 +250,8 @@ impl PreparedChoice for Prepared<'_> {
         }
     }
 
-    fn expected_times(&self, signal: f64) -> Option<(f64, f64)> {
-        let params = self.base?.with_drift(signal);
-        let decision = mean_decision_time(&params);
-        Some((decision, decision + params.ndt()))
-    }
-
-    fn simulate(&self, signal: f64, rng: &mut dyn Rng) -> (Choice, Option<f64>) {
+    /// Draws a choice and a response time at drift `signal`.
+    fn draw(&self, signal: f64, rng: &mut dyn Rng) -> (Choice, Option<f64>) {
         let lapse = self
             .lapse
             .map_or(0.0, |(ln_keep, _)| 1.0 - ln_keep.re.exp());
@@ -261,9 +282,10 @@ impl PreparedChoice for Prepared<'_> {
             }
             rt = rt.max(lock);
         }
-        let choice = match bound {
-            Bound::Upper => Choice::A,
-            Bound::Lower => Choice::B,
+        let choice = if bound == Bound::Upper {
+            Choice::A
+        } else {
+            Choice::B
         };
         (choice, Some(rt))
     }

@@ -1,13 +1,13 @@
-//! Softmax choice stage for data without usable response times: P(a) = 1/(1 + exp(−β·(SV_a −
-//! SV_b))) (Luce 1959; Sutton & Barto 1998, §2.3), with an optional lapse mixture
-//! (1 − lapse)·P + lapse/2.
+//! Softmax choice stage for data without usable response times, over any number of options:
+//! P(k) = exp(β·SV_k)/Σ_j exp(β·SV_j) (Luce 1959; Sutton & Barto 1998, §2.3), which for two
+//! options is 1/(1 + exp(−β·(SV_a − SV_b))), with an optional lapse mixture
+//! (1 − lapse)·P + lapse/N.
 
 use super::{
     ChoiceStage, Entry, Observation, Options, PreparedChoice, Slots, SubjectContext, only_options,
 };
 use crate::data::Choice;
 use crate::model::dual::D;
-use crate::model::params::logistic;
 use num_dual::DualNum;
 use rand::{Rng, RngExt};
 
@@ -16,7 +16,7 @@ pub const ENTRY: Entry<dyn ChoiceStage> = Entry {
     name: "softmax",
     parameters: &["inverse_temperature", "lapse"],
     defaults: &[("lapse", 0.0)],
-    equation: "P(a) = (1 − lapse)/(1 + exp(−inverse_temperature·(SV_a − SV_b))) + lapse/2  (Luce 1959)",
+    equation: "P(k) = (1 − lapse)·exp(inverse_temperature·SV_k)/Σ_j exp(inverse_temperature·SV_j) + lapse/N  (Luce 1959)",
     build,
 };
 
@@ -42,6 +42,10 @@ impl ChoiceStage for Softmax {
         false
     }
 
+    fn max_options(&self) -> Option<usize> {
+        None
+    }
+
     fn prepare<'a>(&'a self, p: &'a [D], _context: SubjectContext) -> Box<dyn PreparedChoice + 'a> {
         Box::new(Prepared {
             beta: p[self.beta],
@@ -55,45 +59,60 @@ struct Prepared {
     lapse: D,
 }
 
-/// ln σ(x) = −ln(1 + e^−x), stable for any x.
-fn ln_logistic(x: D) -> D {
-    if x.re >= 0.0 {
-        -(-x).exp().ln_1p()
-    } else {
-        x - x.exp().ln_1p()
+/// ln P(k) = x_k − ln Σ_j e^{x_j} for x = β·SV, stable for any x (the largest term factored
+/// out of the sum).
+fn ln_softmax(x: &[D], k: usize) -> D {
+    let top = x.iter().map(|v| v.re).fold(f64::NEG_INFINITY, f64::max);
+    let sum = x
+        .iter()
+        .fold(D::from_re(0.0), |acc, v| acc + (*v - top).exp());
+    x[k] - top - sum.ln()
+}
+
+impl Prepared {
+    fn scaled(&self, signal: &[D]) -> Vec<D> {
+        signal.iter().map(|v| self.beta * *v).collect()
     }
 }
 
 impl PreparedChoice for Prepared {
-    fn ln_likelihood(&self, signal: D, observation: &Observation) -> Option<D> {
-        let x = self.beta * signal;
-        let x = match observation.choice? {
-            Choice::A => x,
-            Choice::B => -x,
-        };
+    fn ln_likelihood(&self, signal: &[D], observation: &Observation) -> Option<D> {
+        let k = observation.choice?.index();
+        let ln_p = ln_softmax(&self.scaled(signal), k);
         if self.lapse.re > 0.0 {
-            let p = ln_logistic(x).exp();
-            Some((p * (-self.lapse + 1.0) + self.lapse * 0.5).ln())
+            let n = signal.len() as f64;
+            Some((ln_p.exp() * (-self.lapse + 1.0) + self.lapse / n).ln())
         } else {
-            Some(ln_logistic(x))
+            Some(ln_p)
         }
     }
 
-    fn probability_a(&self, signal: f64) -> f64 {
+    fn probabilities(&self, signal: &[f64]) -> Vec<f64> {
         let lapse = self.lapse.re;
-        (1.0 - lapse) * logistic(self.beta.re * signal) + 0.5 * lapse
+        let n = signal.len() as f64;
+        let x: Vec<D> = signal
+            .iter()
+            .map(|&v| D::from_re(self.beta.re * v))
+            .collect();
+        (0..x.len())
+            .map(|k| (1.0 - lapse) * ln_softmax(&x, k).re.exp() + lapse / n)
+            .collect()
     }
 
-    fn expected_times(&self, _signal: f64) -> Option<(f64, f64)> {
+    fn expected_times(&self, _signal: &[f64]) -> Option<(f64, f64)> {
         None
     }
 
-    fn simulate(&self, signal: f64, rng: &mut dyn Rng) -> (Choice, Option<f64>) {
-        let choice = if rng.random::<f64>() < self.probability_a(signal) {
-            Choice::A
-        } else {
-            Choice::B
-        };
-        (choice, None)
+    fn simulate(&self, signal: &[f64], rng: &mut dyn Rng) -> (Choice, Option<f64>) {
+        let p = self.probabilities(signal);
+        let u = rng.random::<f64>();
+        let mut cumulative = 0.0;
+        for (k, pk) in p.iter().enumerate() {
+            cumulative += pk;
+            if u < cumulative {
+                return (Choice(k), None);
+            }
+        }
+        (Choice(p.len() - 1), None)
     }
 }

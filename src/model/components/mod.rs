@@ -94,8 +94,9 @@ pub struct SubjectContext {
     pub lock: Option<f64>,
 }
 
-/// Turns a decision signal (the drift rate for stages that use a drift mapping, otherwise the
-/// value difference SV_a − SV_b) into the probability of what was observed.
+/// Turns a decision signal into the probability of what was observed. The signal is the drift
+/// rate (one number) for stages that use a drift mapping, which choose between two options;
+/// otherwise it is the subjective value of every offered option.
 pub trait ChoiceStage: Send + Sync {
     /// True when the signal is the drift rate from the model's drift mapping.
     fn uses_drift_mapping(&self) -> bool;
@@ -103,20 +104,22 @@ pub trait ChoiceStage: Send + Sync {
     fn prepare<'a>(&'a self, p: &'a [D], context: SubjectContext) -> Box<dyn PreparedChoice + 'a>;
     /// True when response times enter the likelihood.
     fn uses_response_times(&self) -> bool;
+    /// The most options a trial may offer (`None`: any number).
+    fn max_options(&self) -> Option<usize>;
 }
 
 /// A choice stage with its parameters fixed for one likelihood evaluation.
 pub trait PreparedChoice {
     /// ln P(observation | signal), with its gradient; `None` for an observation that carries no
     /// information (no response and no deadline).
-    fn ln_likelihood(&self, signal: D, observation: &Observation) -> Option<D>;
-    /// P(choose a | signal).
-    fn probability_a(&self, signal: f64) -> f64;
+    fn ln_likelihood(&self, signal: &[D], observation: &Observation) -> Option<D>;
+    /// P(choose each offered option | signal).
+    fn probabilities(&self, signal: &[f64]) -> Vec<f64>;
     /// Expected decision time and expected response time given the signal, where the stage
     /// models time.
-    fn expected_times(&self, signal: f64) -> Option<(f64, f64)>;
+    fn expected_times(&self, signal: &[f64]) -> Option<(f64, f64)>;
     /// Draws a choice and a response time (None where the stage models no time).
-    fn simulate(&self, signal: f64, rng: &mut dyn Rng) -> (Choice, Option<f64>);
+    fn simulate(&self, signal: &[f64], rng: &mut dyn Rng) -> (Choice, Option<f64>);
 }
 
 /// Learning rules by name.
