@@ -129,29 +129,39 @@ pub(crate) fn ln_integrate_time(
 ///
 /// Substitutes s = e^y (ds = s dy) and lays 10-point Gauss–Legendre panels in y whose width keeps
 /// the change of the log-integrand per panel below 5 nats (from the shape in `shape`), at most 1.
-/// An open end (lo = 0 or hi = ∞) is cut where the integrand has fallen 45 nats below its value
-/// at the nearest interior point of interest, which bounds the neglected mass near 1e-19 relative.
+/// An open end (lo = 0 or hi = ∞), or a lower end closer to 0 than that point, is cut where the
+/// integrand has fallen 45 nats below its value at the nearest interior point of interest, which
+/// bounds the neglected mass near 1e-19 relative.
 pub(crate) fn time_nodes(lo: f64, hi: f64, shape: TimeShape) -> Vec<(f64, f64)> {
     let mut nodes = Vec::new();
     if !positive(hi - lo) {
         return nodes;
     }
-    let mode = (2.0 * shape.c / 3.0).max(f64::MIN_POSITIVE);
+    // The integrand behaves like s^(−3/2)·exp(−c/s − κs); its mode solves κs² + 1.5s − c = 0,
+    // s = 2c/(1.5 + √(2.25 + 4κc)) (κ = κ₀ + κ₁, its largest value, which puts the mode no later
+    // than the true one; κ = 0 gives 2c/3). Without the drift term the reference lies far beyond
+    // the mass of fast processes and the panels there are needlessly narrow.
+    let kappa = shape.kappa0 + shape.kappa1;
+    let mode =
+        (2.0 * shape.c / (1.5 + (2.25 + 4.0 * kappa * shape.c).sqrt())).max(f64::MIN_POSITIVE);
     let reference = mode.clamp(lo, hi.min(f64::MAX));
-    let s_lo = if lo > 0.0 {
-        lo
-    } else {
-        shape.c / (shape.c / reference + TAIL_NATS)
-    };
+    // Below c/(c/reference + 45) the integrand (which rises like e^{−c/s}) lies more than 45
+    // nats under its value at the reference point, so the lower end is cut there whether the
+    // range is open (lo = 0) or starts closer to 0 than that: a range from a tiny lo would
+    // otherwise need ever narrower panels (the log-integrand changes by c/s per unit of ln s).
+    let s_lo = lo.max(shape.c / (shape.c / reference + TAIL_NATS));
     let s_hi = if hi.is_finite() {
         hi
     } else {
         // The tail falls at rate κ(s) ≥ κ₀ + κ₁/(1 + η²s); taking it at the far end of the
         // slowest case keeps the cut conservative.
+        // Beyond `from` the −c/s part of the log-integrand can still rise by at most c/from,
+        // so the cut lies (45 + c/from)/κ past it.
         let from = reference.max(lo);
-        let far = from + TAIL_NATS / shape.kappa0.max(1e-300);
+        let nats = TAIL_NATS + shape.c / from;
+        let far = from + nats / shape.kappa0.max(1e-300);
         let rate = shape.kappa0 + shape.kappa1 / (1.0 + shape.eta2 * far);
-        from + TAIL_NATS / rate.max(1e-300)
+        from + nats / rate.max(1e-300)
     };
     let (y_lo, y_hi) = (s_lo.ln(), s_hi.ln());
     let rule = gauss_legendre();
