@@ -147,6 +147,7 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             &run.options,
             &settings.em,
             settings.per_group,
+            None,
             run.threads,
             &report,
         )?;
