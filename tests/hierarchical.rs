@@ -89,6 +89,7 @@ fn empirical_bayes_beats_maximum_likelihood_with_few_trials() {
         &options,
         &em,
         false,
+        None,
         0,
         &|_, _, _, _| {},
     )
@@ -192,6 +193,7 @@ fn empirical_bayes_beats_maximum_likelihood_with_few_trials() {
         &options,
         &full,
         false,
+        None,
         0,
         &|_, _, _, _| {},
     )

@@ -63,6 +63,8 @@ pub fn run(
                 per_group: true,
                 em: EmOptions::default(),
                 models: vec![REFERENCE.to_string()],
+                covariates: Vec::new(),
+                centred: true,
             }),
             screen: crate::data::ScreenSettings::default(),
         },

@@ -2,12 +2,13 @@
 
 use crate::data::{ColumnMap, ScreenSettings, TrialTable};
 use crate::files::OutputSet;
+use crate::fit::prior_regression::{INTERCEPT, SubjectScores};
 use crate::fit::{EmOptions, FitOptions, GroupFit, Skipped, SubjectFit, fit_table_hierarchical};
 use crate::model::{Model, load_model};
 use crate::progress::Progress;
 use crate::results::{
     EstimateSource, estimates_wide_table, group_correlation_table, group_evidence_table,
-    group_prior_table, parameters_table, summary_table,
+    group_prior_table, parameters_table, prior_regression_table, summary_table,
 };
 use sha2::{Digest, Sha256};
 use std::collections::HashMap;
@@ -44,6 +45,71 @@ pub struct Hierarchical {
     pub em: EmOptions,
     /// Only these models get group priors (empty: every model).
     pub models: Vec<String>,
+    /// Columns of participant scores on which the prior mean depends (empty: none).
+    pub covariates: Vec<String>,
+    /// Centre the scores on their mean over the participants of each prior.
+    pub centred: bool,
+}
+
+/// The column names of `--prior-covariates`, trimmed; refuses an empty name and a name given
+/// twice.
+pub fn check_prior_covariates(names: Vec<String>) -> Result<Vec<String>, String> {
+    let names: Vec<String> = names.iter().map(|n| n.trim().to_string()).collect();
+    for (l, name) in names.iter().enumerate() {
+        if name.is_empty() {
+            return Err(format!(
+                "--prior-covariates {}: an empty column name; expected column names separated \
+                 by commas",
+                names.join(",")
+            ));
+        }
+        if names[..l].contains(name) {
+            return Err(format!(
+                "--prior-covariates {}: column {name:?} is named twice",
+                names.join(",")
+            ));
+        }
+    }
+    Ok(names)
+}
+
+/// The participant scores of `--prior-covariates` in the table read from `data`, checked before
+/// any fit: a column the reader uses for the trials is refused, as are the errors of
+/// [`SubjectScores::from_table`] (naming file, column, participant and trial).
+fn participant_scores(
+    data: &Path,
+    table: &TrialTable,
+    columns: &ColumnMap,
+    settings: &Hierarchical,
+) -> Result<Option<SubjectScores>, Box<dyn std::error::Error>> {
+    if settings.covariates.is_empty() {
+        return Ok(None);
+    }
+    for name in &settings.covariates {
+        if let Some(canonical) = ColumnMap::CANONICAL
+            .iter()
+            .find(|c| columns.file_name(c) == name.as_str())
+        {
+            return Err(crate::files::InputError {
+                column: Some(name.clone()),
+                ..crate::files::InputError::file(
+                    data,
+                    format!(
+                        "--prior-covariates: this is the trial table's {canonical} column, \
+                         read for the trials; expected another column holding a score per \
+                         participant"
+                    ),
+                )
+            }
+            .into());
+        }
+    }
+    Ok(Some(SubjectScores::from_table(
+        data,
+        table,
+        &settings.covariates,
+        settings.centred,
+    )?))
 }
 
 /// The column mapping of `--columns`, with `--by COLUMN` read as the group column.
@@ -101,6 +167,10 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         )
         .into());
     }
+    let scores = match &run.hierarchical {
+        Some(settings) => participant_scores(run.data, &table, &run.columns, settings)?,
+        None => None,
+    };
     let models = load_models(run.models)?;
     let screened = super::input::screen_before_fit(
         run.data,
@@ -147,6 +217,7 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             &run.options,
             &settings.em,
             settings.per_group,
+            scores.as_ref(),
             run.threads,
             &report,
         )?;
@@ -204,7 +275,10 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
     )?;
     if let Some(settings) = &run.hierarchical {
         record["empirical_bayes"] = serde_json::json!({
-            "method": "EM with the Laplace approximation (Huys et al. 2011); Gaussian prior, diagonal covariance, on the unconstrained scale",
+            "method": format!(
+                "EM with the Laplace approximation (Huys et al. 2011); Gaussian prior, {} covariance, on the unconstrained scale",
+                if settings.em.full_covariance { "full" } else { "diagonal" }
+            ),
             "per_group": settings.per_group,
             "tolerance": settings.em.tolerance,
             "max_iterations": settings.em.max_iterations,
@@ -212,6 +286,20 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             "full_covariance": settings.em.full_covariance,
             "seed": settings.em.seed,
         });
+        if !settings.covariates.is_empty() {
+            record["empirical_bayes"]["prior_covariates"] = serde_json::json!({
+                "columns": settings.covariates,
+                "centred": settings.centred,
+                "model": "theta_i ~ N(B z_i, Sigma), z_i = (1, scores_i - centres), on the unconstrained scale",
+                "centres": if settings.centred {
+                    "each score's mean over the participants of each prior (column centre of eb_prior_regression.csv)"
+                } else {
+                    "none: scores as given"
+                },
+                "standard_errors": "inverse information of the Laplace-approximated marginal likelihood, [sum_i (z_i z_i^T) kron (Sigma N/(N-p-1) + C_i)^-1]^-1, C_i each participant's likelihood-only covariance; t test with N - p - 1 degrees of freedom",
+                "table": "eb_prior_regression.csv",
+            });
+        }
         let shrunken: Vec<SubjectFit> = groups.iter().flat_map(|g| g.subjects.clone()).collect();
         parameters_table(&shrunken).stage_both(
             &mut outputs,
@@ -226,6 +314,13 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         )?;
         group_prior_table(&groups).stage_both(&mut outputs, run.out, "eb_group_priors")?;
         group_evidence_table(&groups).stage_both(&mut outputs, run.out, "eb_model_evidence")?;
+        if !settings.covariates.is_empty() {
+            prior_regression_table(&groups).stage_both(
+                &mut outputs,
+                run.out,
+                "eb_prior_regression",
+            )?;
+        }
         if settings.em.full_covariance {
             group_correlation_table(&groups).stage_both(
                 &mut outputs,
@@ -467,6 +562,67 @@ pub fn print_group_summary(groups: &[GroupFit]) {
             })
             .collect();
         println!("    group medians: {}", medians.join("; "));
+        print_prior_regression(g);
+    }
+}
+
+/// Prints the slopes of a group prior's regression on participant scores with their tests and
+/// the caution that goes with them.
+fn print_prior_regression(g: &GroupFit) {
+    let Some(regression) = &g.regression else {
+        return;
+    };
+    println!(
+        "    prior mean on participant scores (unconstrained scale, per unit of score; {}):",
+        if regression.centred {
+            "scores centred, so the medians above are at the average scores"
+        } else {
+            "scores as given, so the medians above are at scores of 0"
+        }
+    );
+    for c in regression
+        .coefficients
+        .iter()
+        .filter(|c| c.term != INTERCEPT)
+    {
+        let test = match (c.std_error, c.t_statistic, c.p_value) {
+            (Some(se), Some(t), Some(p)) => {
+                format!("SE {se:.4}, t({}) = {t:.2}, p {}", c.df, p_value_text(p))
+            }
+            _ => "no standard error (the information is not positive definite)".to_string(),
+        };
+        println!(
+            "      {:<16} ~ {:<14} {:>9.4}  ({test}){}",
+            c.parameter,
+            c.term,
+            c.estimate,
+            if c.scale_per_participant { " *" } else { "" }
+        );
+    }
+    if regression
+        .coefficients
+        .iter()
+        .any(|c| c.scale_per_participant)
+    {
+        println!(
+            "    * this parameter's unconstrained scale is relative to each participant's fastest \
+             response, so its slopes also move with scores that change response speed through \
+             other parameters"
+        );
+    }
+    println!(
+        "    these are associations between scores and model parameters in this sample, one \
+         test per coefficient without correction for multiplicity: research measurements, not \
+         diagnoses"
+    );
+}
+
+/// A p value for the console with its relation: "= 0.0179" (four decimals), or "< 0.0001".
+fn p_value_text(p: f64) -> String {
+    if p < 1e-4 {
+        "< 0.0001".to_string()
+    } else {
+        format!("= {p:.4}")
     }
 }
 

@@ -121,6 +121,20 @@ pub enum Command {
         /// parameters; writes eb_group_correlations.csv) instead of only the variances.
         #[arg(long, requires = "hierarchical")]
         full_covariance: bool,
+        /// With --hierarchical: columns of the trial table holding a score of each participant
+        /// (e.g. --prior-covariates apathy,anhedonia; one number per participant, repeated on
+        /// each of its rows) on which the mean of the group prior depends linearly,
+        /// θ_i ~ N(B·(1, scores_i − centres), Σ) on the unconstrained scale. Scores are centred
+        /// on the participants' mean, so the intercept is the group mean at the average scores.
+        /// Writes eb_prior_regression.csv (+ Parquet): per parameter and score the coefficient,
+        /// its standard error, t and p value. With --by, each group gets its own regression.
+        /// The coefficients are associations in the sample, not diagnoses.
+        #[arg(long, value_delimiter = ',', requires = "hierarchical")]
+        prior_covariates: Vec<String>,
+        /// Use the scores of --prior-covariates as given instead of centring them: the
+        /// intercept is then the group mean of a participant whose scores are all 0.
+        #[arg(long, requires = "prior_covariates")]
+        covariates_as_given: bool,
         /// Whether an existing result may be replaced.
         #[command(flatten)]
         replace: ReplaceArg,
@@ -451,6 +465,8 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             em_iterations,
             ibic_samples,
             full_covariance,
+            prior_covariates,
+            covariates_as_given,
             replace,
             reading,
             screen,
@@ -472,6 +488,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             }
             let deadline = input::check_deadline(deadline)?;
             let lock = input::check_lock(lock, deadline)?;
+            let prior_covariates = fit::check_prior_covariates(prior_covariates)?;
             let run = fit::FitRun {
                 data: &data,
                 models: &model,
@@ -496,6 +513,8 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                         full_covariance,
                     },
                     models: Vec::new(),
+                    covariates: prior_covariates,
+                    centred: !covariates_as_given,
                 }),
                 screen,
             };

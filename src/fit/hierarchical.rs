@@ -18,10 +18,21 @@
 //! parameters with diagonal Σ, k + k(k+1)/2 with full Σ; n trials in all; Huys et al. 2011). Subject i's draws come from stream i of the
 //! seeded generator.
 //!
+//! With participant scores ([`super::prior_regression`]) the prior mean of subject i is B z_i,
+//! z_i = (1, scores − centres): the M-step regresses the modes on z_i (μ above is the case
+//! z_i = 1), the E-step of subject i uses N(B z_i, Σ), its iBIC draws come from that prior, and
+//! the iBIC counts k(p + 1) means instead of k. [`GroupParameter::theta_mean`] is then the
+//! intercept (the group mean at the centre of the scores), `theta_sd` the residual spread, and
+//! the natural-scale summaries describe a participant at the centre.
+//!
 //! Non-decision time has a subject-specific upper bound (below the fastest response), so its θ
 //! means "position between 0 and that bound"; natural-scale group summaries of ndt use the median
 //! of the subjects' bounds.
 
+use super::prior_regression::{
+    Design, PriorCoefficient, SubjectScores, coefficient_covariance, coefficient_table,
+    regression_coefficients,
+};
 use super::{FitOptions, SubjectFit, optimise, uncertainty};
 use crate::data::Subject;
 use crate::likelihood::{DataMismatch, GroupPrior, SubjectLikelihood};
@@ -80,7 +91,9 @@ pub struct GroupParameter {
     pub theta_sd: f64,
     /// Standard error of μ from the Laplace-approximated marginal likelihood:
     /// 1/SE² = Σ_i 1/(σ² + C_ij), C_ij the likelihood-only variance of subject i,
-    /// 1/C_ij = 1/(Σ_i)_jj − 1/σ² (normal–normal model; Gelman et al. 2013, §5.4).
+    /// 1/C_ij = 1/(Σ_i)_jj − 1/σ² (normal–normal model; Gelman et al. 2013, §5.4). With
+    /// participant scores, the intercept's standard error of the prior regression
+    /// ([`super::prior_regression::coefficient_covariance`]).
     pub theta_mean_se: f64,
     /// The transform used for the natural-scale summaries.
     pub transform: Transform,
@@ -128,6 +141,17 @@ pub struct GroupFit {
     pub n_group_parameters: usize,
     /// Integrated BIC.
     pub ibic: f64,
+    /// With participant scores: the prior mean's regression on them.
+    pub regression: Option<PriorRegression>,
+}
+
+/// The regression of the prior mean on participant scores of one group fit.
+#[derive(Clone, Debug, PartialEq)]
+pub struct PriorRegression {
+    /// The scores were centred on their mean over the subjects of this prior.
+    pub centred: bool,
+    /// One per free parameter and term (intercept first), parameter by parameter.
+    pub coefficients: Vec<PriorCoefficient>,
 }
 
 /// What the caller is told after each EM iteration: (model, scope, iteration, change).
@@ -136,12 +160,16 @@ pub type EmProgress<'a> = &'a (dyn Fn(&str, &str, usize, f64) + Sync);
 /// Fits the group prior of `model` over `subjects` by EM, starting from their per-subject fits
 /// `initial` (same order; maximum likelihood or MAP). `index` gives each subject's stream of the
 /// seeded generator (its position in the whole table), so results do not depend on threads.
+/// With `scores`, the prior mean is a linear function of each subject's scores (see the module
+/// documentation); a design that cannot be estimated (too few subjects, a score that does not
+/// vary, collinear scores) is an error saying why.
 #[allow(clippy::too_many_arguments)]
 pub fn fit_group(
     model: &Model,
     scope: &str,
     subjects: &[(usize, &Subject)],
     initial: &[&SubjectFit],
+    scores: Option<&SubjectScores>,
     options: &FitOptions,
     em: &EmOptions,
     progress: EmProgress<'_>,
@@ -163,6 +191,25 @@ pub fn fit_group(
         })
         .collect::<Result<_, _>>()?;
     let k = model.free_slots().len();
+    let mismatch = |message: String| DataMismatch {
+        subject: format!("scope {scope}"),
+        message,
+    };
+    let design: Option<Design> = match scores {
+        Some(scores) => {
+            let ids: Vec<&str> = subjects.iter().map(|(_, s)| s.id.as_str()).collect();
+            Some(Design::new(scores, &ids).map_err(mismatch)?)
+        }
+        None => None,
+    };
+    let rows: Option<&[Vec<f64>]> = design.as_ref().map(|d| d.rows.as_slice());
+    let singular = || {
+        mismatch(format!(
+            "the group prior of model {} could not be estimated: the regression on the \
+             participant scores has no unique solution or a mean is not finite",
+            model.name
+        ))
+    };
     let mut modes: Vec<Vec<f64>> = initial
         .iter()
         .map(|f| {
@@ -176,34 +223,43 @@ pub fn fit_group(
         .iter()
         .map(|f| f.covariance_theta.as_ref())
         .collect();
-    let mut prior = m_step(&modes, &initial_cov, None, k, em.full_covariance);
+    let (mut prior, mut coefficients) =
+        prior_m_step(&modes, &initial_cov, None, rows, em.full_covariance).ok_or_else(singular)?;
     let mut iterations = 0;
     let mut last_change;
     let mut fits: Vec<SubjectFit>;
     loop {
         iterations += 1;
-        fits = e_step(&likelihoods, &prior, &modes, options);
+        let priors =
+            subject_priors(&prior, &coefficients, rows, subjects.len()).ok_or_else(singular)?;
+        fits = e_step(&likelihoods, &priors, &modes, options);
         modes = fits.iter().map(|f| f.theta.clone()).collect();
         let covariances: Vec<Option<&Vec<Vec<f64>>>> =
             fits.iter().map(|f| f.covariance_theta.as_ref()).collect();
-        let next = m_step(&modes, &covariances, Some(&prior), k, em.full_covariance);
-        last_change = change(&prior, &next);
+        let (next, next_coefficients) =
+            prior_m_step(&modes, &covariances, Some(&prior), rows, em.full_covariance)
+                .ok_or_else(singular)?;
+        last_change = change(&prior, &next).max(slope_change(&coefficients, &next_coefficients));
         progress(&model.name, scope, iterations, last_change);
         prior = next;
+        coefficients = next_coefficients;
         if last_change < em.tolerance || iterations >= em.max_iterations {
             break;
         }
     }
     // The reported fits are the modes under the final prior.
-    fits = e_step(&likelihoods, &prior, &modes, options);
+    let priors =
+        subject_priors(&prior, &coefficients, rows, subjects.len()).ok_or_else(singular)?;
+    fits = e_step(&likelihoods, &priors, &modes, options);
     let subjects_without_covariance = fits.iter().filter(|f| f.covariance_theta.is_none()).count();
     // Each subject's draws come from its own stream, so the Monte Carlo errors are independent
     // and add in quadrature.
     let marginals: Vec<(f64, f64)> = likelihoods
         .par_iter()
         .zip(subjects)
-        .map(|(lik, &(index, _))| {
-            let samples = prior_samples(&prior, em.ibic_samples, em.seed, index as u64);
+        .zip(&priors)
+        .map(|((lik, &(index, _)), prior)| {
+            let samples = prior_samples(prior, em.ibic_samples, em.seed, index as u64);
             sampled_log_marginal(lik, &samples)
         })
         .collect();
@@ -225,14 +281,48 @@ pub fn fit_group(
     let log_marginal_likelihood: f64 = marginals.iter().map(|m| m.0).sum();
     let log_marginal_likelihood_se = marginals.iter().map(|m| m.1 * m.1).sum::<f64>().sqrt();
     let n_trials: usize = likelihoods.iter().map(|l| l.n_observations()).sum();
+    let n_means = k * design.as_ref().map_or(1, |d| d.terms.len());
     let n_group_parameters = if prior.is_diagonal() && !em.full_covariance {
-        2 * k
+        n_means + k
     } else {
-        k + k * (k + 1) / 2
+        n_means + k * (k + 1) / 2
     };
     let ibic = -2.0 * log_marginal_likelihood + n_group_parameters as f64 * (n_trials as f64).ln();
     let log_marginal_laplace = fits.iter().map(|f| f.log_evidence).sum::<Option<f64>>();
-    let parameters = summarise_parameters(model, &likelihoods, &prior, &fits, &samples);
+    let mut parameters = summarise_parameters(model, &likelihoods, &prior, &fits, &samples);
+    let regression = design.as_ref().map(|design| {
+        let covariances: Vec<Option<&Vec<Vec<f64>>>> =
+            fits.iter().map(|f| f.covariance_theta.as_ref()).collect();
+        let covariance = coefficient_covariance(&prior.covariance, &covariances, &design.rows);
+        let names: Vec<String> = parameters.iter().map(|p| p.name.clone()).collect();
+        let mut table = coefficient_table(&names, design, &coefficients, covariance.as_ref());
+        for (row, j) in table
+            .iter_mut()
+            .zip((0..k).flat_map(|j| std::iter::repeat_n(j, design.terms.len())))
+        {
+            let first = likelihoods[0].transforms()[j];
+            row.scale_per_participant = likelihoods.iter().any(|l| l.transforms()[j] != first);
+        }
+        // The intercept's standard error replaces the one of the model without scores.
+        for (parameter, row) in parameters
+            .iter_mut()
+            .zip(table.iter().step_by(design.terms.len()))
+        {
+            parameter.theta_mean_se = row.std_error.unwrap_or(f64::INFINITY);
+            parameter.natural_median_interval = (
+                parameter
+                    .transform
+                    .natural(row.estimate - uncertainty::Z_975 * parameter.theta_mean_se),
+                parameter
+                    .transform
+                    .natural(row.estimate + uncertainty::Z_975 * parameter.theta_mean_se),
+            );
+        }
+        PriorRegression {
+            centred: scores.is_some_and(|s| s.centred),
+            coefficients: table,
+        }
+    });
     Ok(GroupFit {
         model: model.name.clone(),
         scope: scope.to_string(),
@@ -249,20 +339,49 @@ pub fn fit_group(
         log_marginal_laplace,
         n_group_parameters,
         ibic,
+        regression,
     })
 }
 
-/// Posterior modes under `prior`, from the previous mode and from the prior mean.
+/// Each of the `n` subjects' prior: N(B z_i, Σ) with the design `rows`, else the common prior.
+/// None when a mean is not finite.
+fn subject_priors(
+    prior: &GroupPrior,
+    coefficients: &[Vec<f64>],
+    rows: Option<&[Vec<f64>]>,
+    n: usize,
+) -> Option<Vec<GroupPrior>> {
+    let Some(rows) = rows else {
+        return Some(vec![prior.clone(); n]);
+    };
+    rows.iter()
+        .map(|z| {
+            let mean: Vec<f64> = coefficients
+                .iter()
+                .map(|b| b.iter().zip(z).map(|(b, z)| b * z).sum())
+                .collect();
+            if prior.is_diagonal() {
+                GroupPrior::diagonal(mean, prior.variance())
+            } else {
+                GroupPrior::full(mean, prior.covariance.clone())
+            }
+        })
+        .collect()
+}
+
+/// Posterior modes under each subject's prior `priors`, from the previous mode and from the
+/// prior mean.
 fn e_step(
     likelihoods: &[SubjectLikelihood<'_>],
-    prior: &GroupPrior,
+    priors: &[GroupPrior],
     modes: &[Vec<f64>],
     options: &FitOptions,
 ) -> Vec<SubjectFit> {
     likelihoods
         .par_iter()
         .zip(modes)
-        .map(|(lik, mode)| {
+        .zip(priors)
+        .map(|((lik, mode), prior)| {
             let lik = lik.clone().with_group_prior(prior.clone());
             let starts = [mode.clone(), prior.mean.clone()];
             let results: Vec<_> = starts
@@ -276,24 +395,42 @@ fn e_step(
         .collect()
 }
 
-/// μ = mean θ̂_i; Σ = mean[(θ̂_i − μ)(θ̂_i − μ)ᵀ + Σ_i] (Huys et al. 2011), with the
-/// off-diagonal terms set to 0 unless `full`. A subject without a covariance contributes the
-/// previous prior covariance (it is taken as uninformative about its deviation); before any
-/// prior exists, the spread of the modes alone. Variances are floored at [`MIN_VARIANCE`]; a
-/// full estimate that is not positive definite falls back to its diagonal.
-fn m_step(
+/// The M-step of the group prior (Huys et al. 2011): without a design, μ = (1/N) Σ_i θ̂_i and
+/// Σ = (1/N) Σ_i [(θ̂_i − μ)(θ̂_i − μ)ᵀ + Σ_i]; with design rows z_i (participant scores, see
+/// [`super::prior_regression`]), B = (Σ_i θ̂_i z_iᵀ)(Σ_i z_i z_iᵀ)⁻¹ and the same Σ with B z_i in
+/// place of μ. `modes` are the θ̂_i, `covariances` the posterior covariances Σ_i; off-diagonal
+/// terms of Σ are 0 unless `full`. A subject without a covariance contributes the previous
+/// prior covariance (it is taken as uninformative about its deviation); before any prior
+/// exists, the spread of the modes alone. Variances are floored at [`MIN_VARIANCE`]; a full
+/// estimate that is not positive definite falls back to its diagonal.
+///
+/// Returns the prior (its mean: μ, or the intercepts B_j0) and the coefficients, k rows of
+/// p + 1 (one, μ_j, without a design); None when the design's regression has no unique solution.
+pub fn prior_m_step(
     modes: &[Vec<f64>],
     covariances: &[Option<&Vec<Vec<f64>>>],
     previous: Option<&GroupPrior>,
-    k: usize,
+    rows: Option<&[Vec<f64>]>,
     full: bool,
-) -> GroupPrior {
+) -> Option<(GroupPrior, Vec<Vec<f64>>)> {
+    let k = modes.first()?.len();
     let n = modes.len() as f64;
-    let mean: Vec<f64> = (0..k)
-        .map(|j| modes.iter().map(|m| m[j]).sum::<f64>() / n)
-        .collect();
+    let coefficients: Vec<Vec<f64>> = match rows {
+        Some(rows) => regression_coefficients(modes, rows)?,
+        None => (0..k)
+            .map(|j| vec![modes.iter().map(|m| m[j]).sum::<f64>() / n])
+            .collect(),
+    };
+    let mean: Vec<f64> = coefficients.iter().map(|b| b[0]).collect();
     let mut scatter = vec![vec![0.0; k]; k];
-    for (m, c) in modes.iter().zip(covariances) {
+    for (i, (m, c)) in modes.iter().zip(covariances).enumerate() {
+        let centre: Vec<f64> = match rows {
+            Some(rows) => coefficients
+                .iter()
+                .map(|b| b.iter().zip(&rows[i]).map(|(b, z)| b * z).sum())
+                .collect(),
+            None => mean.clone(),
+        };
         let own: Option<&Vec<Vec<f64>>> = c.or(previous.map(|p| &p.covariance));
         for j in 0..k {
             for l in 0..k {
@@ -301,7 +438,7 @@ fn m_step(
                     continue;
                 }
                 let c_jl = own.map_or(0.0, |c| c[j][l]);
-                scatter[j][l] += ((m[j] - mean[j]) * (m[l] - mean[l]) + c_jl) / n;
+                scatter[j][l] += ((m[j] - centre[j]) * (m[l] - centre[l]) + c_jl) / n;
             }
         }
     }
@@ -309,12 +446,21 @@ fn m_step(
         row[j] = row[j].max(MIN_VARIANCE);
     }
     let variance: Vec<f64> = (0..k).map(|j| scatter[j][j]).collect();
-    let diagonal = || GroupPrior::diagonal(mean.clone(), variance.clone()).expect("variances > 0");
-    if full {
-        GroupPrior::full(mean.clone(), scatter).unwrap_or_else(diagonal)
+    let diagonal = || GroupPrior::diagonal(mean.clone(), variance.clone());
+    let prior = if full {
+        GroupPrior::full(mean.clone(), scatter).or_else(diagonal)
     } else {
         diagonal()
-    }
+    }?;
+    Some((prior, coefficients))
+}
+
+/// Largest change of a slope of the prior regression (0 without scores).
+fn slope_change(a: &[Vec<f64>], b: &[Vec<f64>]) -> f64 {
+    a.iter()
+        .zip(b)
+        .flat_map(|(x, y)| x.iter().zip(y).skip(1).map(|(x, y)| (x - y).abs()))
+        .fold(0.0, f64::max)
 }
 
 /// Largest change of a group mean, a group standard deviation or (full covariance) a

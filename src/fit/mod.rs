@@ -15,6 +15,7 @@
 
 mod hierarchical;
 mod optimise;
+pub mod prior_regression;
 pub mod search;
 pub mod starts;
 mod uncertainty;
@@ -27,7 +28,8 @@ use search::Verdict;
 use starts::StartPlan;
 
 pub use hierarchical::{
-    EmOptions, EmProgress, GroupFit, GroupParameter, fit_group, sampled_log_marginal,
+    EmOptions, EmProgress, GroupFit, GroupParameter, PriorRegression, fit_group, prior_m_step,
+    sampled_log_marginal,
 };
 pub use optimise::{StartResult, Stop};
 pub use uncertainty::laplace_log_evidence;
@@ -217,7 +219,10 @@ pub fn fit_table(
 /// [`fit_table`]: one group prior over all subjects (scope "all"), or with `per_group` one per
 /// group label. Subjects are in table order within each scope; subject i's random draws come
 /// from stream i, so results do not depend on `threads`. A scope with fewer than
-/// [`MIN_GROUP_SUBJECTS`] fitted subjects is skipped with the reason.
+/// [`MIN_GROUP_SUBJECTS`] fitted subjects is skipped with the reason. With `scores`, each
+/// scope's prior mean is a regression on the participants' scores, centred (when asked) within
+/// the scope ([`prior_regression`]); a scope whose scores cannot be estimated is skipped with the
+/// reason.
 #[allow(clippy::too_many_arguments)]
 pub fn fit_table_hierarchical(
     models: &[&Model],
@@ -226,6 +231,7 @@ pub fn fit_table_hierarchical(
     options: &FitOptions,
     em: &EmOptions,
     per_group: bool,
+    scores: Option<&prior_regression::SubjectScores>,
     threads: usize,
     progress: EmProgress<'_>,
 ) -> Result<(Vec<GroupFit>, Vec<Skipped>), rayon::ThreadPoolBuildError> {
@@ -267,7 +273,9 @@ pub fn fit_table_hierarchical(
                         ),
                     })
                 } else {
-                    fit_group(model, scope, &members, &initial, options, em, progress)
+                    fit_group(
+                        model, scope, &members, &initial, scores, options, em, progress,
+                    )
                 };
                 match outcome {
                     Ok(g) => groups.push(g),

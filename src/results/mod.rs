@@ -408,6 +408,63 @@ pub fn group_prior_table(groups: &[crate::fit::GroupFit]) -> Table {
         .with("natural_sd", number(&|p| p.natural_sd))
 }
 
+/// One row per model, scope, free parameter and term of empirical-Bayes fits whose prior mean
+/// depends on participant scores ([`crate::fit::prior_regression`]): `term` is `intercept` or
+/// the score's column, `centre` the value subtracted from the score (its mean over the scope's
+/// participants, or 0 with scores as given; empty for the intercept), `estimate` the
+/// coefficient on the parameter's unconstrained scale, `std_error`, `t_statistic`, `df`
+/// (N − p − 1), the two-sided `p_value`, `n_subjects` (N) and `scale_per_participant` (the
+/// parameter's unconstrained scale differs between participants, as ndt's does: its
+/// coefficients then also reflect what changes the fastest responses). Fits without scores add
+/// no rows.
+pub fn prior_regression_table(groups: &[crate::fit::GroupFit]) -> Table {
+    let rows: Vec<(
+        &crate::fit::GroupFit,
+        &crate::fit::prior_regression::PriorCoefficient,
+    )> = groups
+        .iter()
+        .flat_map(|g| {
+            g.regression
+                .iter()
+                .flat_map(|r| r.coefficients.iter())
+                .map(move |c| (g, c))
+        })
+        .collect();
+    let text = |f: &dyn Fn(
+        &crate::fit::GroupFit,
+        &crate::fit::prior_regression::PriorCoefficient,
+    ) -> String| { Column::Text(rows.iter().map(|(g, c)| f(g, c)).collect()) };
+    let number = |f: &dyn Fn(&crate::fit::prior_regression::PriorCoefficient) -> Option<f64>| {
+        Column::Number(
+            rows.iter()
+                .map(|(_, c)| f(c).filter(|x| x.is_finite()))
+                .collect(),
+        )
+    };
+    Table::default()
+        .with("model", text(&|g, _| g.model.clone()))
+        .with("scope", text(&|g, _| g.scope.clone()))
+        .with("parameter", text(&|_, c| c.parameter.clone()))
+        .with("term", text(&|_, c| c.term.clone()))
+        .with("centre", number(&|c| c.centre))
+        .with("estimate", number(&|c| Some(c.estimate)))
+        .with("std_error", number(&|c| c.std_error))
+        .with("t_statistic", number(&|c| c.t_statistic))
+        .with(
+            "df",
+            Column::Integer(rows.iter().map(|(_, c)| c.df as i64).collect()),
+        )
+        .with("p_value", number(&|c| c.p_value))
+        .with(
+            "n_subjects",
+            Column::Integer(rows.iter().map(|(g, _)| g.subjects.len() as i64).collect()),
+        )
+        .with(
+            "scale_per_participant",
+            Column::Flag(rows.iter().map(|(_, c)| c.scale_per_participant).collect()),
+        )
+}
+
 /// One row per model and scope of empirical-Bayes fits: convergence and the integrated BIC.
 pub fn group_evidence_table(groups: &[crate::fit::GroupFit]) -> Table {
     let text =
