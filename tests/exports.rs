@@ -2,12 +2,14 @@
 //! modulators, and the events files against the rules of the BIDS specification for events
 //! files (checked here from memory of the specification), end to end through the command.
 
+mod common;
+
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use std::collections::HashMap;
 use std::path::Path;
 use std::process::Command;
-use valuedrift::data::{Choice, Offer, Subject, Trial, TrialTable};
+use valuedrift::data::{Choice, Subject, Trial, TrialTable};
 use valuedrift::exports::{
     Latent, Scale, bids_label, bids_labels, events_files, latents, run_indices, scale_values,
 };
@@ -29,20 +31,7 @@ fn trial(
     Trial {
         trial: n,
         run: run.into(),
-        offers: vec![
-            Offer {
-                option: a,
-                effort: effort.0,
-                reward: None,
-                outcome_if: None,
-            },
-            Offer {
-                option: b,
-                effort: effort.1,
-                reward: None,
-                outcome_if: None,
-            },
-        ],
+        offers: vec![common::offer(a, effort.0), common::offer(b, effort.1)],
         choice,
         rt,
         outcome,

@@ -1,6 +1,8 @@
 //! The per-subject likelihood against hand computation and against the first-passage engine.
 
-use valuedrift::data::{Choice, Offer, Subject, Trial};
+mod common;
+
+use valuedrift::data::{Choice, Subject, Trial};
 use valuedrift::first_passage::{Bound, DiffusionParams, ln_density};
 use valuedrift::likelihood::SubjectLikelihood;
 use valuedrift::model::load_model;
@@ -17,20 +19,7 @@ fn trial(
     Trial {
         trial: n,
         run: String::new(),
-        offers: vec![
-            Offer {
-                option: a,
-                effort: effort.0,
-                reward: None,
-                outcome_if: None,
-            },
-            Offer {
-                option: b,
-                effort: effort.1,
-                reward: None,
-                outcome_if: None,
-            },
-        ],
+        offers: vec![common::offer(a, effort.0), common::offer(b, effort.1)],
         choice: Some(choice),
         rt: Some(rt),
         outcome,

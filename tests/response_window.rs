@@ -45,10 +45,8 @@ fn design(n: usize, rewards: impl Fn(usize) -> (f64, f64)) -> Subject {
             .map(|i| {
                 let (ra, rb) = rewards(i);
                 let offer = |option: usize, reward: f64| Offer {
-                    option,
-                    effort: 0.0,
                     reward: Some(reward),
-                    outcome_if: None,
+                    ..common::offer(option, 0.0)
                 };
                 Trial {
                     trial: i as i64 + 1,

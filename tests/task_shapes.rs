@@ -309,24 +309,6 @@ fn a_condition_with_one_level_gives_the_plain_model_exactly() {
     }
 }
 
-/// Central differences of ln L against the exact gradient at θ (common practice).
-fn assert_gradient(lik: &SubjectLikelihood<'_>, theta: &[f64], what: &str) {
-    let e = lik.evaluate(theta);
-    for j in 0..theta.len() {
-        let h = 1e-5;
-        let (mut up, mut down) = (theta.to_vec(), theta.to_vec());
-        up[j] += h;
-        down[j] -= h;
-        let numeric =
-            (lik.evaluate(&up).ln_likelihood - lik.evaluate(&down).ln_likelihood) / (2.0 * h);
-        assert!(
-            (numeric - e.gradient[j]).abs() < 1e-5 * numeric.abs().max(1.0),
-            "{what}: parameter {j}: exact {} numeric {numeric}",
-            e.gradient[j]
-        );
-    }
-}
-
 /// Every new parameter kind at once: learning rate by condition, value_scale slope, boundary and
 /// start by condition, a drift intercept by condition.
 const EVERY_KIND: &str = r#"
@@ -403,11 +385,11 @@ fn gradients_of_levels_slopes_intercepts_and_the_lock_match_central_differences(
     let theta: Vec<f64> = (0..12).map(|j| 0.25 - 0.11 * j as f64).collect();
     for subject in &subjects {
         let lik = SubjectLikelihood::new(&model, subject, None).unwrap();
-        assert_gradient(&lik, &theta, "no window");
+        common::assert_gradient(&lik, &theta, "no window");
         let lik = SubjectLikelihood::new(&model, subject, Some(3.0))
             .unwrap()
             .with_lock(Some(0.45));
-        assert_gradient(&lik, &theta, "lock 0.45 s, deadline 3 s");
+        common::assert_gradient(&lik, &theta, "lock 0.45 s, deadline 3 s");
     }
 }
 
@@ -536,7 +518,7 @@ fn two_cost_attributes_apply_in_order_with_their_own_weights() {
     let got = lik.evaluate(&theta).ln_likelihood;
     let expected = -0.47407698418010646 - 0.11551952317975495;
     assert!((got - expected).abs() < 1e-12, "{got} vs {expected}");
-    assert_gradient(&lik, &theta, "two cost attributes");
+    common::assert_gradient(&lik, &theta, "two cost attributes");
 
     // A table without the attribute's columns is refused, naming them.
     let without = subject_from_csv(
@@ -592,7 +574,7 @@ fn a_three_option_trial_follows_the_hand_computation() {
     let got = lik.evaluate(&theta).ln_likelihood;
     let expected = -1.5514447139320513 - 1.3490122167681866;
     assert!((got - expected).abs() < 1e-12, "{got} vs {expected}");
-    assert_gradient(&lik, &theta, "three options");
+    common::assert_gradient(&lik, &theta, "three options");
     let trace = lik.trace(&lik.natural(&theta));
     // source: probabilities of a choice sum to one (axiom of probability).
     for t in &trace {
@@ -719,10 +701,8 @@ fn a_three_armed_bandit_is_simulated_and_recovered() {
                 let offers = arms
                     .iter()
                     .map(|&arm| valuedrift::data::Offer {
-                        option: arm,
-                        effort: 0.0,
-                        reward: None,
                         outcome_if: Some(pay(arm)),
+                        ..common::offer(arm, 0.0)
                     })
                     .collect();
                 valuedrift::data::Trial {

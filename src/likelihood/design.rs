@@ -4,7 +4,7 @@
 //! effort (columns `<attribute>_a`, `<attribute>_b`).
 
 use super::DataMismatch;
-use crate::data::{CovariateColumn, Subject};
+use crate::data::{CovariateColumn, Subject, Trial};
 use crate::model::dual::{D, constant};
 use crate::model::varying::{Source, Variation};
 use crate::model::{Model, Transform};
@@ -110,20 +110,12 @@ impl TrialColumns {
             let mut k = 0;
             for (name, v) in &variations {
                 for (cname, _) in &v.slopes {
-                    let cell = trial.covariate(slope_columns[k]);
-                    let x = cell
-                        .as_deref()
-                        .map(str::trim)
-                        .and_then(|s| s.parse::<f64>().ok())
-                        .filter(|x| x.is_finite())
-                        .ok_or_else(|| {
-                            mismatch(format!(
-                                "{at}: column `{cname}` is {}; expected a finite number (the \
-                                 covariate of {name}'s slope)",
-                                cell.as_deref()
-                                    .map_or("empty".to_string(), |s| format!("{s:?}"))
-                            ))
-                        })?;
+                    let x = finite_number(trial, slope_columns[k]).map_err(|shown| {
+                        mismatch(format!(
+                            "{at}: column `{cname}` is {shown}; expected a finite number (the \
+                             covariate of {name}'s slope)"
+                        ))
+                    })?;
                     covariates.push(x);
                     k += 1;
                 }
@@ -241,25 +233,31 @@ fn bind_cost_attributes(
     let mut values = Vec::with_capacity(subject.trials.len() * columns.len());
     for trial in &subject.trials {
         for (name, column) in &columns {
-            let cell = trial.covariate(*column);
-            let x = cell
-                .as_deref()
-                .map(str::trim)
-                .and_then(|s| s.parse::<f64>().ok())
-                .filter(|x| x.is_finite())
-                .ok_or_else(|| {
-                    mismatch(format!(
-                        "trial {}: column `{name}` is {}; expected a finite number (a cost \
-                         attribute of the option)",
-                        trial.trial,
-                        cell.as_deref()
-                            .map_or("empty".to_string(), |s| format!("{s:?}"))
-                    ))
-                })?;
+            let x = finite_number(trial, *column).map_err(|shown| {
+                mismatch(format!(
+                    "trial {}: column `{name}` is {shown}; expected a finite number (a cost \
+                     attribute of the option)",
+                    trial.trial
+                ))
+            })?;
             values.push(x);
         }
     }
     Ok((values, columns.len()))
+}
+
+/// The trial's cell of `column` as a finite number; otherwise how the cell reads in a message
+/// (`empty`, or the quoted text).
+fn finite_number(trial: &Trial, column: CovariateColumn) -> Result<f64, String> {
+    let cell = trial.covariate(column);
+    cell.as_deref()
+        .map(str::trim)
+        .and_then(|s| s.parse::<f64>().ok())
+        .filter(|x| x.is_finite())
+        .ok_or_else(|| {
+            cell.as_deref()
+                .map_or("empty".to_string(), |s| format!("{s:?}"))
+        })
 }
 
 /// A level as written in the model matches a cell as written in the table, or as the same

@@ -65,3 +65,36 @@ pub fn contents(dir: &Path) -> BTreeMap<PathBuf, Vec<u8>> {
     }
     found
 }
+
+/// An offered option without a shown reward or potential outcome.
+pub fn offer(option: usize, effort: f64) -> valuedrift::data::Offer {
+    valuedrift::data::Offer {
+        option,
+        effort,
+        reward: None,
+        outcome_if: None,
+    }
+}
+
+/// Central differences of ln L against the exact gradient at θ (common practice), relative
+/// tolerance 1e-5.
+pub fn assert_gradient(
+    lik: &valuedrift::likelihood::SubjectLikelihood<'_>,
+    theta: &[f64],
+    what: &str,
+) {
+    let e = lik.evaluate(theta);
+    for j in 0..theta.len() {
+        let h = 1e-5;
+        let (mut up, mut down) = (theta.to_vec(), theta.to_vec());
+        up[j] += h;
+        down[j] -= h;
+        let numeric =
+            (lik.evaluate(&up).ln_likelihood - lik.evaluate(&down).ln_likelihood) / (2.0 * h);
+        assert!(
+            (numeric - e.gradient[j]).abs() < 1e-5 * numeric.abs().max(1.0),
+            "{what}: parameter {j}: exact {} numeric {numeric}",
+            e.gradient[j]
+        );
+    }
+}
