@@ -185,3 +185,55 @@ fn a_model_file_changed_since_the_fit_is_refused() {
         );
     }
 }
+
+#[test]
+fn subjects_the_fit_left_out_are_left_out_of_check_and_export_with_a_note() {
+    // sub-02 keeps 40 of its 240 trials: with 10 responses per free parameter (6 free, so 60
+    // responses) the fit leaves it out and records why (run.json `not_fitted`); `check` and
+    // `export` then work on sub-01 and say that one subject was left out (common practice: a
+    // run downstream of a fit covers what the fit covered, and says so).
+    let dir = tempfile::tempdir().unwrap();
+    let full = two_subjects(dir.path());
+    let text = std::fs::read_to_string(&full).unwrap();
+    let mut kept_02 = 0;
+    let lines: Vec<&str> = text
+        .lines()
+        .filter(|l| {
+            if l.starts_with("sub-02,") {
+                kept_02 += 1;
+                kept_02 <= 40
+            } else {
+                true
+            }
+        })
+        .collect();
+    let data = dir.path().join("short.csv");
+    std::fs::write(&data, lines.join("\n") + "\n").unwrap();
+    let fits = dir.path().join("fits");
+    let status = bin()
+        .args(["fit", "--model", MODEL, "--starts", "2", "--data"])
+        .arg(&data)
+        .arg("--out")
+        .arg(&fits)
+        .output()
+        .unwrap();
+    assert!(
+        status.status.success(),
+        "{}",
+        String::from_utf8_lossy(&status.stderr)
+    );
+    let record: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(fits.join("run.json")).unwrap()).unwrap();
+    assert_eq!(record["not_fitted"][0]["subject"], "sub-02");
+    for command in ["check", "export"] {
+        let out = dir.path().join(command);
+        let output = run(command, &fits, &data, MODEL, &out);
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(output.status.success(), "{command}: {stderr}");
+        assert!(
+            stderr.contains("1 of 2 subjects were not fitted with model"),
+            "{command}: {stderr}"
+        );
+        assert!(out.exists());
+    }
+}

@@ -372,6 +372,10 @@ pub fn run_record(
         })).collect::<Vec<_>>(),
         "fits": fits.len(),
         "skipped": skipped.iter().map(|s| format!("{}: {}", s.model, s.reason)).collect::<Vec<_>>(),
+        "not_fitted": skipped.iter().map(|s| serde_json::json!({
+            "model": s.model,
+            "subject": s.reason.subject,
+        })).collect::<Vec<_>>(),
         "caution": super::RESEARCH_CAUTION,
     })
 }

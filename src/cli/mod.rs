@@ -371,12 +371,14 @@ pub type FittedInputs = (crate::data::TrialTable, crate::model::Model, Vec<Vec<f
 impl FittedRun {
     /// Reads the trial table (with the column mapping), loads the model, checks it against the
     /// definition recorded in the fit folder's run.json and reads each subject's estimates of it
-    /// (within the model's bounds) from the fit folder, in table order.
+    /// (within the model's bounds) from the fit folder, in table order. Subjects the fit did not
+    /// fit with this model (run.json's `skipped`, for example too few responses for its free
+    /// parameters) are left out with a note.
     pub fn load(&self) -> Result<FittedInputs, Box<dyn std::error::Error>> {
         let columns =
             crate::data::ColumnMap::parse(&self.columns).map_err(|e| format!("--columns: {e}"))?;
         let columns = self.reading.apply(columns)?;
-        let table = input::read_table(&self.data, &columns)?;
+        let mut table = input::read_table(&self.data, &columns)?;
         let model = crate::model::load_model(self.model.trim())?;
         if !crate::exports::check_recorded_model(&self.fits, &model)? {
             eprintln!(
@@ -384,6 +386,26 @@ impl FittedRun {
                  be checked against the one that was fitted",
                 self.fits.display()
             );
+        }
+        let skipped = skipped_subjects(&self.fits, &model.name);
+        let before = table.subjects.len();
+        table.subjects.retain(|s| !skipped.contains(&s.id));
+        if table.subjects.len() < before {
+            eprintln!(
+                "note: {} of {before} subjects were not fitted with model {} (run.json lists why \
+                 under `skipped`); they are left out",
+                before - table.subjects.len(),
+                model.name
+            );
+        }
+        if table.subjects.is_empty() {
+            return Err(format!(
+                "{}: no subject of {} was fitted with model {}",
+                self.fits.display(),
+                self.data.display(),
+                model.name
+            )
+            .into());
         }
         let estimates = crate::exports::read_estimates(
             &self.estimates.estimates.parameters_file(&self.fits),
@@ -424,6 +446,17 @@ pub fn group_column(fits: &std::path::Path, by: &str) -> String {
         Some(column) if column == by => "group".to_string(),
         _ => by.to_string(),
     }
+}
+
+/// The subjects a fit folder's run.json records as not fitted with `model` (`not_fitted`).
+fn skipped_subjects(fits: &std::path::Path, model: &str) -> std::collections::HashSet<String> {
+    recorded(fits, "not_fitted")
+        .and_then(|v| v.as_array().cloned())
+        .unwrap_or_default()
+        .iter()
+        .filter(|entry| entry["model"].as_str() == Some(model))
+        .filter_map(|entry| entry["subject"].as_str().map(str::to_string))
+        .collect()
 }
 
 /// The value of `key` in a fit folder's run.json, when the record and the key exist.
