@@ -140,6 +140,7 @@ fn data_from_the_model_fall_inside_their_own_bands_and_wrong_parameters_do_not()
         seed: 9,
         deadline: None,
         lock: None,
+        condition: None,
     };
     let right = vec![natural(&model, 1.0); subjects.len()];
     let checks = check_subjects(&model, &right, &subjects, &settings, &|| {}).unwrap();
@@ -207,6 +208,7 @@ fn results_do_not_depend_on_the_thread_count() {
         seed: 4,
         deadline: Some(2.5),
         lock: None,
+        condition: None,
     };
     let run = |threads: usize| {
         rayon::ThreadPoolBuilder::new()

@@ -760,3 +760,79 @@ fn a_three_armed_bandit_is_simulated_and_recovered() {
         assert!(r >= 0.8, "{name}: r = {r:.3}");
     }
 }
+
+#[test]
+fn the_predictive_check_by_condition_flags_a_model_without_the_condition_effect() {
+    // Six participants × 300 trials whose boundary is 0.8 under speed and 2.4 under accuracy
+    // instructions. Checked by condition (one bin per level of `condition`), the generating
+    // model's pooled statistics per level lie mostly inside their 95 % bands, while the plain
+    // model with one boundary between the two (1.6) misses the response-time quantiles of both
+    // levels (source: the definition of a predictive check, Gelman, Meng & Stern 1996: data from
+    // the model fall inside its predictive bands; a model without the effect cannot place the
+    // fast and the slow condition's times at once).
+    use valuedrift::check::{CheckSettings, Condition, Factor, check_subjects, pooled};
+    let text = gainloss_with("by = \"condition\"\nlevels = [\"speed\", \"accuracy\"]\n");
+    let model = parse_model(&text, "by-condition.toml").unwrap();
+    let truth = |_: &mut ChaCha8Rng| -> Vec<f64> {
+        model
+            .parameters
+            .iter()
+            .map(|p| match p.name.as_str() {
+                "gain_rate" | "loss_rate" => 0.4,
+                "effort_weight" => 0.6,
+                "value_scale" => 3.0,
+                "boundary[condition=speed]" => 0.8,
+                "boundary[condition=accuracy]" => 2.4,
+                "ndt" => 0.3,
+                _ => p.fixed.unwrap(),
+            })
+            .collect()
+    };
+    let (subjects, values) = simulated_subjects(&model, 6, 300, 12, &truth);
+    let condition = Condition::of("condition", &subjects).unwrap();
+    assert_eq!(condition.levels, ["speed", "accuracy"]);
+    let settings = CheckSettings {
+        sims: 60,
+        seed: 3,
+        deadline: None,
+        lock: None,
+        condition: Some(condition),
+    };
+    let share_outside = |model: &valuedrift::model::Model, estimates: &[Vec<f64>]| {
+        let checks = check_subjects(model, estimates, &subjects, &settings, &|| {}).unwrap();
+        let by_level: Vec<bool> = pooled(&checks)
+            .iter()
+            .filter(|s| s.key.factor == Factor::Condition)
+            .filter_map(|s| s.outside())
+            .collect();
+        assert!(
+            by_level.len() >= 20,
+            "{} statistics by level",
+            by_level.len()
+        );
+        by_level.iter().filter(|&&o| o).count() as f64 / by_level.len() as f64
+    };
+    let right = share_outside(&model, &values);
+    let plain = load_model(common::MODEL).unwrap();
+    let middle: Vec<f64> = plain
+        .parameters
+        .iter()
+        .map(|p| match p.name.as_str() {
+            "boundary" => 1.6,
+            name => {
+                let k = model
+                    .parameters
+                    .iter()
+                    .position(|q| q.name == name)
+                    .unwrap();
+                values[0][k]
+            }
+        })
+        .collect();
+    let wrong = share_outside(&plain, &vec![middle; subjects.len()]);
+    println!(
+        "statistics by condition outside their bands: generating model {right:.2}, one boundary {wrong:.2}"
+    );
+    assert!(right <= 0.2, "generating model: {right}");
+    assert!(wrong >= 0.5, "one boundary: {wrong}");
+}

@@ -21,7 +21,10 @@
 //! - [`Factor::Effort`]: the effort demanded by the correct-by-value option (the better option's
 //!   effort), one bin per distinct observed level when there are at most six levels, else
 //!   quintiles. A dataset's trials are classified by its own value trajectory (in free mode each
-//!   replicate learns differently), and binned with the observed bin edges.
+//!   replicate learns differently), and binned with the observed bin edges;
+//! - [`Factor::Condition`], with [`CheckSettings::condition`]: one bin per level of a column of
+//!   the trial table (a condition, block or session), levels in order of first appearance in the
+//!   table, so that the bins of every subject line up for pooling.
 //!
 //! Predicted: the mean, standard deviation and the 2.5 % and 97.5 % quantiles across replicate
 //! datasets of each statistic. Pooled statistics average the per-subject statistics of the same
@@ -109,6 +112,8 @@ pub enum Factor {
     ValueDifference,
     /// Effort demanded by the correct-by-value option.
     Effort,
+    /// The level of a column of the trial table ([`CheckSettings::condition`]).
+    Condition,
 }
 
 impl Factor {
@@ -117,6 +122,7 @@ impl Factor {
         match self {
             Factor::ValueDifference => "abs_value_difference",
             Factor::Effort => "effort_of_better_option",
+            Factor::Condition => "condition",
         }
     }
 }
@@ -274,8 +280,53 @@ pub fn misfit(statistics: &[Statistic]) -> Misfit {
     }
 }
 
+/// A column whose levels get statistics of their own: its name and levels, in order.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Condition {
+    /// Column of the trial table (or `run`).
+    pub column: String,
+    /// Its levels, in order of first appearance in the table.
+    pub levels: Vec<String>,
+}
+
+impl Condition {
+    /// The levels of `column` over `subjects`, in order of first appearance; an error names a
+    /// column the table does not have.
+    pub fn of(column: &str, subjects: &[Subject]) -> Result<Condition, String> {
+        let mut levels: Vec<String> = Vec::new();
+        for subject in subjects {
+            let Some(at) = subject.covariate_column(column) else {
+                return Err(format!(
+                    "no column `{column}` in the trial table (its other columns: {})",
+                    subject.covariates.join(", ")
+                ));
+            };
+            for trial in &subject.trials {
+                if let Some(level) = trial.covariate(at)
+                    && !levels.iter().any(|l| l == level.as_ref())
+                {
+                    levels.push(level.into_owned());
+                }
+            }
+        }
+        Ok(Condition {
+            column: column.to_string(),
+            levels,
+        })
+    }
+
+    /// Index of the trial's level (NaN when its cell is empty).
+    fn index_of(&self, subject: &Subject, trial: &crate::data::Trial) -> f64 {
+        subject
+            .covariate_column(&self.column)
+            .and_then(|at| trial.covariate(at))
+            .and_then(|level| self.levels.iter().position(|l| *l == level.as_ref()))
+            .map_or(f64::NAN, |i| i as f64)
+    }
+}
+
 /// Settings of a check.
-#[derive(Clone, Copy, Debug, PartialEq)]
+#[derive(Clone, Debug, PartialEq)]
 pub struct CheckSettings {
     /// Replicate datasets per subject.
     pub sims: usize,
@@ -285,6 +336,8 @@ pub struct CheckSettings {
     pub deadline: Option<f64>,
     /// Response lock (s), as in the fit.
     pub lock: Option<f64>,
+    /// A column whose levels get statistics of their own ([`Factor::Condition`]).
+    pub condition: Option<Condition>,
 }
 
 /// One classified trial of a dataset.
@@ -292,12 +345,18 @@ pub struct CheckSettings {
 struct Classified {
     abs_difference: f64,
     effort_level: f64,
+    /// Index of the trial's level of the condition column (NaN without one).
+    condition: f64,
     /// (kind of response, response time) when there was a response.
     response: Option<(Response, Option<f64>)>,
 }
 
 /// Classifies the trials of a dataset by its own value trajectory; ties are left out.
-fn classify(subject: &Subject, traces: &[TrialTrace]) -> Vec<Classified> {
+fn classify(
+    subject: &Subject,
+    traces: &[TrialTrace],
+    condition: Option<&Condition>,
+) -> Vec<Classified> {
     subject
         .trials
         .iter()
@@ -327,6 +386,7 @@ fn classify(subject: &Subject, traces: &[TrialTrace]) -> Vec<Classified> {
             Some(Classified {
                 abs_difference: difference.abs(),
                 effort_level,
+                condition: condition.map_or(f64::NAN, |c| c.index_of(subject, t)),
                 response,
             })
         })
@@ -337,6 +397,7 @@ fn factor_value(c: &Classified, factor: Factor) -> f64 {
     match factor {
         Factor::ValueDifference => c.abs_difference,
         Factor::Effort => c.effort_level,
+        Factor::Condition => c.condition,
     }
 }
 
@@ -364,7 +425,7 @@ fn bin_of(x: f64, cuts: &[f64]) -> usize {
 /// The statistics of one dataset for `keys`, with the cell sizes.
 fn statistics_of(
     classified: &[Classified],
-    cuts: &[Vec<f64>; 2],
+    cuts: &[Vec<f64>; 3],
     keys: &[Key],
 ) -> Vec<(Option<f64>, usize)> {
     keys.iter()
@@ -404,9 +465,14 @@ fn statistics_of(
 
 /// The keys of a subject: per factor and bin, the choice proportion, then (for models of time)
 /// the quantiles of correct-by-value and of other responses.
-fn keys_for(cuts: &[Vec<f64>; 2], with_times: bool) -> Vec<Key> {
+fn keys_for(cuts: &[Vec<f64>; 3], with_times: bool, by_condition: bool) -> Vec<Key> {
     let mut keys = Vec::new();
-    for factor in [Factor::ValueDifference, Factor::Effort] {
+    let factors: &[Factor] = if by_condition {
+        &[Factor::ValueDifference, Factor::Effort, Factor::Condition]
+    } else {
+        &[Factor::ValueDifference, Factor::Effort]
+    };
+    for &factor in factors {
         for bin in 0..=cuts[factor as usize].len() {
             keys.push(Key {
                 factor,
@@ -487,12 +553,18 @@ pub fn check_subject(
     let observed_traces = SubjectLikelihood::new(model, subject, settings.deadline)?
         .with_lock(settings.lock)
         .trace(natural);
-    let observed = classify(subject, &observed_traces);
+    let condition = settings.condition.as_ref();
+    let observed = classify(subject, &observed_traces, condition);
+    // Condition bins are the levels themselves, the same for every subject.
+    let level_cuts = condition.map_or(Vec::new(), |c| {
+        (1..c.levels.len()).map(|i| i as f64 - 0.5).collect()
+    });
     let cuts = [
         cuts(&observed, Factor::ValueDifference),
         cuts(&observed, Factor::Effort),
+        level_cuts,
     ];
-    let keys = keys_for(&cuts, model.uses_response_times());
+    let keys = keys_for(&cuts, model.uses_response_times(), condition.is_some());
     let observed_stats = statistics_of(&observed, &cuts, &keys);
     let mut rng = ChaCha8Rng::seed_from_u64(settings.seed);
     rng.set_stream(stream);
@@ -514,7 +586,7 @@ pub fn check_subject(
                     let traces = SubjectLikelihood::new(model, &simulated, settings.deadline)?
                         .with_lock(settings.lock)
                         .trace(natural);
-                    classify(&simulated, &traces)
+                    classify(&simulated, &traces, condition)
                 }
             }
             Mode::OneStepAhead => {
@@ -526,7 +598,7 @@ pub fn check_subject(
                     (settings.lock, settings.deadline),
                     &mut rng,
                 );
-                classify(&simulated, &observed_traces)
+                classify(&simulated, &observed_traces, condition)
             }
         };
         replicates.push(statistics_of(&classified, &cuts, &keys));
@@ -659,8 +731,13 @@ fn rows<'a>(
     rows
 }
 
-/// Columns common to both statistic tables.
-fn statistic_table(rows: &[Row<'_>], extra: Vec<(&str, Column)>) -> Table {
+/// Columns common to both statistic tables; with a condition, `level` names the level of its
+/// bins.
+fn statistic_table(
+    rows: &[Row<'_>],
+    condition: Option<&Condition>,
+    extra: Vec<(&str, Column)>,
+) -> Table {
     let text = |f: &dyn Fn(&Row<'_>) -> String| Column::Text(rows.iter().map(f).collect());
     let number = |f: &dyn Fn(&Statistic) -> Option<f64>| {
         Column::Number(rows.iter().map(|r| f(r.3)).collect())
@@ -679,6 +756,20 @@ fn statistic_table(rows: &[Row<'_>], extra: Vec<(&str, Column)>) -> Table {
         )
         .with("bin_low", number(&|s| s.bin_range.map(|b| b.0)))
         .with("bin_high", number(&|s| s.bin_range.map(|b| b.1)));
+    if let Some(c) = condition {
+        table = table.with(
+            "level",
+            Column::OptionalText(
+                rows.iter()
+                    .map(|r| {
+                        (r.3.key.factor == Factor::Condition)
+                            .then(|| c.levels.get(r.3.key.bin).cloned())
+                            .flatten()
+                    })
+                    .collect(),
+            ),
+        );
+    }
     for (name, column) in extra {
         table = table.with(name, column);
     }
@@ -703,13 +794,21 @@ fn statistic_table(rows: &[Row<'_>], extra: Vec<(&str, Column)>) -> Table {
 }
 
 /// Observed against predicted proportions of correct-by-value responses, per subject and pooled.
-pub fn choices_table(checks: &[SubjectCheck], pooled: &[Statistic]) -> Table {
+pub fn choices_table(
+    checks: &[SubjectCheck],
+    pooled: &[Statistic],
+    condition: Option<&Condition>,
+) -> Table {
     let rows = rows(checks, pooled, |k| matches!(k, Kind::ChoiceProportion));
-    statistic_table(&rows, Vec::new())
+    statistic_table(&rows, condition, Vec::new())
 }
 
 /// Observed against predicted response-time quantiles, per subject and pooled.
-pub fn quantiles_table(checks: &[SubjectCheck], pooled: &[Statistic]) -> Table {
+pub fn quantiles_table(
+    checks: &[SubjectCheck],
+    pooled: &[Statistic],
+    condition: Option<&Condition>,
+) -> Table {
     let rows = rows(checks, pooled, |k| matches!(k, Kind::RtQuantile { .. }));
     let quantile = Column::Number(
         rows.iter()
@@ -727,7 +826,11 @@ pub fn quantiles_table(checks: &[SubjectCheck], pooled: &[Statistic]) -> Table {
             })
             .collect(),
     );
-    statistic_table(&rows, vec![("response", response), ("quantile", quantile)])
+    statistic_table(
+        &rows,
+        condition,
+        vec![("response", response), ("quantile", quantile)],
+    )
 }
 
 /// Subjects ordered worst first by rms_z (missing last), with their misfit.

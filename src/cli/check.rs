@@ -2,7 +2,7 @@
 
 use crate::check::plots::{choice_figure, rt_quantile_figure};
 use crate::check::{
-    CheckSettings, FLAG_FRACTION, Mode, POOLED, check_subjects, choices_table, misfit,
+    CheckSettings, Condition, FLAG_FRACTION, Mode, POOLED, check_subjects, choices_table, misfit,
     misfit_table, pooled, quantiles_table, ranked_misfits,
 };
 use crate::files::OutputSet;
@@ -16,6 +16,8 @@ pub struct CheckRun<'a> {
     pub input: &'a super::FittedRun,
     /// Replicate datasets per subject, seed and deadline.
     pub settings: CheckSettings,
+    /// A column whose levels get statistics of their own.
+    pub by: Option<String>,
 }
 
 /// Reads, simulates, summarises and writes every output at once (nothing is written on error).
@@ -36,6 +38,14 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     }
     let mut outputs = OutputSet::create(out, run.input.replace.replace)?;
     let (table, model, estimates) = run.input.load()?;
+    let mut settings = run.settings.clone();
+    if let Some(column) = &run.by {
+        settings.condition = Some(
+            Condition::of(column, &table.subjects)
+                .map_err(|e| format!("--by {column}: {}: {e}", run.input.data.display()))?,
+        );
+    }
+    let run = CheckRun { settings, ..run };
     let bar = crate::progress::Progress::new(
         &format!(
             "simulating {} replicate datasets of each subject",
@@ -48,10 +58,15 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     })?;
     bar.finish();
     let pooled = pooled(&checks);
-    choices_table(&checks, &pooled).stage_both(&mut outputs, out, "check_choices")?;
+    let condition = run.settings.condition.as_ref();
+    choices_table(&checks, &pooled, condition).stage_both(&mut outputs, out, "check_choices")?;
     let rt_figure = rt_quantile_figure(&pooled, POOLED)?;
     if let Some(svg) = &rt_figure {
-        quantiles_table(&checks, &pooled).stage_both(&mut outputs, out, "check_quantiles")?;
+        quantiles_table(&checks, &pooled, condition).stage_both(
+            &mut outputs,
+            out,
+            "check_quantiles",
+        )?;
         outputs.stage(&out.join("check_rt_quantiles.svg"), |w| {
             w.write_all(svg.as_bytes())
         })?;

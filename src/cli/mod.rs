@@ -201,6 +201,11 @@ pub enum Command {
         /// response.
         #[arg(long)]
         deadline: Option<f64>,
+        /// Also give every level of this column of the trial table (a condition, block or
+        /// session; `run` for runs) statistics of its own: choice proportions and response-time
+        /// quantiles per level, with a `level` column in the tables.
+        #[arg(long)]
+        by: Option<String>,
     },
     /// Compare one model's fitted parameters between groups of subjects: per free parameter,
     /// Welch's t test (Welch 1947), Mann-Whitney U (normal approximation with tie and continuity
@@ -577,6 +582,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             sims,
             seed,
             deadline,
+            by,
         } => check::run(check::CheckRun {
             input: &input,
             settings: crate::check::CheckSettings {
@@ -584,7 +590,9 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 seed,
                 deadline,
                 lock: recorded(&input.fits, "lock").and_then(|v| v.as_f64()),
+                condition: None,
             },
+            by,
         }),
         Command::Contrast {
             fits,
