@@ -836,3 +836,133 @@ fn the_predictive_check_by_condition_flags_a_model_without_the_condition_effect(
     assert!(right <= 0.2, "generating model: {right}");
     assert!(wrong >= 0.5, "one boundary: {wrong}");
 }
+
+#[test]
+fn exports_give_each_trial_the_value_of_a_parameter_that_varies() {
+    // Fit a boundary by condition through the command line, export, and find every trial's
+    // boundary in the latents table and as a modulator of the choice events, equal to the
+    // fitted boundary of the trial's condition (source: the equation of
+    // valuedrift::model::varying; with no slope a trial's value is its level's estimate).
+    let text = gainloss_with("by = \"condition\"\nlevels = [\"speed\", \"accuracy\"]\n");
+    let model = parse_model(&text, "by-condition.toml").unwrap();
+    let truth = |rng: &mut ChaCha8Rng| -> Vec<f64> {
+        model
+            .parameters
+            .iter()
+            .map(|p| match p.name.as_str() {
+                "gain_rate" | "loss_rate" => rng.random_range(0.3..0.5),
+                "effort_weight" => 0.6,
+                "value_scale" => 3.0,
+                "boundary[condition=speed]" => 0.9,
+                "boundary[condition=accuracy]" => 2.2,
+                "ndt" => 0.3,
+                _ => p.fixed.unwrap(),
+            })
+            .collect()
+    };
+    let (subjects, _) = simulated_subjects(&model, 2, 160, 4, &truth);
+    let dir = tempfile::tempdir().unwrap();
+    let data = dir.path().join("trials.csv");
+    let table = valuedrift::data::TrialTable {
+        subjects,
+        present: vec![
+            "option_a".into(),
+            "option_b".into(),
+            "outcome".into(),
+            "onset".into(),
+            "outcome_onset".into(),
+            "run".into(),
+        ],
+    };
+    let mut file = std::fs::File::create(&data).unwrap();
+    valuedrift::results::trials_table(&table)
+        .write_csv(&mut file)
+        .unwrap();
+    let model_file = dir.path().join("by-condition.toml");
+    std::fs::write(&model_file, &text).unwrap();
+    let fits = dir.path().join("fits");
+    let run = |args: &[&str]| {
+        let output = common::bin().args(args).output().unwrap();
+        assert!(
+            output.status.success(),
+            "{args:?}: {}",
+            String::from_utf8_lossy(&output.stderr)
+        );
+    };
+    let (data_s, model_s, fits_s) = (
+        data.to_str().unwrap(),
+        model_file.to_str().unwrap(),
+        fits.to_str().unwrap(),
+    );
+    run(&[
+        "fit", "--data", data_s, "--model", model_s, "--out", fits_s, "--starts", "3",
+    ]);
+    let out = dir.path().join("export");
+    run(&[
+        "export",
+        "--fits",
+        fits_s,
+        "--data",
+        data_s,
+        "--model",
+        model_s,
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    // The fitted boundaries of each subject and condition.
+    let mut fitted = std::collections::HashMap::new();
+    let mut reader = csv::Reader::from_path(fits.join("parameters.csv")).unwrap();
+    for row in reader.deserialize::<std::collections::HashMap<String, String>>() {
+        let row = row.unwrap();
+        if let Some(level) = row["parameter"]
+            .strip_prefix("boundary[condition=")
+            .and_then(|l| l.strip_suffix(']'))
+        {
+            let x: f64 = row["estimate"].parse().unwrap();
+            fitted.insert((row["subject"].clone(), level.to_string()), x);
+        }
+    }
+    assert_eq!(fitted.len(), 4);
+    let trials = read_trials(&data, &ColumnMap::default()).unwrap();
+    let mut reader = csv::Reader::from_path(out.join("latents.csv")).unwrap();
+    let rows: Vec<std::collections::HashMap<String, String>> =
+        reader.deserialize().map(|r| r.unwrap()).collect();
+    let conditions: Vec<String> = trials
+        .subjects
+        .iter()
+        .flat_map(|s| s.trials.iter().map(|t| t.covariates[0].clone().unwrap()))
+        .collect();
+    assert_eq!(rows.len(), conditions.len());
+    for (row, condition) in rows.iter().zip(&conditions) {
+        let on_trial: f64 = row["boundary_on_trial"].parse().unwrap();
+        let expected = fitted[&(row["subject"].clone(), condition.clone())];
+        assert!(
+            (on_trial - expected).abs() <= 1e-9 * expected,
+            "{on_trial} vs {expected}"
+        );
+    }
+    // The events files carry it as a modulator of the choice events.
+    let events: Vec<_> = walk(&out)
+        .into_iter()
+        .filter(|p| p.to_string_lossy().ends_with("_events.tsv"))
+        .collect();
+    assert!(!events.is_empty());
+    let header = std::fs::read_to_string(&events[0]).unwrap();
+    assert!(
+        header
+            .lines()
+            .next()
+            .unwrap()
+            .split('\t')
+            .any(|c| c == "boundary_on_trial"),
+        "{header}"
+    );
+}
+
+/// Every file below `dir`.
+fn walk(dir: &std::path::Path) -> Vec<std::path::PathBuf> {
+    common::contents(dir)
+        .into_keys()
+        .map(|relative| dir.join(relative))
+        .collect()
+}

@@ -349,13 +349,13 @@ pub fn design_file(
             .collect();
         header.push(m.name.to_string());
         columns.push(convolve(&regressor, hrf, timing));
-        let source = &events.sidecar[m.name];
+        let source = &events.sidecar[m.name.as_str()];
         described.insert(
-            m.name.into(),
+            m.name.clone(),
             json!({
                 "LongName": format!(
                     "{} (parametric modulator of the {} events, convolved)",
-                    source["LongName"].as_str().unwrap_or(m.name),
+                    source["LongName"].as_str().unwrap_or(&m.name),
                     m.trial_type
                 ),
                 "Description": format!(

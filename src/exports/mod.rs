@@ -21,6 +21,7 @@ use crate::files::InputError;
 use crate::likelihood::{DataMismatch, SubjectLikelihood};
 use crate::model::Model;
 use crate::results::{Column, Table, number_text};
+use std::borrow::Cow;
 use std::collections::HashMap;
 use std::io::Write;
 use std::path::Path;
@@ -607,99 +608,150 @@ pub fn scale_values(values: &mut [Option<f64>], scale: Scale) -> Scaled {
 // Events files
 
 /// One modulator column: name, long name, description, units, event type it belongs to, value.
+#[derive(Clone)]
 struct Modulator {
-    name: &'static str,
-    long_name: &'static str,
-    description: &'static str,
-    units: &'static str,
+    name: Cow<'static, str>,
+    long_name: Cow<'static, str>,
+    description: Cow<'static, str>,
+    units: Cow<'static, str>,
     at_outcome: bool,
-    value: fn(&Latent) -> Option<f64>,
+    value: ModulatorValue,
+}
+
+/// Where a modulator's value comes from.
+#[derive(Clone, Copy)]
+enum ModulatorValue {
+    /// A latent variable of the trial.
+    Latent(fn(&Latent) -> Option<f64>),
+    /// The trial's value of the k-th component parameter that varies over trials.
+    Varying(usize),
+}
+
+impl Modulator {
+    fn value_of(&self, latent: &Latent) -> Option<f64> {
+        match self.value {
+            ModulatorValue::Latent(f) => f(latent),
+            ModulatorValue::Varying(k) => latent.varying.get(k).copied(),
+        }
+    }
 }
 
 static MODULATORS: [Modulator; 8] = [
     Modulator {
-        name: "value_chosen",
-        long_name: "Subjective value of the chosen option",
-        description: "Learned value of the chosen option before the outcome, after the effort \
+        name: Cow::Borrowed("value_chosen"),
+        long_name: Cow::Borrowed("Subjective value of the chosen option"),
+        description: Cow::Borrowed(
+            "Learned value of the chosen option before the outcome, after the effort \
                       cost; n/a without response",
-        units: "outcome units",
+        ),
+        units: Cow::Borrowed("outcome units"),
         at_outcome: false,
-        value: |l| l.value_chosen,
+        value: ModulatorValue::Latent(|l| l.value_chosen),
     },
     Modulator {
-        name: "value_unchosen",
-        long_name: "Subjective value of the option not chosen",
-        description: "Learned value of the option not chosen before the outcome, after the \
+        name: Cow::Borrowed("value_unchosen"),
+        long_name: Cow::Borrowed("Subjective value of the option not chosen"),
+        description: Cow::Borrowed(
+            "Learned value of the option not chosen before the outcome, after the \
                       effort cost; n/a without response",
-        units: "outcome units",
+        ),
+        units: Cow::Borrowed("outcome units"),
         at_outcome: false,
-        value: |l| l.value_unchosen,
+        value: ModulatorValue::Latent(|l| l.value_unchosen),
     },
     Modulator {
-        name: "value_difference",
-        long_name: "Subjective value difference",
-        description: "Subjective value of option a minus subjective value of option b, before \
+        name: Cow::Borrowed("value_difference"),
+        long_name: Cow::Borrowed("Subjective value difference"),
+        description: Cow::Borrowed(
+            "Subjective value of option a minus subjective value of option b, before \
                       the outcome; n/a on trials of more than two options",
-        units: "outcome units",
+        ),
+        units: Cow::Borrowed("outcome units"),
         at_outcome: false,
-        value: |l| l.value_difference,
+        value: ModulatorValue::Latent(|l| l.value_difference),
     },
     Modulator {
-        name: "effort_chosen",
-        long_name: "Effort of the chosen option",
-        description: "Effort demanded by the chosen option, as in the trial table; n/a without \
+        name: Cow::Borrowed("effort_chosen"),
+        long_name: Cow::Borrowed("Effort of the chosen option"),
+        description: Cow::Borrowed(
+            "Effort demanded by the chosen option, as in the trial table; n/a without \
                       response",
-        units: "effort units of the trial table",
+        ),
+        units: Cow::Borrowed("effort units of the trial table"),
         at_outcome: false,
-        value: |l| l.effort_chosen,
+        value: ModulatorValue::Latent(|l| l.effort_chosen),
     },
     Modulator {
-        name: "choice_probability",
-        long_name: "Probability of the choice made",
-        description: "Model probability of the option that was chosen; n/a without response",
-        units: "probability",
+        name: Cow::Borrowed("choice_probability"),
+        long_name: Cow::Borrowed("Probability of the choice made"),
+        description: Cow::Borrowed(
+            "Model probability of the option that was chosen; n/a without response",
+        ),
+        units: Cow::Borrowed("probability"),
         at_outcome: false,
-        value: |l| l.choice_probability,
+        value: ModulatorValue::Latent(|l| l.choice_probability),
     },
     Modulator {
-        name: "drift",
-        long_name: "Drift rate",
-        description: "Drift rate of the diffusion on this trial (towards option a when positive)",
-        units: "per second (unit within-trial noise)",
+        name: Cow::Borrowed("drift"),
+        long_name: Cow::Borrowed("Drift rate"),
+        description: Cow::Borrowed(
+            "Drift rate of the diffusion on this trial (towards option a when positive)",
+        ),
+        units: Cow::Borrowed("per second (unit within-trial noise)"),
         at_outcome: false,
-        value: |l| l.drift,
+        value: ModulatorValue::Latent(|l| l.drift),
     },
     Modulator {
-        name: "expected_rt",
-        long_name: "Expected response time",
-        description: "Model expected response time given the offer (decision time plus \
+        name: Cow::Borrowed("expected_rt"),
+        long_name: Cow::Borrowed("Expected response time"),
+        description: Cow::Borrowed(
+            "Model expected response time given the offer (decision time plus \
                       non-decision time)",
-        units: "s",
+        ),
+        units: Cow::Borrowed("s"),
         at_outcome: false,
-        value: |l| l.expected_rt,
+        value: ModulatorValue::Latent(|l| l.expected_rt),
     },
     Modulator {
-        name: "prediction_error",
-        long_name: "Reward prediction error",
-        description: "Outcome minus the learned value of the chosen option before the outcome; \
+        name: Cow::Borrowed("prediction_error"),
+        long_name: Cow::Borrowed("Reward prediction error"),
+        description: Cow::Borrowed(
+            "Outcome minus the learned value of the chosen option before the outcome; \
                       n/a without response or without outcome",
-        units: "outcome units",
+        ),
+        units: Cow::Borrowed("outcome units"),
         at_outcome: true,
-        value: |l| l.prediction_error,
+        value: ModulatorValue::Latent(|l| l.prediction_error),
     },
 ];
 
-/// The modulator columns that exist for `model`.
-fn modulators(model: &Model) -> Vec<&'static Modulator> {
-    MODULATORS
+/// The modulator columns that exist for `model`: the latent variables it has, then the trial's
+/// value of every component parameter that varies over trials (by condition or covariate).
+fn modulators(model: &Model) -> Vec<Modulator> {
+    let mut out: Vec<Modulator> = MODULATORS
         .iter()
-        .filter(|m| match m.name {
+        .filter(|m| match m.name.as_ref() {
             "drift" => model.uses_response_times(),
             "expected_rt" => model.uses_response_times(),
             "prediction_error" => model.learns(),
             _ => true,
         })
-        .collect()
+        .cloned()
+        .collect();
+    for (k, name) in varying_parameter_names(model).into_iter().enumerate() {
+        out.push(Modulator {
+            long_name: Cow::Owned(format!("{name} on this trial")),
+            description: Cow::Owned(format!(
+                "The model's {name} on this trial, from the fitted levels and slopes of the \
+                 conditions and covariates it varies with"
+            )),
+            name: Cow::Owned(format!("{name}_on_trial")),
+            units: Cow::Borrowed("units of the parameter"),
+            at_outcome: false,
+            value: ModulatorValue::Varying(k),
+        });
+    }
+    out
 }
 
 /// One events file: path stem (without extension), rows, sidecar.
@@ -741,7 +793,7 @@ pub struct EventTiming {
 #[derive(Clone, Debug, PartialEq)]
 pub struct ModulatorValues {
     /// Column name.
-    pub name: &'static str,
+    pub name: String,
     /// The event type it belongs to (`choice` or `outcome`); None on other events.
     pub trial_type: &'static str,
     /// Value per event (scaled within the run), None where the file has `n/a`.
@@ -823,7 +875,7 @@ pub fn events_files(
                         .iter()
                         .map(|e| {
                             if (e.2 == "outcome") == m.at_outcome {
-                                (m.value)(e.3)
+                                m.value_of(e.3)
                             } else {
                                 None
                             }
@@ -865,7 +917,7 @@ pub fn events_files(
                 .iter()
                 .zip(columns)
                 .map(|(m, values)| ModulatorValues {
-                    name: m.name,
+                    name: m.name.to_string(),
                     trial_type: if m.at_outcome { "outcome" } else { "choice" },
                     values,
                 })
@@ -887,7 +939,7 @@ pub fn events_files(
 
 fn sidecar(
     model: &Model,
-    modulators: &[&Modulator],
+    modulators: &[Modulator],
     scaled: &[Scaled],
     scale: Scale,
 ) -> serde_json::Value {
@@ -952,7 +1004,7 @@ fn sidecar(
             ),
         };
         map.insert(
-            m.name.into(),
+            m.name.to_string(),
             json!({
                 "LongName": m.long_name,
                 "Description": format!(
