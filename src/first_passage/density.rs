@@ -47,7 +47,7 @@ pub struct GradientUnavailable;
 ///
 /// # Accuracy
 /// Within 1e-8 absolute in log density of mpmath references over t/a² ∈ [1e-3, 20], |v| ≤ 8,
-/// a ∈ [0.3, 5], w ∈ [0.05, 0.95], η ≤ 3 (tests/first_passage_reference.rs); relative accuracy of
+/// a ∈ [0.3, 5], w ∈ [0.05, 0.95], η ≤ 3 (tests/suite/first_passage_reference.rs); relative accuracy of
 /// the density itself is near 1e-13 in that range, including densities far below 1e-300.
 pub fn ln_density(rt: f64, bound: Bound, params: &DiffusionParams) -> f64 {
     if params.has_integrated_variability() {
@@ -94,7 +94,7 @@ fn oriented_start(p: &DiffusionParams, bound: Bound) -> (f64, StartTerms) {
 ///
 /// # Accuracy
 /// Partial derivatives agree with central differences of [`ln_density`] to 1e-6 relative
-/// (tests/first_passage_properties.rs).
+/// (tests/suite/first_passage_properties.rs).
 pub fn ln_density_with_gradient(
     rt: f64,
     bound: Bound,

@@ -20,7 +20,7 @@ use super::series::{StdCdf, ln_add_exp, ln_prob_lower, std_cdf};
 ///
 /// # Accuracy
 /// Within 1e-8 absolute of mpmath references over the domain stated for
-/// [`ln_density`](super::ln_density) (tests/first_passage_reference.rs); about 1e-14 relative
+/// [`ln_density`](super::ln_density) (tests/suite/first_passage_reference.rs); about 1e-14 relative
 /// without variability.
 pub fn cdf(rt: f64, bound: Bound, params: &DiffusionParams) -> f64 {
     ln_cdf(rt, bound, params).exp()
@@ -61,7 +61,7 @@ pub fn ln_prob_no_response(deadline: f64, params: &DiffusionParams) -> f64 {
 ///
 /// # Accuracy
 /// About 1e-10 relative (the time quadrature), checked against central differences of
-/// [`ln_survival`] in tests/first_passage_properties.rs.
+/// [`ln_survival`] in tests/suite/first_passage_properties.rs.
 pub fn ln_survival_with_gradient(
     rt: f64,
     bound: Bound,
@@ -145,7 +145,7 @@ pub fn ln_bound_probability(bound: Bound, params: &DiffusionParams) -> f64 {
 /// # Accuracy
 /// The value is [`ln_bound_probability`]; the derivatives are within about 1e-12 relative,
 /// checked against central differences of [`ln_bound_probability`] and, for the value, against
-/// the mpmath table tests/reference/first_passage_moments.csv (tests/first_passage_reference.rs).
+/// the mpmath table tests/reference/first_passage_moments.csv (tests/suite/first_passage_reference.rs).
 pub fn ln_bound_probability_with_gradient(
     bound: Bound,
     params: &DiffusionParams,

@@ -32,7 +32,7 @@ fn conditional_mean_std(lambda: f64, x: f64) -> f64 {
 ///
 /// # Accuracy
 /// Closed form to about 1e-13 relative; the quadrature to about 1e-10 relative
-/// (tests/first_passage_properties.rs compares both with mpmath integrals).
+/// (tests/suite/first_passage_properties.rs compares both with mpmath integrals).
 pub fn mean_decision_time_given(bound: Bound, params: &DiffusionParams) -> f64 {
     let p = params.mirrored_for(bound);
     if p.drift_sd == 0.0 && p.start_range == 0.0 {

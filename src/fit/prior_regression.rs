@@ -64,7 +64,7 @@
 //! associations in the sample, not causes. Non-decision time's unconstrained scale is the
 //! position between 0 and a bound below each participant's fastest response, so a score that
 //! changes response speed through another parameter moves ndt's coefficients too
-//! ([`PriorCoefficient::scale_per_participant`]): measured in tests/group_prior_covariates.rs, a
+//! ([`PriorCoefficient::scale_per_participant`]): measured in tests/suite/group_prior_covariates.rs, a
 //! score that raised the boundary gave ndt a slope with t = −5.2 although ndt did not depend on
 //! it.
 

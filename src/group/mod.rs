@@ -11,7 +11,7 @@
 //!
 //! Distribution functions come from `statrs` (regularised incomplete beta and gamma functions,
 //! normal distribution). Accuracy: agreement with SciPy to better than 1e-9 relative for the
-//! statistics and 1e-8 relative for the p values on the cases of `tests/group_statistics.rs`.
+//! statistics and 1e-8 relative for the p values on the cases of `tests/suite/group_statistics.rs`.
 
 pub mod contrast;
 pub mod selection;

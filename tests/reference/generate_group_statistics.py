@@ -1,7 +1,7 @@
 #!/usr/bin/env python3
 """Generate reference values for the group statistics of valuedrift (src/group/mod.rs).
 
-Offline tool: the Rust tests (tests/group_statistics.rs) only read the CSV written next to this
+Offline tool: the Rust tests (tests/suite/group_statistics.rs) only read the CSV written next to this
 script, so Python is not needed to run them.
 
     pip install scipy numpy

@@ -2,7 +2,7 @@
 """Generate reference values of the canonical double-gamma haemodynamic response for valuedrift
 (src/exports/hrf.rs).
 
-Offline tool: the Rust test (tests/haemodynamic_response.rs) only reads the CSV written next to
+Offline tool: the Rust test (tests/suite/haemodynamic_response.rs) only reads the CSV written next to
 this script, so Python is not needed to run it.
 
     pip install scipy numpy

@@ -1,4 +1,4 @@
-"""Reference values for random-effects Bayesian model selection (tests/model_selection.rs).
+"""Reference values for random-effects Bayesian model selection (tests/suite/model_selection.rs).
 
 Implements, independently of the Rust code and with numpy/scipy only:
   * the variational Dirichlet scheme of Stephan, Penny, Daunizeau, Moran & Friston (2009),
@@ -13,7 +13,7 @@ Implements, independently of the Rust code and with numpy/scipy only:
 
 Limitation: F1 here follows the same expansion of the free energy as the Rust code (expected
 log joint + entropy − KL of the Dirichlets), so it is a second implementation, not a second
-derivation; tests/model_selection.rs also checks F1 against the exactly summed evidence (a lower
+derivation; tests/suite/model_selection.rs also checks F1 against the exactly summed evidence (a lower
 bound, equal when the assignments are certain).
 
 The log-evidence matrices are drawn here from a seeded generator and written into the table,

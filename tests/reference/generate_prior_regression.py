@@ -1,6 +1,6 @@
 """Reference values for the regression of the group prior's mean on participant scores.
 
-Writes prior_regression_reference.csv next to this script; tests/group_prior_covariates.rs reads
+Writes prior_regression_reference.csv next to this script; tests/suite/group_prior_covariates.rs reads
 it (Python is not needed to run the tests). Regenerate with
 
     pip install numpy scipy statsmodels

@@ -14,7 +14,7 @@
 //! running at L. When L ≤ ndt, S(L) = 1 and nothing changes. Lapse guesses (uniform over the
 //! observed times, all after the lock) are mixed in after the conditioning. The simulator
 //! matches it by rejection: draws with T < L are redrawn, which yields exactly the conditioned
-//! process (tests/response_window.rs compares the two).
+//! process (tests/suite/response_window.rs compares the two).
 
 use super::{
     ChoiceStage, Entry, Observation, Options, PreparedChoice, Slots, SubjectContext, only_options,

@@ -8,8 +8,7 @@
 use std::path::{Path, PathBuf};
 use std::process::Output;
 
-mod common;
-use common::{MODEL, bin, demo_file};
+use crate::common::{MODEL, bin, demo_file};
 use valuedrift::model::load_model;
 
 /// The demo trials of the first two participants (sub-01, sub-02; demo-data/README.md).

@@ -15,9 +15,7 @@
 //!   must still reach at least the likelihood of the generating values (the defining property
 //!   of a maximum-likelihood estimate, so a fit below it has missed the maximum).
 
-mod common;
-
-use common::{draw_values, pearson};
+use crate::common::{draw_values, pearson};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use std::path::Path;

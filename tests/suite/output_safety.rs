@@ -13,8 +13,7 @@
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output, Stdio};
 
-mod common;
-use common::{MODEL, bin, contents, demo_file};
+use crate::common::{MODEL, bin, contents, demo_file};
 
 /// A fit folder holding parameters.csv (the layout of `valuedrift fit`: subject, group, model,
 /// parameter, estimate) at the generating values of the demo study.

@@ -2,7 +2,7 @@
 //! modulators, and the events files against the rules of the BIDS specification for events
 //! files (checked here from memory of the specification), end to end through the command.
 
-mod common;
+use crate::common;
 
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
@@ -846,7 +846,7 @@ fn export_with_tr_and_scans_writes_one_design_matrix_per_run() {
         // The columns are the events file's events convolved: the choice events (duration =
         // response time) with amplitude 1, and the prediction errors (as written, centred) at
         // the outcome events, through the library's convolution (checked against scipy and the
-        // definition in tests/haemodynamic_response.rs).
+        // definition in tests/suite/haemodynamic_response.rs).
         let events_path = out.join(name.replace("_design.tsv", "_events.tsv"));
         let (eh, events) = read_tsv(&events_path);
         let (kind, pe) = (col(&eh, "trial_type"), col(&eh, "prediction_error"));

@@ -1,6 +1,6 @@
 //! The per-subject likelihood against hand computation and against the first-passage engine.
 
-mod common;
+use crate::common;
 
 use valuedrift::data::{Choice, Subject, Trial};
 use valuedrift::first_passage::{Bound, DiffusionParams, ln_density};

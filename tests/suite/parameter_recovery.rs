@@ -2,9 +2,7 @@
 //! fitted back. Thresholds from the acceptance criteria; the design is the orchard task
 //! of `valuedrift::simulate`. Fixed seed.
 
-mod common;
-
-use common::{draw_values, pearson};
+use crate::common::{draw_values, pearson};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use valuedrift::fit::{FitOptions, fit_subject};

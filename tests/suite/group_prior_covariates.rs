@@ -7,7 +7,7 @@
 //! 3. The command line: the coefficient table and run record, and refusals of scores that are
 //!    not one number per participant, naming file, column and participant.
 
-mod common;
+use crate::common;
 
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;

@@ -3,7 +3,7 @@
 //! condition has one level, exact gradients, recovery on simulated data), several cost
 //! attributes per option, and trials of three or more options.
 
-mod common;
+use crate::common;
 
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;

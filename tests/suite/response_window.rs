@@ -2,7 +2,7 @@
 //! against simulation (the simulator redraws processes that end before the lock), its
 //! normalisation, and recovery on simulated data with a lock after most decisions begin.
 
-mod common;
+use crate::common;
 
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -75,7 +75,7 @@ fn simulated_responses_follow_the_conditioned_distribution() {
     // end before the lock. The simulator's rejection draws against the conditioned process of
     // the likelihood's derivation: P(a | T > L) = S_a(L)/S(L) and, per bound,
     // F_c(t | T > L) = (S_c(L) − S_c(t))/S_c(L), with the engine's survival function (checked
-    // against mpmath in tests/first_passage_reference.rs).
+    // against mpmath in tests/suite/first_passage_reference.rs).
     let model = model(true);
     let lock = 0.7;
     let n = 12_000;

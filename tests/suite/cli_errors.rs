@@ -12,8 +12,7 @@
 
 use std::collections::BTreeSet;
 
-mod common;
-use common::contents;
+use crate::common::contents;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
@@ -29,7 +28,7 @@ const GOOD_ROWS: [&str; 4] = [
 ];
 
 /// The built-in model file, copied and broken by the model-file cases.
-const MODEL_FILE: &str = include_str!("../models/gainloss-linear.toml");
+const MODEL_FILE: &str = include_str!("../../models/gainloss-linear.toml");
 
 /// Header of a valid `density` input (source: `src/cli/mod.rs`, the `density` help).
 const DENSITY_HEADER: &str = "rt,bound,drift,boundary,start,ndt";

@@ -1,0 +1,29 @@
+//! The test suite, one binary (so that polars and the crate are linked once, not once per file).
+//! Each module checks one part of the main job against something outside the project, named
+//! beside each check; shared helpers are in `common`.
+
+mod common;
+
+mod cli_errors;
+mod data_errors;
+mod exports;
+mod first_passage_properties;
+mod first_passage_reference;
+mod first_passage_sampler;
+mod fit_behaviour;
+mod fit_optima;
+mod fitted_inputs;
+mod group_prior_covariates;
+mod group_statistics;
+mod haemodynamic_response;
+mod hierarchical;
+mod honest_output;
+mod likelihood;
+mod model_selection;
+mod output_formats;
+mod output_safety;
+mod parameter_recovery;
+mod predictive_check;
+mod real_data;
+mod response_window;
+mod task_shapes;
