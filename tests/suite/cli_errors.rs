@@ -703,6 +703,17 @@ fn fit_options_out_of_range() {
             vec!["--deadline=-2"],
             vec!["--deadline -2", "> 0"],
         ),
+        ("lock negative", vec!["--lock=-1"], vec!["--lock -1", "≥ 0"]),
+        (
+            "lock after the deadline",
+            vec!["--lock", "3", "--deadline", "2"],
+            vec!["--lock 3", "before the deadline (2 s)"],
+        ),
+        (
+            "lock after most responses",
+            vec!["--lock", "50"],
+            vec!["--lock 50", "faster than it", "Are the times in seconds?"],
+        ),
         (
             "deadline NaN",
             vec!["--deadline", "NaN"],

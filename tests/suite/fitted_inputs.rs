@@ -236,3 +236,37 @@ fn subjects_the_fit_left_out_are_left_out_of_check_and_export_with_a_note() {
         assert!(out.exists());
     }
 }
+
+#[test]
+fn check_by_a_column_the_table_lacks_is_refused_naming_it() {
+    // common practice: an option naming a column the file does not have is an error naming the
+    // file and the column, and nothing is written.
+    let dir = tempfile::tempdir().unwrap();
+    let data = two_subjects(dir.path());
+    let fits = dir.path().join("fits");
+    let status = bin()
+        .args(["fit", "--model", MODEL, "--starts", "2", "--data"])
+        .arg(&data)
+        .arg("--out")
+        .arg(&fits)
+        .output()
+        .unwrap();
+    assert!(status.status.success());
+    let out = dir.path().join("check");
+    let output = bin()
+        .args([
+            "check", "--model", MODEL, "--sims", "10", "--by", "clinic", "--fits",
+        ])
+        .arg(&fits)
+        .arg("--data")
+        .arg(&data)
+        .arg("--out")
+        .arg(&out)
+        .output()
+        .unwrap();
+    refused(
+        &output,
+        &out,
+        &["--by clinic", "trials.csv", "no column `clinic`"],
+    );
+}
