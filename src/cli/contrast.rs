@@ -71,6 +71,14 @@ fn cell(x: Option<f64>, width: usize, precision: usize) -> String {
 pub fn print_summary(rows: &[ParameterContrast]) {
     let Some(first) = rows.first() else { return };
     let labels: Vec<&str> = first.groups.iter().map(|g| g.group.as_str()).collect();
+    // The name column fits the longest name (generated names such as boundary[instruction=speed]
+    // are long).
+    let w = rows
+        .iter()
+        .map(|r| r.parameter.len())
+        .max()
+        .unwrap_or(0)
+        .max(16);
     if first.groups.len() == 2 {
         println!(
             "{} minus {}: Welch t test (Welch 1947), Mann-Whitney U (normal approximation, tie and \
@@ -78,7 +86,7 @@ pub fn print_summary(rows: &[ParameterContrast]) {
             labels[0], labels[1]
         );
         println!(
-            "{:<16} {:>7} {:>10} {:>10} {:>8} {:>7} {:>9} {:>9} {:>21} {:>9} {:>8}",
+            "{:<w$} {:>7} {:>10} {:>10} {:>8} {:>7} {:>9} {:>9} {:>21} {:>9} {:>8}",
             "parameter",
             "n",
             "mean_1",
@@ -96,7 +104,7 @@ pub fn print_summary(rows: &[ParameterContrast]) {
                 format!("{:>6.2} [{:>5.2}, {:>5.2}]", h.g, h.ci_low, h.ci_high)
             });
             println!(
-                "{:<16} {:>7} {} {} {} {} {} {} {g:>21} {} {:>8}",
+                "{:<w$} {:>7} {} {} {} {} {} {} {g:>21} {} {:>8}",
                 r.parameter,
                 format!("{}/{}", r.groups[0].values.len(), r.groups[1].values.len()),
                 cell(crate::group::mean(&r.groups[0].values), 10, 4),
@@ -116,12 +124,12 @@ pub fn print_summary(rows: &[ParameterContrast]) {
             labels.join(", ")
         );
         println!(
-            "{:<16} {:>8} {:>6} {:>7} {:>9} {:>8} {:>9} {:>9} {:>8}",
+            "{:<w$} {:>8} {:>6} {:>7} {:>9} {:>8} {:>9} {:>9} {:>8}",
             "parameter", "F", "df1", "df2", "p", "H", "H p", "q", "at bound"
         );
         for r in rows {
             println!(
-                "{:<16} {} {} {} {} {} {} {} {:>8}",
+                "{:<w$} {} {} {} {} {} {} {} {:>8}",
                 r.parameter,
                 cell(r.welch_anova.map(|w| w.f), 8, 3),
                 cell(r.welch_anova.map(|w| w.df1), 6, 0),
