@@ -1,0 +1,260 @@
+//! A fit folder's estimates read back for a model: parameters.csv (or eb_parameters.csv) and the
+//! model definition recorded in run.json, checked against the model given.
+
+use crate::data::Subject;
+use crate::files::InputError;
+use crate::model::Model;
+use std::collections::HashMap;
+use std::path::Path;
+
+/// Reads the natural-scale estimates of `model` for each subject from a `parameters.csv` written
+/// by `valuedrift fit` (columns subject, model, parameter, estimate; others ignored). Returns, per
+/// subject of `subjects` and in that order, every model parameter in the model's order (fixed
+/// parameters not in the file take their fixed value).
+pub fn read_estimates(
+    path: &Path,
+    model: &Model,
+    subjects: &[Subject],
+) -> Result<Vec<Vec<f64>>, InputError> {
+    let file = std::fs::File::open(path)
+        .map_err(|e| InputError::file(path, format!("cannot be read: {e}")))?;
+    let mut reader = csv::ReaderBuilder::new().flexible(false).from_reader(file);
+    let headers = reader
+        .headers()
+        .map_err(|e| InputError::file(path, format!("has no readable header: {e}")))?
+        .clone();
+    let index = |name: &str| {
+        headers
+            .iter()
+            .position(|h| h.trim() == name)
+            .ok_or_else(|| {
+                InputError::file(
+                    path,
+                    format!(
+                        "has no column `{name}` (expected the parameters.csv written by \
+                         `valuedrift fit`)"
+                    ),
+                )
+            })
+    };
+    let (i_subject, i_model, i_parameter, i_estimate) = (
+        index("subject")?,
+        index("model")?,
+        index("parameter")?,
+        index("estimate")?,
+    );
+    // subject → parameter slot → estimate
+    let mut found: HashMap<String, HashMap<usize, f64>> = HashMap::new();
+    let mut models_in_file: Vec<String> = Vec::new();
+    for record in reader.records() {
+        let record = record.map_err(|e| {
+            let line = e.position().map_or(0, |p| p.line());
+            InputError {
+                file: path.to_path_buf(),
+                line: (line > 0).then_some(line),
+                column: None,
+                message: format!("cannot be parsed: {e}"),
+            }
+        })?;
+        let line = record.position().map_or(0, |p| p.line());
+        let field = |i: usize| record.get(i).unwrap_or("").trim();
+        let row_model = field(i_model);
+        if !models_in_file.iter().any(|m| m == row_model) {
+            models_in_file.push(row_model.to_string());
+        }
+        if row_model != model.name {
+            continue;
+        }
+        let name = field(i_parameter);
+        let Some(slot) = model.parameters.iter().position(|p| p.name == name) else {
+            return Err(InputError::at(
+                path,
+                line,
+                "parameter",
+                format!("`{name}` is not a parameter of model {}", model.name),
+            ));
+        };
+        let estimate = crate::files::finite_number(path, line, "estimate", field(i_estimate))?;
+        let estimate = within_bounds(path, line, &model.parameters[slot], estimate)?;
+        let subject = field(i_subject).to_string();
+        if found
+            .entry(subject.clone())
+            .or_default()
+            .insert(slot, estimate)
+            .is_some()
+        {
+            return Err(InputError::at(
+                path,
+                line,
+                "parameter",
+                format!(
+                    "second estimate of `{name}` for subject {subject} and model {}",
+                    model.name
+                ),
+            ));
+        }
+    }
+    if found.is_empty() {
+        return Err(InputError::file(
+            path,
+            format!(
+                "has no estimates of model {} (models in the file: {})",
+                model.name,
+                if models_in_file.is_empty() {
+                    "none".to_string()
+                } else {
+                    models_in_file.join(", ")
+                }
+            ),
+        ));
+    }
+    subjects
+        .iter()
+        .map(|s| {
+            let Some(estimates) = found.get(&s.id) else {
+                return Err(InputError::file(
+                    path,
+                    format!(
+                        "has no estimates of model {} for subject {} (was it fitted?)",
+                        model.name, s.id
+                    ),
+                ));
+            };
+            model
+                .parameters
+                .iter()
+                .enumerate()
+                .map(|(slot, spec)| match (estimates.get(&slot), spec.fixed) {
+                    (Some(&x), _) => Ok(x),
+                    (None, Some(fixed)) => Ok(fixed),
+                    (None, None) => Err(InputError::file(
+                        path,
+                        format!(
+                            "has no estimate of `{}` of model {} for subject {}",
+                            spec.name, model.name, s.id
+                        ),
+                    )),
+                })
+                .collect()
+        })
+        .collect()
+}
+
+/// Checks that `model` is the model that was fitted: its definition must equal the one recorded
+/// for a model of the same name in `fits/run.json` (`models[].definition`, written by
+/// `valuedrift fit`). Returns false, with nothing checked, when the folder has no run.json (a
+/// parameters table put together by hand). A model missing from the record, an unreadable record
+/// or a changed definition is an error; a changed definition is reported at the first line that
+/// differs, with both versions of that line.
+pub fn check_recorded_model(fits: &Path, model: &Model) -> Result<bool, InputError> {
+    let record_path = fits.join("run.json");
+    let text = match std::fs::read_to_string(&record_path) {
+        Ok(text) => text,
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(false),
+        Err(e) => {
+            return Err(InputError::file(
+                &record_path,
+                format!("cannot be read: {e}"),
+            ));
+        }
+    };
+    let record: serde_json::Value = serde_json::from_str(&text).map_err(|e| {
+        InputError::file(
+            &record_path,
+            format!("is not the JSON run record written by `valuedrift fit`: {e}"),
+        )
+    })?;
+    let Some(models) = record.get("models").and_then(|m| m.as_array()) else {
+        return Err(InputError::file(
+            &record_path,
+            "has no `models` list (expected the run record written by `valuedrift fit`)",
+        ));
+    };
+    let name_of =
+        |m: &serde_json::Value| m.get("name").and_then(|n| n.as_str()).map(str::to_string);
+    let Some(recorded) = models
+        .iter()
+        .find(|m| name_of(m).as_deref() == Some(model.name.as_str()))
+    else {
+        let names: Vec<String> = models.iter().filter_map(name_of).collect();
+        return Err(InputError::file(
+            &record_path,
+            format!(
+                "records no fit of model {} (models fitted: {})",
+                model.name,
+                names.join(", ")
+            ),
+        ));
+    };
+    let Some(definition) = recorded.get("definition").and_then(|d| d.as_str()) else {
+        return Err(InputError::file(
+            &record_path,
+            format!("has no definition of model {}", model.name),
+        ));
+    };
+    if definition == model.text {
+        return Ok(true);
+    }
+    let (then, now): (Vec<&str>, Vec<&str>) =
+        (definition.lines().collect(), model.text.lines().collect());
+    let line = (0..then.len().max(now.len()))
+        .find(|&i| then.get(i) != now.get(i))
+        .unwrap_or(0);
+    let show = |l: Option<&&str>| l.map_or("(no line)".to_string(), |l| format!("`{}`", l.trim()));
+    Err(InputError {
+        file: std::path::PathBuf::from(&model.origin),
+        line: Some(line as u64 + 1),
+        column: None,
+        message: format!(
+            "model {} has changed since the fit: its definition differs from the one recorded in \
+             {} (models[].definition) from this line on (recorded {}, now {}). Export and check \
+             need the fitted model: save the recorded definition as a .toml file and pass it \
+             with --model, or fit again",
+            model.name,
+            record_path.display(),
+            show(then.get(line)),
+            show(now.get(line)),
+        ),
+    })
+}
+
+/// Width of the band around a parameter's bounds, relative to the larger of the bounds' width and
+/// magnitudes, within which an estimate counts as on the bound (and is set onto it): estimates
+/// written by `valuedrift fit` at a bound can differ from it by rounding in the back-transform
+/// (common practice: a few ulps, far below 1e-9 of that scale).
+const BOUND_TOLERANCE: f64 = 1e-9;
+
+/// The estimate `x` of `spec` if it lies within the model's bounds (values within
+/// [`BOUND_TOLERANCE`] of the width outside a bound are set onto it), else an error at `line`,
+/// column `estimate`, with the value and the bounds.
+fn within_bounds(
+    path: &Path,
+    line: u64,
+    spec: &crate::model::ParameterSpec,
+    x: f64,
+) -> Result<f64, InputError> {
+    let scale = (spec.upper - spec.lower)
+        .max(spec.lower.abs())
+        .max(spec.upper.abs())
+        .max(f64::MIN_POSITIVE);
+    let slack = BOUND_TOLERANCE * scale;
+    if x >= spec.lower - slack && x <= spec.upper + slack {
+        return Ok(x.clamp(spec.lower, spec.upper));
+    }
+    let expected = match spec.fixed {
+        Some(v) => format!("the model fixes `{}` at {v}", spec.name),
+        None => format!(
+            "outside the bounds [{}, {}] of `{}` in the model",
+            spec.lower, spec.upper, spec.name
+        ),
+    };
+    Err(InputError::at(
+        path,
+        line,
+        "estimate",
+        format!(
+            "{x}: {expected}; the estimates do not belong to this model (was the model file \
+             changed after the fit?)"
+        ),
+    ))
+}
