@@ -88,6 +88,8 @@ pub struct SubjectFit {
     pub group: String,
     /// Model name.
     pub model: String,
+    /// The likelihood scores response times as well as choices.
+    pub scores_response_times: bool,
     /// Trials entering the likelihood.
     pub n_trials: usize,
     /// Free parameters.

@@ -141,6 +141,7 @@ pub fn summarise(
         subject: subject.id.clone(),
         group: subject.group.clone(),
         model: model.name.clone(),
+        scores_response_times: model.uses_response_times(),
         n_trials: likelihood.n_observations(),
         n_params: free.len(),
         log_likelihood: ln_l,

@@ -74,6 +74,9 @@ pub struct FitRecord {
     pub bic: f64,
     /// Laplace log evidence, when the file has it for this row.
     pub log_evidence_laplace: Option<f64>,
+    /// What the likelihood scored (column `scored`: `choices_and_times` or `choices`), when the
+    /// file records it.
+    pub scored: Option<DataKind>,
     /// Line in the file (header = line 1).
     pub line: u64,
 }
@@ -94,6 +97,7 @@ pub fn read_fit_summary(path: &Path, by: &str) -> Result<Vec<FitRecord>, InputEr
     ];
     let by_c = find(by)?;
     let laplace_c = header.iter().position(|h| h == "log_evidence_laplace");
+    let scored_c = header.iter().position(|h| h == "scored");
     let mut seen: BTreeMap<(String, String), u64> = BTreeMap::new();
     let mut out = Vec::new();
     for row in csv_rows(path, &mut reader) {
@@ -129,7 +133,21 @@ pub fn read_fit_summary(path: &Path, by: &str) -> Result<Vec<FitRecord>, InputEr
             Some(c) if !cell(c).is_empty() => Some(number(c, "log_evidence_laplace")?),
             _ => None,
         };
+        let scored = match scored_c.map(cell) {
+            None | Some("") => None,
+            Some("choices_and_times") => Some(DataKind::ChoicesAndTimes),
+            Some("choices") => Some(DataKind::ChoicesOnly),
+            Some(other) => {
+                return Err(InputError::at(
+                    path,
+                    line,
+                    "scored",
+                    format!("'{other}': expected choices_and_times or choices"),
+                ));
+            }
+        };
         let row = FitRecord {
+            scored,
             n_trials: count(trials_c, "n_trials")?,
             n_params: count(params_c, "n_params")?,
             aic: number(aic_c, "aic")?,
@@ -166,8 +184,17 @@ pub enum DataKind {
     ChoicesAndTimes,
     /// Choices only (softmax choice stage).
     ChoicesOnly,
-    /// Not a built-in model: the data kind is not known from the name.
+    /// Not recorded in the file and not a built-in model.
     Unknown,
+}
+
+/// The data kind of `model` in `rows`: as recorded in the `scored` column of fit_summary.csv
+/// (written by every fit since it exists), else by name for built-in models, else unknown.
+pub fn recorded_data_kind(model: &str, rows: &[FitRecord]) -> DataKind {
+    rows.iter()
+        .find(|r| r.model == model)
+        .and_then(|r| r.scored)
+        .unwrap_or_else(|| data_kind(model))
 }
 
 /// The data kind of a model by name: known for built-in models
@@ -225,7 +252,10 @@ pub fn assemble(
             all_models.push(r.model.clone());
         }
     }
-    let kinds: Vec<DataKind> = all_models.iter().map(|m| data_kind(m)).collect();
+    let kinds: Vec<DataKind> = all_models
+        .iter()
+        .map(|m| recorded_data_kind(m, rows))
+        .collect();
     let mixed =
         kinds.contains(&DataKind::ChoicesAndTimes) && kinds.contains(&DataKind::ChoicesOnly);
     let mut notes = Vec::new();
@@ -246,13 +276,13 @@ pub fn assemble(
     };
     let unknown: Vec<&str> = models
         .iter()
-        .filter(|m| data_kind(m) == DataKind::Unknown)
+        .filter(|m| recorded_data_kind(m, rows) == DataKind::Unknown)
         .map(String::as_str)
         .collect();
     if !unknown.is_empty() {
         notes.push(format!(
-            "data kind of non-built-in models not checked ({}): make sure every compared \
-             likelihood is of the same data",
+            "what the likelihood scored is not recorded for ({}) (a fit_summary.csv without its \
+             `scored` column): make sure every compared likelihood is of the same data",
             unknown.join(", ")
         ));
     }

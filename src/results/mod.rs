@@ -348,6 +348,16 @@ pub fn summary_table(fits: &[SubjectFit]) -> Table {
         .with("subject", text(|f| f.subject.clone()))
         .with("group", text(|f| f.group.clone()))
         .with("model", text(|f| f.model.clone()))
+        .with(
+            "scored",
+            text(|f| {
+                if f.scores_response_times {
+                    "choices_and_times".to_string()
+                } else {
+                    "choices".to_string()
+                }
+            }),
+        )
         .with("n_trials", integer(|f| f.n_trials))
         .with("n_params", integer(|f| f.n_params))
         .with("log_likelihood", number(|f| f.log_likelihood))

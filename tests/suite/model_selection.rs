@@ -690,3 +690,39 @@ fn a_group_labelled_like_the_pooled_scope_is_refused() {
     assert!(stderr.contains("labelled 'all'"), "{stderr}");
     assert!(!out.exists());
 }
+
+#[test]
+fn what_a_likelihood_scored_is_read_from_the_summary_for_models_of_any_name() {
+    // Three user models (names no built-in model has): two scored choices and response times,
+    // one choices only. Likelihoods of different data cannot be compared (common practice), so
+    // the choices-only model is left out, known from the `scored` column rather than its name.
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("fit_summary.csv");
+    let mut text =
+        String::from("subject,group,model,scored,n_trials,n_params,aic,bic,log_evidence_laplace\n");
+    for s in 0..3 {
+        for (model, scored, bic) in [
+            ("lab-rt-one", "choices_and_times", 100.0),
+            ("lab-rt-two", "choices_and_times", 104.0),
+            ("lab-choices", "choices", 60.0),
+        ] {
+            text.push_str(&format!("s{s},g,{model},{scored},50,3,{bic},{bic},\n"));
+        }
+    }
+    std::fs::write(&path, text).unwrap();
+    let rows = valuedrift::group::selection::read_fit_summary(&path, "group").unwrap();
+    let comparison = valuedrift::group::selection::assemble(
+        &path,
+        &rows,
+        valuedrift::group::selection::Evidence::Bic,
+        "group",
+    )
+    .unwrap();
+    assert_eq!(comparison.models, ["lab-rt-one", "lab-rt-two"]);
+    assert_eq!(comparison.excluded, ["lab-choices"]);
+    assert!(
+        comparison.notes.iter().all(|n| !n.contains("not recorded")),
+        "{:?}",
+        comparison.notes
+    );
+}
