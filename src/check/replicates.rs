@@ -1,0 +1,240 @@
+//! Replicate datasets: each subject simulated freely or one step ahead of its observed history,
+//! its statistics observed and predicted, and the pooled statistics of a cohort.
+
+use super::statistics::*;
+use crate::data::Subject;
+use crate::likelihood::{DataMismatch, SubjectLikelihood, TrialTrace};
+use crate::model::Model;
+use crate::model::components::SubjectContext;
+use crate::model::dual::{D, constant};
+use crate::simulate::{SimulationSettings, draw_trial, simulate_subject};
+use rand::{Rng, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use rayon::prelude::*;
+
+/// Settings of a check.
+#[derive(Clone, Debug, PartialEq)]
+pub struct CheckSettings {
+    /// Replicate datasets per subject.
+    pub sims: usize,
+    /// Seed of the generator (each subject has its own stream).
+    pub seed: u64,
+    /// Responses later than this (s) become no response, as in the fit.
+    pub deadline: Option<f64>,
+    /// Response lock (s), as in the fit.
+    pub lock: Option<f64>,
+    /// A column whose levels get statistics of their own ([`Factor::Condition`]).
+    pub condition: Option<Condition>,
+}
+
+/// The choice-stage context the likelihood uses: the observed response-time range (for lapse
+/// guesses), the deadline and the lock.
+pub(super) fn context_of(
+    subject: &Subject,
+    deadline: Option<f64>,
+    lock: Option<f64>,
+) -> SubjectContext {
+    let rts: Vec<f64> = subject.response_times().collect();
+    let lo = rts.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = rts.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    SubjectContext {
+        rt_min: if lo.is_finite() { lo } else { 0.0 },
+        rt_max: if hi.is_finite() { hi } else { 1.0 },
+        deadline,
+        lock,
+    }
+}
+
+/// One replicate of `subject` simulated one step ahead: the learning recursion follows the
+/// observed history (`traces`, from [`SubjectLikelihood::trace`] at `natural`) and each trial's
+/// choice and response time is drawn from the choice stage at that trial's decision signal
+/// ([`draw_trial`]; for the diffusion stage an exact first-passage draw), with the lapse guesses
+/// over the subject's observed response-time range as in the likelihood, and the response
+/// window (`lock`, `deadline`) of the fit. Outcomes stay as observed.
+pub fn simulate_one_step_ahead(
+    model: &Model,
+    natural: &[f64],
+    subject: &Subject,
+    traces: &[TrialTrace],
+    (lock, deadline): (Option<f64>, Option<f64>),
+    rng: &mut dyn Rng,
+) -> Subject {
+    let p: Vec<D> = natural.iter().map(|&x| constant(x)).collect();
+    let context = context_of(subject, deadline, lock);
+    let prepared = model.choice.prepare(&p, context);
+    let mut simulated = subject.clone();
+    for (trial, trace) in simulated.trials.iter_mut().zip(traces) {
+        (trial.choice, trial.rt) = if trace.parameters.is_empty() {
+            draw_trial(prepared.as_ref(), &trace.signal, deadline, rng)
+        } else {
+            // Parameters that vary over trials: the stage with this trial's values.
+            let trial_p: Vec<D> = trace.parameters.iter().map(|&x| constant(x)).collect();
+            let prepared = model.choice.prepare(&trial_p, context);
+            draw_trial(prepared.as_ref(), &trace.signal, deadline, rng)
+        };
+    }
+    simulated
+}
+
+/// Checks one subject: `natural` holds every model parameter (model order, natural scale);
+/// `stream` selects the subject's generator stream (its index in the table).
+pub fn check_subject(
+    model: &Model,
+    natural: &[f64],
+    subject: &Subject,
+    settings: &CheckSettings,
+    stream: u64,
+) -> Result<SubjectCheck, DataMismatch> {
+    let mode = Mode::for_subject(subject);
+    let observed_traces = SubjectLikelihood::new(model, subject, settings.deadline)?
+        .with_lock(settings.lock)
+        .trace(natural);
+    let condition = settings.condition.as_ref();
+    let observed = classify(subject, &observed_traces, condition);
+    // Condition bins are the levels themselves, the same for every subject.
+    let level_cuts = condition.map_or(Vec::new(), |c| {
+        (1..c.levels.len()).map(|i| i as f64 - 0.5).collect()
+    });
+    let cuts = [
+        cuts(&observed, Factor::ValueDifference),
+        cuts(&observed, Factor::Effort),
+        level_cuts,
+    ];
+    let keys = keys_for(&cuts, model.uses_response_times(), condition.is_some());
+    let observed_stats = statistics_of(&observed, &cuts, &keys);
+    let mut rng = ChaCha8Rng::seed_from_u64(settings.seed);
+    rng.set_stream(stream);
+    let context = context_of(subject, settings.deadline, settings.lock);
+    let simulation = SimulationSettings {
+        lock: settings.lock,
+        deadline: settings.deadline,
+        guess_rt_range: (context.rt_min, context.rt_max),
+    };
+    let mut replicates: Vec<Vec<(Option<f64>, usize)>> = Vec::with_capacity(settings.sims);
+    for _ in 0..settings.sims {
+        let classified = match mode {
+            Mode::Free => {
+                let simulated = simulate_subject(model, natural, subject, simulation, &mut rng)?;
+                if simulated.n_responses() == 0 {
+                    // Every simulated response missed the deadline: every cell is empty.
+                    Vec::new()
+                } else {
+                    let traces = SubjectLikelihood::new(model, &simulated, settings.deadline)?
+                        .with_lock(settings.lock)
+                        .trace(natural);
+                    classify(&simulated, &traces, condition)
+                }
+            }
+            Mode::OneStepAhead => {
+                let simulated = simulate_one_step_ahead(
+                    model,
+                    natural,
+                    subject,
+                    &observed_traces,
+                    (settings.lock, settings.deadline),
+                    &mut rng,
+                );
+                classify(&simulated, &observed_traces, condition)
+            }
+        };
+        replicates.push(statistics_of(&classified, &cuts, &keys));
+    }
+    let statistics = keys
+        .iter()
+        .enumerate()
+        .map(|(k, &key)| {
+            let in_bin: Vec<f64> = observed
+                .iter()
+                .map(|c| factor_value(c, key.factor))
+                .filter(|&x| bin_of(x, &cuts[key.factor as usize]) == key.bin)
+                .collect();
+            let bin_range = (!in_bin.is_empty()).then(|| {
+                let lo = in_bin.iter().copied().fold(f64::INFINITY, f64::min);
+                let hi = in_bin.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+                (lo, hi)
+            });
+            Statistic {
+                key,
+                bin_range,
+                n_observed: observed_stats[k].1,
+                observed: observed_stats[k].0,
+                replicates: replicates.iter().map(|r| r[k].0).collect(),
+            }
+        })
+        .collect();
+    Ok(SubjectCheck {
+        subject: subject.id.clone(),
+        group: subject.group.clone(),
+        mode,
+        statistics,
+    })
+}
+
+/// Checks every subject in parallel (`estimates[i]` belongs to `subjects[i]`; subject i uses
+/// generator stream i); `progress` is called once per finished subject. Results do not depend
+/// on the thread count.
+pub fn check_subjects(
+    model: &Model,
+    estimates: &[Vec<f64>],
+    subjects: &[Subject],
+    settings: &CheckSettings,
+    progress: &(dyn Fn() + Sync),
+) -> Result<Vec<SubjectCheck>, DataMismatch> {
+    subjects
+        .par_iter()
+        .zip(estimates.par_iter())
+        .enumerate()
+        .map(|(i, (subject, natural))| {
+            let result = check_subject(model, natural, subject, settings, i as u64);
+            progress();
+            result
+        })
+        .collect()
+}
+
+/// Pooled statistics: for each (factor, bin, kind) present in any subject, the mean over the
+/// subjects with an observed value of their observed values, and for replicate r the mean over
+/// those subjects of their replicate-r values (those that exist).
+pub fn pooled(checks: &[SubjectCheck]) -> Vec<Statistic> {
+    let mut keys: Vec<Key> = Vec::new();
+    for check in checks {
+        for s in &check.statistics {
+            if !keys.contains(&s.key) {
+                keys.push(s.key);
+            }
+        }
+    }
+    let sims = checks
+        .iter()
+        .flat_map(|c| c.statistics.first())
+        .map(|s| s.replicates.len())
+        .max()
+        .unwrap_or(0);
+    let mean = |v: &[f64]| (!v.is_empty()).then(|| v.iter().sum::<f64>() / v.len() as f64);
+    keys.into_iter()
+        .map(|key| {
+            let members: Vec<&Statistic> = checks
+                .iter()
+                .flat_map(|c| c.statistics.iter().find(|s| s.key == key))
+                .filter(|s| s.observed.is_some())
+                .collect();
+            let observed: Vec<f64> = members.iter().flat_map(|s| s.observed).collect();
+            let replicates = (0..sims)
+                .map(|r| {
+                    let values: Vec<f64> = members
+                        .iter()
+                        .flat_map(|s| s.replicates.get(r).copied().flatten())
+                        .collect();
+                    mean(&values)
+                })
+                .collect();
+            Statistic {
+                key,
+                bin_range: None,
+                n_observed: members.iter().map(|s| s.n_observed).sum(),
+                observed: mean(&observed),
+                replicates,
+            }
+        })
+        .collect()
+}

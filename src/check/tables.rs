@@ -1,0 +1,183 @@
+//! The check's tables: observed against predicted choice proportions and response-time
+//! quantiles per subject and pooled, and subjects ranked by misfit.
+
+use super::statistics::*;
+use crate::results::{Column, Table};
+
+/// Label of the pooled rows.
+pub const POOLED: &str = "pooled";
+
+/// One table row: (subject or "pooled", group, mode, statistic).
+pub(super) type Row<'a> = (&'a str, &'a str, &'a str, &'a Statistic);
+
+/// Rows of (scope, group, mode, statistic) for the tables: every subject, then the pooled ones.
+pub(super) fn rows<'a>(
+    checks: &'a [SubjectCheck],
+    pooled: &'a [Statistic],
+    keep: impl Fn(&Kind) -> bool,
+) -> Vec<Row<'a>> {
+    let mut rows = Vec::new();
+    for c in checks {
+        for s in &c.statistics {
+            if keep(&s.key.kind) {
+                rows.push((c.subject.as_str(), c.group.as_str(), c.mode.as_str(), s));
+            }
+        }
+    }
+    for s in pooled {
+        if keep(&s.key.kind) {
+            rows.push((POOLED, "", "", s));
+        }
+    }
+    rows
+}
+
+/// Columns common to both statistic tables; with a condition, `level` names the level of its
+/// bins.
+pub(super) fn statistic_table(
+    rows: &[Row<'_>],
+    condition: Option<&Condition>,
+    extra: Vec<(&str, Column)>,
+) -> Table {
+    let text = |f: &dyn Fn(&Row<'_>) -> String| Column::Text(rows.iter().map(f).collect());
+    let number = |f: &dyn Fn(&Statistic) -> Option<f64>| {
+        Column::Number(rows.iter().map(|r| f(r.3)).collect())
+    };
+    let bands: Vec<Option<Band>> = rows.iter().map(|r| r.3.band()).collect();
+    let band =
+        |f: fn(&Band) -> f64| Column::Number(bands.iter().map(|b| b.as_ref().map(f)).collect());
+    let mut table = Table::default()
+        .with("subject", text(&|r| r.0.to_string()))
+        .with("group", text(&|r| r.1.to_string()))
+        .with("mode", text(&|r| r.2.to_string()))
+        .with("factor", text(&|r| r.3.key.factor.as_str().to_string()))
+        .with(
+            "bin",
+            Column::Integer(rows.iter().map(|r| r.3.key.bin as i64 + 1).collect()),
+        )
+        .with("bin_low", number(&|s| s.bin_range.map(|b| b.0)))
+        .with("bin_high", number(&|s| s.bin_range.map(|b| b.1)));
+    if let Some(c) = condition {
+        table = table.with(
+            "level",
+            Column::OptionalText(
+                rows.iter()
+                    .map(|r| {
+                        (r.3.key.factor == Factor::Condition)
+                            .then(|| c.levels.get(r.3.key.bin).cloned())
+                            .flatten()
+                    })
+                    .collect(),
+            ),
+        );
+    }
+    for (name, column) in extra {
+        table = table.with(name, column);
+    }
+    table
+        .with(
+            "n_observed",
+            Column::Integer(rows.iter().map(|r| r.3.n_observed as i64).collect()),
+        )
+        .with("observed", number(&|s| s.observed))
+        .with("predicted_mean", band(|b| b.mean))
+        .with("predicted_sd", band(|b| b.sd))
+        .with("predicted_low", band(|b| b.low))
+        .with("predicted_high", band(|b| b.high))
+        .with(
+            "n_replicates",
+            Column::Integer(bands.iter().map(|b| b.map_or(0, |b| b.n as i64)).collect()),
+        )
+        .with(
+            "outside_band",
+            Column::OptionalFlag(rows.iter().map(|r| r.3.outside()).collect()),
+        )
+}
+
+/// Observed against predicted proportions of correct-by-value responses, per subject and pooled.
+pub fn choices_table(
+    checks: &[SubjectCheck],
+    pooled: &[Statistic],
+    condition: Option<&Condition>,
+) -> Table {
+    let rows = rows(checks, pooled, |k| matches!(k, Kind::ChoiceProportion));
+    statistic_table(&rows, condition, Vec::new())
+}
+
+/// Observed against predicted response-time quantiles, per subject and pooled.
+pub fn quantiles_table(
+    checks: &[SubjectCheck],
+    pooled: &[Statistic],
+    condition: Option<&Condition>,
+) -> Table {
+    let rows = rows(checks, pooled, |k| matches!(k, Kind::RtQuantile { .. }));
+    let quantile = Column::Number(
+        rows.iter()
+            .map(|r| match r.3.key.kind {
+                Kind::RtQuantile { quantile, .. } => Some(quantile),
+                Kind::ChoiceProportion => None,
+            })
+            .collect(),
+    );
+    let response = Column::Text(
+        rows.iter()
+            .map(|r| match r.3.key.kind {
+                Kind::RtQuantile { response, .. } => response.as_str().to_string(),
+                Kind::ChoiceProportion => String::new(),
+            })
+            .collect(),
+    );
+    statistic_table(
+        &rows,
+        condition,
+        vec![("response", response), ("quantile", quantile)],
+    )
+}
+
+/// Subjects ordered worst first by rms_z (missing last), with their misfit.
+pub fn ranked_misfits(checks: &[SubjectCheck]) -> Vec<(&SubjectCheck, Misfit)> {
+    let mut ranked: Vec<(&SubjectCheck, Misfit)> =
+        checks.iter().map(|c| (c, misfit(&c.statistics))).collect();
+    ranked.sort_by(|a, b| {
+        let key = |m: &Misfit| m.rms_z.unwrap_or(f64::NEG_INFINITY);
+        key(&b.1).total_cmp(&key(&a.1))
+    });
+    ranked
+}
+
+/// One row per subject, worst first: misfit, rank and the flag (fraction outside above
+/// [`FLAG_FRACTION`]).
+pub fn misfit_table(checks: &[SubjectCheck]) -> Table {
+    let ranked = ranked_misfits(checks);
+    let number =
+        |f: fn(&Misfit) -> Option<f64>| Column::Number(ranked.iter().map(|r| f(&r.1)).collect());
+    Table::default()
+        .with(
+            "subject",
+            Column::Text(ranked.iter().map(|r| r.0.subject.clone()).collect()),
+        )
+        .with(
+            "group",
+            Column::Text(ranked.iter().map(|r| r.0.group.clone()).collect()),
+        )
+        .with(
+            "mode",
+            Column::Text(ranked.iter().map(|r| r.0.mode.as_str().into()).collect()),
+        )
+        .with(
+            "n_statistics",
+            Column::Integer(ranked.iter().map(|r| r.1.n_statistics as i64).collect()),
+        )
+        .with("fraction_outside", number(|m| m.fraction_outside))
+        .with("rms_z", number(|m| m.rms_z))
+        .with("rank", Column::Integer((1..=ranked.len() as i64).collect()))
+        .with(
+            "flagged",
+            Column::Flag(
+                ranked
+                    .iter()
+                    .map(|r| r.1.fraction_outside.is_some_and(|f| f > FLAG_FRACTION))
+                    .collect(),
+            ),
+        )
+}
