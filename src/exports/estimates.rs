@@ -16,97 +16,26 @@ pub fn read_estimates(
     model: &Model,
     subjects: &[Subject],
 ) -> Result<Vec<Vec<f64>>, InputError> {
-    let file = std::fs::File::open(path)
-        .map_err(|e| InputError::file(path, format!("cannot be read: {e}")))?;
-    let mut reader = csv::ReaderBuilder::new().flexible(false).from_reader(file);
-    let headers = reader
-        .headers()
-        .map_err(|e| InputError::file(path, format!("has no readable header: {e}")))?
-        .clone();
-    let index = |name: &str| {
-        headers
-            .iter()
-            .position(|h| h.trim() == name)
-            .ok_or_else(|| {
-                InputError::file(
-                    path,
-                    format!(
-                        "has no column `{name}` (expected the parameters.csv written by \
-                         `valuedrift fit`)"
-                    ),
-                )
-            })
-    };
-    let (i_subject, i_model, i_parameter, i_estimate) = (
-        index("subject")?,
-        index("model")?,
-        index("parameter")?,
-        index("estimate")?,
-    );
     // subject → parameter slot → estimate
     let mut found: HashMap<String, HashMap<usize, f64>> = HashMap::new();
-    let mut models_in_file: Vec<String> = Vec::new();
-    for record in reader.records() {
-        let record = record.map_err(|e| {
-            let line = e.position().map_or(0, |p| p.line());
-            InputError {
-                file: path.to_path_buf(),
-                line: (line > 0).then_some(line),
-                column: None,
-                message: format!("cannot be parsed: {e}"),
-            }
-        })?;
-        let line = record.position().map_or(0, |p| p.line());
-        let field = |i: usize| record.get(i).unwrap_or("").trim();
-        let row_model = field(i_model);
-        if !models_in_file.iter().any(|m| m == row_model) {
-            models_in_file.push(row_model.to_string());
-        }
-        if row_model != model.name {
-            continue;
-        }
-        let name = field(i_parameter);
-        let Some(slot) = model.parameters.iter().position(|p| p.name == name) else {
+    for row in crate::results::parameters_file::read_rows(path, &model.name, None)? {
+        let Some(slot) = model
+            .parameters
+            .iter()
+            .position(|p| p.name == row.parameter)
+        else {
             return Err(InputError::at(
                 path,
-                line,
-                "parameter",
-                format!("`{name}` is not a parameter of model {}", model.name),
-            ));
-        };
-        let estimate = crate::files::finite_number(path, line, "estimate", field(i_estimate))?;
-        let estimate = within_bounds(path, line, &model.parameters[slot], estimate)?;
-        let subject = field(i_subject).to_string();
-        if found
-            .entry(subject.clone())
-            .or_default()
-            .insert(slot, estimate)
-            .is_some()
-        {
-            return Err(InputError::at(
-                path,
-                line,
+                row.line,
                 "parameter",
                 format!(
-                    "second estimate of `{name}` for subject {subject} and model {}",
-                    model.name
+                    "`{}` is not a parameter of model {}",
+                    row.parameter, model.name
                 ),
             ));
-        }
-    }
-    if found.is_empty() {
-        return Err(InputError::file(
-            path,
-            format!(
-                "has no estimates of model {} (models in the file: {})",
-                model.name,
-                if models_in_file.is_empty() {
-                    "none".to_string()
-                } else {
-                    models_in_file.join(", ")
-                }
-            ),
-        ));
+        };
+        let estimate = within_bounds(path, row.line, &model.parameters[slot], row.estimate)?;
+        found.entry(row.subject).or_default().insert(slot, estimate);
     }
     subjects
         .iter()

@@ -26,9 +26,10 @@ use super::{
     HedgesG, KruskalWallis, MannWhitney, WelchAnova, WelchT, benjamini_hochberg, hedges_g,
     kruskal_wallis, mann_whitney_u, mean, variance, welch_anova, welch_t_test,
 };
-use crate::files::{InputError, csv_rows, finite_number};
+use crate::files::InputError;
+use crate::results::parameters_file::read_rows;
 use crate::results::{Column, Table};
-use std::collections::{BTreeMap, BTreeSet};
+use std::collections::BTreeSet;
 use std::path::Path;
 
 /// One subject's free estimate of one parameter.
@@ -47,101 +48,34 @@ pub struct Estimate {
 }
 
 /// Reads the free-parameter estimates of `model` from a `parameters.csv`, grouping by column
-/// `by`. Errors name the file, line (header = line 1) and column.
+/// `by` ([`crate::results::parameters_file::read_rows`]). Errors name the file, line (header =
+/// line 1) and column.
 pub fn read_estimates(path: &Path, model: &str, by: &str) -> Result<Vec<Estimate>, InputError> {
-    let (mut reader, header) = crate::files::open_csv(path)?;
-    let find = |name: &str| crate::files::column_index(path, &header, name);
-    let [
-        subject_c,
-        model_c,
-        parameter_c,
-        estimate_c,
-        bound_c,
-        fixed_c,
-    ] = [
-        find("subject")?,
-        find("model")?,
-        find("parameter")?,
-        find("estimate")?,
-        find("at_bound")?,
-        find("fixed")?,
-    ];
-    let by_c = find(by)?;
-    let mut models = BTreeSet::new();
-    let mut seen: BTreeMap<(String, String), u64> = BTreeMap::new();
     let mut out = Vec::new();
-    for row in csv_rows(path, &mut reader) {
-        let (line, record) = row?;
-        let cell = |c: usize| record.get(c).unwrap_or("");
-        let flag = |c: usize, name: &str| -> Result<bool, InputError> {
-            match cell(c).to_ascii_lowercase().as_str() {
-                "true" | "1" => Ok(true),
-                "false" | "0" => Ok(false),
-                other => Err(InputError::at(
-                    path,
-                    line,
-                    name,
-                    format!("'{other}' is not a flag (expected true or false)"),
-                )),
-            }
-        };
-        models.insert(cell(model_c).to_string());
-        if cell(model_c) != model {
+    for row in read_rows(path, model, Some(by))? {
+        if row.fixed {
             continue;
         }
-        if flag(fixed_c, "fixed")? {
-            continue;
-        }
-        let estimate = finite_number(path, line, "estimate", cell(estimate_c))?;
-        let at_bound = flag(bound_c, "at_bound")?;
-        let subject = cell(subject_c).to_string();
-        if subject.is_empty() {
-            return Err(InputError::at(path, line, "subject", "empty subject"));
-        }
-        let group = cell(by_c).to_string();
-        if group.is_empty() {
+        if row.group.is_empty() {
             return Err(InputError::at(
                 path,
-                line,
+                row.line,
                 by,
-                format!("subject '{subject}' has no value in column '{by}'"),
-            ));
-        }
-        let parameter = cell(parameter_c).to_string();
-        if parameter.is_empty() {
-            return Err(InputError::at(path, line, "parameter", "empty parameter"));
-        }
-        if let Some(first) = seen.insert((subject.clone(), parameter.clone()), line) {
-            return Err(InputError::at(
-                path,
-                line,
-                "parameter",
-                format!(
-                    "subject '{subject}' has parameter '{parameter}' of model '{model}' twice \
-                     (first on line {first})"
-                ),
+                format!("subject '{}' has no value in column '{by}'", row.subject),
             ));
         }
         out.push(Estimate {
-            subject,
-            group,
-            parameter,
-            estimate,
-            at_bound,
+            subject: row.subject,
+            group: row.group,
+            parameter: row.parameter,
+            estimate: row.estimate,
+            at_bound: row.at_bound,
         });
     }
     if out.is_empty() {
-        let list: Vec<&str> = models.iter().map(String::as_str).collect();
         return Err(InputError::file(
             path,
-            format!(
-                "no free parameter of model '{model}' (models in the file: {})",
-                if list.is_empty() {
-                    "none".to_string()
-                } else {
-                    list.join(", ")
-                }
-            ),
+            format!("no free parameter of model '{model}' (every estimate is fixed)"),
         ));
     }
     Ok(out)

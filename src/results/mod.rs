@@ -1,5 +1,7 @@
 //! Tidy result tables (CSV and Parquet) and the run record (JSON) of a fit.
 
+pub mod parameters_file;
+
 use crate::data::{ColumnMap, Subject, Trial, TrialTable};
 use crate::files::OutputSet;
 use crate::fit::SubjectFit;
@@ -193,23 +195,24 @@ pub fn parameters_table(fits: &[SubjectFit]) -> Table {
     let number = |f: &dyn Fn(&(&SubjectFit, &crate::fit::ParameterEstimate)) -> Option<f64>| {
         Column::Number(rows.iter().map(f).collect())
     };
-    Table::default()
-        .with("subject", text(&|r| r.0.subject.clone()))
-        .with("group", text(&|r| r.0.group.clone()))
-        .with("model", text(&|r| r.0.model.clone()))
-        .with("parameter", text(&|r| r.1.name.clone()))
-        .with("estimate", number(&|r| Some(r.1.estimate)))
-        .with("std_error", number(&|r| r.1.std_error))
-        .with("ci_low", number(&|r| r.1.interval.map(|i| i.0)))
-        .with("ci_high", number(&|r| r.1.interval.map(|i| i.1)))
-        .with(
-            "at_bound",
-            Column::Flag(rows.iter().map(|r| r.1.at_bound).collect()),
-        )
-        .with(
-            "fixed",
-            Column::Flag(rows.iter().map(|r| r.1.fixed).collect()),
-        )
+    let columns = [
+        text(&|r| r.0.subject.clone()),
+        text(&|r| r.0.group.clone()),
+        text(&|r| r.0.model.clone()),
+        text(&|r| r.1.name.clone()),
+        number(&|r| Some(r.1.estimate)),
+        number(&|r| r.1.std_error),
+        number(&|r| r.1.interval.map(|i| i.0)),
+        number(&|r| r.1.interval.map(|i| i.1)),
+        Column::Flag(rows.iter().map(|r| r.1.at_bound).collect()),
+        Column::Flag(rows.iter().map(|r| r.1.fixed).collect()),
+    ];
+    parameters_file::COLUMNS
+        .iter()
+        .zip(columns)
+        .fold(Table::default(), |table, (name, column)| {
+            table.with(name, column)
+        })
 }
 
 /// One row per subject and model: `subject`, `group`, `model`, then for every parameter
