@@ -208,19 +208,7 @@ fn subjects_the_fit_left_out_are_left_out_of_check_and_export_with_a_note() {
         .collect();
     let data = dir.path().join("short.csv");
     std::fs::write(&data, lines.join("\n") + "\n").unwrap();
-    let fits = dir.path().join("fits");
-    let status = bin()
-        .args(["fit", "--model", MODEL, "--starts", "2", "--data"])
-        .arg(&data)
-        .arg("--out")
-        .arg(&fits)
-        .output()
-        .unwrap();
-    assert!(
-        status.status.success(),
-        "{}",
-        String::from_utf8_lossy(&status.stderr)
-    );
+    let fits = fit_quickly(&data, dir.path());
     let record: serde_json::Value =
         serde_json::from_slice(&std::fs::read(fits.join("run.json")).unwrap()).unwrap();
     assert_eq!(record["not_fitted"][0]["subject"], "sub-02");
@@ -243,15 +231,7 @@ fn check_by_a_column_the_table_lacks_is_refused_naming_it() {
     // file and the column, and nothing is written.
     let dir = tempfile::tempdir().unwrap();
     let data = two_subjects(dir.path());
-    let fits = dir.path().join("fits");
-    let status = bin()
-        .args(["fit", "--model", MODEL, "--starts", "2", "--data"])
-        .arg(&data)
-        .arg("--out")
-        .arg(&fits)
-        .output()
-        .unwrap();
-    assert!(status.status.success());
+    let fits = fit_quickly(&data, dir.path());
     let out = dir.path().join("check");
     let output = bin()
         .args([
@@ -269,4 +249,22 @@ fn check_by_a_column_the_table_lacks_is_refused_naming_it() {
         &out,
         &["--by clinic", "trials.csv", "no column `clinic`"],
     );
+}
+
+/// Fits the demo model to `data` with 2 starts into `dir`/fits, which it returns.
+fn fit_quickly(data: &Path, dir: &Path) -> PathBuf {
+    let fits = dir.join("fits");
+    let status = bin()
+        .args(["fit", "--model", MODEL, "--starts", "2", "--data"])
+        .arg(data)
+        .arg("--out")
+        .arg(&fits)
+        .output()
+        .unwrap();
+    assert!(
+        status.status.success(),
+        "{}",
+        String::from_utf8_lossy(&status.stderr)
+    );
+    fits
 }
