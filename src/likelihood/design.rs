@@ -138,6 +138,19 @@ impl TrialColumns {
         &self.attribute_values[t * self.n_attribute_values..(t + 1) * self.n_attribute_values]
     }
 
+    /// The end (exclusive) of the stretch of trials from `t` on whose parameters are the same:
+    /// the same levels and no slopes (with slopes every trial has its own values).
+    pub fn same_parameters_until(&self, t: usize) -> usize {
+        let n = self.level_slots.len() / self.n_varying.max(1);
+        if self.n_slopes > 0 || self.n_varying == 0 {
+            return (t + 1).min(n.max(t + 1));
+        }
+        let levels = self.levels_of(t);
+        (t + 1..n)
+            .find(|&u| self.levels_of(u) != levels)
+            .unwrap_or(n)
+    }
+
     /// The model slots of the level intercepts used on trial `t`, one per varying parameter.
     pub fn levels_of(&self, t: usize) -> &[usize] {
         &self.level_slots[t * self.n_varying..(t + 1) * self.n_varying]

@@ -380,23 +380,31 @@ impl<'a> SubjectLikelihood<'a> {
             }
             return total;
         }
+        // Stretches of trials with the same parameters (a block, a condition) share one
+        // prepared choice stage.
         let mut trial_p = Vec::with_capacity(model.sources.len());
         let mut values: Option<Values> = None;
-        for (index, trial) in self.subject.trials.iter().enumerate() {
+        let trials = &self.subject.trials;
+        let mut from = 0;
+        while from < trials.len() {
+            let until = self.design.same_parameters_until(from);
             self.design
-                .values_into(model, index, p, thetas, &self.slot_transforms, &mut trial_p);
+                .values_into(model, from, p, thetas, &self.slot_transforms, &mut trial_p);
             let values = values
                 .get_or_insert_with(|| Values::new(model, &trial_p, self.subject.options.len()));
             let prepared = model.choice.prepare(&trial_p, self.context);
-            let step = Step {
-                index,
-                trial,
-                p: &trial_p,
-                record_parameters: true,
-            };
-            if let Some(l) = self.step(step, prepared.as_ref(), values, &mut visit) {
-                total += l;
+            for (index, trial) in trials.iter().enumerate().take(until).skip(from) {
+                let step = Step {
+                    index,
+                    trial,
+                    p: &trial_p,
+                    record_parameters: true,
+                };
+                if let Some(l) = self.step(step, prepared.as_ref(), values, &mut visit) {
+                    total += l;
+                }
             }
+            from = until;
         }
         total
     }

@@ -27,6 +27,7 @@ use crate::first_passage::{
 use crate::model::dual::{D, chain};
 use num_dual::DualNum;
 use rand::{Rng, RngExt};
+use std::cell::RefCell;
 
 /// The table entry.
 pub const ENTRY: Entry<dyn ChoiceStage> = Entry {
@@ -90,9 +91,13 @@ impl ChoiceStage for Diffusion {
             base,
             lapse: (lapse.re > 0.0).then(|| ((-lapse).ln_1p(), lapse.ln() + guess_density.ln())),
             context,
+            survivals: RefCell::new(Vec::new()),
         })
     }
 }
+
+/// Most survival integrals kept per prepared stage (a subject's distinct offers).
+const SURVIVAL_CACHE: usize = 64;
 
 struct Prepared<'a> {
     stage: &'a Diffusion,
@@ -101,7 +106,14 @@ struct Prepared<'a> {
     /// (ln(1 − lapse), ln(lapse·guess density)) when the lapse rate is above zero.
     lapse: Option<(D, D)>,
     context: SubjectContext,
+    /// Survival integrals already computed in this evaluation, by (time, drift, bound): trials
+    /// with the same offer share them (the other parameters are fixed while prepared). Each
+    /// use chains the stored partial derivatives with its own trial's drift.
+    survivals: RefCell<Vec<SurvivalKey>>,
 }
+
+/// A cached ln S_c(t) with its partial derivatives: (time bits, drift bits, upper?, value).
+type SurvivalKey = (u64, u64, bool, (f64, crate::first_passage::DensityGradient));
 
 /// ln(e^x + e^y) on dual numbers.
 fn ln_add_exp(x: D, y: D) -> D {
@@ -128,7 +140,24 @@ impl Prepared<'_> {
 impl Prepared<'_> {
     /// ln S_c(t) for a bound, with its gradient.
     fn ln_survival(&self, t: f64, bound: Bound, params: &DiffusionParams, signal: &D) -> Option<D> {
-        let (ln_s, g) = ln_survival_with_gradient(t, bound, params).ok()?;
+        let key = (t.to_bits(), params.drift().to_bits(), bound == Bound::Upper);
+        let cached = self
+            .survivals
+            .borrow()
+            .iter()
+            .find(|c| (c.0, c.1, c.2) == key)
+            .map(|c| c.3);
+        let (ln_s, g) = match cached {
+            Some(hit) => hit,
+            None => {
+                let fresh = ln_survival_with_gradient(t, bound, params).ok()?;
+                let mut cache = self.survivals.borrow_mut();
+                if cache.len() < SURVIVAL_CACHE {
+                    cache.push((key.0, key.1, key.2, fresh));
+                }
+                fresh
+            }
+        };
         Some(self.chained(ln_s, g, signal))
     }
 
