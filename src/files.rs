@@ -366,6 +366,73 @@ enum Mode {
     Inside,
 }
 
+/// Why a result could not be written (every variant names the path).
+#[derive(Debug, thiserror::Error)]
+pub enum OutputError {
+    /// The output path cannot be an output folder.
+    #[error("output folder {}: {reason}", path.display())]
+    Destination {
+        /// The path given.
+        path: PathBuf,
+        /// What is wrong with it.
+        reason: String,
+    },
+    /// The output path is a file.
+    #[error("{} is a file; expected an output folder", .0.display())]
+    NotAFolder(PathBuf),
+    /// A whole new set was asked for, and the folder holds an earlier one.
+    #[error(
+        "{} already holds {entries} entries of an earlier result; give --replace to replace \
+         the whole folder (the old set is removed only once the new one is complete), or \
+         choose another output folder",
+        folder.display()
+    )]
+    EarlierSet {
+        /// The output folder.
+        folder: PathBuf,
+        /// How many entries it holds.
+        entries: usize,
+    },
+    /// A file of this command already exists in a folder it adds to.
+    #[error(
+        "{} already exists (an earlier result); give --replace to replace this command's files \
+         in {} (the other files stay), or choose another --out",
+        path.display(),
+        folder.display()
+    )]
+    EarlierFile {
+        /// The file.
+        path: PathBuf,
+        /// The folder added to.
+        folder: PathBuf,
+    },
+    /// A file to stage lies outside the output folder (a programming error, reported).
+    #[error("{} is outside the output folder {}", path.display(), folder.display())]
+    Outside {
+        /// The file.
+        path: PathBuf,
+        /// The output folder.
+        folder: PathBuf,
+    },
+    /// The file system refused.
+    #[error("cannot write {}: {source}", path.display())]
+    Io {
+        /// Where.
+        path: PathBuf,
+        /// Why.
+        #[source]
+        source: std::io::Error,
+    },
+    /// Producing a file's content failed.
+    #[error("cannot write {}: {message}", path.display())]
+    Content {
+        /// The file.
+        path: PathBuf,
+        /// What failed.
+        message: String,
+    },
+}
+
 /// The output folder of one run, written as one: every file is staged in a hidden sibling folder
 /// (`.<name>.valuedrift-staging-<pid>`), and [`OutputSet::commit`] puts the complete folder in
 /// place in one step. Dropping the set without committing removes the staging folder, so a run
@@ -388,7 +455,7 @@ impl OutputSet {
     /// The output folder `dir` as a whole new result set. Fails at once (before any work) when
     /// `dir` is a file, or a non-empty folder and `replace` is not set. Removes leftovers of
     /// killed runs for `dir` first.
-    pub fn create(dir: &Path, replace: bool) -> Result<Self, String> {
+    pub fn create(dir: &Path, replace: bool) -> Result<Self, OutputError> {
         let set = OutputSet::open(dir, replace, Mode::Whole)?;
         if !replace && set.mode == Mode::Whole {
             set.refuse_existing_set()?;
@@ -399,23 +466,22 @@ impl OutputSet {
     /// The output folder `dir` for a command that reads its inputs from folder `inputs`: when they
     /// are the same folder, the new files are added to it and its other files kept (an earlier
     /// output of the same name is replaced only with `replace`); otherwise as [`OutputSet::create`].
-    pub fn adding_to(dir: &Path, inputs: &Path, replace: bool) -> Result<Self, String> {
+    pub fn adding_to(dir: &Path, inputs: &Path, replace: bool) -> Result<Self, OutputError> {
         if !same_folder(dir, inputs) {
             return OutputSet::create(dir, replace);
         }
         OutputSet::open(dir, replace, Mode::Add)
     }
 
-    fn open(dir: &Path, replace: bool, mode: Mode) -> Result<Self, String> {
-        let (parent, name) =
-            split_destination(dir).map_err(|e| format!("output folder {}: {e}", dir.display()))?;
+    fn open(dir: &Path, replace: bool, mode: Mode) -> Result<Self, OutputError> {
+        let (parent, name) = split_destination(dir).map_err(|e| OutputError::Destination {
+            path: dir.to_path_buf(),
+            reason: e.to_string(),
+        })?;
         if let Ok(m) = std::fs::metadata(dir)
             && !m.is_dir()
         {
-            return Err(format!(
-                "{} is a file; expected an output folder",
-                dir.display()
-            ));
+            return Err(OutputError::NotAFolder(dir.to_path_buf()));
         }
         if name.starts_with('.') && name.ends_with(&sibling_name("", STAGING)[1..]) {
             return Ok(OutputSet {
@@ -439,7 +505,7 @@ impl OutputSet {
     }
 
     /// The refusal of an existing non-empty folder (whole-set mode without `replace`).
-    fn refuse_existing_set(&self) -> Result<(), String> {
+    fn refuse_existing_set(&self) -> Result<(), OutputError> {
         let count = match std::fs::read_dir(&self.target) {
             Ok(entries) => entries.count(),
             Err(_) => return Ok(()),
@@ -447,21 +513,21 @@ impl OutputSet {
         if count == 0 {
             return Ok(());
         }
-        Err(format!(
-            "{} already holds {count} entries of an earlier result; give --replace to replace \
-             the whole folder (the old set is removed only once the new one is complete), or \
-             choose another output folder",
-            self.target.display()
-        ))
+        Err(OutputError::EarlierSet {
+            folder: self.target.clone(),
+            entries: count,
+        })
     }
 
     /// The staging folder, created on first use. Commands that run other commands into the same
     /// result (the demo) write there, then commit the set.
-    pub fn staging_dir(&mut self) -> Result<&Path, String> {
+    pub fn staging_dir(&mut self) -> Result<&Path, OutputError> {
         if !self.created && self.mode != Mode::Inside {
             // A leftover of an earlier process with this id was removed by clear_stale.
-            std::fs::create_dir_all(&self.staging)
-                .map_err(|e| format!("cannot create {}: {e}", self.staging.display()))?;
+            std::fs::create_dir_all(&self.staging).map_err(|source| OutputError::Io {
+                path: self.staging.clone(),
+                source,
+            })?;
             self.created = true;
         }
         Ok(&self.staging)
@@ -472,30 +538,33 @@ impl OutputSet {
         &mut self,
         path: &Path,
         fill: impl FnOnce(&mut dyn Write) -> Result<(), E>,
-    ) -> Result<(), String> {
-        let relative = path.strip_prefix(&self.target).map_err(|_| {
-            format!(
-                "{} is outside the output folder {}",
-                path.display(),
-                self.target.display()
-            )
-        })?;
+    ) -> Result<(), OutputError> {
+        let relative = path
+            .strip_prefix(&self.target)
+            .map_err(|_| OutputError::Outside {
+                path: path.to_path_buf(),
+                folder: self.target.clone(),
+            })?;
         if self.mode == Mode::Add && !self.replace && std::fs::symlink_metadata(path).is_ok() {
-            return Err(format!(
-                "{} already exists (an earlier result); give --replace to replace this \
-                 command's files in {} (the other files stay), or choose another --out",
-                path.display(),
-                self.target.display()
-            ));
+            return Err(OutputError::EarlierFile {
+                path: path.to_path_buf(),
+                folder: self.target.clone(),
+            });
         }
         let staged = self.staging_dir()?.join(relative);
-        let io = |e: std::io::Error| format!("cannot write {}: {e}", path.display());
+        let io = |source: std::io::Error| OutputError::Io {
+            path: path.to_path_buf(),
+            source,
+        };
         if let Some(folder) = staged.parent() {
             std::fs::create_dir_all(folder).map_err(io)?;
         }
         let file = std::fs::File::create(&staged).map_err(io)?;
         let mut buffered = std::io::BufWriter::new(file);
-        fill(&mut buffered).map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+        fill(&mut buffered).map_err(|e| OutputError::Content {
+            path: path.to_path_buf(),
+            message: e.to_string(),
+        })?;
         buffered.flush().map_err(io)?;
         self.staged += 1;
         Ok(())
@@ -512,12 +581,16 @@ impl OutputSet {
     }
 
     /// Puts the complete new folder in place in one step and then removes the old one.
-    pub fn commit(mut self) -> Result<(), String> {
+    pub fn commit(mut self) -> Result<(), OutputError> {
         if self.mode == Mode::Inside {
             return Ok(());
         }
         self.staging_dir()?;
-        let fail = |e: std::io::Error| format!("cannot write {}: {e}", self.target.display());
+        let target = self.target.clone();
+        let fail = |source: std::io::Error| OutputError::Io {
+            path: target.clone(),
+            source,
+        };
         match self.mode {
             Mode::Whole if !self.replace => self.refuse_existing_set()?,
             Mode::Whole => {}

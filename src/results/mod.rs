@@ -175,7 +175,7 @@ impl Table {
         outputs: &mut OutputSet,
         dir: &Path,
         stem: &str,
-    ) -> Result<(), String> {
+    ) -> Result<(), crate::files::OutputError> {
         outputs.stage(&dir.join(format!("{stem}.csv")), |w| self.write_csv(w))?;
         outputs.stage(&dir.join(format!("{stem}.parquet")), |w| {
             self.write_parquet(w)
