@@ -26,14 +26,37 @@ pub struct ReadingArgs {
     pub missing: String,
 }
 
+/// A command-line option whose value cannot be used: the option, the value given (empty when
+/// the message quotes it itself) and what was expected.
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+#[error("{option}{}: {expected}", if value.is_empty() { String::new() } else { format!(" {value}") })]
+pub struct OptionError {
+    /// The option, as typed (`--deadline`).
+    pub option: &'static str,
+    /// The value given.
+    pub value: String,
+    /// What is wrong and what was expected.
+    pub expected: String,
+}
+
+impl OptionError {
+    fn new(option: &'static str, value: impl ToString, expected: impl Into<String>) -> Self {
+        OptionError {
+            option,
+            value: value.to_string(),
+            expected: expected.into(),
+        }
+    }
+}
+
 impl ReadingArgs {
     /// `columns` with the choice codes and missing-value tokens added.
-    pub fn apply(&self, columns: ColumnMap) -> Result<ColumnMap, String> {
+    pub fn apply(&self, columns: ColumnMap) -> Result<ColumnMap, OptionError> {
         columns
             .with_missing(&self.missing)
-            .map_err(|e| format!("--missing: {e}"))?
+            .map_err(|e| OptionError::new("--missing", "", e))?
             .with_choice_codes(&self.choice_codes)
-            .map_err(|e| format!("--choice-codes: {e}"))
+            .map_err(|e| OptionError::new("--choice-codes", "", e))
     }
 }
 
@@ -87,46 +110,64 @@ impl ScreenArgs {
 const THREADS_PER_CORE: usize = 4;
 
 /// Refuses a thread count far above the machine's cores (0, all cores, is always accepted).
-pub fn check_threads(threads: usize) -> Result<usize, String> {
+pub fn check_threads(threads: usize) -> Result<usize, OptionError> {
     let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
     if threads > THREADS_PER_CORE * cores {
-        return Err(format!(
-            "--threads {threads}: this machine has {cores} cores; expected at most {} threads \
-             ({THREADS_PER_CORE} per core), or 0 for all cores",
-            THREADS_PER_CORE * cores
+        return Err(OptionError::new(
+            "--threads",
+            threads,
+            format!(
+                "this machine has {cores} cores; expected at most {} threads ({THREADS_PER_CORE} \
+                 per core), or 0 for all cores",
+                THREADS_PER_CORE * cores
+            ),
         ));
     }
     Ok(threads)
 }
 
 /// Refuses a count below `least` for the option `name`, saying what it counts.
-pub fn check_at_least(name: &str, value: usize, least: usize, what: &str) -> Result<usize, String> {
+pub fn check_at_least(
+    name: &'static str,
+    value: usize,
+    least: usize,
+    what: &str,
+) -> Result<usize, OptionError> {
     if value < least {
-        return Err(format!("{name} {value}: expected at least {least} {what}"));
+        return Err(OptionError::new(
+            name,
+            value,
+            format!("expected at least {least} {what}"),
+        ));
     }
     Ok(value)
 }
 
 /// Refuses a deadline that is not a finite number of seconds > 0.
-pub fn check_deadline(deadline: Option<f64>) -> Result<Option<f64>, String> {
+pub fn check_deadline(deadline: Option<f64>) -> Result<Option<f64>, OptionError> {
     match deadline {
-        Some(d) if !(d.is_finite() && d > 0.0) => Err(format!(
-            "--deadline {d}: expected a number of seconds > 0 (the time at which a trial ends \
-             without a response)"
+        Some(d) if !(d.is_finite() && d > 0.0) => Err(OptionError::new(
+            "--deadline",
+            d,
+            "expected a number of seconds > 0 (the time at which a trial ends without a response)",
         )),
         other => Ok(other),
     }
 }
 
 /// Refuses a response lock that is not a finite number of seconds ≥ 0 before the deadline.
-pub fn check_lock(lock: Option<f64>, deadline: Option<f64>) -> Result<Option<f64>, String> {
+pub fn check_lock(lock: Option<f64>, deadline: Option<f64>) -> Result<Option<f64>, OptionError> {
     match (lock, deadline) {
-        (Some(l), _) if !(l.is_finite() && l >= 0.0) => Err(format!(
-            "--lock {l}: expected a number of seconds ≥ 0 (the time from offer onset before \
-             which no response can be given)"
+        (Some(l), _) if !(l.is_finite() && l >= 0.0) => Err(OptionError::new(
+            "--lock",
+            l,
+            "expected a number of seconds ≥ 0 (the time from offer onset before which no \
+             response can be given)",
         )),
-        (Some(l), Some(d)) if l >= d => Err(format!(
-            "--lock {l}: expected a lock before the deadline ({d} s)"
+        (Some(l), Some(d)) if l >= d => Err(OptionError::new(
+            "--lock",
+            l,
+            format!("expected a lock before the deadline ({d} s)"),
         )),
         (other, _) => Ok(other),
     }
