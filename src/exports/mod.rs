@@ -1,9 +1,9 @@
 //! Per-trial latent variables of a fitted model, for imaging analyses.
 //!
 //! From each subject's fitted (natural-scale) parameters the learning recursion is run again over
-//! the subject's trials ([`crate::likelihood::SubjectLikelihood::trace`]), giving per trial the values before the
-//! outcome, the subjective values after the effort cost, the decision signal, the prediction
-//! error at the outcome, the probability of the choice made and the expected times.
+//! the subject's trials ([`crate::likelihood::SubjectLikelihood::trace`]), giving per trial the
+//! values before the outcome, the subjective values after the costs, the decision signal, the
+//! prediction error at the outcome, the probability of the choice made and the expected times.
 //!
 //! Two products:
 //! - a tidy table of every trial ([`latents_table`]), raw (unscaled);

@@ -141,10 +141,10 @@ impl TrialColumns {
     /// The end (exclusive) of the stretch of trials from `t` on whose parameters are the same:
     /// the same levels and no slopes (with slopes every trial has its own values).
     pub fn same_parameters_until(&self, t: usize) -> usize {
-        let n = self.level_slots.len() / self.n_varying.max(1);
         if self.n_slopes > 0 || self.n_varying == 0 {
-            return (t + 1).min(n.max(t + 1));
+            return t + 1;
         }
+        let n = self.level_slots.len() / self.n_varying;
         let levels = self.levels_of(t);
         (t + 1..n)
             .find(|&u| self.levels_of(u) != levels)
