@@ -18,5 +18,6 @@ pub mod group;
 pub mod likelihood;
 pub mod model;
 pub mod progress;
+pub mod race;
 pub mod results;
 pub mod simulate;

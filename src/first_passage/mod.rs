@@ -53,3 +53,5 @@ pub use moments::{mean_decision_time, mean_decision_time_given, mean_response_ti
 pub use normal::ln_normal_cdf;
 pub use params::{Bound, DiffusionParams, ParamError};
 pub use sampler::sample;
+
+pub(crate) use quadrature::gauss_legendre as gauss_legendre_rule;

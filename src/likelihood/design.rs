@@ -9,12 +9,13 @@ use crate::model::dual::{D, constant};
 use crate::model::varying::{Source, Variation};
 use crate::model::{Model, Transform};
 
-/// Per trial, where each varying parameter's value comes from, and the extra cost attributes.
+/// Per trial, where each varying parameter's value comes from, and the per-option attributes.
 #[derive(Clone, Debug, Default)]
 pub struct TrialColumns {
-    /// Values per trial of the cost attributes other than effort: (a, b) per attribute.
+    /// Values per trial of the cost attributes other than effort, then of the drift mapping's
+    /// attribute: one per option for each attribute.
     attribute_values: Vec<f64>,
-    /// Number of those values per trial (2 per attribute).
+    /// Number of those values per trial (one per option and attribute).
     n_attribute_values: usize,
     /// Number of varying component parameters.
     n_varying: usize,
@@ -210,9 +211,10 @@ impl TrialColumns {
     }
 }
 
-/// Reads every trial's values of the model's cost attributes other than effort from the
-/// columns `<attribute>_a` and `<attribute>_b`: finite numbers, else an error naming the trial
-/// and the column.
+/// Reads every trial's values of the model's per-option attributes: the cost attributes other
+/// than effort (columns `<attribute>_a`, `<attribute>_b`, …), then the drift mapping's own
+/// attribute (for example gaze shares); each a finite number within the attribute's range,
+/// else an error naming the trial and the column.
 fn bind_cost_attributes(
     model: &Model,
     subject: &Subject,
@@ -227,32 +229,59 @@ fn bind_cost_attributes(
         .map(|t| t.offers.len())
         .max()
         .unwrap_or(2);
+    let unbounded = (f64::NEG_INFINITY, f64::INFINITY);
+    let mut attributes: Vec<(&str, (f64, f64), &str)> = model
+        .costs
+        .iter()
+        .filter(|c| !c.is_effort())
+        .map(|c| (c.name.as_str(), unbounded, "weighs the cost attribute"))
+        .collect();
+    if let Some(mapping) = &model.drift
+        && let Some(name) = mapping.attribute()
+    {
+        attributes.push((
+            name,
+            mapping.attribute_range(),
+            "weighs drift by the attribute",
+        ));
+    }
     let mut columns = Vec::new();
-    for cost in model.costs.iter().filter(|c| !c.is_effort()) {
+    for &(attribute, range, role) in &attributes {
         for side in &crate::data::SIDES[..n_sides] {
-            let name = format!("{}_{side}", cost.name);
+            let name = format!("{attribute}_{side}");
             let column = subject.covariate_column(&name).ok_or_else(|| {
                 mismatch(format!(
-                    "model {} weighs the cost attribute `{attribute}`, but the trial table has \
-                     no column `{name}` (expected {attribute}_a and {attribute}_b: the attribute \
-                     of each option)",
+                    "model {} {role} `{attribute}`, but the trial table has no column `{name}` \
+                     (expected {attribute}_a and {attribute}_b: the attribute of each option)",
                     model.name,
-                    attribute = cost.name
                 ))
             })?;
-            columns.push((name, column));
+            columns.push((name, column, range));
         }
     }
     let mut values = Vec::with_capacity(subject.trials.len() * columns.len());
     for trial in &subject.trials {
-        for (name, column) in &columns {
-            let x = finite_number(trial, *column).map_err(|shown| {
-                mismatch(format!(
-                    "trial {}: column `{name}` is {shown}; expected a finite number (a cost \
-                     attribute of the option)",
-                    trial.trial
-                ))
-            })?;
+        for (name, column, (lo, hi)) in &columns {
+            let x = finite_number(trial, *column)
+                .and_then(|x| {
+                    if (*lo..=*hi).contains(&x) {
+                        Ok(x)
+                    } else {
+                        Err(format!("{x}"))
+                    }
+                })
+                .map_err(|shown| {
+                    let expected = if lo.is_finite() || hi.is_finite() {
+                        format!("a number from {lo} to {hi}")
+                    } else {
+                        "a finite number".to_string()
+                    };
+                    mismatch(format!(
+                        "trial {}: column `{name}` is {shown}; expected {expected} (an attribute \
+                         of the option)",
+                        trial.trial
+                    ))
+                })?;
             values.push(x);
         }
     }

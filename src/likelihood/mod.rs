@@ -4,8 +4,10 @@
 //! by its choice alone (and its outcome still updates the values).
 //!
 //! Per trial, with values before the trial's outcome (see [`SubjectLikelihood::trace`]):
-//! SV_i = cost(Q(option_i), effort_i), signal = drift(SV_a − SV_b) (or SV_a − SV_b for stages
-//! without a drift mapping), ln L += ln P(choice, rt | signal); then, after a response with
+//! SV_i = cost(Q(option_i), effort_i), signal = drift(SV_a − SV_b) for the two-bound diffusion,
+//! drift(SV_i) per option for races, the SV_i themselves for stages without a drift mapping
+//! (a gaze-weighted mapping first weighs each SV_i by its gaze share), ln L += ln P(choice, rt |
+//! signal); then, after a response with
 //! feedback r, Q(chosen) ← rule(Q(chosen), r) and, with forgetting, every other option
 //! Q ← Q + forget_rate·(initial_value − Q).
 
@@ -16,7 +18,7 @@ pub use design::TrialColumns;
 pub use group_prior::GroupPrior;
 
 use crate::data::{Choice, Subject, Trial};
-use crate::model::components::{Observation, SubjectContext};
+use crate::model::components::{Observation, Signal, SubjectContext};
 use crate::model::dual::{D, MAX_FREE, chain, constant, gradient};
 use crate::model::{Model, Transform};
 
@@ -561,12 +563,26 @@ impl Values {
                 *sv = cost.shape.subjective_value(*sv, amount, p);
             }
         }
-        match &model.drift {
-            // Stages with a drift mapping choose between two options (checked when binding).
-            Some(mapping) => a
-                .signal
-                .push(mapping.drift(a.subjective[0] - a.subjective[1], p)),
-            None => a.signal.extend_from_slice(&a.subjective),
+        let Some(mapping) = &model.drift else {
+            a.signal.extend_from_slice(&a.subjective);
+            return;
+        };
+        // The mapping's own attribute (for example gaze shares) follows the cost attributes.
+        let own = others.next();
+        let weighted = |k: usize| mapping.weighted(a.subjective[k], own.map_or(0.0, |x| x[k]), p);
+        match model.choice.signal() {
+            // Two-bound stages choose between two options (checked when binding).
+            Signal::DriftDifference => {
+                let difference = weighted(0) - weighted(1);
+                a.signal.push(mapping.drift(difference, p));
+            }
+            Signal::DriftPerOption => {
+                for k in 0..n {
+                    let x = weighted(k);
+                    a.signal.push(mapping.drift(x, p));
+                }
+            }
+            Signal::Values => a.signal.extend_from_slice(&a.subjective),
         }
     }
 

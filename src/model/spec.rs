@@ -22,7 +22,8 @@
 
 use super::Model;
 use super::components::{
-    CHOICE_STAGES, COST_SHAPES, CostShape, DRIFT_MAPPINGS, Entry, LEARNING_RULES, Options, find,
+    CHOICE_STAGES, COST_SHAPES, CostShape, DRIFT_MAPPINGS, Entry, LEARNING_RULES, Options, Signal,
+    find,
 };
 use super::params::{ParameterSpec, Prior};
 use super::varying::{self, VariationSpec};
@@ -356,7 +357,8 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
     let (choice, choice_options) = r.component(&root, "choice", "stage", CHOICE_STAGES, &[])?;
     let uses_drift = (choice.build)(&choice_options, &|_| 0)
         .map_err(|m| r.error("choice", m))?
-        .uses_drift_mapping();
+        .signal()
+        != Signal::Values;
     let drift = if uses_drift {
         Some(r.component(&root, "drift", "mapping", DRIFT_MAPPINGS, &[])?)
     } else {
@@ -482,11 +484,18 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
         "loss_rate",
         "forget_rate",
         "lapse",
+        "gaze_discount",
     ] {
         check_range(rate, 0.0, 1.0)?;
     }
     check_range("start", 1e-9, 1.0 - 1e-9)?;
-    check_range("boundary", 1e-9, f64::INFINITY)?;
+    for positive in ["boundary", "threshold", "start_range", "threshold_gap"] {
+        check_range(positive, 1e-9, f64::INFINITY)?;
+    }
+    if choice.name == "ballistic-race" {
+        // The rate's spread divides every quantity of the ballistic accumulator.
+        check_range("drift_sd", 1e-9, f64::INFINITY)?;
+    }
     for non_negative in ["ndt", "drift_sd"] {
         check_range(non_negative, 0.0, f64::INFINITY)?;
     }

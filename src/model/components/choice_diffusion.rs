@@ -17,7 +17,8 @@
 //! process (tests/suite/response_window.rs compares the two).
 
 use super::{
-    ChoiceStage, Entry, Observation, Options, PreparedChoice, Slots, SubjectContext, only_options,
+    ChoiceStage, Entry, Observation, Options, PreparedChoice, Signal, Slots, SubjectContext,
+    only_options,
 };
 use crate::data::Choice;
 use crate::first_passage::{
@@ -59,8 +60,8 @@ fn build(options: &Options, slots: Slots<'_>) -> Result<Box<dyn ChoiceStage>, St
 }
 
 impl ChoiceStage for Diffusion {
-    fn uses_drift_mapping(&self) -> bool {
-        true
+    fn signal(&self) -> Signal {
+        Signal::DriftDifference
     }
 
     fn uses_response_times(&self) -> bool {

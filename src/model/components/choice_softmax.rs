@@ -4,7 +4,8 @@
 //! (1 − lapse)·P + lapse/N.
 
 use super::{
-    ChoiceStage, Entry, Observation, Options, PreparedChoice, Slots, SubjectContext, only_options,
+    ChoiceStage, Entry, Observation, Options, PreparedChoice, Signal, Slots, SubjectContext,
+    only_options,
 };
 use crate::data::Choice;
 use crate::model::dual::D;
@@ -34,8 +35,8 @@ fn build(options: &Options, slots: Slots<'_>) -> Result<Box<dyn ChoiceStage>, St
 }
 
 impl ChoiceStage for Softmax {
-    fn uses_drift_mapping(&self) -> bool {
-        false
+    fn signal(&self) -> Signal {
+        Signal::Values
     }
 
     fn uses_response_times(&self) -> bool {

@@ -9,6 +9,7 @@
 //! file to models/ that uses it.
 
 mod choice_diffusion;
+mod choice_race;
 mod choice_softmax;
 mod cost_exponential;
 mod cost_hyperbolic;
@@ -16,6 +17,7 @@ mod cost_linear;
 mod cost_none;
 mod cost_quadratic;
 mod drift_bounded;
+mod drift_gaze;
 mod drift_linear;
 mod learning_delta;
 mod learning_gain_loss;
@@ -64,10 +66,37 @@ pub trait CostShape: Send + Sync {
     fn subjective_value(&self, q: D, effort: f64, p: &[D]) -> D;
 }
 
-/// Maps the subjective value difference SV_a − SV_b to a drift rate.
+/// Maps subjective values to drift rates: the difference of the two options' values for the
+/// two-bound diffusion, each option's own value for racing accumulators ([`Signal`]).
 pub trait DriftMapping: Send + Sync {
-    /// The drift rate.
-    fn drift(&self, value_difference: D, p: &[D]) -> D;
+    /// The per-option column prefix the mapping reads (for example `gaze`: columns `gaze_a`,
+    /// `gaze_b`, …), if any.
+    fn attribute(&self) -> Option<&str> {
+        None
+    }
+    /// The closed range the attribute's values must lie in (for example [0, 1] for shares).
+    fn attribute_range(&self) -> (f64, f64) {
+        (f64::NEG_INFINITY, f64::INFINITY)
+    }
+    /// An option's value as it enters the drift, from its subjective value and its value of
+    /// [`DriftMapping::attribute`] (the identity for mappings without one).
+    fn weighted(&self, subjective_value: D, _attribute: f64, _p: &[D]) -> D {
+        subjective_value
+    }
+    /// The drift rate at x: the weighted value difference (two-bound diffusion) or one option's
+    /// weighted value (its accumulator in a race).
+    fn drift(&self, x: D, p: &[D]) -> D;
+}
+
+/// What a choice stage reads of a trial's subjective values.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Signal {
+    /// One drift rate, from the weighted difference of the two options' values.
+    DriftDifference,
+    /// One drift rate per offered option, from its own weighted value.
+    DriftPerOption,
+    /// The subjective values themselves (no drift mapping).
+    Values,
 }
 
 /// What the choice stage sees of one trial.
@@ -94,12 +123,12 @@ pub struct SubjectContext {
     pub lock: Option<f64>,
 }
 
-/// Turns a decision signal into the probability of what was observed. The signal is the drift
-/// rate (one number) for stages that use a drift mapping, which choose between two options;
-/// otherwise it is the subjective value of every offered option.
+/// Turns a decision signal into the probability of what was observed. The signal is what
+/// [`ChoiceStage::signal`] declares: one drift rate (two-bound diffusion), a drift per option
+/// (races) or the subjective value of every offered option (softmax).
 pub trait ChoiceStage: Send + Sync {
-    /// True when the signal is the drift rate from the model's drift mapping.
-    fn uses_drift_mapping(&self) -> bool;
+    /// What the stage reads of a trial's subjective values.
+    fn signal(&self) -> Signal;
     /// Prepares the stage for one likelihood evaluation (constant parameters computed once).
     fn prepare<'a>(&'a self, p: &'a [D], context: SubjectContext) -> Box<dyn PreparedChoice + 'a>;
     /// True when response times enter the likelihood.
@@ -139,11 +168,16 @@ pub const COST_SHAPES: &[Entry<dyn CostShape>] = &[
 ];
 
 /// Drift mappings by name.
-pub const DRIFT_MAPPINGS: &[Entry<dyn DriftMapping>] = &[drift_linear::ENTRY, drift_bounded::ENTRY];
+pub const DRIFT_MAPPINGS: &[Entry<dyn DriftMapping>] =
+    &[drift_linear::ENTRY, drift_bounded::ENTRY, drift_gaze::ENTRY];
 
 /// Choice stages by name.
-pub const CHOICE_STAGES: &[Entry<dyn ChoiceStage>] =
-    &[choice_diffusion::ENTRY, choice_softmax::ENTRY];
+pub const CHOICE_STAGES: &[Entry<dyn ChoiceStage>] = &[
+    choice_diffusion::ENTRY,
+    choice_softmax::ENTRY,
+    choice_race::WALD_ENTRY,
+    choice_race::BALLISTIC_ENTRY,
+];
 
 /// Looks a component up by name in its table.
 pub fn find<'t, T: ?Sized>(table: &'t [Entry<T>], name: &str) -> Option<&'t Entry<T>> {
