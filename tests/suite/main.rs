@@ -24,6 +24,7 @@ mod output_formats;
 mod output_safety;
 mod parameter_recovery;
 mod predictive_check;
+mod race_models;
 mod real_data;
 mod response_window;
 mod task_shapes;
