@@ -6,9 +6,10 @@ use crate::fit::prior_regression::{INTERCEPT, SubjectScores};
 use crate::fit::{EmOptions, FitOptions, GroupFit, Skipped, SubjectFit, fit_table_hierarchical};
 use crate::model::{Model, load_model};
 use crate::progress::Progress;
+use crate::results::fit_folder::{self, EstimateSource};
 use crate::results::{
-    EstimateSource, estimates_wide_table, group_correlation_table, group_evidence_table,
-    group_prior_table, parameters_table, prior_regression_table, summary_table,
+    estimates_wide_table, group_correlation_table, group_evidence_table, group_prior_table,
+    parameters_table, prior_regression_table, summary_table,
 };
 use sha2::{Digest, Sha256};
 use std::collections::HashMap;
@@ -260,19 +261,9 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
     super::input::screen_table_output(&screened).stage_both(
         &mut outputs,
         run.out,
-        "data_screen",
+        fit_folder::DATA_SCREEN.stem,
     )?;
-    parameters_table(&fits).stage_both(
-        &mut outputs,
-        run.out,
-        EstimateSource::PerSubject.parameters_stem(),
-    )?;
-    estimates_wide_table(&fits).stage_both(&mut outputs, run.out, "estimates_wide")?;
-    summary_table(&fits).stage_both(
-        &mut outputs,
-        run.out,
-        EstimateSource::PerSubject.summary_stem(),
-    )?;
+    stage_estimates(&mut outputs, run.out, &fits, EstimateSource::PerSubject)?;
     if let Some(settings) = &run.hierarchical {
         record["empirical_bayes"] = serde_json::json!({
             "method": format!(
@@ -297,39 +288,42 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
                     "none: scores as given"
                 },
                 "standard_errors": "inverse information of the Laplace-approximated marginal likelihood, [sum_i (z_i z_i^T) kron (Sigma N/(N-p-1) + C_i)^-1]^-1, C_i each participant's likelihood-only covariance; t test with N - p - 1 degrees of freedom",
-                "table": "eb_prior_regression.csv",
+                "table": fit_folder::EB_PRIOR_REGRESSION.csv(),
             });
         }
         let shrunken: Vec<SubjectFit> = groups.iter().flat_map(|g| g.subjects.clone()).collect();
-        parameters_table(&shrunken).stage_both(
+        stage_estimates(
             &mut outputs,
             run.out,
-            EstimateSource::EmpiricalBayes.parameters_stem(),
+            &shrunken,
+            EstimateSource::EmpiricalBayes,
         )?;
-        estimates_wide_table(&shrunken).stage_both(&mut outputs, run.out, "eb_estimates_wide")?;
-        summary_table(&shrunken).stage_both(
+        group_prior_table(&groups).stage_both(
             &mut outputs,
             run.out,
-            EstimateSource::EmpiricalBayes.summary_stem(),
+            fit_folder::EB_GROUP_PRIORS.stem,
         )?;
-        group_prior_table(&groups).stage_both(&mut outputs, run.out, "eb_group_priors")?;
-        group_evidence_table(&groups).stage_both(&mut outputs, run.out, "eb_model_evidence")?;
+        group_evidence_table(&groups).stage_both(
+            &mut outputs,
+            run.out,
+            fit_folder::EB_MODEL_EVIDENCE.stem,
+        )?;
         if !settings.covariates.is_empty() {
             prior_regression_table(&groups).stage_both(
                 &mut outputs,
                 run.out,
-                "eb_prior_regression",
+                fit_folder::EB_PRIOR_REGRESSION.stem,
             )?;
         }
         if settings.em.full_covariance {
             group_correlation_table(&groups).stage_both(
                 &mut outputs,
                 run.out,
-                "eb_group_correlations",
+                fit_folder::EB_GROUP_CORRELATIONS.stem,
             )?;
         }
     }
-    outputs.stage(&run.out.join("run.json"), |w| {
+    outputs.stage(&run.out.join(fit_folder::RUN_RECORD), |w| {
         serde_json::to_writer_pretty(w, &record)
     })?;
     outputs.commit()?;
@@ -340,6 +334,19 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         skipped,
         groups,
     })
+}
+
+/// Stages the estimate tables of `fits` in `dir` under the names of `source`: the parameters
+/// (long and wide) and the fit summary.
+fn stage_estimates(
+    outputs: &mut OutputSet,
+    dir: &Path,
+    fits: &[SubjectFit],
+    source: EstimateSource,
+) -> Result<(), crate::files::OutputError> {
+    parameters_table(fits).stage_both(outputs, dir, source.parameters().stem)?;
+    estimates_wide_table(fits).stage_both(outputs, dir, source.estimates_wide().stem)?;
+    summary_table(fits).stage_both(outputs, dir, source.summary().stem)
 }
 
 /// The run record: enough to reproduce a result.
@@ -527,8 +534,8 @@ pub fn print_diagnostics(fits: &[SubjectFit], models: &[Model], out: &Path) {
     }
     println!(
         "per-subject estimates: {}; fit statistics and each fit's status: {}",
-        out.join("parameters.csv").display(),
-        out.join("fit_summary.csv").display()
+        fit_folder::PARAMETERS.csv_in(out).display(),
+        fit_folder::SUMMARY.csv_in(out).display()
     );
 }
 

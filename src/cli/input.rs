@@ -513,6 +513,6 @@ pub fn screen_record(screened: &Screened) -> serde_json::Value {
         },
         "trimmed_per_subject": trimmed,
         "responses_per_free_parameter": screened.settings.responses_per_parameter,
-        "table": "data_screen.csv",
+        "table": crate::results::fit_folder::DATA_SCREEN.csv(),
     })
 }

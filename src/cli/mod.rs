@@ -258,7 +258,7 @@ pub enum Command {
         /// Summary file inside the --fits folder: fit_summary.csv, or eb_fit_summary.csv for
         /// the empirical-Bayes estimates of `fit --hierarchical` (which carry the Laplace log
         /// evidence under the fitted group prior).
-        #[arg(long, default_value = "fit_summary.csv")]
+        #[arg(long, default_value_t = crate::results::fit_folder::SUMMARY.csv())]
         summary: String,
         /// Output folder (default: the --fits folder, whose other files stay).
         #[arg(long)]
