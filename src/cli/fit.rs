@@ -6,7 +6,7 @@ use crate::fit::prior_regression::{INTERCEPT, SubjectScores};
 use crate::fit::{EmOptions, FitOptions, GroupFit, Skipped, SubjectFit, fit_table_hierarchical};
 use crate::model::{Model, load_model};
 use crate::progress::Progress;
-use crate::results::fit_folder::{self, EstimateSource};
+use crate::results::fit_folder::{self, EstimateSource, key};
 use crate::results::{
     estimates_wide_table, group_correlation_table, group_evidence_table, group_prior_table,
     parameters_table, prior_regression_table, summary_table,
@@ -256,7 +256,7 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         &fits,
         &skipped,
     );
-    record["group_column"] = serde_json::json!(run.columns.file_name("group"));
+    record[key::GROUP_COLUMN] = serde_json::json!(run.columns.file_name("group"));
     record["data_screen"] = super::input::screen_record(&screened);
     super::input::screen_table_output(&screened).stage_both(
         &mut outputs,
@@ -265,12 +265,12 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
     )?;
     stage_estimates(&mut outputs, run.out, &fits, EstimateSource::PerSubject)?;
     if let Some(settings) = &run.hierarchical {
-        record["empirical_bayes"] = serde_json::json!({
+        record[key::EMPIRICAL_BAYES] = serde_json::json!({
             "method": format!(
                 "EM with the Laplace approximation (Huys et al. 2011); Gaussian prior, {} covariance, on the unconstrained scale",
                 if settings.em.full_covariance { "full" } else { "diagonal" }
             ),
-            "per_group": settings.per_group,
+            (key::PER_GROUP): settings.per_group,
             "tolerance": settings.em.tolerance,
             "max_iterations": settings.em.max_iterations,
             "ibic_samples": settings.em.ibic_samples,
@@ -278,7 +278,7 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             "seed": settings.em.seed,
         });
         if !settings.covariates.is_empty() {
-            record["empirical_bayes"]["prior_covariates"] = serde_json::json!({
+            record[key::EMPIRICAL_BAYES]["prior_covariates"] = serde_json::json!({
                 "columns": settings.covariates,
                 "centred": settings.centred,
                 "model": "theta_i ~ N(B z_i, Sigma), z_i = (1, scores_i - centres), on the unconstrained scale",
@@ -367,21 +367,21 @@ pub fn run_record(
         "starts": options.starts,
         "max_iterations": options.max_iterations,
         "deadline": options.deadline,
-        "lock": options.lock,
+        (key::LOCK): options.lock,
         "data": {
             "path": data.display().to_string(),
             "sha256": format!("{:x}", Sha256::digest(bytes)),
         },
-        "models": models.iter().map(|m| serde_json::json!({
-            "name": m.name,
+        (key::MODELS): models.iter().map(|m| serde_json::json!({
+            (key::NAME): m.name,
             "origin": m.origin,
-            "definition": m.text,
+            (key::DEFINITION): m.text,
         })).collect::<Vec<_>>(),
         "fits": fits.len(),
         "skipped": skipped.iter().map(|s| format!("{}: {}", s.model, s.reason)).collect::<Vec<_>>(),
-        "not_fitted": skipped.iter().map(|s| serde_json::json!({
-            "model": s.model,
-            "subject": s.reason.subject,
+        (key::NOT_FITTED): skipped.iter().map(|s| serde_json::json!({
+            (key::MODEL): s.model,
+            (key::SUBJECT): s.reason.subject,
         })).collect::<Vec<_>>(),
         "caution": super::RESEARCH_CAUTION,
     })

@@ -11,6 +11,7 @@ mod input;
 mod models;
 mod simulate;
 
+use crate::results::fit_folder::RunRecord;
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
 
@@ -392,7 +393,9 @@ impl FittedRun {
                 self.fits.display()
             );
         }
-        let skipped = skipped_subjects(&self.fits, &model.name);
+        let skipped = RunRecord::if_readable(&self.fits)
+            .map(|record| record.not_fitted_with(&model.name))
+            .unwrap_or_default();
         let before = table.subjects.len();
         table.subjects.retain(|s| !skipped.contains(&s.id));
         if table.subjects.len() < before {
@@ -447,30 +450,10 @@ pub struct EstimatesArg {
 /// column `group`, so a `--by` that names the trial table's column the fit read its groups from
 /// (recorded as `group_column` in run.json) means `group`.
 pub fn group_column(fits: &std::path::Path, by: &str) -> String {
-    match recorded(fits, "group_column").and_then(|v| v.as_str().map(str::to_string)) {
+    match RunRecord::if_readable(fits).and_then(|record| record.group_column) {
         Some(column) if column == by => "group".to_string(),
         _ => by.to_string(),
     }
-}
-
-/// The subjects a fit folder's run.json records as not fitted with `model` (`not_fitted`).
-fn skipped_subjects(fits: &std::path::Path, model: &str) -> std::collections::HashSet<String> {
-    recorded(fits, "not_fitted")
-        .and_then(|v| v.as_array().cloned())
-        .unwrap_or_default()
-        .iter()
-        .filter(|entry| entry["model"].as_str() == Some(model))
-        .filter_map(|entry| entry["subject"].as_str().map(str::to_string))
-        .collect()
-}
-
-/// The value of `key` in a fit folder's run.json, when the record and the key exist.
-pub fn recorded(fits: &std::path::Path, key: &str) -> Option<serde_json::Value> {
-    std::fs::read(fits.join("run.json"))
-        .ok()
-        .and_then(|bytes| serde_json::from_slice::<serde_json::Value>(&bytes).ok())
-        .map(|record| record[key].clone())
-        .filter(|v| !v.is_null())
 }
 
 /// Runs the parsed command.
@@ -589,7 +572,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 sims,
                 seed,
                 deadline,
-                lock: recorded(&input.fits, "lock").and_then(|v| v.as_f64()),
+                lock: RunRecord::if_readable(&input.fits).and_then(|record| record.lock),
                 condition: None,
             },
             by,

@@ -1,12 +1,14 @@
 //! The fit folder written by `valuedrift fit`, and read by `compare`, `contrast`, `check` and
-//! `export`: the names of its files, and the fit summary table's columns and its one reader. The
-//! estimates table's columns and reader are in [`super::parameters_file`].
+//! `export`: the names of its files, the fit summary table's columns and its one reader, and the
+//! run record (`run.json`) with the keys that later commands read back and a typed reader of
+//! them. The estimates table's columns and reader are in [`super::parameters_file`].
 //!
 //! The writers (`fit`, and [`super::summary_table`] for the summary's columns) take the names
-//! from here, so a file is named once for the side that writes it and the side that reads it.
+//! and keys from here, so a file or key is named once for the side that writes it and the side
+//! that reads it.
 
 use crate::files::{InputError, csv_rows, finite_number};
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, HashSet};
 use std::path::{Path, PathBuf};
 
 /// A table of a fit folder, written as `<stem>.csv` with a Parquet twin `<stem>.parquet`.
@@ -280,4 +282,154 @@ pub fn read_fit_summary(path: &Path, by: &str) -> Result<Vec<FitRecord>, InputEr
         return Err(InputError::file(path, "has no data rows"));
     }
     Ok(out)
+}
+
+/// Keys of the run record that later commands read back (`fit` writes them with these names).
+pub mod key {
+    /// The trial table's column the groups were read from (text).
+    pub const GROUP_COLUMN: &str = "group_column";
+    /// The response lock of the fit in seconds (number, or null without one).
+    pub const LOCK: &str = "lock";
+    /// The pairs the fit did not fit: a list of objects with [`MODEL`] and [`SUBJECT`].
+    pub const NOT_FITTED: &str = "not_fitted";
+    /// Model name in an entry of [`NOT_FITTED`].
+    pub const MODEL: &str = "model";
+    /// Subject label in an entry of [`NOT_FITTED`].
+    pub const SUBJECT: &str = "subject";
+    /// The models fitted: a list of objects with [`NAME`] and [`DEFINITION`].
+    pub const MODELS: &str = "models";
+    /// Model name in an entry of [`MODELS`].
+    pub const NAME: &str = "name";
+    /// The model file's text in an entry of [`MODELS`].
+    pub const DEFINITION: &str = "definition";
+    /// The settings of `fit --hierarchical` (an object with [`PER_GROUP`]).
+    pub const EMPIRICAL_BAYES: &str = "empirical_bayes";
+    /// One group prior per group (`--by`) rather than one over all subjects (flag).
+    pub const PER_GROUP: &str = "per_group";
+}
+
+/// A model recorded in the run record: its name and, when recorded, its definition.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct RecordedModel {
+    /// Model name.
+    pub name: String,
+    /// The model file's text as fitted.
+    pub definition: Option<String>,
+}
+
+/// What later commands read back from a fit folder's run record. Each key is read on its own: a
+/// key that is missing or of another type reads as absent (false for the flag), as in a record
+/// of an older version.
+#[derive(Clone, Debug, PartialEq)]
+pub struct RunRecord {
+    /// The file it was read from.
+    pub path: PathBuf,
+    /// The trial table's column the groups were read from ([`key::GROUP_COLUMN`]).
+    pub group_column: Option<String>,
+    /// The response lock of the fit in seconds ([`key::LOCK`]).
+    pub lock: Option<f64>,
+    /// (model, subject) of each pair the fit did not fit ([`key::NOT_FITTED`]); entries without
+    /// both texts are left out.
+    pub not_fitted: Vec<(String, String)>,
+    /// The models fitted, in the record's order ([`key::MODELS`]); entries without a name are
+    /// left out. None when the record has no such list.
+    pub models: Option<Vec<RecordedModel>>,
+    /// The empirical-Bayes priors were fitted one per group ([`key::PER_GROUP`] of
+    /// [`key::EMPIRICAL_BAYES`]).
+    pub per_group_priors: bool,
+}
+
+impl RunRecord {
+    /// Reads the run record of fit folder `fits`. None when the folder has none (a parameters
+    /// table put together by hand); an error naming the file when it cannot be read or is not
+    /// JSON.
+    pub fn read(fits: &Path) -> Result<Option<RunRecord>, InputError> {
+        let path = fits.join(RUN_RECORD);
+        let text = match std::fs::read_to_string(&path) {
+            Ok(text) => text,
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
+            Err(e) => return Err(InputError::file(&path, format!("cannot be read: {e}"))),
+        };
+        let record: serde_json::Value = serde_json::from_str(&text).map_err(|e| {
+            InputError::file(
+                &path,
+                format!("is not the JSON run record written by `valuedrift fit`: {e}"),
+            )
+        })?;
+        let text_of = |v: &serde_json::Value, k: &str| v.get(k)?.as_str().map(str::to_string);
+        let not_fitted = record
+            .get(key::NOT_FITTED)
+            .and_then(|v| v.as_array())
+            .map_or(&[][..], Vec::as_slice)
+            .iter()
+            .filter_map(|entry| Some((text_of(entry, key::MODEL)?, text_of(entry, key::SUBJECT)?)))
+            .collect();
+        let models = record
+            .get(key::MODELS)
+            .and_then(|v| v.as_array())
+            .map(|list| {
+                list.iter()
+                    .filter_map(|m| {
+                        Some(RecordedModel {
+                            name: text_of(m, key::NAME)?,
+                            definition: text_of(m, key::DEFINITION),
+                        })
+                    })
+                    .collect()
+            });
+        Ok(Some(RunRecord {
+            group_column: text_of(&record, key::GROUP_COLUMN),
+            lock: record.get(key::LOCK).and_then(|v| v.as_f64()),
+            per_group_priors: record
+                .get(key::EMPIRICAL_BAYES)
+                .and_then(|eb| eb.get(key::PER_GROUP))
+                .and_then(|v| v.as_bool())
+                == Some(true),
+            not_fitted,
+            models,
+            path,
+        }))
+    }
+
+    /// The run record of `fits` when it has one that can be read, for what is only used when
+    /// recorded (the group column, the lock, the subjects not fitted, the kind of priors).
+    pub fn if_readable(fits: &Path) -> Option<RunRecord> {
+        RunRecord::read(fits).ok().flatten()
+    }
+
+    /// The subjects the fit did not fit with `model`.
+    pub fn not_fitted_with(&self, model: &str) -> HashSet<String> {
+        self.not_fitted
+            .iter()
+            .filter(|(m, _)| m == model)
+            .map(|(_, subject)| subject.clone())
+            .collect()
+    }
+
+    /// The recorded definition of `model`; an error naming the record when it has no list of
+    /// models, no model of that name (listing those it has) or no definition of it.
+    pub fn definition_of(&self, model: &str) -> Result<&str, InputError> {
+        let Some(models) = &self.models else {
+            return Err(InputError::file(
+                &self.path,
+                format!(
+                    "has no `{}` list (expected the run record written by `valuedrift fit`)",
+                    key::MODELS
+                ),
+            ));
+        };
+        let Some(recorded) = models.iter().find(|m| m.name == model) else {
+            let names: Vec<&str> = models.iter().map(|m| m.name.as_str()).collect();
+            return Err(InputError::file(
+                &self.path,
+                format!(
+                    "records no fit of model {model} (models fitted: {})",
+                    names.join(", ")
+                ),
+            ));
+        };
+        recorded.definition.as_deref().ok_or_else(|| {
+            InputError::file(&self.path, format!("has no definition of model {model}"))
+        })
+    }
 }

@@ -1,8 +1,14 @@
 //! A fit folder read back (`valuedrift::results::fit_folder`): the fit summary table reads back
-//! what its writer wrote.
+//! what its writer wrote, and the run record (run.json) written by `fit` reads back through the
+//! typed reader that `compare`, `contrast`, `check` and `export` use, each key on its own.
 
+use std::path::Path;
 use valuedrift::fit::{ParameterEstimate, SubjectFit};
-use valuedrift::results::fit_folder::{SUMMARY, SUMMARY_COLUMNS, Scored, read_fit_summary};
+use valuedrift::results::fit_folder::{
+    RUN_RECORD, RecordedModel, RunRecord, SUMMARY, SUMMARY_COLUMNS, Scored, read_fit_summary,
+};
+
+use crate::common::{MODEL, bin, demo_file, succeed};
 
 /// A fit with the given statistics (the other fields do not enter the summary table).
 fn fit(subject: &str, model: &str, times: bool, bic: f64, evidence: Option<f64>) -> SubjectFit {
@@ -76,4 +82,111 @@ fn the_fit_summary_reads_back_what_its_writer_wrote() {
         // Header = line 1 (src/files.rs, InputError).
         assert_eq!(row.line, k as u64 + 2);
     }
+}
+
+#[test]
+fn a_missing_or_unreadable_run_record_is_told_apart_from_a_present_one() {
+    // Source: the documentation of RunRecord::read — no record is None (a folder put together
+    // by hand), a record that is not JSON is an error naming the file.
+    let dir = tempfile::tempdir().unwrap();
+    assert_eq!(RunRecord::read(dir.path()).unwrap(), None);
+    std::fs::write(dir.path().join(RUN_RECORD), "{").unwrap();
+    let err = RunRecord::read(dir.path()).unwrap_err().to_string();
+    assert!(
+        err.contains(RUN_RECORD) && err.contains("is not the JSON run record"),
+        "{err}"
+    );
+    assert_eq!(RunRecord::if_readable(dir.path()), None);
+}
+
+#[test]
+fn each_key_of_the_run_record_is_read_on_its_own() {
+    // Source: the documentation of RunRecord — a key that is missing or of another type reads
+    // as absent, and the other keys are still read (records of older versions lack keys).
+    let dir = tempfile::tempdir().unwrap();
+    let record = r#"{
+        "lock": "0.2",
+        "group_column": "clinic",
+        "not_fitted": [{"model": "m", "subject": "s1"}, {"model": "m"}, {"model": "n", "subject": "s2"}],
+        "models": [{"name": "m", "definition": "text"}, {"definition": "nameless"}, {"name": "n"}],
+        "empirical_bayes": {"per_group": true}
+    }"#;
+    std::fs::write(dir.path().join(RUN_RECORD), record).unwrap();
+    let read = RunRecord::read(dir.path()).unwrap().unwrap();
+    assert_eq!(read.lock, None);
+    assert_eq!(read.group_column.as_deref(), Some("clinic"));
+    assert_eq!(
+        read.not_fitted_with("m").into_iter().collect::<Vec<_>>(),
+        ["s1"]
+    );
+    assert_eq!(read.definition_of("m").unwrap(), "text");
+    let err = read.definition_of("n").unwrap_err().to_string();
+    assert!(err.ends_with("has no definition of model n"), "{err}");
+    let err = read.definition_of("o").unwrap_err().to_string();
+    assert!(
+        err.ends_with("records no fit of model o (models fitted: m, n)"),
+        "{err}"
+    );
+    assert!(read.per_group_priors);
+
+    std::fs::write(dir.path().join(RUN_RECORD), "{}").unwrap();
+    let empty = RunRecord::read(dir.path()).unwrap().unwrap();
+    assert_eq!(
+        (
+            empty.lock,
+            empty.group_column.clone(),
+            empty.per_group_priors
+        ),
+        (None, None, false)
+    );
+    assert!(empty.not_fitted.is_empty());
+    let err = empty.definition_of("m").unwrap_err().to_string();
+    assert!(err.contains("has no `models` list"), "{err}");
+}
+
+/// The first `n` participants of the demo study (demo-data/README.md) in `dir`.
+fn demo_subjects(dir: &Path, n: usize) -> std::path::PathBuf {
+    let text = std::fs::read_to_string(demo_file("orchard_trials.csv")).unwrap();
+    let prefixes: Vec<String> = (1..=n).map(|k| format!("sub-{k:02},")).collect();
+    let kept: Vec<&str> = text
+        .lines()
+        .enumerate()
+        .filter(|(i, l)| *i == 0 || prefixes.iter().any(|p| l.starts_with(p.as_str())))
+        .map(|(_, l)| l)
+        .collect();
+    let path = dir.join("trials.csv");
+    std::fs::write(&path, kept.join("\n") + "\n").unwrap();
+    path
+}
+
+#[test]
+fn the_run_record_written_by_fit_reads_back_through_the_typed_reader() {
+    // Source: common practice — what `fit` records (its options and the model file's text) is
+    // what the reader of later commands returns (round trip through the binary).
+    let dir = tempfile::tempdir().unwrap();
+    let data = demo_subjects(dir.path(), 2);
+    let fits = dir.path().join("fits");
+    succeed(
+        bin()
+            .args(["fit", "--model", MODEL, "--starts", "2", "--lock", "0.05"])
+            .arg("--data")
+            .arg(&data)
+            .arg("--out")
+            .arg(&fits),
+    );
+    let record = RunRecord::read(&fits).unwrap().unwrap();
+    assert_eq!(record.path, fits.join(RUN_RECORD));
+    assert_eq!(record.lock, Some(0.05));
+    assert_eq!(record.group_column.as_deref(), Some("group"));
+    assert!(record.not_fitted.is_empty());
+    assert!(!record.per_group_priors);
+    let model = valuedrift::model::load_model(MODEL).unwrap();
+    assert_eq!(
+        record.models,
+        Some(vec![RecordedModel {
+            name: MODEL.to_string(),
+            definition: Some(model.text.clone()),
+        }])
+    );
+    assert_eq!(record.definition_of(MODEL).unwrap(), model.text);
 }
