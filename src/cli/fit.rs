@@ -1,5 +1,6 @@
 //! `valuedrift fit`: per-subject fits of one or more models, with tidy outputs and a run record.
 
+use super::input::ColumnsError;
 use crate::data::{ColumnMap, ScreenSettings, TrialTable};
 use crate::files::OutputSet;
 use crate::fit::prior_regression::{INTERCEPT, SubjectScores};
@@ -114,23 +115,23 @@ fn participant_scores(
 }
 
 /// The column mapping of `--columns`, with `--by COLUMN` read as the group column.
-pub fn column_map(spec: &str, by: Option<&str>) -> Result<ColumnMap, String> {
+pub fn column_map(spec: &str, by: Option<&str>) -> Result<ColumnMap, ColumnsError> {
     let spec = match by {
         Some(column) if column != "group" => {
             if ColumnMap::parse(spec)
-                .map_err(|e| format!("--columns: {e}"))?
+                .map_err(ColumnsError::Mapping)?
                 .file_name("group")
                 != "group"
             {
-                return Err(format!(
-                    "--by {column} and a group mapping in --columns both name the group column; give one"
-                ));
+                return Err(ColumnsError::GroupNamedTwice {
+                    by: column.to_string(),
+                });
             }
             format!("{spec},group={column}")
         }
         _ => spec.to_string(),
     };
-    ColumnMap::parse(&spec).map_err(|e| format!("--columns: {e}"))
+    ColumnMap::parse(&spec).map_err(ColumnsError::Mapping)
 }
 
 /// Loads models by name or path.

@@ -3,8 +3,9 @@
 //! data screen before fitting (summary, trimming, models a subject's data cannot support).
 
 use crate::data::{
-    ColumnMap, DEFAULT_FAST_FLOOR, ModelNeeds, ScreenSettings, SubjectScreen, TRIALS_PER_PARAMETER,
-    TrialTable, read_trials_noted, screen_table, share_slower_than, unmet_needs,
+    ColumnMap, ColumnMapError, DEFAULT_FAST_FLOOR, ModelNeeds, ScreenSettings, ScreenSettingsError,
+    SubjectScreen, TRIALS_PER_PARAMETER, TrialTable, read_trials_noted, screen_table,
+    share_slower_than, unmet_needs,
 };
 use crate::fit::{FitOptions, Skipped, SubjectFit, fit_table};
 use crate::likelihood::DataMismatch;
@@ -49,14 +50,28 @@ impl OptionError {
     }
 }
 
+/// A column mapping of `--columns` that cannot be used, alone or with `--by`.
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+pub enum ColumnsError {
+    /// The mapping itself.
+    #[error("--columns: {0}")]
+    Mapping(ColumnMapError),
+    /// `--by` and a `group=` mapping both name the group column.
+    #[error("--by {by} and a group mapping in --columns both name the group column; give one")]
+    GroupNamedTwice {
+        /// The column of `--by`.
+        by: String,
+    },
+}
+
 impl ReadingArgs {
     /// `columns` with the choice codes and missing-value tokens added.
     pub fn apply(&self, columns: ColumnMap) -> Result<ColumnMap, OptionError> {
         columns
             .with_missing(&self.missing)
-            .map_err(|e| OptionError::new("--missing", "", e))?
+            .map_err(|e| OptionError::new("--missing", "", e.to_string()))?
             .with_choice_codes(&self.choice_codes)
-            .map_err(|e| OptionError::new("--choice-codes", "", e))
+            .map_err(|e| OptionError::new("--choice-codes", "", e.to_string()))
     }
 }
 
@@ -94,7 +109,7 @@ pub struct ScreenArgs {
 
 impl ScreenArgs {
     /// The checked settings.
-    pub fn settings(&self) -> Result<ScreenSettings, String> {
+    pub fn settings(&self) -> Result<ScreenSettings, ScreenSettingsError> {
         let settings = ScreenSettings {
             fast_floor: self.fast_floor,
             trim_below: self.trim_below,

@@ -382,7 +382,7 @@ impl FittedRun {
     /// parameters) are left out with a note.
     pub fn load(&self) -> Result<FittedInputs, Box<dyn std::error::Error>> {
         let columns =
-            crate::data::ColumnMap::parse(&self.columns).map_err(|e| format!("--columns: {e}"))?;
+            crate::data::ColumnMap::parse(&self.columns).map_err(input::ColumnsError::Mapping)?;
         let columns = self.reading.apply(columns)?;
         let mut table = input::read_table(&self.data, &columns)?;
         let model = crate::model::load_model(self.model.trim())?;
