@@ -55,24 +55,45 @@ pub struct Hierarchical {
 
 /// The column names of `--prior-covariates`, trimmed; refuses an empty name and a name given
 /// twice.
-pub fn check_prior_covariates(names: Vec<String>) -> Result<Vec<String>, String> {
+pub fn check_prior_covariates(names: Vec<String>) -> Result<Vec<String>, CovariateNamesError> {
     let names: Vec<String> = names.iter().map(|n| n.trim().to_string()).collect();
     for (l, name) in names.iter().enumerate() {
         if name.is_empty() {
-            return Err(format!(
-                "--prior-covariates {}: an empty column name; expected column names separated \
-                 by commas",
-                names.join(",")
-            ));
+            return Err(CovariateNamesError::Empty {
+                given: names.join(","),
+            });
         }
         if names[..l].contains(name) {
-            return Err(format!(
-                "--prior-covariates {}: column {name:?} is named twice",
-                names.join(",")
-            ));
+            return Err(CovariateNamesError::Twice {
+                given: names.join(","),
+                name: name.clone(),
+            });
         }
     }
     Ok(names)
+}
+
+/// Column names of `--prior-covariates` that cannot be used (`given`: the names, trimmed, as a
+/// comma-separated list; empty names included).
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+pub enum CovariateNamesError {
+    /// An empty name.
+    #[error(
+        "--prior-covariates {given}: an empty column name; expected column names separated by \
+         commas"
+    )]
+    Empty {
+        /// The names given.
+        given: String,
+    },
+    /// A name given twice.
+    #[error("--prior-covariates {given}: column {name:?} is named twice")]
+    Twice {
+        /// The names given.
+        given: String,
+        /// The name given twice.
+        name: String,
+    },
 }
 
 /// The participant scores of `--prior-covariates` in the table read from `data`, checked before

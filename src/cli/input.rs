@@ -11,7 +11,7 @@ use crate::fit::{FitOptions, Skipped, SubjectFit, fit_table};
 use crate::likelihood::DataMismatch;
 use crate::model::Model;
 use crate::results::{Column, Table};
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 /// Options of every command that reads a trial table: the file's choice codes and its
 /// missing-value tokens.
@@ -41,7 +41,11 @@ pub struct OptionError {
 }
 
 impl OptionError {
-    fn new(option: &'static str, value: impl ToString, expected: impl Into<String>) -> Self {
+    pub(super) fn new(
+        option: &'static str,
+        value: impl ToString,
+        expected: impl Into<String>,
+    ) -> Self {
         OptionError {
             option,
             value: value.to_string(),
@@ -225,7 +229,7 @@ pub fn screen_before_fit(
     settings: &ScreenSettings,
     models: &[Model],
     (lock, deadline): (Option<f64>, Option<f64>),
-) -> Result<Screened, String> {
+) -> Result<Screened, ScreenRefusal> {
     let file = path.display();
     if let Some(l) = lock {
         let rts: Vec<f64> = table
@@ -235,12 +239,12 @@ pub fn screen_before_fit(
             .collect();
         let faster = rts.iter().filter(|&&t| t < l).count();
         if !rts.is_empty() && faster as f64 > DEADLINE_SLOWER_LIMIT * rts.len() as f64 {
-            return Err(format!(
-                "--lock {l}: {faster} of the {} response times in {file} are faster than it; \
-                 expected a lock before most responses (the time from offer onset at which \
-                 responses became possible). Are the times in seconds?",
-                rts.len()
-            ));
+            return Err(ScreenRefusal::LockAfterResponses {
+                lock: l,
+                faster,
+                responses: rts.len(),
+                file: path.to_path_buf(),
+            });
         }
         if faster > 0 {
             eprintln!(
@@ -255,12 +259,11 @@ pub fn screen_before_fit(
         && let Some(share) = share_slower_than(table, d)
     {
         if share > DEADLINE_SLOWER_LIMIT {
-            return Err(format!(
-                "--deadline {d}: {:.1} % of the response times in {file} are slower than it; \
-                 expected a deadline after most responses (the time at which a trial ended \
-                 without a response). Are the times in seconds?",
-                100.0 * share
-            ));
+            return Err(ScreenRefusal::DeadlineBeforeResponses {
+                deadline: d,
+                share,
+                file: path.to_path_buf(),
+            });
         }
         if share > 0.0 {
             eprintln!(
@@ -270,8 +273,10 @@ pub fn screen_before_fit(
         }
     }
     let needs: Vec<ModelNeeds> = models.iter().map(model_needs).collect();
-    let subjects = screen_table(table, settings, &needs)
-        .map_err(|e| format!("{file}: column {}: {e}", screen_column(&e)))?;
+    let subjects = screen_table(table, settings, &needs).map_err(|error| ScreenRefusal::Data {
+        file: path.to_path_buf(),
+        error,
+    })?;
     let unmet = needs
         .iter()
         .map(|n| {
@@ -289,6 +294,52 @@ pub fn screen_before_fit(
     };
     print_screen(&screened);
     Ok(screened)
+}
+
+/// Why the data screen stops a fit before it starts.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum ScreenRefusal {
+    /// A response lock after most response times.
+    #[error(
+        "--lock {lock}: {faster} of the {responses} response times in {} are faster than it; \
+         expected a lock before most responses (the time from offer onset at which responses \
+         became possible). Are the times in seconds?",
+        file.display()
+    )]
+    LockAfterResponses {
+        /// The lock in seconds.
+        lock: f64,
+        /// Response times faster than it.
+        faster: usize,
+        /// All response times.
+        responses: usize,
+        /// The trial table.
+        file: PathBuf,
+    },
+    /// A deadline before most response times.
+    #[error(
+        "--deadline {deadline}: {:.1} % of the response times in {} are slower than it; expected \
+         a deadline after most responses (the time at which a trial ended without a response). \
+         Are the times in seconds?",
+        100.0 * share,
+        file.display()
+    )]
+    DeadlineBeforeResponses {
+        /// The deadline in seconds.
+        deadline: f64,
+        /// Share of the response times slower than it.
+        share: f64,
+        /// The trial table.
+        file: PathBuf,
+    },
+    /// Data that cannot be fitted at all.
+    #[error("{}: column {}: {error}", file.display(), screen_column(error))]
+    Data {
+        /// The trial table.
+        file: PathBuf,
+        /// What is wrong with its data.
+        error: crate::data::ScreenError,
+    },
 }
 
 /// The column a screen error is about.
