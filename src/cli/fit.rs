@@ -305,9 +305,12 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
                 "centred": settings.centred,
                 "model": "theta_i ~ N(B z_i, Sigma), z_i = (1, scores_i - centres), on the unconstrained scale",
                 "centres": if settings.centred {
-                    "each score's mean over the participants of each prior (column centre of eb_prior_regression.csv)"
+                    format!(
+                        "each score's mean over the participants of each prior (column centre of {})",
+                        fit_folder::EB_PRIOR_REGRESSION.csv()
+                    )
                 } else {
-                    "none: scores as given"
+                    "none: scores as given".to_string()
                 },
                 "standard_errors": "inverse information of the Laplace-approximated marginal likelihood, [sum_i (z_i z_i^T) kron (Sigma N/(N-p-1) + C_i)^-1]^-1, C_i each participant's likelihood-only covariance; t test with N - p - 1 degrees of freedom",
                 "table": fit_folder::EB_PRIOR_REGRESSION.csv(),

@@ -400,9 +400,10 @@ fn print_screen(screened: &Screened) {
     if screened.settings.trim_below.is_some() || screened.settings.trim_above.is_some() {
         println!(
             "  trimmed: {below} times below {}, {above} above {} (their choices still count, \
-             without the time); per subject in data_screen.csv",
+             without the time); per subject in {}",
             limit_text(screened.settings.trim_below),
-            limit_text(screened.settings.trim_above)
+            limit_text(screened.settings.trim_above),
+            crate::results::fit_folder::DATA_SCREEN.csv()
         );
         let trimmed: Vec<String> = subjects
             .iter()

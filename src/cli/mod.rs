@@ -11,7 +11,7 @@ mod input;
 mod models;
 mod simulate;
 
-use crate::results::fit_folder::RunRecord;
+use crate::results::fit_folder::{RUN_RECORD, RunRecord};
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
 
@@ -388,8 +388,8 @@ impl FittedRun {
         let model = crate::model::load_model(self.model.trim())?;
         if !crate::exports::check_recorded_model(&self.fits, &model)? {
             eprintln!(
-                "note: {} has no run.json (the record of `valuedrift fit`): the model could not \
-                 be checked against the one that was fitted",
+                "note: {} has no {RUN_RECORD} (the record of `valuedrift fit`): the model could \
+                 not be checked against the one that was fitted",
                 self.fits.display()
             );
         }
@@ -400,8 +400,8 @@ impl FittedRun {
         table.subjects.retain(|s| !skipped.contains(&s.id));
         if table.subjects.len() < before {
             eprintln!(
-                "note: {} of {before} subjects were not fitted with model {} (run.json lists why \
-                 under `skipped`); they are left out",
+                "note: {} of {before} subjects were not fitted with model {} ({RUN_RECORD} lists \
+                 why under `skipped`); they are left out",
                 before - table.subjects.len(),
                 model.name
             );
