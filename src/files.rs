@@ -168,8 +168,12 @@ pub fn write_atomically<E>(
 }
 
 /// Refuses an existing `path` unless `replace` is set: the rule [`write_atomically`] applies
-/// when it writes, checked before a command does its work so that a refusal costs nothing.
-pub fn refuse_existing(path: &Path, replace: bool) -> Result<(), WriteError<String>> {
+/// when it writes, checked before a command does its work so that a refusal costs nothing. The
+/// refusal is [`WriteError::Exists`]; nothing is produced, so there is no content error.
+pub fn refuse_existing(
+    path: &Path,
+    replace: bool,
+) -> Result<(), WriteError<std::convert::Infallible>> {
     if !replace && std::fs::symlink_metadata(path).is_ok() {
         return Err(WriteError::Exists(path.to_path_buf()));
     }

@@ -48,13 +48,17 @@ struct Panel {
     series: Vec<Series>,
 }
 
-fn draw(title: &str, panels: &[Panel]) -> Result<String, String> {
+/// A figure that plotters could not draw.
+#[derive(Debug, thiserror::Error)]
+#[error("drawing the figure: {0}")]
+pub struct DrawError(DrawingAreaErrorKind<std::io::Error>);
+
+fn draw(title: &str, panels: &[Panel]) -> Result<String, DrawError> {
     let mut svg = String::new();
     {
-        let err = |e: DrawingAreaErrorKind<_>| format!("drawing the figure: {e}");
         let root = SVGBackend::with_string(&mut svg, (WIDTH, HEIGHT)).into_drawing_area();
-        root.fill(&WHITE).map_err(err)?;
-        let root = root.titled(title, ("sans-serif", 16)).map_err(err)?;
+        root.fill(&WHITE).map_err(DrawError)?;
+        let root = root.titled(title, ("sans-serif", 16)).map_err(DrawError)?;
         for (area, panel) in root.split_evenly((1, panels.len())).iter().zip(panels) {
             let n_bins = panel
                 .series
@@ -67,7 +71,7 @@ fn draw(title: &str, panels: &[Panel]) -> Result<String, String> {
                 .x_label_area_size(40)
                 .y_label_area_size(55)
                 .build_cartesian_2d(0.5..n_bins + 0.5, panel.y_range.0..panel.y_range.1)
-                .map_err(err)?;
+                .map_err(DrawError)?;
             chart
                 .configure_mesh()
                 .disable_mesh()
@@ -76,7 +80,7 @@ fn draw(title: &str, panels: &[Panel]) -> Result<String, String> {
                 .x_desc(panel.x_label.as_str())
                 .y_desc(panel.y_label.as_str())
                 .draw()
-                .map_err(err)?;
+                .map_err(DrawError)?;
             for s in &panel.series {
                 let bands = s.points.iter().filter_map(|&(x, _, b)| {
                     b.map(|(_, lo, hi)| {
@@ -86,7 +90,7 @@ fn draw(title: &str, panels: &[Panel]) -> Result<String, String> {
                         )
                     })
                 });
-                chart.draw_series(bands).map_err(err)?;
+                chart.draw_series(bands).map_err(DrawError)?;
                 let means = s.points.windows(2).filter_map(|w| match (w[0].2, w[1].2) {
                     (Some(a), Some(b)) => Some(PathElement::new(
                         vec![(w[0].0, a.0), (w[1].0, b.0)],
@@ -94,15 +98,15 @@ fn draw(title: &str, panels: &[Panel]) -> Result<String, String> {
                     )),
                     _ => None,
                 });
-                chart.draw_series(means).map_err(err)?;
+                chart.draw_series(means).map_err(DrawError)?;
                 let observed = s
                     .points
                     .iter()
                     .filter_map(|&(x, o, _)| o.map(|y| Circle::new((x, y), 4, s.colour.filled())));
-                chart.draw_series(observed).map_err(err)?;
+                chart.draw_series(observed).map_err(DrawError)?;
             }
         }
-        root.present().map_err(err)?;
+        root.present().map_err(DrawError)?;
     }
     Ok(svg)
 }
@@ -131,7 +135,10 @@ fn y_range<'a>(statistics: impl Iterator<Item = &'a Statistic>) -> (f64, f64) {
 /// difference| quintile, for correct-by-value and for other responses, of the pooled or one
 /// subject's statistics (`scope` names which in the title); None when the statistics hold no
 /// quantiles (a model without response times).
-pub fn rt_quantile_figure(statistics: &[Statistic], scope: &str) -> Result<Option<String>, String> {
+pub fn rt_quantile_figure(
+    statistics: &[Statistic],
+    scope: &str,
+) -> Result<Option<String>, DrawError> {
     let of = |response: Response| {
         statistics.iter().filter(move |s| {
             s.key.factor == Factor::ValueDifference
@@ -173,7 +180,7 @@ pub fn rt_quantile_figure(statistics: &[Statistic], scope: &str) -> Result<Optio
 /// Proportion of correct-by-value responses against the |value difference| quintile and against
 /// the effort level of the better option, of the pooled or one subject's statistics (`scope`
 /// names which in the title).
-pub fn choice_figure(statistics: &[Statistic], scope: &str) -> Result<String, String> {
+pub fn choice_figure(statistics: &[Statistic], scope: &str) -> Result<String, DrawError> {
     let panels: Vec<Panel> = [
         (Factor::ValueDifference, "quintile of |value difference|"),
         (Factor::Effort, "effort level of the better option (bin)"),

@@ -239,6 +239,20 @@ pub fn misfit(statistics: &[Statistic]) -> Misfit {
     }
 }
 
+/// A column the trial table does not have, with the table's other columns (those beyond the
+/// canonical ones).
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+#[error(
+    "no column `{column}` in the trial table (its other columns: {})",
+    others.join(", ")
+)]
+pub struct NoSuchColumn {
+    /// The column asked for.
+    pub column: String,
+    /// The table's other columns.
+    pub others: Vec<String>,
+}
+
 /// A column whose levels get statistics of their own: its name and levels, in order.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Condition {
@@ -251,14 +265,14 @@ pub struct Condition {
 impl Condition {
     /// The levels of `column` over `subjects`, in order of first appearance; an error names a
     /// column the table does not have.
-    pub fn of(column: &str, subjects: &[Subject]) -> Result<Condition, String> {
+    pub fn of(column: &str, subjects: &[Subject]) -> Result<Condition, NoSuchColumn> {
         let mut levels: Vec<String> = Vec::new();
         for subject in subjects {
             let Some(at) = subject.covariate_column(column) else {
-                return Err(format!(
-                    "no column `{column}` in the trial table (its other columns: {})",
-                    subject.covariates.join(", ")
-                ));
+                return Err(NoSuchColumn {
+                    column: column.to_string(),
+                    others: subject.covariates.to_vec(),
+                });
             };
             for trial in &subject.trials {
                 if let Some(level) = trial.covariate(at)

@@ -1,9 +1,8 @@
 //! `valuedrift compare`: model comparison across the subjects of a fit folder.
 
 use crate::files::OutputSet;
-use crate::group::selection::{
-    BmsOptions, Evidence, Selection, assemble, read_fit_summary, select,
-};
+use crate::group::selection::{BmsOptions, Evidence, Selection, assemble, select};
+use crate::results::fit_folder::read_fit_summary;
 use std::path::Path;
 
 /// Everything `compare` needs, resolved from the command line.

@@ -4,6 +4,7 @@ use crate::files::OutputSet;
 use crate::group::contrast::{
     ParameterContrast, contrast, contrast_table, groups_table, read_estimates,
 };
+use crate::results::fit_folder::RunRecord;
 use std::path::Path;
 
 /// Reads the parameters table of `source` in `fits`, compares the free parameters of `model` across the groups of
@@ -18,7 +19,9 @@ pub fn run(
     source: crate::results::EstimateSource,
     replace: bool,
 ) -> Result<(), Box<dyn std::error::Error>> {
-    if source == crate::results::EstimateSource::EmpiricalBayes && per_group_priors(fits) {
+    if source == crate::results::EstimateSource::EmpiricalBayes
+        && RunRecord::if_readable(fits).is_some_and(|record| record.per_group_priors)
+    {
         eprintln!(
             "warning: these empirical-Bayes estimates were shrunk towards one prior per group, \
              which pulls the groups apart: their contrast is anticonservative (p values too \
@@ -31,14 +34,6 @@ pub fn run(
     println!("outputs in {}", out.display());
     println!("{}", super::RESEARCH_CAUTION);
     Ok(())
-}
-
-/// True when the fit folder's run.json records empirical-Bayes priors fitted per group.
-fn per_group_priors(fits: &Path) -> bool {
-    std::fs::read(fits.join("run.json"))
-        .ok()
-        .and_then(|bytes| serde_json::from_slice::<serde_json::Value>(&bytes).ok())
-        .is_some_and(|record| record["empirical_bayes"]["per_group"] == serde_json::json!(true))
 }
 
 /// The contrasts of `run`, with their tables written to `out` (all or nothing).

@@ -79,7 +79,7 @@ pub fn run(
     let compare = super::compare::CompareRun {
         fits: &staging,
         by: "group",
-        summary: "fit_summary.csv",
+        summary: &crate::results::fit_folder::SUMMARY.csv(),
         out: &staging,
         evidence: Evidence::Bic,
         samples: BmsOptions::default().samples,

@@ -1,14 +1,16 @@
 //! `valuedrift fit`: per-subject fits of one or more models, with tidy outputs and a run record.
 
+use super::input::ColumnsError;
 use crate::data::{ColumnMap, ScreenSettings, TrialTable};
 use crate::files::OutputSet;
 use crate::fit::prior_regression::{INTERCEPT, SubjectScores};
 use crate::fit::{EmOptions, FitOptions, GroupFit, Skipped, SubjectFit, fit_table_hierarchical};
 use crate::model::{Model, load_model};
 use crate::progress::Progress;
+use crate::results::fit_folder::{self, EstimateSource, key};
 use crate::results::{
-    EstimateSource, estimates_wide_table, group_correlation_table, group_evidence_table,
-    group_prior_table, parameters_table, prior_regression_table, summary_table,
+    estimates_wide_table, group_correlation_table, group_evidence_table, group_prior_table,
+    parameters_table, prior_regression_table, summary_table,
 };
 use sha2::{Digest, Sha256};
 use std::collections::HashMap;
@@ -53,24 +55,45 @@ pub struct Hierarchical {
 
 /// The column names of `--prior-covariates`, trimmed; refuses an empty name and a name given
 /// twice.
-pub fn check_prior_covariates(names: Vec<String>) -> Result<Vec<String>, String> {
+pub fn check_prior_covariates(names: Vec<String>) -> Result<Vec<String>, CovariateNamesError> {
     let names: Vec<String> = names.iter().map(|n| n.trim().to_string()).collect();
     for (l, name) in names.iter().enumerate() {
         if name.is_empty() {
-            return Err(format!(
-                "--prior-covariates {}: an empty column name; expected column names separated \
-                 by commas",
-                names.join(",")
-            ));
+            return Err(CovariateNamesError::Empty {
+                given: names.join(","),
+            });
         }
         if names[..l].contains(name) {
-            return Err(format!(
-                "--prior-covariates {}: column {name:?} is named twice",
-                names.join(",")
-            ));
+            return Err(CovariateNamesError::Twice {
+                given: names.join(","),
+                name: name.clone(),
+            });
         }
     }
     Ok(names)
+}
+
+/// Column names of `--prior-covariates` that cannot be used (`given`: the names, trimmed, as a
+/// comma-separated list; empty names included).
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+pub enum CovariateNamesError {
+    /// An empty name.
+    #[error(
+        "--prior-covariates {given}: an empty column name; expected column names separated by \
+         commas"
+    )]
+    Empty {
+        /// The names given.
+        given: String,
+    },
+    /// A name given twice.
+    #[error("--prior-covariates {given}: column {name:?} is named twice")]
+    Twice {
+        /// The names given.
+        given: String,
+        /// The name given twice.
+        name: String,
+    },
 }
 
 /// The participant scores of `--prior-covariates` in the table read from `data`, checked before
@@ -113,23 +136,23 @@ fn participant_scores(
 }
 
 /// The column mapping of `--columns`, with `--by COLUMN` read as the group column.
-pub fn column_map(spec: &str, by: Option<&str>) -> Result<ColumnMap, String> {
+pub fn column_map(spec: &str, by: Option<&str>) -> Result<ColumnMap, ColumnsError> {
     let spec = match by {
         Some(column) if column != "group" => {
             if ColumnMap::parse(spec)
-                .map_err(|e| format!("--columns: {e}"))?
+                .map_err(ColumnsError::Mapping)?
                 .file_name("group")
                 != "group"
             {
-                return Err(format!(
-                    "--by {column} and a group mapping in --columns both name the group column; give one"
-                ));
+                return Err(ColumnsError::GroupNamedTwice {
+                    by: column.to_string(),
+                });
             }
             format!("{spec},group={column}")
         }
         _ => spec.to_string(),
     };
-    ColumnMap::parse(&spec).map_err(|e| format!("--columns: {e}"))
+    ColumnMap::parse(&spec).map_err(ColumnsError::Mapping)
 }
 
 /// Loads models by name or path.
@@ -255,31 +278,21 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         &fits,
         &skipped,
     );
-    record["group_column"] = serde_json::json!(run.columns.file_name("group"));
+    record[key::GROUP_COLUMN] = serde_json::json!(run.columns.file_name("group"));
     record["data_screen"] = super::input::screen_record(&screened);
     super::input::screen_table_output(&screened).stage_both(
         &mut outputs,
         run.out,
-        "data_screen",
+        fit_folder::DATA_SCREEN.stem,
     )?;
-    parameters_table(&fits).stage_both(
-        &mut outputs,
-        run.out,
-        EstimateSource::PerSubject.parameters_stem(),
-    )?;
-    estimates_wide_table(&fits).stage_both(&mut outputs, run.out, "estimates_wide")?;
-    summary_table(&fits).stage_both(
-        &mut outputs,
-        run.out,
-        EstimateSource::PerSubject.summary_stem(),
-    )?;
+    stage_estimates(&mut outputs, run.out, &fits, EstimateSource::PerSubject)?;
     if let Some(settings) = &run.hierarchical {
-        record["empirical_bayes"] = serde_json::json!({
+        record[key::EMPIRICAL_BAYES] = serde_json::json!({
             "method": format!(
                 "EM with the Laplace approximation (Huys et al. 2011); Gaussian prior, {} covariance, on the unconstrained scale",
                 if settings.em.full_covariance { "full" } else { "diagonal" }
             ),
-            "per_group": settings.per_group,
+            (key::PER_GROUP): settings.per_group,
             "tolerance": settings.em.tolerance,
             "max_iterations": settings.em.max_iterations,
             "ibic_samples": settings.em.ibic_samples,
@@ -287,49 +300,55 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             "seed": settings.em.seed,
         });
         if !settings.covariates.is_empty() {
-            record["empirical_bayes"]["prior_covariates"] = serde_json::json!({
+            record[key::EMPIRICAL_BAYES]["prior_covariates"] = serde_json::json!({
                 "columns": settings.covariates,
                 "centred": settings.centred,
                 "model": "theta_i ~ N(B z_i, Sigma), z_i = (1, scores_i - centres), on the unconstrained scale",
                 "centres": if settings.centred {
-                    "each score's mean over the participants of each prior (column centre of eb_prior_regression.csv)"
+                    format!(
+                        "each score's mean over the participants of each prior (column centre of {})",
+                        fit_folder::EB_PRIOR_REGRESSION.csv()
+                    )
                 } else {
-                    "none: scores as given"
+                    "none: scores as given".to_string()
                 },
                 "standard_errors": "inverse information of the Laplace-approximated marginal likelihood, [sum_i (z_i z_i^T) kron (Sigma N/(N-p-1) + C_i)^-1]^-1, C_i each participant's likelihood-only covariance; t test with N - p - 1 degrees of freedom",
-                "table": "eb_prior_regression.csv",
+                "table": fit_folder::EB_PRIOR_REGRESSION.csv(),
             });
         }
         let shrunken: Vec<SubjectFit> = groups.iter().flat_map(|g| g.subjects.clone()).collect();
-        parameters_table(&shrunken).stage_both(
+        stage_estimates(
             &mut outputs,
             run.out,
-            EstimateSource::EmpiricalBayes.parameters_stem(),
+            &shrunken,
+            EstimateSource::EmpiricalBayes,
         )?;
-        estimates_wide_table(&shrunken).stage_both(&mut outputs, run.out, "eb_estimates_wide")?;
-        summary_table(&shrunken).stage_both(
+        group_prior_table(&groups).stage_both(
             &mut outputs,
             run.out,
-            EstimateSource::EmpiricalBayes.summary_stem(),
+            fit_folder::EB_GROUP_PRIORS.stem,
         )?;
-        group_prior_table(&groups).stage_both(&mut outputs, run.out, "eb_group_priors")?;
-        group_evidence_table(&groups).stage_both(&mut outputs, run.out, "eb_model_evidence")?;
+        group_evidence_table(&groups).stage_both(
+            &mut outputs,
+            run.out,
+            fit_folder::EB_MODEL_EVIDENCE.stem,
+        )?;
         if !settings.covariates.is_empty() {
             prior_regression_table(&groups).stage_both(
                 &mut outputs,
                 run.out,
-                "eb_prior_regression",
+                fit_folder::EB_PRIOR_REGRESSION.stem,
             )?;
         }
         if settings.em.full_covariance {
             group_correlation_table(&groups).stage_both(
                 &mut outputs,
                 run.out,
-                "eb_group_correlations",
+                fit_folder::EB_GROUP_CORRELATIONS.stem,
             )?;
         }
     }
-    outputs.stage(&run.out.join("run.json"), |w| {
+    outputs.stage(&run.out.join(fit_folder::RUN_RECORD), |w| {
         serde_json::to_writer_pretty(w, &record)
     })?;
     outputs.commit()?;
@@ -340,6 +359,19 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         skipped,
         groups,
     })
+}
+
+/// Stages the estimate tables of `fits` in `dir` under the names of `source`: the parameters
+/// (long and wide) and the fit summary.
+fn stage_estimates(
+    outputs: &mut OutputSet,
+    dir: &Path,
+    fits: &[SubjectFit],
+    source: EstimateSource,
+) -> Result<(), crate::files::OutputError> {
+    parameters_table(fits).stage_both(outputs, dir, source.parameters().stem)?;
+    estimates_wide_table(fits).stage_both(outputs, dir, source.estimates_wide().stem)?;
+    summary_table(fits).stage_both(outputs, dir, source.summary().stem)
 }
 
 /// The run record: enough to reproduce a result.
@@ -360,21 +392,21 @@ pub fn run_record(
         "starts": options.starts,
         "max_iterations": options.max_iterations,
         "deadline": options.deadline,
-        "lock": options.lock,
+        (key::LOCK): options.lock,
         "data": {
             "path": data.display().to_string(),
             "sha256": format!("{:x}", Sha256::digest(bytes)),
         },
-        "models": models.iter().map(|m| serde_json::json!({
-            "name": m.name,
+        (key::MODELS): models.iter().map(|m| serde_json::json!({
+            (key::NAME): m.name,
             "origin": m.origin,
-            "definition": m.text,
+            (key::DEFINITION): m.text,
         })).collect::<Vec<_>>(),
         "fits": fits.len(),
         "skipped": skipped.iter().map(|s| format!("{}: {}", s.model, s.reason)).collect::<Vec<_>>(),
-        "not_fitted": skipped.iter().map(|s| serde_json::json!({
-            "model": s.model,
-            "subject": s.reason.subject,
+        (key::NOT_FITTED): skipped.iter().map(|s| serde_json::json!({
+            (key::MODEL): s.model,
+            (key::SUBJECT): s.reason.subject,
         })).collect::<Vec<_>>(),
         "caution": super::RESEARCH_CAUTION,
     })
@@ -527,8 +559,8 @@ pub fn print_diagnostics(fits: &[SubjectFit], models: &[Model], out: &Path) {
     }
     println!(
         "per-subject estimates: {}; fit statistics and each fit's status: {}",
-        out.join("parameters.csv").display(),
-        out.join("fit_summary.csv").display()
+        fit_folder::PARAMETERS.csv_in(out).display(),
+        fit_folder::SUMMARY.csv_in(out).display()
     );
 }
 

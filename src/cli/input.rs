@@ -3,14 +3,15 @@
 //! data screen before fitting (summary, trimming, models a subject's data cannot support).
 
 use crate::data::{
-    ColumnMap, DEFAULT_FAST_FLOOR, ModelNeeds, ScreenSettings, SubjectScreen, TRIALS_PER_PARAMETER,
-    TrialTable, read_trials_noted, screen_table, share_slower_than, unmet_needs,
+    ColumnMap, ColumnMapError, DEFAULT_FAST_FLOOR, ModelNeeds, ScreenSettings, ScreenSettingsError,
+    SubjectScreen, TRIALS_PER_PARAMETER, TrialTable, read_trials_noted, screen_table,
+    share_slower_than, unmet_needs,
 };
 use crate::fit::{FitOptions, Skipped, SubjectFit, fit_table};
 use crate::likelihood::DataMismatch;
 use crate::model::Model;
 use crate::results::{Column, Table};
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 /// Options of every command that reads a trial table: the file's choice codes and its
 /// missing-value tokens.
@@ -40,7 +41,11 @@ pub struct OptionError {
 }
 
 impl OptionError {
-    fn new(option: &'static str, value: impl ToString, expected: impl Into<String>) -> Self {
+    pub(super) fn new(
+        option: &'static str,
+        value: impl ToString,
+        expected: impl Into<String>,
+    ) -> Self {
         OptionError {
             option,
             value: value.to_string(),
@@ -49,14 +54,28 @@ impl OptionError {
     }
 }
 
+/// A column mapping of `--columns` that cannot be used, alone or with `--by`.
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+pub enum ColumnsError {
+    /// The mapping itself.
+    #[error("--columns: {0}")]
+    Mapping(ColumnMapError),
+    /// `--by` and a `group=` mapping both name the group column.
+    #[error("--by {by} and a group mapping in --columns both name the group column; give one")]
+    GroupNamedTwice {
+        /// The column of `--by`.
+        by: String,
+    },
+}
+
 impl ReadingArgs {
     /// `columns` with the choice codes and missing-value tokens added.
     pub fn apply(&self, columns: ColumnMap) -> Result<ColumnMap, OptionError> {
         columns
             .with_missing(&self.missing)
-            .map_err(|e| OptionError::new("--missing", "", e))?
+            .map_err(|e| OptionError::new("--missing", "", e.to_string()))?
             .with_choice_codes(&self.choice_codes)
-            .map_err(|e| OptionError::new("--choice-codes", "", e))
+            .map_err(|e| OptionError::new("--choice-codes", "", e.to_string()))
     }
 }
 
@@ -94,7 +113,7 @@ pub struct ScreenArgs {
 
 impl ScreenArgs {
     /// The checked settings.
-    pub fn settings(&self) -> Result<ScreenSettings, String> {
+    pub fn settings(&self) -> Result<ScreenSettings, ScreenSettingsError> {
         let settings = ScreenSettings {
             fast_floor: self.fast_floor,
             trim_below: self.trim_below,
@@ -210,7 +229,7 @@ pub fn screen_before_fit(
     settings: &ScreenSettings,
     models: &[Model],
     (lock, deadline): (Option<f64>, Option<f64>),
-) -> Result<Screened, String> {
+) -> Result<Screened, ScreenRefusal> {
     let file = path.display();
     if let Some(l) = lock {
         let rts: Vec<f64> = table
@@ -220,12 +239,12 @@ pub fn screen_before_fit(
             .collect();
         let faster = rts.iter().filter(|&&t| t < l).count();
         if !rts.is_empty() && faster as f64 > DEADLINE_SLOWER_LIMIT * rts.len() as f64 {
-            return Err(format!(
-                "--lock {l}: {faster} of the {} response times in {file} are faster than it; \
-                 expected a lock before most responses (the time from offer onset at which \
-                 responses became possible). Are the times in seconds?",
-                rts.len()
-            ));
+            return Err(ScreenRefusal::LockAfterResponses {
+                lock: l,
+                faster,
+                responses: rts.len(),
+                file: path.to_path_buf(),
+            });
         }
         if faster > 0 {
             eprintln!(
@@ -240,12 +259,11 @@ pub fn screen_before_fit(
         && let Some(share) = share_slower_than(table, d)
     {
         if share > DEADLINE_SLOWER_LIMIT {
-            return Err(format!(
-                "--deadline {d}: {:.1} % of the response times in {file} are slower than it; \
-                 expected a deadline after most responses (the time at which a trial ended \
-                 without a response). Are the times in seconds?",
-                100.0 * share
-            ));
+            return Err(ScreenRefusal::DeadlineBeforeResponses {
+                deadline: d,
+                share,
+                file: path.to_path_buf(),
+            });
         }
         if share > 0.0 {
             eprintln!(
@@ -255,8 +273,10 @@ pub fn screen_before_fit(
         }
     }
     let needs: Vec<ModelNeeds> = models.iter().map(model_needs).collect();
-    let subjects = screen_table(table, settings, &needs)
-        .map_err(|e| format!("{file}: column {}: {e}", screen_column(&e)))?;
+    let subjects = screen_table(table, settings, &needs).map_err(|error| ScreenRefusal::Data {
+        file: path.to_path_buf(),
+        error,
+    })?;
     let unmet = needs
         .iter()
         .map(|n| {
@@ -274,6 +294,52 @@ pub fn screen_before_fit(
     };
     print_screen(&screened);
     Ok(screened)
+}
+
+/// Why the data screen stops a fit before it starts.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum ScreenRefusal {
+    /// A response lock after most response times.
+    #[error(
+        "--lock {lock}: {faster} of the {responses} response times in {} are faster than it; \
+         expected a lock before most responses (the time from offer onset at which responses \
+         became possible). Are the times in seconds?",
+        file.display()
+    )]
+    LockAfterResponses {
+        /// The lock in seconds.
+        lock: f64,
+        /// Response times faster than it.
+        faster: usize,
+        /// All response times.
+        responses: usize,
+        /// The trial table.
+        file: PathBuf,
+    },
+    /// A deadline before most response times.
+    #[error(
+        "--deadline {deadline}: {:.1} % of the response times in {} are slower than it; expected \
+         a deadline after most responses (the time at which a trial ended without a response). \
+         Are the times in seconds?",
+        100.0 * share,
+        file.display()
+    )]
+    DeadlineBeforeResponses {
+        /// The deadline in seconds.
+        deadline: f64,
+        /// Share of the response times slower than it.
+        share: f64,
+        /// The trial table.
+        file: PathBuf,
+    },
+    /// Data that cannot be fitted at all.
+    #[error("{}: column {}: {error}", file.display(), screen_column(error))]
+    Data {
+        /// The trial table.
+        file: PathBuf,
+        /// What is wrong with its data.
+        error: crate::data::ScreenError,
+    },
 }
 
 /// The column a screen error is about.
@@ -334,9 +400,10 @@ fn print_screen(screened: &Screened) {
     if screened.settings.trim_below.is_some() || screened.settings.trim_above.is_some() {
         println!(
             "  trimmed: {below} times below {}, {above} above {} (their choices still count, \
-             without the time); per subject in data_screen.csv",
+             without the time); per subject in {}",
             limit_text(screened.settings.trim_below),
-            limit_text(screened.settings.trim_above)
+            limit_text(screened.settings.trim_above),
+            crate::results::fit_folder::DATA_SCREEN.csv()
         );
         let trimmed: Vec<String> = subjects
             .iter()
@@ -513,6 +580,6 @@ pub fn screen_record(screened: &Screened) -> serde_json::Value {
         },
         "trimmed_per_subject": trimmed,
         "responses_per_free_parameter": screened.settings.responses_per_parameter,
-        "table": "data_screen.csv",
+        "table": crate::results::fit_folder::DATA_SCREEN.csv(),
     })
 }

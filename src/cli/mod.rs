@@ -11,6 +11,7 @@ mod input;
 mod models;
 mod simulate;
 
+use crate::results::fit_folder::{RUN_RECORD, RunRecord};
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
 
@@ -258,7 +259,7 @@ pub enum Command {
         /// Summary file inside the --fits folder: fit_summary.csv, or eb_fit_summary.csv for
         /// the empirical-Bayes estimates of `fit --hierarchical` (which carry the Laplace log
         /// evidence under the fitted group prior).
-        #[arg(long, default_value = "fit_summary.csv")]
+        #[arg(long, default_value_t = crate::results::fit_folder::SUMMARY.csv())]
         summary: String,
         /// Output folder (default: the --fits folder, whose other files stay).
         #[arg(long)]
@@ -381,24 +382,26 @@ impl FittedRun {
     /// parameters) are left out with a note.
     pub fn load(&self) -> Result<FittedInputs, Box<dyn std::error::Error>> {
         let columns =
-            crate::data::ColumnMap::parse(&self.columns).map_err(|e| format!("--columns: {e}"))?;
+            crate::data::ColumnMap::parse(&self.columns).map_err(input::ColumnsError::Mapping)?;
         let columns = self.reading.apply(columns)?;
         let mut table = input::read_table(&self.data, &columns)?;
         let model = crate::model::load_model(self.model.trim())?;
         if !crate::exports::check_recorded_model(&self.fits, &model)? {
             eprintln!(
-                "note: {} has no run.json (the record of `valuedrift fit`): the model could not \
-                 be checked against the one that was fitted",
+                "note: {} has no {RUN_RECORD} (the record of `valuedrift fit`): the model could \
+                 not be checked against the one that was fitted",
                 self.fits.display()
             );
         }
-        let skipped = skipped_subjects(&self.fits, &model.name);
+        let skipped = RunRecord::if_readable(&self.fits)
+            .map(|record| record.not_fitted_with(&model.name))
+            .unwrap_or_default();
         let before = table.subjects.len();
         table.subjects.retain(|s| !skipped.contains(&s.id));
         if table.subjects.len() < before {
             eprintln!(
-                "note: {} of {before} subjects were not fitted with model {} (run.json lists why \
-                 under `skipped`); they are left out",
+                "note: {} of {before} subjects were not fitted with model {} ({RUN_RECORD} lists \
+                 why under `skipped`); they are left out",
                 before - table.subjects.len(),
                 model.name
             );
@@ -447,30 +450,10 @@ pub struct EstimatesArg {
 /// column `group`, so a `--by` that names the trial table's column the fit read its groups from
 /// (recorded as `group_column` in run.json) means `group`.
 pub fn group_column(fits: &std::path::Path, by: &str) -> String {
-    match recorded(fits, "group_column").and_then(|v| v.as_str().map(str::to_string)) {
+    match RunRecord::if_readable(fits).and_then(|record| record.group_column) {
         Some(column) if column == by => "group".to_string(),
         _ => by.to_string(),
     }
-}
-
-/// The subjects a fit folder's run.json records as not fitted with `model` (`not_fitted`).
-fn skipped_subjects(fits: &std::path::Path, model: &str) -> std::collections::HashSet<String> {
-    recorded(fits, "not_fitted")
-        .and_then(|v| v.as_array().cloned())
-        .unwrap_or_default()
-        .iter()
-        .filter(|entry| entry["model"].as_str() == Some(model))
-        .filter_map(|entry| entry["subject"].as_str().map(str::to_string))
-        .collect()
-}
-
-/// The value of `key` in a fit folder's run.json, when the record and the key exist.
-pub fn recorded(fits: &std::path::Path, key: &str) -> Option<serde_json::Value> {
-    std::fs::read(fits.join("run.json"))
-        .ok()
-        .and_then(|bytes| serde_json::from_slice::<serde_json::Value>(&bytes).ok())
-        .map(|record| record[key].clone())
-        .filter(|v| !v.is_null())
 }
 
 /// Runs the parsed command.
@@ -589,7 +572,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 sims,
                 seed,
                 deadline,
-                lock: recorded(&input.fits, "lock").and_then(|v| v.as_f64()),
+                lock: RunRecord::if_readable(&input.fits).and_then(|record| record.lock),
                 condition: None,
             },
             by,

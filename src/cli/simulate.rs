@@ -1,5 +1,6 @@
 //! `valuedrift simulate`: synthetic trials from a model, parameters and a design.
 
+use super::input::OptionError;
 use crate::data::{ColumnMap, TrialTable};
 use crate::files::{InputError, refuse_existing, write_atomically};
 use crate::model::{Model, load_model};
@@ -131,17 +132,18 @@ pub enum OutputFormat {
 impl OutputFormat {
     /// `.csv` (any case) is CSV, `.parquet` Parquet; any other extension, or none, is an error
     /// naming the expected ones.
-    pub fn of(out: &Path) -> Result<OutputFormat, String> {
+    pub fn of(out: &Path) -> Result<OutputFormat, OptionError> {
         let extension = out.extension().and_then(|e| e.to_str()).unwrap_or("");
         if extension.eq_ignore_ascii_case("csv") {
             Ok(OutputFormat::Csv)
         } else if extension.eq_ignore_ascii_case("parquet") {
             Ok(OutputFormat::Parquet)
         } else {
-            Err(format!(
-                "--out {}: expected a file name ending in .csv or .parquet (the format is \
-                 chosen by the extension)",
-                out.display()
+            Err(OptionError::new(
+                "--out",
+                out.display(),
+                "expected a file name ending in .csv or .parquet (the format is chosen by the \
+                 extension)",
             ))
         }
     }

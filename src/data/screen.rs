@@ -50,41 +50,63 @@ impl Default for ScreenSettings {
 impl ScreenSettings {
     /// Checks the settings: a finite fast floor > 0, trimming limits finite and > 0, the lower
     /// limit below the upper one. The message names the option.
-    pub fn validate(&self) -> Result<(), String> {
+    pub fn validate(&self) -> Result<(), ScreenSettingsError> {
         if !(self.fast_floor.is_finite() && self.fast_floor > 0.0) {
-            return Err(format!(
-                "--fast-floor {}: expected a number of seconds > 0 (default {DEFAULT_FAST_FLOOR})",
-                self.fast_floor
-            ));
+            return Err(ScreenSettingsError::FastFloor(self.fast_floor));
         }
-        for (name, limit) in [
+        for (option, limit) in [
             ("--trim-below", self.trim_below),
             ("--trim-above", self.trim_above),
         ] {
-            if let Some(x) = limit
-                && !(x.is_finite() && x > 0.0)
+            if let Some(value) = limit
+                && !(value.is_finite() && value > 0.0)
             {
-                return Err(format!(
-                    "{name} {x}: expected a response time in seconds > 0"
-                ));
+                return Err(ScreenSettingsError::TrimLimit { option, value });
             }
         }
         if self.responses_per_parameter == 0 {
-            return Err(format!(
-                "--responses-per-parameter 0: expected at least 1 response per free parameter \
-                 (default {TRIALS_PER_PARAMETER})"
-            ));
+            return Err(ScreenSettingsError::NoResponsesPerParameter);
         }
-        if let (Some(lo), Some(hi)) = (self.trim_below, self.trim_above)
-            && lo >= hi
+        if let (Some(below), Some(above)) = (self.trim_below, self.trim_above)
+            && below >= above
         {
-            return Err(format!(
-                "--trim-below {lo} is not below --trim-above {hi}: expected the lower limit \
-                 under the upper one (every time would be trimmed)"
-            ));
+            return Err(ScreenSettingsError::TrimLimitsCrossed { below, above });
         }
         Ok(())
     }
+}
+
+/// Settings of the screen that cannot be used, named by their command-line options.
+#[derive(Clone, Copy, Debug, PartialEq, thiserror::Error)]
+pub enum ScreenSettingsError {
+    /// A fast floor that is not a number of seconds > 0.
+    #[error("--fast-floor {0}: expected a number of seconds > 0 (default {DEFAULT_FAST_FLOOR})")]
+    FastFloor(f64),
+    /// A trimming limit that is not a response time > 0.
+    #[error("{option} {value}: expected a response time in seconds > 0")]
+    TrimLimit {
+        /// The option (`--trim-below` or `--trim-above`).
+        option: &'static str,
+        /// Its value.
+        value: f64,
+    },
+    /// No responses per free parameter.
+    #[error(
+        "--responses-per-parameter 0: expected at least 1 response per free parameter (default \
+         {TRIALS_PER_PARAMETER})"
+    )]
+    NoResponsesPerParameter,
+    /// A lower trimming limit that is not below the upper one.
+    #[error(
+        "--trim-below {below} is not below --trim-above {above}: expected the lower limit under \
+         the upper one (every time would be trimmed)"
+    )]
+    TrimLimitsCrossed {
+        /// The lower limit.
+        below: f64,
+        /// The upper limit.
+        above: f64,
+    },
 }
 
 /// Response times set aside for one subject.

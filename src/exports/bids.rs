@@ -39,26 +39,47 @@ pub fn dataset_description(model: &Model, caution: &str) -> serde_json::Value {
 
 /// BIDS labels of all subjects, in order; an error when a label would be empty or two subjects
 /// would share one.
-pub fn bids_labels(subjects: &[Subject]) -> Result<Vec<String>, String> {
+pub fn bids_labels(subjects: &[Subject]) -> Result<Vec<String>, BidsLabelError> {
     let mut labels: Vec<String> = Vec::with_capacity(subjects.len());
     let mut owner: HashMap<String, &str> = HashMap::new();
     for s in subjects {
-        let label = bids_label(&s.id).ok_or_else(|| {
-            format!(
-                "subject `{}` has no letter or digit, so it has no BIDS label",
-                s.id
-            )
+        let label = bids_label(&s.id).ok_or_else(|| BidsLabelError::Empty {
+            subject: s.id.clone(),
         })?;
         if let Some(other) = owner.insert(label.clone(), &s.id) {
-            return Err(format!(
-                "subjects `{other}` and `{}` would both get the BIDS label `{label}` \
-                 (labels keep letters and digits only); rename one of them",
-                s.id
-            ));
+            return Err(BidsLabelError::Shared {
+                first: other.to_string(),
+                second: s.id.clone(),
+                label,
+            });
         }
         labels.push(label);
     }
     Ok(labels)
+}
+
+/// Subjects that cannot get a BIDS label of their own.
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+pub enum BidsLabelError {
+    /// A subject label without letters or digits.
+    #[error("subject `{subject}` has no letter or digit, so it has no BIDS label")]
+    Empty {
+        /// The subject's label.
+        subject: String,
+    },
+    /// Two subjects whose labels differ only in other characters.
+    #[error(
+        "subjects `{first}` and `{second}` would both get the BIDS label `{label}` (labels keep \
+         letters and digits only); rename one of them"
+    )]
+    Shared {
+        /// The subject met first.
+        first: String,
+        /// The other subject.
+        second: String,
+        /// The label they share.
+        label: String,
+    },
 }
 
 /// The runs of a subject in order of appearance, each with its BIDS run index: the run label

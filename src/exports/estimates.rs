@@ -4,6 +4,7 @@
 use crate::data::Subject;
 use crate::files::InputError;
 use crate::model::Model;
+use crate::results::fit_folder::RunRecord;
 use std::collections::HashMap;
 use std::path::Path;
 
@@ -76,51 +77,10 @@ pub fn read_estimates(
 /// or a changed definition is an error; a changed definition is reported at the first line that
 /// differs, with both versions of that line.
 pub fn check_recorded_model(fits: &Path, model: &Model) -> Result<bool, InputError> {
-    let record_path = fits.join("run.json");
-    let text = match std::fs::read_to_string(&record_path) {
-        Ok(text) => text,
-        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(false),
-        Err(e) => {
-            return Err(InputError::file(
-                &record_path,
-                format!("cannot be read: {e}"),
-            ));
-        }
+    let Some(record) = RunRecord::read(fits)? else {
+        return Ok(false);
     };
-    let record: serde_json::Value = serde_json::from_str(&text).map_err(|e| {
-        InputError::file(
-            &record_path,
-            format!("is not the JSON run record written by `valuedrift fit`: {e}"),
-        )
-    })?;
-    let Some(models) = record.get("models").and_then(|m| m.as_array()) else {
-        return Err(InputError::file(
-            &record_path,
-            "has no `models` list (expected the run record written by `valuedrift fit`)",
-        ));
-    };
-    let name_of =
-        |m: &serde_json::Value| m.get("name").and_then(|n| n.as_str()).map(str::to_string);
-    let Some(recorded) = models
-        .iter()
-        .find(|m| name_of(m).as_deref() == Some(model.name.as_str()))
-    else {
-        let names: Vec<String> = models.iter().filter_map(name_of).collect();
-        return Err(InputError::file(
-            &record_path,
-            format!(
-                "records no fit of model {} (models fitted: {})",
-                model.name,
-                names.join(", ")
-            ),
-        ));
-    };
-    let Some(definition) = recorded.get("definition").and_then(|d| d.as_str()) else {
-        return Err(InputError::file(
-            &record_path,
-            format!("has no definition of model {}", model.name),
-        ));
-    };
+    let definition = record.definition_of(&model.name)?;
     if definition == model.text {
         return Ok(true);
     }
@@ -140,7 +100,7 @@ pub fn check_recorded_model(fits: &Path, model: &Model) -> Result<bool, InputErr
              need the fitted model: save the recorded definition as a .toml file and pass it \
              with --model, or fit again",
             model.name,
-            record_path.display(),
+            record.path.display(),
             show(then.get(line)),
             show(now.get(line)),
         ),

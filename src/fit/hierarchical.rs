@@ -198,7 +198,7 @@ pub fn fit_group(
     let design: Option<Design> = match scores {
         Some(scores) => {
             let ids: Vec<&str> = subjects.iter().map(|(_, s)| s.id.as_str()).collect();
-            Some(Design::new(scores, &ids).map_err(mismatch)?)
+            Some(Design::new(scores, &ids).map_err(|e| mismatch(e.to_string()))?)
         }
         None => None,
     };

@@ -203,23 +203,23 @@ impl Design {
     /// a participant without scores, fewer than p + 3 participants (so the residual covariance
     /// has at least 2 degrees of freedom), a score with one value for all of them and collinear
     /// scores.
-    pub fn new(scores: &SubjectScores, subjects: &[&str]) -> Result<Design, String> {
+    pub fn new(scores: &SubjectScores, subjects: &[&str]) -> Result<Design, DesignError> {
         let p = scores.names.len();
         let n = subjects.len();
         if n < p + 3 {
-            return Err(format!(
-                "{n} participants for {p} score{} in the group prior; expected at least {} \
-                 (the scores, the intercept and 2 degrees of freedom for the spread)",
-                if p == 1 { "" } else { "s" },
-                p + 3
-            ));
+            return Err(DesignError::TooFewParticipants {
+                participants: n,
+                scores: p,
+            });
         }
         let mut raw = Vec::with_capacity(n);
         for id in subjects {
             let s = scores
                 .values
                 .get(*id)
-                .ok_or_else(|| format!("participant {id:?} has no scores"))?;
+                .ok_or_else(|| DesignError::NoScores {
+                    participant: id.to_string(),
+                })?;
             raw.push(s.clone());
         }
         let mean: Vec<f64> = (0..p)
@@ -227,11 +227,11 @@ impl Design {
             .collect();
         for (l, name) in scores.names.iter().enumerate() {
             if raw.iter().all(|s| s[l] == raw[0][l]) {
-                return Err(format!(
-                    "score {name:?} is {} for all {n} participants; a score that does not vary \
-                     cannot be told from the intercept",
-                    raw[0][l]
-                ));
+                return Err(DesignError::Constant {
+                    score: name.clone(),
+                    value: raw[0][l],
+                    participants: n,
+                });
             }
         }
         let centres = if scores.centred {
@@ -274,16 +274,11 @@ impl Design {
             .copied()
             .fold(f64::INFINITY, f64::min);
         if smallest.is_nan() || smallest <= COLLINEAR {
-            return Err(format!(
-                "the scores {} are collinear{} among these {n} participants; give scores that \
-                 are not linear functions of each other",
-                scores.names.join(", "),
-                if scores.centred {
-                    ""
-                } else {
-                    " with the intercept (uncentred)"
-                }
-            ));
+            return Err(DesignError::Collinear {
+                scores: scores.names.clone(),
+                centred: scores.centred,
+                participants: n,
+            });
         }
         let mut terms = vec![INTERCEPT.to_string()];
         terms.extend(scores.names.iter().cloned());
@@ -298,6 +293,58 @@ impl Design {
     pub fn residual_df(&self) -> usize {
         self.rows.len() - self.terms.len()
     }
+}
+
+/// Why the participants of a group prior cannot carry a regression on their scores.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum DesignError {
+    /// Fewer than p + 3 participants for p scores.
+    #[error(
+        "{participants} participants for {scores} score{} in the group prior; expected at least \
+         {} (the scores, the intercept and 2 degrees of freedom for the spread)",
+        if *scores == 1 { "" } else { "s" },
+        scores + 3
+    )]
+    TooFewParticipants {
+        /// Participants of the prior.
+        participants: usize,
+        /// Scores in the regression.
+        scores: usize,
+    },
+    /// A participant without scores.
+    #[error("participant {participant:?} has no scores")]
+    NoScores {
+        /// The participant's label.
+        participant: String,
+    },
+    /// A score with one value for every participant.
+    #[error(
+        "score {score:?} is {value} for all {participants} participants; a score that does not \
+         vary cannot be told from the intercept"
+    )]
+    Constant {
+        /// The score's column.
+        score: String,
+        /// Its one value.
+        value: f64,
+        /// Participants of the prior.
+        participants: usize,
+    },
+    /// Scores that are linear functions of each other (or, uncentred, of the intercept).
+    #[error(
+        "the scores {} are collinear{} among these {participants} participants; give scores \
+         that are not linear functions of each other",
+        scores.join(", "),
+        if *centred { "" } else { " with the intercept (uncentred)" }
+    )]
+    Collinear {
+        /// The scores' columns.
+        scores: Vec<String>,
+        /// The scores were centred.
+        centred: bool,
+        /// Participants of the prior.
+        participants: usize,
+    },
 }
 
 /// Σ_i z_i z_iᵀ with columns scaled to unit length, D⁻¹ (ZᵀZ) D⁻¹, and the scales D.

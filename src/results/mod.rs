@@ -1,6 +1,9 @@
 //! Tidy result tables (CSV and Parquet) and the run record (JSON) of a fit.
 
+pub mod fit_folder;
 pub mod parameters_file;
+
+pub use fit_folder::EstimateSource;
 
 use crate::data::{ColumnMap, Subject, Trial, TrialTable};
 use crate::files::OutputSet;
@@ -207,12 +210,7 @@ pub fn parameters_table(fits: &[SubjectFit]) -> Table {
         Column::Flag(rows.iter().map(|r| r.1.at_bound).collect()),
         Column::Flag(rows.iter().map(|r| r.1.fixed).collect()),
     ];
-    parameters_file::COLUMNS
-        .iter()
-        .zip(columns)
-        .fold(Table::default(), |table, (name, column)| {
-            table.with(name, column)
-        })
+    named(&parameters_file::COLUMNS, columns)
 }
 
 /// One row per subject and model: `subject`, `group`, `model`, then for every parameter
@@ -347,37 +345,41 @@ pub fn summary_table(fits: &[SubjectFit]) -> Table {
     let integer =
         |f: fn(&SubjectFit) -> usize| Column::Integer(fits.iter().map(|x| f(x) as i64).collect());
     let flag = |f: fn(&SubjectFit) -> bool| Column::Flag(fits.iter().map(f).collect());
-    Table::default()
-        .with("subject", text(|f| f.subject.clone()))
-        .with("group", text(|f| f.group.clone()))
-        .with("model", text(|f| f.model.clone()))
-        .with(
-            "scored",
-            text(|f| {
-                if f.scores_response_times {
-                    "choices_and_times".to_string()
-                } else {
-                    "choices".to_string()
-                }
-            }),
-        )
-        .with("n_trials", integer(|f| f.n_trials))
-        .with("n_params", integer(|f| f.n_params))
-        .with("log_likelihood", number(|f| f.log_likelihood))
-        .with("log_prior", number(|f| f.log_prior))
-        .with("aic", number(|f| f.aic))
-        .with("bic", number(|f| f.bic))
-        .with(
-            "log_evidence_laplace",
-            Column::Number(fits.iter().map(|f| f.log_evidence).collect()),
-        )
-        .with("starts_at_best", integer(|f| f.starts_at_best))
-        .with("starts", integer(|f| f.starts))
-        .with("converged", flag(|f| f.converged))
-        .with("status", text(|f| f.status.clone()))
-        .with("hessian_ok", flag(|f| f.hessian_ok))
-        .with("gradient_norm", number(|f| f.gradient_norm))
-        .with("termination", text(|f| f.termination.clone()))
+    let columns = [
+        text(|f| f.subject.clone()),
+        text(|f| f.group.clone()),
+        text(|f| f.model.clone()),
+        text(|f| {
+            fit_folder::Scored::of(f.scores_response_times)
+                .label()
+                .to_string()
+        }),
+        integer(|f| f.n_trials),
+        integer(|f| f.n_params),
+        number(|f| f.log_likelihood),
+        number(|f| f.log_prior),
+        number(|f| f.aic),
+        number(|f| f.bic),
+        Column::Number(fits.iter().map(|f| f.log_evidence).collect()),
+        integer(|f| f.starts_at_best),
+        integer(|f| f.starts),
+        flag(|f| f.converged),
+        text(|f| f.status.clone()),
+        flag(|f| f.hessian_ok),
+        number(|f| f.gradient_norm),
+        text(|f| f.termination.clone()),
+    ];
+    named(&fit_folder::SUMMARY_COLUMNS, columns)
+}
+
+/// A table of `columns` under `names`, in order.
+fn named<const N: usize>(names: &[&str; N], columns: [Column; N]) -> Table {
+    names
+        .iter()
+        .zip(columns)
+        .fold(Table::default(), |table, (name, column)| {
+            table.with(name, column)
+        })
 }
 
 /// One row per model, scope and free parameter of empirical-Bayes fits: the group distribution
@@ -519,38 +521,6 @@ pub fn group_evidence_table(groups: &[crate::fit::GroupFit]) -> Table {
             "subjects_without_covariance",
             integer(|g| g.subjects_without_covariance),
         )
-}
-
-/// Which per-subject estimates of a fit folder a later command reads.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
-pub enum EstimateSource {
-    /// The per-subject fits (maximum likelihood, or MAP with declared priors).
-    PerSubject,
-    /// The shrunken estimates under the group prior of `fit --hierarchical`.
-    EmpiricalBayes,
-}
-
-impl EstimateSource {
-    /// File stem of the parameters table of this source in a fit folder.
-    pub fn parameters_stem(self) -> &'static str {
-        match self {
-            EstimateSource::PerSubject => "parameters",
-            EstimateSource::EmpiricalBayes => "eb_parameters",
-        }
-    }
-
-    /// File stem of the fit summary table of this source in a fit folder.
-    pub fn summary_stem(self) -> &'static str {
-        match self {
-            EstimateSource::PerSubject => "fit_summary",
-            EstimateSource::EmpiricalBayes => "eb_fit_summary",
-        }
-    }
-
-    /// The parameters table of this source in fit folder `dir`.
-    pub fn parameters_file(self, dir: &Path) -> std::path::PathBuf {
-        dir.join(format!("{}.csv", self.parameters_stem()))
-    }
 }
 
 /// One row per model, scope and pair of free parameters of empirical-Bayes fits with a full

@@ -249,7 +249,7 @@ fn labels_and_run_indices_follow_the_bids_rules() {
     let mut b = worked_subject();
     a.id = "s-1".into();
     b.id = "s_1".into();
-    let err = bids_labels(&[a, b.clone()]).unwrap_err();
+    let err = bids_labels(&[a, b.clone()]).unwrap_err().to_string();
     assert!(err.contains("s-1") && err.contains("s_1"), "{err}");
     // Positive integer run labels are kept; other labels get their order of appearance.
     let runs = run_indices(&worked_subject());

@@ -11,6 +11,7 @@ mod first_passage_properties;
 mod first_passage_reference;
 mod first_passage_sampler;
 mod fit_behaviour;
+mod fit_folder;
 mod fit_optima;
 mod fitted_inputs;
 mod group_prior_covariates;

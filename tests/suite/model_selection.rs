@@ -710,7 +710,7 @@ fn what_a_likelihood_scored_is_read_from_the_summary_for_models_of_any_name() {
         }
     }
     std::fs::write(&path, text).unwrap();
-    let rows = valuedrift::group::selection::read_fit_summary(&path, "group").unwrap();
+    let rows = valuedrift::results::fit_folder::read_fit_summary(&path, "group").unwrap();
     let comparison = valuedrift::group::selection::assemble(
         &path,
         &rows,

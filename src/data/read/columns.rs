@@ -36,6 +36,124 @@ pub(super) const PAIRS: [(&str, &str); 3] = [
     ("outcome_if_a", "outcome_if_b"),
 ];
 
+/// A column mapping, choice code or missing-value token that cannot be used: what was given and
+/// what was expected.
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+pub enum ColumnMapError {
+    /// A column mapping without `=`.
+    #[error(
+        "column mapping `{item}` has no `=`: expected canonical=file, e.g. subject=participant"
+    )]
+    MappingWithoutEquals {
+        /// The mapping as given.
+        item: String,
+    },
+    /// A canonical name that is not one of ours.
+    #[error(
+        "unknown column `{column}` in column mapping `{item}`; valid columns are: {}",
+        CANONICAL.join(", ")
+    )]
+    UnknownColumn {
+        /// The name given.
+        column: String,
+        /// The mapping as given.
+        item: String,
+    },
+    /// A mapping without a file column name.
+    #[error("column mapping `{item}` gives no file column name for `{column}`")]
+    NoFileColumn {
+        /// The mapping as given.
+        item: String,
+        /// The canonical column.
+        column: String,
+    },
+    /// A canonical column mapped twice.
+    #[error("column `{column}` is mapped more than once")]
+    MappedTwice {
+        /// The canonical column.
+        column: String,
+    },
+    /// Two canonical columns read from one file column.
+    #[error("columns `{first}` and `{second}` would both be read from file column `{file}`")]
+    SameFileColumn {
+        /// The first canonical column (in canonical order).
+        first: &'static str,
+        /// The second.
+        second: &'static str,
+        /// The file column.
+        file: String,
+    },
+    /// A choice code without `=`.
+    #[error("choice code `{item}` has no `=`: expected code=a or code=b, e.g. 1=a,2=b")]
+    CodeWithoutEquals {
+        /// The code as given.
+        item: String,
+    },
+    /// A choice code that maps to something other than an option label.
+    #[error("choice code `{item}` maps to `{option}`; expected an option a, b, c, …, e.g. 1=a,2=b")]
+    NotAnOption {
+        /// The code as given.
+        item: String,
+        /// What it maps to.
+        option: String,
+    },
+    /// A choice code with nothing before `=`.
+    #[error(
+        "choice code `{item}` has no code before `=`; expected code=a or code=b (an empty cell \
+         is always no response)"
+    )]
+    EmptyCode {
+        /// The code as given.
+        item: String,
+    },
+    /// A choice code given twice.
+    #[error("choice code `{code}` is given more than once")]
+    CodeTwice {
+        /// The code.
+        code: String,
+    },
+    /// A choice code that is also a missing-value token.
+    #[error(
+        "choice code `{code}` is also a missing-value token (--missing); expected it in only one \
+         of them"
+    )]
+    CodeIsMissingToken {
+        /// The code.
+        code: String,
+    },
+    /// Choice codes without a code for option a or b.
+    #[error(
+        "choice codes `{spec}` give no code for option {option}; expected at least one code for \
+         each of a and b, e.g. 1=a,2=b"
+    )]
+    NoCodeFor {
+        /// The codes as given.
+        spec: String,
+        /// The option without a code.
+        option: &'static str,
+    },
+    /// An empty missing-value token.
+    #[error(
+        "missing-value tokens `{spec}` include an empty token; expected tokens such as NA,NaN \
+         separated by single commas (empty cells are always missing)"
+    )]
+    EmptyToken {
+        /// The tokens as given.
+        spec: String,
+    },
+    /// A missing-value token that is also a choice code.
+    #[error(
+        "missing-value token `{token}` is also the choice code `{code}`; expected it in only one \
+         of them"
+    )]
+    TokenIsCode {
+        /// The token.
+        token: String,
+        /// The choice code, as given.
+        code: String,
+    },
+}
+
 /// How a file's columns and codes map to ours: column names, and optionally the file's choice
 /// codes and missing-value tokens.
 ///
@@ -69,7 +187,7 @@ impl ColumnMap {
 
     /// Parses `canonical=file` pairs separated by commas. Unknown canonical names, a name given
     /// twice, empty names and two canonical columns read from the same file column are errors.
-    pub fn parse(spec: &str) -> Result<ColumnMap, String> {
+    pub fn parse(spec: &str) -> Result<ColumnMap, ColumnMapError> {
         let mut map = ColumnMap::default();
         let mut given = [false; CANONICAL.len()];
         for item in spec.split(',') {
@@ -77,40 +195,43 @@ impl ColumnMap {
             if item.is_empty() {
                 continue;
             }
+            let item_text = || item.to_string();
             let Some((canonical, file)) = item.split_once('=') else {
-                return Err(format!(
-                    "column mapping `{item}` has no `=`: expected canonical=file, \
-                     e.g. subject=participant"
-                ));
+                return Err(ColumnMapError::MappingWithoutEquals { item: item_text() });
             };
             let (canonical, file) = (canonical.trim(), file.trim());
             let Some(index) = CANONICAL.iter().position(|c| *c == canonical) else {
-                return Err(format!(
-                    "unknown column `{canonical}` in column mapping `{item}`; valid columns are: {}",
-                    CANONICAL.join(", ")
-                ));
+                return Err(ColumnMapError::UnknownColumn {
+                    column: canonical.to_string(),
+                    item: item_text(),
+                });
             };
             if file.is_empty() {
-                return Err(format!(
-                    "column mapping `{item}` gives no file column name for `{canonical}`"
-                ));
+                return Err(ColumnMapError::NoFileColumn {
+                    item: item_text(),
+                    column: canonical.to_string(),
+                });
             }
             if given[index] {
-                return Err(format!("column `{canonical}` is mapped more than once"));
+                return Err(ColumnMapError::MappedTwice {
+                    column: canonical.to_string(),
+                });
             }
             given[index] = true;
             map.file[index] = file.to_string();
         }
-        let named: Vec<(&str, &str)> = CANONICAL
+        let named: Vec<(&'static str, &str)> = CANONICAL
             .iter()
             .zip(&map.file)
             .map(|(c, f)| (*c, f.as_str()))
             .collect();
         for (i, (first, file)) in named.iter().enumerate() {
             if let Some((second, _)) = named[i + 1..].iter().find(|(_, f)| f == file) {
-                return Err(format!(
-                    "columns `{first}` and `{second}` would both be read from file column `{file}`"
-                ));
+                return Err(ColumnMapError::SameFileColumn {
+                    first,
+                    second,
+                    file: file.to_string(),
+                });
             }
         }
         Ok(map)
@@ -121,45 +242,42 @@ impl ColumnMap {
     /// `accept=a,reject=b` (codes compared without regard to ASCII case, after trimming). An
     /// empty `spec` keeps the side labels. Each code once; a and b must have a code; a code may
     /// not also be a missing-value token.
-    pub fn with_choice_codes(mut self, spec: &str) -> Result<ColumnMap, String> {
+    pub fn with_choice_codes(mut self, spec: &str) -> Result<ColumnMap, ColumnMapError> {
         let mut codes: Vec<(String, Choice)> = Vec::new();
         for item in spec.split(',').map(str::trim).filter(|i| !i.is_empty()) {
+            let item_text = || item.to_string();
             let Some((code, option)) = item.split_once('=') else {
-                return Err(format!(
-                    "choice code `{item}` has no `=`: expected code=a or code=b, e.g. 1=a,2=b"
-                ));
+                return Err(ColumnMapError::CodeWithoutEquals { item: item_text() });
             };
             let (code, option) = (code.trim(), option.trim());
             let Some(choice) = Choice::from_label(option) else {
-                return Err(format!(
-                    "choice code `{item}` maps to `{option}`; expected an option a, b, c, …, \
-                     e.g. 1=a,2=b"
-                ));
+                return Err(ColumnMapError::NotAnOption {
+                    item: item_text(),
+                    option: option.to_string(),
+                });
             };
             if code.is_empty() {
-                return Err(format!(
-                    "choice code `{item}` has no code before `=`; expected code=a or code=b \
-                     (an empty cell is always no response)"
-                ));
+                return Err(ColumnMapError::EmptyCode { item: item_text() });
             }
             if codes.iter().any(|(c, _)| c.eq_ignore_ascii_case(code)) {
-                return Err(format!("choice code `{code}` is given more than once"));
+                return Err(ColumnMapError::CodeTwice {
+                    code: code.to_string(),
+                });
             }
             if self.is_missing_token(code) {
-                return Err(format!(
-                    "choice code `{code}` is also a missing-value token (--missing); expected \
-                     it in only one of them"
-                ));
+                return Err(ColumnMapError::CodeIsMissingToken {
+                    code: code.to_string(),
+                });
             }
             codes.push((code.to_string(), choice));
         }
         if !codes.is_empty() {
-            for (choice, name) in [(Choice::A, "a"), (Choice::B, "b")] {
+            for (choice, option) in [(Choice::A, "a"), (Choice::B, "b")] {
                 if !codes.iter().any(|(_, c)| *c == choice) {
-                    return Err(format!(
-                        "choice codes `{spec}` give no code for option {name}; expected at least \
-                         one code for each of a and b, e.g. 1=a,2=b"
-                    ));
+                    return Err(ColumnMapError::NoCodeFor {
+                        spec: spec.to_string(),
+                        option,
+                    });
                 }
             }
         }
@@ -171,27 +289,26 @@ impl ColumnMap {
     /// (such as `NA,NaN,N/A,.`; compared without regard to ASCII case, after trimming) as missing,
     /// like an empty cell, in every column. In Parquet files a token `NaN` also matches
     /// floating-point NaN, and a numeric token (such as `-99`) matches that number.
-    pub fn with_missing(mut self, spec: &str) -> Result<ColumnMap, String> {
+    pub fn with_missing(mut self, spec: &str) -> Result<ColumnMap, ColumnMapError> {
         let mut tokens: Vec<String> = Vec::new();
         for token in spec.split(',').map(str::trim) {
             if token.is_empty() {
                 if spec.trim().is_empty() {
                     continue;
                 }
-                return Err(format!(
-                    "missing-value tokens `{spec}` include an empty token; expected tokens such \
-                     as NA,NaN separated by single commas (empty cells are always missing)"
-                ));
+                return Err(ColumnMapError::EmptyToken {
+                    spec: spec.to_string(),
+                });
             }
             if let Some((code, _)) = self
                 .choice_codes
                 .iter()
                 .find(|(c, _)| c.eq_ignore_ascii_case(token))
             {
-                return Err(format!(
-                    "missing-value token `{token}` is also the choice code `{code}`; expected it \
-                     in only one of them"
-                ));
+                return Err(ColumnMapError::TokenIsCode {
+                    token: token.to_string(),
+                    code: code.clone(),
+                });
             }
             if !tokens.iter().any(|t| t.eq_ignore_ascii_case(token)) {
                 tokens.push(token.to_string());
@@ -242,7 +359,7 @@ impl ColumnMap {
 }
 
 impl FromStr for ColumnMap {
-    type Err = String;
+    type Err = ColumnMapError;
 
     fn from_str(spec: &str) -> Result<Self, Self::Err> {
         ColumnMap::parse(spec)

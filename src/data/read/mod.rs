@@ -12,7 +12,7 @@ mod delimited;
 mod parquet;
 mod rows;
 
-pub use columns::ColumnMap;
+pub use columns::{ColumnMap, ColumnMapError};
 
 use std::path::Path;
 

@@ -1,7 +1,9 @@
-//! Per-subject evidence: fit_summary.csv read back, what each likelihood scored, the comparison
-//! set of models and subjects, log-sum-exp and information-criterion weights.
+//! Per-subject evidence from the rows of a fit summary table
+//! ([`crate::results::fit_folder::read_fit_summary`]): what each likelihood scored, the
+//! comparison set of models and subjects, log-sum-exp and information-criterion weights.
 
-use crate::files::{InputError, csv_rows, finite_number};
+use crate::files::InputError;
+use crate::results::fit_folder::{self, FitRecord, Scored};
 use std::collections::BTreeMap;
 use std::path::Path;
 
@@ -29,128 +31,6 @@ impl Evidence {
     }
 }
 
-/// One row of `fit_summary.csv`.
-#[derive(Clone, Debug, PartialEq)]
-pub struct FitRecord {
-    /// Subject label.
-    pub subject: String,
-    /// Value of the `--by` column.
-    pub group: String,
-    /// Model name.
-    pub model: String,
-    /// Trials in the likelihood.
-    pub n_trials: i64,
-    /// Free parameters.
-    pub n_params: i64,
-    /// Akaike information criterion.
-    pub aic: f64,
-    /// Bayesian information criterion.
-    pub bic: f64,
-    /// Laplace log evidence, when the file has it for this row.
-    pub log_evidence_laplace: Option<f64>,
-    /// What the likelihood scored (column `scored`: `choices_and_times` or `choices`), when the
-    /// file records it.
-    pub scored: Option<DataKind>,
-    /// Line in the file (header = line 1).
-    pub line: u64,
-}
-
-/// Reads `fit_summary.csv` of `valuedrift fit`, grouping by column `by`. The column
-/// `log_evidence_laplace` is optional and may be empty. Errors name the file, line (header =
-/// line 1) and column.
-pub fn read_fit_summary(path: &Path, by: &str) -> Result<Vec<FitRecord>, InputError> {
-    let (mut reader, header) = crate::files::open_csv(path)?;
-    let find = |name: &str| crate::files::column_index(path, &header, name);
-    let [subject_c, model_c, trials_c, params_c, aic_c, bic_c] = [
-        find("subject")?,
-        find("model")?,
-        find("n_trials")?,
-        find("n_params")?,
-        find("aic")?,
-        find("bic")?,
-    ];
-    let by_c = find(by)?;
-    let laplace_c = header.iter().position(|h| h == "log_evidence_laplace");
-    let scored_c = header.iter().position(|h| h == "scored");
-    let mut seen: BTreeMap<(String, String), u64> = BTreeMap::new();
-    let mut out = Vec::new();
-    for row in csv_rows(path, &mut reader) {
-        let (line, record) = row?;
-        let cell = |c: usize| record.get(c).unwrap_or("");
-        let number = |c: usize, name: &str| finite_number(path, line, name, cell(c));
-        let count = |c: usize, name: &str| -> Result<i64, InputError> {
-            let text = cell(c);
-            text.parse::<i64>().ok().filter(|&x| x >= 0).ok_or_else(|| {
-                InputError::at(
-                    path,
-                    line,
-                    name,
-                    format!("'{text}' is not a whole number ≥ 0"),
-                )
-            })
-        };
-        let text = |c: usize, name: &str| -> Result<String, InputError> {
-            match cell(c) {
-                "" => Err(InputError::at(
-                    path,
-                    line,
-                    name,
-                    format!("empty {name} (expected a label)"),
-                )),
-                t => Ok(t.to_string()),
-            }
-        };
-        let subject = text(subject_c, "subject")?;
-        let model = text(model_c, "model")?;
-        let group = text(by_c, by)?;
-        let log_evidence_laplace = match laplace_c {
-            Some(c) if !cell(c).is_empty() => Some(number(c, "log_evidence_laplace")?),
-            _ => None,
-        };
-        let scored = match scored_c.map(cell) {
-            None | Some("") => None,
-            Some("choices_and_times") => Some(DataKind::ChoicesAndTimes),
-            Some("choices") => Some(DataKind::ChoicesOnly),
-            Some(other) => {
-                return Err(InputError::at(
-                    path,
-                    line,
-                    "scored",
-                    format!("'{other}': expected choices_and_times or choices"),
-                ));
-            }
-        };
-        let row = FitRecord {
-            scored,
-            n_trials: count(trials_c, "n_trials")?,
-            n_params: count(params_c, "n_params")?,
-            aic: number(aic_c, "aic")?,
-            bic: number(bic_c, "bic")?,
-            log_evidence_laplace,
-            line,
-            subject,
-            group,
-            model,
-        };
-        if let Some(first) = seen.insert((row.subject.clone(), row.model.clone()), line) {
-            return Err(InputError::at(
-                path,
-                line,
-                "model",
-                format!(
-                    "subject '{}' has model '{}' twice (first on line {first})",
-                    row.subject, row.model
-                ),
-            ));
-        }
-        out.push(row);
-    }
-    if out.is_empty() {
-        return Err(InputError::file(path, "has no data rows"));
-    }
-    Ok(out)
-}
-
 /// What a model's likelihood is a likelihood of.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum DataKind {
@@ -162,13 +42,22 @@ pub enum DataKind {
     Unknown,
 }
 
+impl From<Scored> for DataKind {
+    fn from(scored: Scored) -> DataKind {
+        match scored {
+            Scored::ChoicesAndTimes => DataKind::ChoicesAndTimes,
+            Scored::Choices => DataKind::ChoicesOnly,
+        }
+    }
+}
+
 /// The data kind of `model` in `rows`: as recorded in the `scored` column of fit_summary.csv
 /// (written by every fit since it exists), else by name for built-in models, else unknown.
 pub fn recorded_data_kind(model: &str, rows: &[FitRecord]) -> DataKind {
     rows.iter()
         .find(|r| r.model == model)
         .and_then(|r| r.scored)
-        .unwrap_or_else(|| data_kind(model))
+        .map_or_else(|| data_kind(model), DataKind::from)
 }
 
 /// The data kind of a model by name: known for built-in models
@@ -255,9 +144,10 @@ pub fn assemble(
         .collect();
     if !unknown.is_empty() {
         notes.push(format!(
-            "what the likelihood scored is not recorded for ({}) (a fit_summary.csv without its \
-             `scored` column): make sure every compared likelihood is of the same data",
-            unknown.join(", ")
+            "what the likelihood scored is not recorded for ({}) (a {} without its `scored` \
+             column): make sure every compared likelihood is of the same data",
+            unknown.join(", "),
+            fit_folder::SUMMARY.csv()
         ));
     }
     if models.len() < 2 {
@@ -346,9 +236,11 @@ pub fn assemble(
                         format!(
                             "--evidence laplace needs the Laplace log evidence of subject '{}', \
                              model '{}', which is missing or empty (it is written for fits with \
-                             priors, and in eb_fit_summary.csv of `fit --hierarchical`: \
-                             --summary eb_fit_summary.csv); use --evidence bic or aic",
-                            r.subject, r.model
+                             priors, and in {eb} of `fit --hierarchical`: --summary {eb}); use \
+                             --evidence bic or aic",
+                            r.subject,
+                            r.model,
+                            eb = fit_folder::EB_SUMMARY.csv()
                         ),
                     )
                 })?,

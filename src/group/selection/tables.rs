@@ -21,6 +21,25 @@ pub struct Selection {
 /// Scope label of the pooled comparison over all subjects.
 pub const POOLED_SCOPE: &str = "all";
 
+/// Why [`select`] cannot select.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum SelectionError {
+    /// The pooled selection failed.
+    #[error(transparent)]
+    Pooled(#[from] BmsError),
+    /// A group has the label of the pooled scope.
+    #[error("a group is labelled '{POOLED_SCOPE}', the name of the pooled scope: relabel it")]
+    PooledLabel,
+    /// The selection within a group failed.
+    #[error("group '{group}': {error}")]
+    Group {
+        /// The group's label.
+        group: String,
+        /// Why.
+        error: BmsError,
+    },
+}
+
 /// Runs [`random_effects_bms`] on all subjects (scope `all`, stream 0) and, with two or more
 /// groups, on each group (streams 1, 2, … in byte order of the labels), and the between-group
 /// test. A group labelled [`POOLED_SCOPE`] is refused.
@@ -28,7 +47,7 @@ pub fn select(
     comparison: Comparison,
     evidence: Evidence,
     options: &BmsOptions,
-) -> Result<Selection, String> {
+) -> Result<Selection, SelectionError> {
     let pooled = random_effects_bms(
         &comparison.log_evidence,
         &BmsOptions {
@@ -38,9 +57,7 @@ pub fn select(
     )?;
     let labels: BTreeSet<&str> = comparison.groups.iter().map(String::as_str).collect();
     if labels.len() >= 2 && labels.contains(POOLED_SCOPE) {
-        return Err(format!(
-            "a group is labelled '{POOLED_SCOPE}', the name of the pooled scope: relabel it"
-        ));
+        return Err(SelectionError::PooledLabel);
     }
     let mut scopes = vec![(POOLED_SCOPE.to_string(), pooled)];
     if labels.len() >= 2 {
@@ -59,7 +76,10 @@ pub fn select(
                     ..*options
                 },
             )
-            .map_err(|e| format!("group '{label}': {e}"))?;
+            .map_err(|error| SelectionError::Group {
+                group: label.to_string(),
+                error,
+            })?;
             scopes.push((label.to_string(), bms));
         }
     }

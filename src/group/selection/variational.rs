@@ -232,6 +232,48 @@ pub struct Bms {
     pub converged: bool,
 }
 
+/// Log evidence (or settings) that [`random_effects_bms`] cannot select with; subjects are
+/// counted from 1.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum BmsError {
+    /// No subject, or fewer than two models.
+    #[error(
+        "model selection needs at least one subject and two models (got {subjects} subjects, \
+         {models} models)"
+    )]
+    TooFew {
+        /// Subjects given.
+        subjects: usize,
+        /// Models of the first subject.
+        models: usize,
+    },
+    /// A subject with another number of log evidences than the first.
+    #[error("subject {subject} has {found} log evidences, expected {expected}")]
+    Ragged {
+        /// The subject.
+        subject: usize,
+        /// Its log evidences.
+        found: usize,
+        /// Those of the first subject.
+        expected: usize,
+    },
+    /// A log evidence that is not finite.
+    #[error("subject {subject} has a log evidence that is not finite")]
+    NotFinite {
+        /// The subject.
+        subject: usize,
+    },
+    /// A prior count α₀ that is not > 0.
+    #[error("prior count α₀ = {0} must be > 0")]
+    PriorCount(f64),
+    /// Posterior counts of which not all are positive.
+    #[error("posterior counts {alpha:?} are not all positive")]
+    PosteriorCounts {
+        /// The posterior counts α.
+        alpha: Vec<f64>,
+    },
+}
+
 /// Random-effects Bayesian model selection (Stephan et al. 2009) with the omnibus risk and
 /// protected exceedance probabilities of Rigoux et al. (2014): [`variational_dirichlet`],
 /// [`free_energy`], [`null_free_energy`], [`bayesian_omnibus_risk`], exceedance probabilities
@@ -239,32 +281,32 @@ pub struct Bms {
 /// ([`exceedance_monte_carlo`], ChaCha8 seeded by `options.seed` on stream `options.stream`),
 /// and [`protected_exceedance`]. `log_evidence[n][k]` is subject n, model k. Errors on fewer than
 /// two models, no subjects, ragged rows, non-finite log evidence or α₀ ≤ 0.
-pub fn random_effects_bms(log_evidence: &[Vec<f64>], options: &BmsOptions) -> Result<Bms, String> {
+pub fn random_effects_bms(
+    log_evidence: &[Vec<f64>],
+    options: &BmsOptions,
+) -> Result<Bms, BmsError> {
     let k = log_evidence.first().map_or(0, Vec::len);
     if log_evidence.is_empty() || k < 2 {
-        return Err(format!(
-            "model selection needs at least one subject and two models (got {} subjects, {k} models)",
-            log_evidence.len()
-        ));
+        return Err(BmsError::TooFew {
+            subjects: log_evidence.len(),
+            models: k,
+        });
     }
     if let Some(n) = log_evidence.iter().position(|r| r.len() != k) {
-        return Err(format!(
-            "subject {} has {} log evidences, expected {k}",
-            n + 1,
-            log_evidence[n].len()
-        ));
+        return Err(BmsError::Ragged {
+            subject: n + 1,
+            found: log_evidence[n].len(),
+            expected: k,
+        });
     }
     if let Some(n) = log_evidence
         .iter()
         .position(|r| r.iter().any(|x| !x.is_finite()))
     {
-        return Err(format!(
-            "subject {} has a log evidence that is not finite",
-            n + 1
-        ));
+        return Err(BmsError::NotFinite { subject: n + 1 });
     }
     if !(options.alpha0.is_finite() && options.alpha0 > 0.0) {
-        return Err(format!("prior count α₀ = {} must be > 0", options.alpha0));
+        return Err(BmsError::PriorCount(options.alpha0));
     }
     let (alpha, assignment, iterations, converged) = variational_dirichlet(
         log_evidence,
@@ -280,8 +322,11 @@ pub fn random_effects_bms(log_evidence: &[Vec<f64>], options: &BmsOptions) -> Re
         let mut rng = ChaCha8Rng::seed_from_u64(options.seed);
         rng.set_stream(options.stream);
         let samples = options.samples.max(1);
-        let exceedance = exceedance_monte_carlo(&alpha, samples, &mut rng)
-            .ok_or_else(|| format!("posterior counts {alpha:?} are not all positive"))?;
+        let exceedance = exceedance_monte_carlo(&alpha, samples, &mut rng).ok_or_else(|| {
+            BmsError::PosteriorCounts {
+                alpha: alpha.clone(),
+            }
+        })?;
         let se = exceedance
             .iter()
             .map(|p| (p * (1.0 - p) / samples as f64).sqrt())

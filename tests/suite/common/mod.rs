@@ -13,6 +13,17 @@ pub fn bin() -> Command {
     Command::new(env!("CARGO_BIN_EXE_valuedrift"))
 }
 
+/// Runs `command` and asserts that it succeeded, showing its error output when not.
+pub fn succeed(command: &mut Command) -> std::process::Output {
+    let output = command.output().unwrap();
+    assert!(
+        output.status.success(),
+        "{}",
+        String::from_utf8_lossy(&output.stderr)
+    );
+    output
+}
+
 /// A file of demo-data/.
 pub fn demo_file(name: &str) -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR"))
