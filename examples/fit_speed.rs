@@ -4,7 +4,8 @@
 //! values inside the documented ranges), fits each with 10 starts on one thread, and prints as
 //! its last line `seconds_per_subject=X likelihoods_per_second=Y` (Y counts likelihood-with-
 //! gradient evaluations of one subject's 300 trials). Run with
-//! `cargo run --release --example fit_speed`.
+//! `cargo run --release --example fit_speed`; another built-in model may be named as the
+//! argument (for example `-- gainloss-wald-race`).
 
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -18,7 +19,10 @@ const SUBJECTS: usize = 8;
 const TRIALS: usize = 300;
 
 fn main() {
-    let model = load_model("gainloss-linear").expect("built-in model");
+    let name = std::env::args()
+        .nth(1)
+        .unwrap_or_else(|| "gainloss-linear".into());
+    let model = load_model(&name).expect("a built-in model");
     let mut rng = ChaCha8Rng::seed_from_u64(7);
     let subjects: Vec<_> = (0..SUBJECTS)
         .map(|i| {
@@ -32,6 +36,10 @@ fn main() {
                     "value_scale" => rng.random_range(2.0..8.0),
                     "boundary" => rng.random_range(1.0..2.5),
                     "ndt" => rng.random_range(0.2..0.5),
+                    "drift_intercept" => rng.random_range(0.5..1.5),
+                    "threshold" => rng.random_range(1.0..2.0),
+                    "start_range" => rng.random_range(0.3..1.0),
+                    "threshold_gap" => rng.random_range(0.2..0.8),
                     _ => p.fixed.expect("other parameters are fixed"),
                 })
                 .collect();
@@ -71,7 +79,7 @@ fn main() {
     let per_subject = start.elapsed().as_secs_f64() / SUBJECTS as f64;
     assert!(sink.is_finite());
     println!(
-        "{SUBJECTS} subjects x {TRIALS} trials, {} starts, 1 thread",
+        "{SUBJECTS} subjects x {TRIALS} trials of model {name}, {} starts, 1 thread",
         options.starts
     );
     println!("seconds_per_subject={per_subject:.3} likelihoods_per_second={per_second:.0}");

@@ -5,6 +5,7 @@
 use crate::data::{Choice, Subject};
 use crate::likelihood::{DataMismatch, SubjectLikelihood};
 use crate::model::Model;
+use crate::model::components::Signal;
 use crate::results::{Column, Table};
 
 /// Every model quantity of one trial, with the trial's identifiers.
@@ -43,8 +44,10 @@ pub struct Latent {
     pub prediction_error: Option<f64>,
     /// Effort demanded by the chosen option.
     pub effort_chosen: Option<f64>,
-    /// Drift rate (diffusion models only).
+    /// Drift rate (two-bound diffusion models only).
     pub drift: Option<f64>,
+    /// Drift of each offered option's accumulator (race models only; empty otherwise).
+    pub option_drifts: Vec<f64>,
     /// The choice stage's input: the drift, or the softmax argument.
     pub decision_signal: f64,
     /// Model probability of the choice made.
@@ -77,7 +80,7 @@ pub fn latents(
     natural: &[f64],
 ) -> Result<Vec<Latent>, DataMismatch> {
     let likelihood = SubjectLikelihood::new(model, subject, None)?;
-    let diffusion = model.uses_response_times();
+    let signal = model.signal();
     let traces = likelihood.trace(natural);
     let varying: Vec<usize> = (0..model.component_parameters.len())
         .filter(|&k| model.component_varies(k))
@@ -108,7 +111,12 @@ pub fn latents(
                 value_difference: (sv.len() == 2).then(|| sv[0] - sv[1]),
                 prediction_error: tr.prediction_error,
                 effort_chosen: chosen.map(|c| c.2),
-                drift: diffusion.then(|| tr.signal[0]),
+                drift: (signal == Signal::DriftDifference).then(|| tr.signal[0]),
+                option_drifts: if signal == Signal::DriftPerOption {
+                    tr.signal.clone()
+                } else {
+                    Vec::new()
+                },
                 decision_signal: tr.decision_signal(),
                 choice_probability: chosen.map(|c| c.3),
                 expected_decision_time: tr.expected_times.map(|e| e.0),
@@ -125,7 +133,8 @@ pub fn latents(
 }
 
 /// One row per trial; missing values are empty (CSV) or null (Parquet). Values are raw. Per
-/// option: `value_<side>` and `subjective_value_<side>`; per component parameter that varies
+/// option: `value_<side>` and `subjective_value_<side>`, and for race models `drift_<side>`
+/// (the drift of that option's accumulator); per component parameter that varies
 /// over trials (`varying`, from [`varying_parameter_names`]): `<name>_on_trial`.
 pub fn latents_table(rows: &[Latent], varying: &[String]) -> Table {
     let text = |f: &dyn Fn(&Latent) -> String| Column::Text(rows.iter().map(f).collect());
@@ -174,6 +183,22 @@ pub fn latents_table(rows: &[Latent], varying: &[String]) -> Table {
                     number(&|r| r.subjective_values.get(k).copied()),
                 )
         });
+    // Per-option drifts of race models.
+    let n_drifts = rows
+        .iter()
+        .map(|r| r.option_drifts.len())
+        .max()
+        .unwrap_or(0);
+    let table =
+        crate::data::SIDES[..n_drifts]
+            .iter()
+            .enumerate()
+            .fold(table, |table, (k, side)| {
+                table.with(
+                    &format!("drift_{side}"),
+                    number(&|r| r.option_drifts.get(k).copied()),
+                )
+            });
     varying.iter().enumerate().fold(table, |table, (k, name)| {
         table.with(
             &format!("{name}_on_trial"),

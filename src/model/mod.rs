@@ -124,6 +124,11 @@ impl Model {
         &self.component_parameters[k]
     }
 
+    /// What the choice stage reads of a trial's subjective values.
+    pub fn signal(&self) -> components::Signal {
+        self.choice.signal()
+    }
+
     /// True when response times enter the likelihood.
     pub fn uses_response_times(&self) -> bool {
         self.choice.uses_response_times()

@@ -11,12 +11,15 @@
 //!
 //! # Accuracy
 //! Both integrals have positive integrands, so they are evaluated without cancellation: the
-//! density from the closed form when its two terms do not cancel by more than a factor 2, else
-//! by Gauss–Legendre quadrature of (v + su)φ(u) over [z₁, z₂]; the survival from
+//! density from the closed form when its two terms differ by more than 1 % (so that their
+//! difference amplifies rounding at most a hundredfold), else
+//! by Gauss–Legendre quadrature of c·φ((c/t − v)/s) over the distance c to the threshold
+//! (Brown & Heathcote's integral over the start point); the survival from
 //! G(z₂) − G(z₁) with G(z) = z + G(−z) for z ≥ 0 (so that the large part z₂ − z₁ = A/(ts) is
 //! formed without subtraction) and G(−x) = φ(x)/(1 + x·K(x)) for x ≥ 5, K the continued
 //! fraction x + 2/(x + 3/(x + …)) from Laplace's fraction for the Mills ratio (Abramowitz &
-//! Stegun 1964, 26.2.14), or by quadrature of Φ when z₂ − z₁ < 1. Relative accuracy about
+//! Stegun 1964, 26.2.14); when z₂ − z₁ < 1e-3 both by quadrature over the distance to the
+//! threshold. Relative accuracy about
 //! 1e-13 (checked against mpmath in tests/suite/race_reference.rs).
 
 use super::Accumulator;
@@ -40,6 +43,15 @@ pub struct BallisticAccumulator<T> {
 fn rule() -> &'static [(f64, f64); 10] {
     crate::first_passage::gauss_legendre_rule()
 }
+
+/// Below this width z₂ − z₁ = A/(ts) the closed forms' differences would lose more than about
+/// three digits (z₁ and z₂ carry rounding of order 1e-16·|z|), so both quantities are
+/// integrated over the distance to the threshold instead.
+const NARROW: f64 = 1e-3;
+
+/// When the closed form's two density terms differ by less than this in log (1 %), their
+/// difference would amplify rounding more than a hundredfold, so the density is integrated.
+const CANCELLING: f64 = 0.01;
 
 /// Most Gauss–Legendre panels of one [`ln_integral`].
 const MAX_PANELS: usize = 2000;
@@ -70,15 +82,6 @@ fn panel_nodes(lo: f64, hi: f64, slope: impl Fn(f64) -> f64) -> Vec<(f64, f64)> 
     nodes
 }
 
-/// ln ∫_lo^hi e^{h(u)} du on the nodes of [`panel_nodes`].
-fn ln_integral(lo: f64, hi: f64, h: impl Fn(f64) -> f64, slope: impl Fn(f64) -> f64) -> f64 {
-    let terms: Vec<f64> = panel_nodes(lo, hi, slope)
-        .into_iter()
-        .map(|(u, ln_w)| ln_w + h(u))
-        .collect();
-    ln_sum_exp(&terms)
-}
-
 /// ln G(z) for G(z) = zΦ(z) + φ(z) > 0.
 fn ln_g(z: f64) -> f64 {
     if z >= 0.0 {
@@ -105,7 +108,8 @@ fn ln_normal_interval(z1: f64, z2: f64) -> f64 {
     }
 }
 
-/// ln ∫_{z1}^{z2} Φ(u) du for z2 − z1 = `width` ≥ 1 (passed exactly), from G = zΦ + φ.
+/// ln ∫_{z1}^{z2} Φ(u) du for z2 − z1 = `width` ≥ 1e-3 (passed exactly), from G = zΦ + φ:
+/// when both are negative the difference loses about log10(1/(width·max(1, |z|))) digits.
 fn ln_phi_integral(z1: f64, z2: f64, width: f64) -> f64 {
     if z1 >= 0.0 {
         // (z2 − z1) + G(−z2) − G(−z1); the last two are small.
@@ -176,9 +180,9 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
         let ln_first = v.abs().ln() + ln_dcdf;
         let ln_second = s.ln() + ln_dpdf;
         let same_sign = (v >= 0.0) == pdf_positive;
-        if width < 1.0 {
-            // z₁ ≈ z₂: the closed form's differences lose digits; f = (1/(At²s))∫_{b−A}^{b}
-            // c·φ((c/t − v)/s) dc over the distance c to the threshold instead.
+        if width < NARROW || (!same_sign && (ln_first - ln_second).abs() < CANCELLING) {
+            // z₁ ≈ z₂, or the two terms cancel: f = (1/(At²s))∫_{b−A}^{b} c·φ((c/t − v)/s) dc,
+            // a positive integrand over the distance c to the threshold.
             return self.ln_over_distances(t, drift, |c, u| c.ln() - u * u * 0.5 - LN_SQRT_2PI)
                 - t.ln() * 2.0
                 - self.drift_sd.ln()
@@ -186,17 +190,8 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
         }
         let ln_fa = if same_sign {
             ln_add_exp(ln_first, ln_second)
-        } else if (ln_first - ln_second).abs() > std::f64::consts::LN_2 {
-            let (hi, lo) = (ln_first.max(ln_second), ln_first.min(ln_second));
-            ln_sub_exp(hi, lo)
         } else {
-            // The two terms cancel: integrate the positive (v + su)φ(u) instead.
-            ln_integral(
-                u1,
-                u2,
-                |u| (v + s * u).ln() - 0.5 * u * u - LN_SQRT_2PI,
-                |u| u.abs() + s / (v + s * u).abs().max(1e-300),
-            )
+            ln_sub_exp(ln_first.max(ln_second), ln_first.min(ln_second))
         };
         let ln_f = ln_fa - a.ln();
         let over = |ln_x: f64| (ln_x - ln_fa).exp();
@@ -230,7 +225,7 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
         let (u1, u2) = (z1.value(), z2.value());
         let (tv, s) = (t.value(), self.drift_sd.value());
         let width = self.start_range.value() / (tv * s);
-        if width < 1.0 {
+        if width < NARROW {
             // S = (1/A)∫_{b−A}^{b} Φ((c/t − v)/s) dc over the distance c to the threshold
             // (z₁ ≈ z₂ would lose digits in z₂ − z₁).
             let ln_s = self.ln_over_distances(t, drift, |_, u| ln_normal_cdf_of(u))
