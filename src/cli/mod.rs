@@ -33,7 +33,7 @@ pub struct Cli {
 /// The commands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
-    /// Run the main job on the embedded demo study: fit every built-in model to two invented
+    /// Run the main job on the embedded demo study: fit every built-in model (but the races) to two invented
     /// cohorts (per-subject maximum likelihood, L-BFGS with exact gradients), fit one
     /// empirical-Bayes group prior per cohort for the reference model (Huys et al. 2011), print
     /// model comparison by BIC (Schwarz 1978), iBIC and random-effects Bayesian model selection
