@@ -194,6 +194,9 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
             ln_sub_exp(ln_first.max(ln_second), ln_first.min(ln_second))
         };
         let ln_f = ln_fa - a.ln();
+        if !T::CARRIES_DERIVATIVES {
+            return T::from(ln_f);
+        }
         let over = |ln_x: f64| (ln_x - ln_fa).exp();
         let tv = t.value();
         let gap = self.threshold_gap.value();
@@ -238,6 +241,9 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
         }
         // S ≤ 1: rounding can put (ts/A)·∫ a hair above 1 where nothing has arrived yet.
         let ln_integral = ln_phi_integral(u1, u2, width).min(width.ln());
+        if !T::CARRIES_DERIVATIVES {
+            return T::from(ln_integral - width.ln());
+        }
         let scale = (t * self.drift_sd / self.start_range).ln();
         scale
             + lift(

@@ -10,11 +10,14 @@ pub(crate) const LN_SQRT_2PI: f64 = 0.918_938_533_204_672_8;
 
 /// A real number with optional forward derivatives.
 pub trait Real: DualNum<Primitive = f64> + Copy + Send + Sync {
+    /// False for plain values: partial derivatives need not be computed.
+    const CARRIES_DERIVATIVES: bool;
     /// The value without derivatives.
     fn value(&self) -> f64;
 }
 
 impl Real for f64 {
+    const CARRIES_DERIVATIVES: bool = false;
     #[inline]
     fn value(&self) -> f64 {
         *self
@@ -22,6 +25,7 @@ impl Real for f64 {
 }
 
 impl<const N: usize> Real for DualSVec64<N> {
+    const CARRIES_DERIVATIVES: bool = true;
     #[inline]
     fn value(&self) -> f64 {
         self.re

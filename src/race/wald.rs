@@ -50,10 +50,15 @@ impl<T: Real> Accumulator<T> for WaldAccumulator<T> {
         let root = tv.sqrt();
         let c1 = (v * tv - a) / root;
         let c2 = -(v * tv + a) / root;
+        if !T::CARRIES_DERIVATIVES
+            && let Some(ln_s) = linear_survival(c1, c2, 2.0 * v * a)
+        {
+            return T::from(ln_s);
+        }
         let ln_first = ln_normal_cdf(-c1);
         let ln_second = 2.0 * v * a + ln_normal_cdf(c2);
         let ln_s = ln_sub_exp(ln_first, ln_second.min(ln_first));
-        if !ln_s.is_finite() {
+        if !ln_s.is_finite() || !T::CARRIES_DERIVATIVES {
             return T::from(ln_s);
         }
         let gap = a - v * tv;
@@ -116,6 +121,18 @@ impl<T: Real> Accumulator<T> for WaldAccumulator<T> {
         let a = self.threshold.value();
         0.5 * a * a
     }
+}
+
+/// ln S from its two terms in linear space, Φ(−c₁) − e^{2vα}Φ(c₂) with Φ(x) = ½·erfc(−x/√2)
+/// (one logarithm instead of four), where neither term can under- or overflow and the second is
+/// below half the first (so the difference loses at most one bit); None elsewhere.
+fn linear_survival(c1: f64, c2: f64, two_v_alpha: f64) -> Option<f64> {
+    if c1 > 30.0 || c2 < -30.0 || two_v_alpha > 600.0 {
+        return None;
+    }
+    let first = 0.5 * libm::erfc(c1 * std::f64::consts::FRAC_1_SQRT_2);
+    let second = two_v_alpha.exp() * 0.5 * libm::erfc(-c2 * std::f64::consts::FRAC_1_SQRT_2);
+    (second < 0.5 * first).then(|| (first - second).ln())
 }
 
 /// ln F(t) = ln[Φ((vt − α)/√t) + e^{2vα}·Φ(−(vt + α)/√t)] (values only; for tests and
