@@ -26,6 +26,7 @@ mod output_safety;
 mod parameter_recovery;
 mod predictive_check;
 mod race_models;
+mod race_reference;
 mod real_data;
 mod response_window;
 mod task_shapes;
