@@ -9,6 +9,7 @@ use crate::common;
 
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
+use std::path::Path;
 use std::sync::Arc;
 use valuedrift::data::{Choice, Subject, Trial};
 use valuedrift::fit::{FitOptions, fit_subject};
@@ -537,4 +538,78 @@ fn race_latents_give_every_option_its_drift() {
             "no column {name}"
         );
     }
+}
+
+#[test]
+fn a_race_runs_through_fit_check_and_export_on_three_option_data() {
+    // The command line end to end on a three-option table written by the crate's table writer
+    // (common practice: every command accepts what the others write).
+    let wald = test_model("three-arm-wald-race");
+    let mut rng = ChaCha8Rng::seed_from_u64(11);
+    let subjects: Vec<Subject> = simulate_three_arm(&wald, 4, 120, &mut rng)
+        .into_iter()
+        .map(|(_, s)| s)
+        .collect();
+    let dir = tempfile::tempdir().unwrap();
+    let data = dir.path().join("three_arms.csv");
+    let table = valuedrift::data::TrialTable {
+        subjects,
+        present: vec!["option_a".into(), "option_b".into(), "outcome".into()],
+    };
+    let mut file = std::fs::File::create(&data).unwrap();
+    valuedrift::results::trials_table(&table)
+        .write_csv(&mut file)
+        .unwrap();
+    let model = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/models/three-arm-wald-race.toml");
+    let fits = dir.path().join("fits");
+    common::succeed(
+        common::bin()
+            .args(["fit", "--starts", "3", "--data"])
+            .arg(&data)
+            .arg("--model")
+            .arg(&model)
+            .arg("--out")
+            .arg(&fits),
+    );
+    let checked = dir.path().join("check");
+    common::succeed(
+        common::bin()
+            .args(["check", "--sims", "20", "--fits"])
+            .arg(&fits)
+            .arg("--data")
+            .arg(&data)
+            .arg("--model")
+            .arg(&model)
+            .arg("--out")
+            .arg(&checked),
+    );
+    let exported = dir.path().join("export");
+    common::succeed(
+        common::bin()
+            .args(["export", "--fits"])
+            .arg(&fits)
+            .arg("--data")
+            .arg(&data)
+            .arg("--model")
+            .arg(&model)
+            .arg("--out")
+            .arg(&exported),
+    );
+    let latents = common::contents(&exported)
+        .into_iter()
+        .find(|(p, _)| p.to_string_lossy().ends_with("latents.csv"))
+        .map(|(_, bytes)| String::from_utf8(bytes).unwrap())
+        .expect("a latents.csv");
+    let header = latents.lines().next().unwrap();
+    for side in ["a", "b", "c"] {
+        assert!(header.contains(&format!("drift_{side}")), "{header}");
+    }
+    let statistics = common::contents(&checked);
+    assert!(
+        statistics
+            .keys()
+            .any(|p| p.to_string_lossy().ends_with(".csv")),
+        "check wrote no table: {:?}",
+        statistics.keys().collect::<Vec<_>>()
+    );
 }

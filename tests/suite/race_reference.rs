@@ -22,7 +22,9 @@ fn rows(name: &str) -> Vec<csv::StringRecord> {
 }
 
 fn number(row: &csv::StringRecord, k: usize) -> f64 {
-    row[k].parse().unwrap_or_else(|_| panic!("not a number: {:?}", &row[k]))
+    row[k]
+        .parse()
+        .unwrap_or_else(|_| panic!("not a number: {:?}", &row[k]))
 }
 
 /// |a − b| in log space, treating two −∞ as equal.
@@ -93,7 +95,12 @@ fn race_densities_and_choice_probabilities_match_mpmath() {
     assert!(table.len() >= 200, "{} rows", table.len());
     let (mut worst_density, mut worst_probability) = (0.0f64, 0.0f64);
     for row in &table {
-        let (ndt, threshold, a, s) = (number(row, 1), number(row, 2), number(row, 3), number(row, 4));
+        let (ndt, threshold, a, s) = (
+            number(row, 1),
+            number(row, 2),
+            number(row, 3),
+            number(row, 4),
+        );
         let drifts: Vec<f64> = row[5].split(';').map(|x| x.parse().unwrap()).collect();
         let k: usize = row[6].parse().unwrap();
         let t = number(row, 7) - ndt;
