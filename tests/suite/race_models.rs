@@ -227,6 +227,18 @@ start = [0.05, 0.4]
     )
 }
 
+/// The gaze-weighted model with a free gaze_discount.
+fn gaze_model() -> valuedrift::model::Model {
+    parse_model(
+        &with_mapping(
+            "gaze-weighted",
+            "[parameters.gaze_discount]\nlower = 0.0\nupper = 1.0\nstart = [0.1, 0.9]\n",
+        ),
+        "gaze.toml",
+    )
+    .unwrap()
+}
+
 #[test]
 fn gaze_weighting_with_a_discount_of_one_is_the_linear_mapping() {
     // θ = 1: A_k = SV_k·(g_k + 1·(1 − g_k)) = SV_k, the plain linear drift (Thomas et al. 2019,
@@ -256,14 +268,7 @@ fn gaze_weighted_drift_follows_the_hand_computation() {
         trials: vec![gaze_trial(0, 0, (0.2, 0.6), 0.3, 0.9)],
         ..gaze_subject()
     };
-    let model = parse_model(
-        &with_mapping(
-            "gaze-weighted",
-            "[parameters.gaze_discount]\nlower = 0.0\nupper = 1.0\nstart = [0.1, 0.9]\n",
-        ),
-        "gaze.toml",
-    )
-    .unwrap();
+    let model = gaze_model();
     let lik = SubjectLikelihood::new(&model, &subject, None).unwrap();
     let natural: Vec<f64> = model
         .parameters
@@ -292,14 +297,7 @@ fn gaze_weighted_drift_follows_the_hand_computation() {
 fn gaze_shares_outside_zero_to_one_are_named() {
     let mut subject = gaze_subject();
     subject.trials[3].covariates[0] = Some("1.4".into());
-    let model = parse_model(
-        &with_mapping(
-            "gaze-weighted",
-            "[parameters.gaze_discount]\nlower = 0.0\nupper = 1.0\nstart = [0.1, 0.9]\n",
-        ),
-        "gaze.toml",
-    )
-    .unwrap();
+    let model = gaze_model();
     let message = SubjectLikelihood::new(&model, &subject, None)
         .err()
         .expect("a share of 1.4 is refused")
