@@ -11,7 +11,8 @@ pub const ENTRY: Entry<dyn DriftMapping> = Entry {
     name: "bounded",
     parameters: &["drift_max", "value_scale"],
     defaults: &[],
-    equation: "drift = drift_max·(2/(1 + exp(−value_scale·(SV_a − SV_b))) − 1)  (Fontanesi et al. 2019)",
+    equation: "drift = drift_max·(2/(1 + exp(−value_scale·(SV_a − SV_b))) − 1); in a race, per accumulator \
+               the same of SV_k  (Fontanesi et al. 2019)",
     build,
 };
 

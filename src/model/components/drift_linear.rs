@@ -1,7 +1,8 @@
 //! Linear drift mapping, v = drift_intercept + value_scale·(SV_a − SV_b): the drift rate grows
 //! with the value difference (Fontanesi, Gluth, Spektor & Rieskamp 2019); the intercept (default
 //! 0) is a drift towards option a whatever the values, as in the drift bias of the diffusion
-//! model (Ratcliff & McKoon 2008).
+//! model (Ratcliff & McKoon 2008). In a race each accumulator's drift is
+//! drift_intercept + value_scale·SV_k (the intercept then acts as an urgency common to all).
 
 use super::{DriftMapping, Entry, Options, Slots, only_options};
 use crate::model::dual::D;
@@ -11,7 +12,8 @@ pub const ENTRY: Entry<dyn DriftMapping> = Entry {
     name: "linear",
     parameters: &["value_scale", "drift_intercept"],
     defaults: &[("drift_intercept", 0.0)],
-    equation: "drift = drift_intercept + value_scale·(SV_a − SV_b)  (Fontanesi et al. 2019)",
+    equation: "drift = drift_intercept + value_scale·(SV_a − SV_b); in a race, per accumulator \
+               drift_k = drift_intercept + value_scale·SV_k  (Fontanesi et al. 2019)",
     build,
 };
 
