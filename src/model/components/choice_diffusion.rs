@@ -140,7 +140,7 @@ impl Prepared<'_> {
 
 impl Prepared<'_> {
     /// ln S_c(t) for a bound, with its gradient.
-    fn ln_survival(&self, t: f64, bound: Bound, params: &DiffusionParams, signal: &D) -> Option<D> {
+    fn ln_survival(&self, t: f64, bound: Bound, params: &DiffusionParams, signal: &D) -> D {
         let key = (t.to_bits(), params.drift().to_bits(), bound == Bound::Upper);
         let cached = self
             .survivals
@@ -151,7 +151,7 @@ impl Prepared<'_> {
         let (ln_s, g) = match cached {
             Some(hit) => hit,
             None => {
-                let fresh = ln_survival_with_gradient(t, bound, params).ok()?;
+                let fresh = ln_survival_with_gradient(t, bound, params);
                 let mut cache = self.survivals.borrow_mut();
                 if cache.len() < SURVIVAL_CACHE {
                     cache.push((key.0, key.1, key.2, fresh));
@@ -159,15 +159,15 @@ impl Prepared<'_> {
                 fresh
             }
         };
-        Some(self.chained(ln_s, g, signal))
+        self.chained(ln_s, g, signal)
     }
 
     /// ln S(t) = ln(S_a(t) + S_b(t)), the probability that no bound is reached by time t.
-    fn ln_undecided_by(&self, t: f64, params: &DiffusionParams, signal: &D) -> Option<D> {
-        Some(ln_add_exp(
-            self.ln_survival(t, Bound::Upper, params, signal)?,
-            self.ln_survival(t, Bound::Lower, params, signal)?,
-        ))
+    fn ln_undecided_by(&self, t: f64, params: &DiffusionParams, signal: &D) -> D {
+        ln_add_exp(
+            self.ln_survival(t, Bound::Upper, params, signal),
+            self.ln_survival(t, Bound::Lower, params, signal),
+        )
     }
 
     /// The lock when it is after ndt (so that it conditions the process), else `None`.
@@ -184,10 +184,9 @@ impl PreparedChoice for Prepared<'_> {
         };
         let params = base.with_drift(signal.re);
         // ln S(lock): what every observation is conditioned on.
-        let ln_window = match self.active_lock(&params) {
-            Some(lock) => Some(self.ln_undecided_by(lock, &params, &signal)?),
-            None => None,
-        };
+        let ln_window = self
+            .active_lock(&params)
+            .map(|lock| self.ln_undecided_by(lock, &params, &signal));
         let conditioned = |x: D| match ln_window {
             Some(w) => x - w,
             None => x,
@@ -195,7 +194,7 @@ impl PreparedChoice for Prepared<'_> {
         match (observation.choice, observation.rt) {
             (Some(choice), Some(rt)) => {
                 let bound = bound_of(choice);
-                let (ln_f, g) = ln_density_with_gradient(rt, bound, &params).ok()?;
+                let (ln_f, g) = ln_density_with_gradient(rt, bound, &params);
                 let ln_f = conditioned(self.chained(ln_f, g, &signal));
                 Some(match self.lapse {
                     Some((ln_keep, ln_guess)) => ln_add_exp(ln_keep + ln_f, ln_guess),
@@ -204,7 +203,7 @@ impl PreparedChoice for Prepared<'_> {
             }
             (None, _) => {
                 let deadline = self.context.deadline?;
-                let total = conditioned(self.ln_undecided_by(deadline, &params, &signal)?);
+                let total = conditioned(self.ln_undecided_by(deadline, &params, &signal));
                 Some(match self.lapse {
                     Some((ln_keep, _)) => ln_keep + total,
                     None => total,
@@ -215,9 +214,9 @@ impl PreparedChoice for Prepared<'_> {
                 // probability (Feller 1968); with lapses (1 − lapse)·P + lapse·½.
                 let bound = bound_of(choice);
                 let ln_p = match self.active_lock(&params) {
-                    Some(lock) => conditioned(self.ln_survival(lock, bound, &params, &signal)?),
+                    Some(lock) => conditioned(self.ln_survival(lock, bound, &params, &signal)),
                     None => {
-                        let (ln_p, g) = ln_bound_probability_with_gradient(bound, &params).ok()?;
+                        let (ln_p, g) = ln_bound_probability_with_gradient(bound, &params);
                         self.chained(ln_p, g, &signal)
                     }
                 };
