@@ -1,8 +1,22 @@
 //! Diffusion choice stage: choices and response times jointly through the Wiener first-passage
 //! density (Ratcliff 1978; Navarro & Fuss 2009), choosing `a` at the upper bound. Optional
-//! across-trial drift variability and a lapse mixture in which, with probability `lapse`, a
-//! response is a guess (either option, time uniform over the subject's observed range). A
-//! choice whose time is not used (trimmed) scores the absorption probability of its bound alone.
+//! across-trial variability of the full diffusion model (Ratcliff & Tuerlinckx 2002): a normal
+//! drift with standard deviation `drift_sd`, a uniform relative start of width `start_range`
+//! centred on `start`, a uniform non-decision time of width `ndt_range` centred on `ndt`; and a
+//! lapse mixture in which, with probability `lapse`, a response is a guess (either option, time
+//! uniform over the subject's observed range). A choice whose time is not used (trimmed) scores
+//! the absorption probability of its bound alone.
+//!
+//! # Across-trial ranges
+//! The ranges enter through the first-passage engine's averages, whose partial derivatives
+//! (on the quadrature nodes, see [`crate::first_passage::ln_density_with_gradient`]) are
+//! chained to the free parameters like the others. The model file keeps start ± start_range/2
+//! inside (0, 1) and ndt − ndt_range/2 ≥ 0 for every allowed value (src/model/spec.rs). The
+//! earliest possible response is ndt − ndt_range/2, so ndt itself may lie above the fastest
+//! response: the likelihood bounds ndt by the fastest response plus half the largest allowed
+//! ndt_range (src/likelihood/mod.rs); a point where ndt − ndt_range/2 reaches the fastest response
+//! has likelihood zero and the fitter treats it as invalid. A lock conditions the process when it
+//! is later than ndt − ndt_range/2.
 //!
 //! # Response windows
 //! With a deadline D, a trial without response scores S(D) = S_a(D) + S_b(D), the probability
@@ -33,10 +47,26 @@ use std::cell::RefCell;
 /// The table entry.
 pub const ENTRY: Entry<dyn ChoiceStage> = Entry {
     name: "diffusion",
-    parameters: &["boundary", "ndt", "start", "drift_sd", "lapse"],
-    defaults: &[("start", 0.5), ("drift_sd", 0.0), ("lapse", 0.0)],
-    equation: "(choice, rt) ~ Wiener first passage(drift, boundary, start, ndt, drift_sd); a = upper bound; \
-               with lapse: (1 − lapse)·f + lapse·½/(rt_max − rt_min)  (Navarro & Fuss 2009)",
+    parameters: &[
+        "boundary",
+        "ndt",
+        "start",
+        "drift_sd",
+        "start_range",
+        "ndt_range",
+        "lapse",
+    ],
+    defaults: &[
+        ("start", 0.5),
+        ("drift_sd", 0.0),
+        ("start_range", 0.0),
+        ("ndt_range", 0.0),
+        ("lapse", 0.0),
+    ],
+    equation: "(choice, rt) ~ Wiener first passage(drift ~ N(drift, drift_sd²), boundary, \
+               start' ~ U(start ± start_range/2), ndt' ~ U(ndt ± ndt_range/2)); a = upper bound; \
+               with lapse: (1 − lapse)·f + lapse·½/(rt_max − rt_min)  \
+               (Navarro & Fuss 2009; Ratcliff & Tuerlinckx 2002)",
     build,
 };
 
@@ -45,6 +75,8 @@ struct Diffusion {
     ndt: usize,
     start: usize,
     drift_sd: usize,
+    start_range: usize,
+    ndt_range: usize,
     lapse: usize,
 }
 
@@ -55,6 +87,8 @@ fn build(options: &Options, slots: Slots<'_>) -> Result<Box<dyn ChoiceStage>, St
         ndt: slots("ndt"),
         start: slots("start"),
         drift_sd: slots("drift_sd"),
+        start_range: slots("start_range"),
+        ndt_range: slots("ndt_range"),
         lapse: slots("lapse"),
     }))
 }
@@ -82,7 +116,13 @@ impl ChoiceStage for Diffusion {
             value(self.start),
             value(self.ndt),
         )
-        .and_then(|q| q.with_variability(value(self.drift_sd), 0.0, 0.0))
+        .and_then(|q| {
+            q.with_variability(
+                value(self.drift_sd),
+                value(self.start_range),
+                value(self.ndt_range),
+            )
+        })
         .ok();
         let lapse = p[self.lapse];
         let guess_density = 0.5 / (context.rt_max - context.rt_min).max(1e-3);
@@ -133,6 +173,8 @@ impl Prepared<'_> {
                 (g.start, &self.p[s.start]),
                 (g.ndt, &self.p[s.ndt]),
                 (g.drift_sd, &self.p[s.drift_sd]),
+                (g.start_range, &self.p[s.start_range]),
+                (g.ndt_range, &self.p[s.ndt_range]),
             ],
         )
     }
@@ -170,9 +212,11 @@ impl Prepared<'_> {
         )
     }
 
-    /// The lock when it is after ndt (so that it conditions the process), else `None`.
+    /// The lock when it is after the earliest possible response, ndt − ndt_range/2 (so that it
+    /// conditions the process), else `None`.
     fn active_lock(&self, params: &DiffusionParams) -> Option<f64> {
-        self.context.lock.filter(|&lock| lock > params.ndt())
+        let earliest = params.ndt() - 0.5 * params.ndt_range();
+        self.context.lock.filter(|&lock| lock > earliest)
     }
 }
 
