@@ -13,6 +13,7 @@ mod first_passage_sampler;
 mod fit_behaviour;
 mod fit_optima;
 mod fitted_inputs;
+mod full_diffusion;
 mod group_prior_covariates;
 mod group_statistics;
 mod haemodynamic_response;
