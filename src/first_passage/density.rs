@@ -1,11 +1,12 @@
 //! Log-density of the defective first-passage distribution at one bound, with its gradient.
 
 use super::params::{Bound, DiffusionParams, StartTerms, positive};
-use super::quadrature::{TimeShape, ln_integrate_time, ln_mean_over};
+use super::quadrature::{TimeShape, gauss_legendre, ln_integrate_time, ln_mean_over, time_nodes};
 use super::series::std_density;
 use std::f64::consts::PI;
 
-/// Partial derivatives of the log-density with respect to the process parameters.
+/// Partial derivatives of a log-quantity (log-density, log-survival, log-probability of a
+/// bound) with respect to the process parameters.
 #[derive(Clone, Copy, Debug, Default, PartialEq)]
 pub struct DensityGradient {
     /// ∂ ln f / ∂ drift.
@@ -18,16 +19,24 @@ pub struct DensityGradient {
     pub ndt: f64,
     /// ∂ ln f / ∂ drift_sd.
     pub drift_sd: f64,
+    /// ∂ ln f / ∂ start_range (zero when the range is zero: the derivative there is one-sided).
+    pub start_range: f64,
+    /// ∂ ln f / ∂ ndt_range (zero when the range is zero).
+    pub ndt_range: f64,
 }
 
-/// The analytic gradient exists for drift, boundary, start, ndt and drift_sd only; processes
-/// with `start_range` or `ndt_range` above zero are integrated numerically and have no gradient.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, thiserror::Error)]
-#[error(
-    "the analytic gradient is not available when start_range or ndt_range is above zero \
-     (those are integrated numerically)"
-)]
-pub struct GradientUnavailable;
+/// Positions in a gradient of the mirrored process: drift v, boundary a, start w, time or
+/// non-decision time, drift_sd η, start_range, ndt_range.
+pub(crate) const V: usize = 0;
+pub(crate) const A: usize = 1;
+pub(crate) const W: usize = 2;
+pub(crate) const T: usize = 3;
+pub(crate) const ETA: usize = 4;
+pub(crate) const SZ: usize = 5;
+pub(crate) const ST: usize = 6;
+
+/// Partial derivatives of a log-quantity of the mirrored process, indexed by [`V`] … [`ST`].
+pub(crate) type Partials = [f64; 7];
 
 /// ln of the defective density of the response time `rt` (seconds) at `bound`.
 ///
@@ -87,44 +96,174 @@ fn oriented_start(p: &DiffusionParams, bound: Bound) -> (f64, StartTerms) {
     }
 }
 
-/// [`ln_density`] together with its analytic partial derivatives (same equation,
-/// differentiated term by term; the series derivatives come from the same terms).
+/// [`ln_density`] together with its partial derivatives with respect to drift, boundary, start,
+/// ndt, drift_sd, start_range and ndt_range.
 ///
-/// Where the density is zero the log-density is −∞ and the gradient is all zeros.
+/// Without ranges: the equation of [`ln_density`] differentiated term by term (the series
+/// derivatives come from the same terms). With ranges the density is the average
+/// f̄(rt) = (1/s_t)∫ (1/s_z)∫ f(rt − τ | w′) dw′ dτ over w′ ∈ [w − s_z/2, w + s_z/2] and
+/// τ ∈ [ndt − s_t/2, ndt + s_t/2] (Ratcliff & Tuerlinckx 2002), and the partial derivatives are
+/// taken under the integrals on the same Gauss–Legendre nodes (Golub & Welsch 1969) that give the
+/// value:
+///
+/// * start range: with w′ = w + s_z·y, y ∈ [−½, ½] fixed on the nodes, ∂/∂w = mean of ∂f/∂w′
+///   and ∂/∂s_z = mean of y·∂f/∂w′. This equals the endpoint form
+///   −mean/s_z + (f(w + s_z/2) + f(w − s_z/2))/(2s_z) of Leibniz's rule, integrated by parts,
+///   without the cancellation of its two 1/s_z terms at small ranges;
+/// * non-decision range: with decision time s = m + s_t·y, m = rt − ndt, ∂/∂ndt = −mean of
+///   ∂f/∂s and ∂/∂s_t = mean of y·∂f/∂s, both over the decision times s > 0 of the window (the
+///   density is zero at and below s = 0 with every derivative, so the end of the window that
+///   falls before ndt − s_t/2 adds no endpoint term);
+/// * drift, boundary and drift_sd: the mean of the integrand's own partial derivatives.
+///
+/// The log-derivative of an average is the density-weighted mean of the integrand's
+/// log-derivatives, summed in log space. Where the density is zero the log-density is −∞ and
+/// the gradient is all zeros; never NaN for finite rt.
 ///
 /// # Accuracy
-/// Partial derivatives agree with central differences of [`ln_density`] to 1e-6 relative
-/// (tests/suite/first_passage_properties.rs).
+/// Without ranges the partial derivatives agree with central differences of [`ln_density`] to
+/// 1e-6 relative (tests/suite/first_passage_properties.rs). With ranges they are the derivatives
+/// of the same quadrature for the start range (exact up to rounding) and of the exact integral
+/// for the non-decision range (differing from the derivative of the quadrature by the
+/// quadrature's error, near 1e-12 relative); checked against central differences of
+/// [`ln_density`] in tests/suite/full_diffusion.rs.
 pub fn ln_density_with_gradient(
     rt: f64,
     bound: Bound,
     params: &DiffusionParams,
-) -> Result<(f64, DensityGradient), GradientUnavailable> {
-    if params.has_integrated_variability() {
-        return Err(GradientUnavailable);
-    }
+) -> (f64, DensityGradient) {
     let t = rt - params.ndt;
-    if !positive(t) {
-        return Ok((f64::NEG_INFINITY, DensityGradient::default()));
+    if !params.has_integrated_variability() {
+        // The hot path of fits: the kernel alone.
+        if !positive(t) {
+            return (f64::NEG_INFINITY, DensityGradient::default());
+        }
+        let (ln_f, g) = lower_bound_core::<true>(t, &params.mirrored_for(bound));
+        return (
+            ln_f,
+            oriented(bound, [g[V], g[A], g[W], -g[T], g[ETA], 0.0, 0.0]),
+        );
     }
-    let (ln_f, g) = lower_bound_core::<true>(t, &params.mirrored_for(bound));
-    Ok((ln_f, oriented(bound, [g[0], g[1], g[2], -g[3], g[4]])))
+    let p = params.mirrored_for(bound);
+    let (ln_f, g) = if p.ndt_range > 0.0 {
+        ln_density_window_with_gradient(rt, &p)
+    } else {
+        let (ln_f, mut g) = density_over_start_with_gradient(t, &p);
+        // ∂/∂ndt = −∂/∂t.
+        g[T] = -g[T];
+        (ln_f, g)
+    };
+    (ln_f, oriented(bound, g))
 }
 
-/// A gradient with respect to (v, a, w, ndt, η) of the mirrored process, expressed in the
-/// parameters as given: mirroring for the upper bound negates drift and start.
-pub(crate) fn oriented(bound: Bound, g: [f64; 5]) -> DensityGradient {
+/// A gradient of the mirrored process expressed in the parameters as given: mirroring for the
+/// upper bound negates drift and start; the ranges are symmetric and keep their sign.
+pub(crate) fn oriented(bound: Bound, g: Partials) -> DensityGradient {
     let sign = match bound {
         Bound::Lower => 1.0,
         Bound::Upper => -1.0,
     };
     DensityGradient {
-        drift: sign * g[0],
-        boundary: g[1],
-        start: sign * g[2],
-        ndt: g[3],
-        drift_sd: g[4],
+        drift: sign * g[V],
+        boundary: g[A],
+        start: sign * g[W],
+        ndt: g[T],
+        drift_sd: g[ETA],
+        start_range: g[SZ],
+        ndt_range: g[ST],
     }
+}
+
+/// ln Σ e^{l_i} and the e^{l_i}-weighted mean of the g_i: for a positive sum of terms whose
+/// log-derivatives are g_i, the log of the sum and its log-derivatives. Terms at −∞ carry no
+/// weight; (−∞, zeros) when every term is −∞.
+pub(crate) fn ln_sum_with_mean<const N: usize>(terms: &[(f64, [f64; N])]) -> (f64, [f64; N]) {
+    let top = terms.iter().map(|t| t.0).fold(f64::NEG_INFINITY, f64::max);
+    if top == f64::NEG_INFINITY {
+        return (top, [0.0; N]);
+    }
+    let mut total = 0.0;
+    let mut mean = [0.0; N];
+    for (ln_term, g) in terms {
+        if *ln_term == f64::NEG_INFINITY {
+            continue;
+        }
+        let weight = (ln_term - top).exp();
+        total += weight;
+        for (m, x) in mean.iter_mut().zip(g) {
+            *m += weight * x;
+        }
+    }
+    for m in &mut mean {
+        *m /= total;
+    }
+    (top + total.ln(), mean)
+}
+
+/// Averages a log-quantity with its gradient, `at(start)` → (ln q, ∂ln q/∂(v, a, w, ·, η)), over
+/// the start range of `p` (already mirrored) on the nodes of [`over_start`] (panels for decision
+/// time `t_panels`): ln of the mean, and its partial derivatives with ∂/∂start_range from the
+/// nodes' offsets (see [`ln_density_with_gradient`]); position [`ST`] is zero. Without a range,
+/// `at(p)` itself.
+pub(crate) fn over_start_with_gradient(
+    t_panels: f64,
+    p: &DiffusionParams,
+    mut at: impl FnMut(&DiffusionParams) -> (f64, [f64; 5]),
+) -> (f64, Partials) {
+    let widen = |(ln_q, g): (f64, [f64; 5]), offset: f64| {
+        (ln_q, [g[V], g[A], g[W], g[T], g[ETA], offset * g[W], 0.0])
+    };
+    if p.start_range == 0.0 {
+        return widen(at(p), 0.0);
+    }
+    let panels = start_panels(t_panels, p);
+    let width = p.start_range / panels as f64;
+    let lo = p.start - 0.5 * p.start_range;
+    let mut terms = Vec::with_capacity(panels * gauss_legendre().len());
+    for k in 0..panels {
+        let mid = lo + (k as f64 + 0.5) * width;
+        for &(x, weight) in gauss_legendre() {
+            // Node w′ = w − s_z/2 + s_z·(k + ½ + x/2)/P: ∂w′/∂s_z is its offset y ∈ (−½, ½).
+            let offset = (k as f64 + 0.5 + 0.5 * x) / panels as f64 - 0.5;
+            let (ln_q, g) = widen(at(&p.with_start(mid + 0.5 * width * x)), offset);
+            terms.push((weight.ln() + ln_q, g));
+        }
+    }
+    let (ln_sum, mean) = ln_sum_with_mean(&terms);
+    (ln_sum - (2.0 * panels as f64).ln(), mean)
+}
+
+/// ln density at decision time t of the mirrored process averaged over the start range, with
+/// its gradient; position [`T`] holds ∂/∂t. (−∞, zeros) for t ≤ 0.
+pub(crate) fn density_over_start_with_gradient(t: f64, p: &DiffusionParams) -> (f64, Partials) {
+    if !positive(t) {
+        return (f64::NEG_INFINITY, [0.0; 7]);
+    }
+    over_start_with_gradient(t, p, |q| lower_bound_core::<true>(t, q))
+}
+
+/// The density of the mirrored process averaged over its non-decision range (above zero), with
+/// its gradient: on the time nodes of [`ln_density`]'s integral, decision time s = m + s_t·y
+/// with m = rt − ndt, so ∂s/∂ndt = −1 and ∂s/∂s_t = y = (s − m)/s_t.
+fn ln_density_window_with_gradient(rt: f64, p: &DiffusionParams) -> (f64, Partials) {
+    let st = p.ndt_range;
+    let middle = rt - p.ndt;
+    let (lo, hi) = (middle - 0.5 * st, middle + 0.5 * st);
+    if !positive(hi) {
+        return (f64::NEG_INFINITY, [0.0; 7]);
+    }
+    let terms: Vec<(f64, Partials)> = time_nodes(lo.max(0.0), hi, time_shape(p))
+        .into_iter()
+        .map(|(s, ln_weight)| {
+            let (ln_f, mut g) = density_over_start_with_gradient(s, p);
+            let slope = g[T];
+            g[T] = -slope;
+            g[ST] = (s - middle) / st * slope;
+            (ln_weight + ln_f, g)
+        })
+        .collect();
+    let (ln_integral, g) = ln_sum_with_mean(&terms);
+    (ln_integral - st.ln(), g)
 }
 
 /// ln f_lower at decision time t > 0 and its derivatives with respect to (v, a, w, t, η) of the

@@ -1,6 +1,9 @@
 //! Defective distribution function, survival and bound probabilities.
 
-use super::density::{DensityGradient, GradientUnavailable, oriented};
+use super::density::{
+    A, DensityGradient, Partials, ST, T, V, W, density_over_start_with_gradient, ln_sum_with_mean,
+    oriented, over_start_with_gradient,
+};
 use super::density::{
     ln_density_over_start, lower_bound_core, over_start, start_panels, time_shape,
 };
@@ -51,62 +54,97 @@ pub fn ln_prob_no_response(deadline: f64, params: &DiffusionParams) -> f64 {
     )
 }
 
-/// [`ln_survival`] with its partial derivatives, for processes without start or non-decision
-/// ranges (drift variability allowed).
+/// [`ln_survival`] with its partial derivatives with respect to drift, boundary, start, ndt,
+/// drift_sd, start_range and ndt_range.
 ///
-/// With S_b(rt) = ∫_{rt−ndt}^∞ f_b(s) ds, differentiation under the integral gives
-/// ∂S/∂x = ∫ f·∂ln f/∂x ds for x = drift, boundary, start, drift_sd, computed with the analytic
-/// density gradient on the engine's time-quadrature nodes, and ∂S/∂ndt = f_b(rt − ndt)
-/// (Leibniz's rule). Used for trials that end without a response at a deadline.
+/// Without a non-decision range, S_b(rt) = ∫_{rt−ndt}^∞ f_b(s) ds: differentiation under the
+/// integral gives ∂S/∂x = ∫ f·∂ln f/∂x ds for x = drift, boundary, start, drift_sd, computed with
+/// the analytic density gradient on the engine's time-quadrature nodes, and ∂S/∂ndt =
+/// f_b(rt − ndt) (Leibniz's rule); with a start range this is averaged over the start nodes as in
+/// [`ln_density_with_gradient`](super::ln_density_with_gradient) (∂/∂start_range from the nodes'
+/// offsets). At or before ndt the survival is the bound probability, with the gradient of
+/// [`ln_bound_probability_with_gradient`].
+///
+/// With a non-decision range s_t the survival is the window average
+/// S(rt) = (1/s_t)∫_{lo}^{hi} S̄(s) ds over decision times s ∈ [lo, hi] = rt − ndt ∓ s_t/2
+/// (S̄ the survival at a fixed non-decision time, equal to P_b for s ≤ 0; Ratcliff & Tuerlinckx
+/// 2002). Integrating by parts, S(rt) = ∫_{lo⁺}^{hi} k(s)·f̄(s) ds + S̄(hi) with k(s) = (s − lo)/s_t,
+/// a sum of positive terms (lo⁺ = max(lo, 0)). Leibniz's rule gives
+/// ∂S/∂ndt = (S̄(lo) − S̄(hi))/s_t = (1/s_t)∫_{lo⁺}^{hi} f̄ ds and
+/// ∂S/∂s_t = −S/s_t + (S̄(hi) + S̄(lo))/(2s_t) = (1/s_t)∫_{lo⁺}^{hi} (½ − k(s))·f̄(s) ds.
+/// Used for trials that end without a response at a deadline and for the response lock.
 ///
 /// # Accuracy
 /// About 1e-10 relative (the time quadrature), checked against central differences of
-/// [`ln_survival`] in tests/suite/first_passage_properties.rs.
+/// [`ln_survival`] in tests/suite/first_passage_properties.rs (no ranges) and
+/// tests/suite/full_diffusion.rs (ranges).
 pub fn ln_survival_with_gradient(
     rt: f64,
     bound: Bound,
     params: &DiffusionParams,
-) -> Result<(f64, DensityGradient), GradientUnavailable> {
-    if params.has_integrated_variability() {
-        return Err(GradientUnavailable);
-    }
+) -> (f64, DensityGradient) {
     let p = params.mirrored_for(bound);
-    let t0 = (rt - p.ndt).max(0.0);
-    let nodes = time_nodes(t0, f64::INFINITY, time_shape(&p));
-    let mut terms = Vec::with_capacity(nodes.len());
-    let mut slopes = Vec::with_capacity(nodes.len());
-    for (s, ln_weight) in nodes {
-        let (ln_f, g) = lower_bound_core::<true>(s, &p);
-        terms.push(ln_weight + ln_f);
-        slopes.push(g);
-    }
-    let top = terms.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-    if top == f64::NEG_INFINITY {
-        return Ok((top, DensityGradient::default()));
-    }
-    let mut total = 0.0;
-    let mut weighted = [0.0; 5];
-    for (term, g) in terms.iter().zip(&slopes) {
-        let w = (term - top).exp();
-        total += w;
-        for k in 0..5 {
-            weighted[k] += w * g[k];
-        }
-    }
-    let ln_s = top + total.ln();
-    let mean = |k: usize| weighted[k] / total;
-    let density_at_start = if t0 > 0.0 {
-        (lower_bound_core::<false>(t0, &p).0 - ln_s).exp()
+    let (ln_s, g) = if p.ndt_range > 0.0 {
+        survival_window_with_gradient(rt, &p)
+    } else {
+        survival_over_start_with_gradient(rt - p.ndt, &p)
+    };
+    (ln_s, oriented(bound, g))
+}
+
+/// ln S_lower of the mirrored process at decision time t0 with fixed start (no start range),
+/// and its partial derivatives (v, a, w, ndt, η): the time integral of the density from t0 on.
+fn survival_fixed_start_with_gradient(t0: f64, p: &DiffusionParams) -> (f64, [f64; 5]) {
+    let t0 = t0.max(0.0);
+    let terms: Vec<(f64, [f64; 5])> = time_nodes(t0, f64::INFINITY, time_shape(p))
+        .into_iter()
+        .map(|(s, ln_weight)| {
+            let (ln_f, g) = lower_bound_core::<true>(s, p);
+            (ln_weight + ln_f, g)
+        })
+        .collect();
+    let (ln_s, mut g) = ln_sum_with_mean(&terms);
+    g[T] = if t0 > 0.0 && ln_s > f64::NEG_INFINITY {
+        (lower_bound_core::<false>(t0, p).0 - ln_s).exp()
     } else {
         0.0
     };
-    Ok((
-        ln_s,
-        oriented(
-            bound,
-            [mean(0), mean(1), mean(2), density_at_start, mean(4)],
-        ),
-    ))
+    (ln_s, g)
+}
+
+/// ln S_lower of the mirrored process at decision time t0 (no non-decision range), averaged
+/// over the start range, with its gradient ([`T`] holds ∂/∂ndt).
+fn survival_over_start_with_gradient(t0: f64, p: &DiffusionParams) -> (f64, Partials) {
+    if !positive(t0) {
+        return bound_probability_over_start_with_gradient(p);
+    }
+    over_start_with_gradient(t0, p, |q| survival_fixed_start_with_gradient(t0, q))
+}
+
+/// ln S_lower of the mirrored process with a non-decision range (above zero), with its gradient;
+/// the equations are those of [`ln_survival_with_gradient`].
+fn survival_window_with_gradient(rt: f64, p: &DiffusionParams) -> (f64, Partials) {
+    let st = p.ndt_range;
+    let half = 0.5 * st;
+    let (lo, hi) = (rt - p.ndt - half, rt - p.ndt + half);
+    if !positive(hi) {
+        // Every decision time of the window is at or below zero: S = P_b.
+        return bound_probability_over_start_with_gradient(p);
+    }
+    // S̄(hi): its own dependence on ndt and s_t is in the window terms' Leibniz derivatives.
+    let (ln_tail, mut g_tail) = survival_over_start_with_gradient(hi, p);
+    g_tail[T] = 0.0;
+    let mut terms = vec![(ln_tail, g_tail)];
+    for (s, ln_weight) in time_nodes(lo.max(0.0), hi, time_shape(p)) {
+        let k = (s - lo) / st;
+        let (ln_f, mut g) = density_over_start_with_gradient(s, p);
+        // e^{term}·g = weight·k·f̄·g: the ndt and s_t derivatives are weight·f̄/s_t and
+        // weight·(½ − k)·f̄/s_t.
+        g[T] = 1.0 / (st * k);
+        g[ST] = (0.5 - k) / (st * k);
+        terms.push((ln_weight + k.ln() + ln_f, g));
+    }
+    ln_sum_with_mean(&terms)
 }
 
 /// Probability that the process ends at `bound`.
@@ -125,8 +163,7 @@ pub fn ln_bound_probability(bound: Bound, params: &DiffusionParams) -> f64 {
 }
 
 /// [`ln_bound_probability`] with its partial derivatives: the log-probability of a choice whose
-/// response time is not used (for example a trimmed time), for processes without start or
-/// non-decision ranges.
+/// response time is not used (for example a trimmed time).
 ///
 /// Without drift variability, in the frame of the bound (upper: λ = v·a, ω = w; lower: the
 /// mirrored process λ = −v·a, ω = 1 − w, Navarro & Fuss 2009, eq. 2), the absorption
@@ -140,41 +177,50 @@ pub fn ln_bound_probability(bound: Bound, params: &DiffusionParams) -> f64 {
 /// 1/y poles of the two k terms cancel exactly, so the derivative is evaluated without loss
 /// near λ = 0; k is summed from its Bernoulli-number series for |y| < 0.1 (Abramowitz & Stegun
 /// 1964, 23.1.1). With drift variability the probability is the survival at zero decision time,
-/// and [`ln_survival_with_gradient`] supplies it with its derivatives.
+/// whose derivatives come from the time integral of [`ln_survival_with_gradient`]. With a start
+/// range the probability is averaged over the start nodes of [`ln_bound_probability`], the
+/// derivatives as in [`ln_density_with_gradient`](super::ln_density_with_gradient); it does not
+/// depend on ndt or ndt_range (those derivatives are zero).
 ///
 /// # Accuracy
-/// The value is [`ln_bound_probability`]; the derivatives are within about 1e-12 relative,
+/// The value is [`ln_bound_probability`] (to about 1e-12 with drift variability); the
+/// derivatives are within about 1e-12 relative without drift variability and 1e-10 with it,
 /// checked against central differences of [`ln_bound_probability`] and, for the value, against
-/// the mpmath table tests/reference/first_passage_moments.csv (tests/suite/first_passage_reference.rs).
+/// the mpmath table tests/reference/first_passage_moments.csv (tests/suite/first_passage_reference.rs,
+/// tests/suite/first_passage_properties.rs, tests/suite/full_diffusion.rs).
 pub fn ln_bound_probability_with_gradient(
     bound: Bound,
     params: &DiffusionParams,
-) -> Result<(f64, DensityGradient), GradientUnavailable> {
-    if params.has_integrated_variability() {
-        return Err(GradientUnavailable);
+) -> (f64, DensityGradient) {
+    let (ln_p, g) = bound_probability_over_start_with_gradient(&params.mirrored_for(bound));
+    (ln_p, oriented(bound, g))
+}
+
+/// ln P_lower of the mirrored process, averaged over the start range, with its gradient (the
+/// start nodes of [`ln_bound_probability`]).
+fn bound_probability_over_start_with_gradient(p: &DiffusionParams) -> (f64, Partials) {
+    let t_ref = p.boundary * p.boundary;
+    if p.drift_sd > 0.0 {
+        over_start_with_gradient(t_ref, p, |q| survival_fixed_start_with_gradient(0.0, q))
+    } else {
+        over_start_with_gradient(t_ref, p, prob_lower_with_gradient)
     }
-    if params.drift_sd > 0.0 {
-        return ln_survival_with_gradient(params.ndt, bound, params);
-    }
-    let (sign, omega) = match bound {
-        Bound::Upper => (1.0, params.start),
-        Bound::Lower => (-1.0, 1.0 - params.start),
-    };
-    let (v, a) = (params.drift, params.boundary);
-    let lambda = sign * v * a;
+}
+
+/// ln P_lower at a fixed start without drift variability and its partial derivatives
+/// (v, a, w, ndt, η) = (−a·∂λ, −v·∂λ, −∂ω, 0, 0) in the frame λ = −v·a, ω = 1 − w of
+/// [`ln_bound_probability_with_gradient`].
+fn prob_lower_with_gradient(q: &DiffusionParams) -> (f64, [f64; 5]) {
+    let (v, a) = (q.drift, q.boundary);
+    let (lambda, omega) = (-v * a, 1.0 - q.start);
     let value = super::series::ln_prob_upper(lambda, omega);
     let d_lambda = -2.0 * (omega * pole_free_k(-2.0 * lambda * omega) - pole_free_k(-2.0 * lambda));
     let d_omega = 1.0 / omega - 2.0 * lambda * pole_free_k(-2.0 * lambda * omega);
-    Ok((
-        value,
-        DensityGradient {
-            drift: sign * a * d_lambda,
-            boundary: sign * v * d_lambda,
-            start: sign * d_omega,
-            ndt: 0.0,
-            drift_sd: 0.0,
-        },
-    ))
+    let mut g = [0.0; 5];
+    g[V] = -a * d_lambda;
+    g[A] = -v * d_lambda;
+    g[W] = -d_omega;
+    (value, g)
 }
 
 /// k(y) = 1/(1 − e^(−y)) − 1/y, the generating function y/(1 − e^(−y)) = Σ Bₙ⁺ yⁿ/n! less its

@@ -6,10 +6,14 @@
 //!
 //! * [`ln_density`] and [`ln_density_with_gradient`]: the defective density of each bound in log
 //!   space (Navarro & Fuss 2009), with drift variability in closed form (Blurton, Kesselmeier &
-//!   Gondan 2017) and start / non-decision variability by quadrature;
+//!   Gondan 2017) and start / non-decision variability by quadrature (the full diffusion model of
+//!   Ratcliff & Tuerlinckx 2002); the gradient covers all seven parameters, the two ranges by
+//!   differentiating the quadrature's integrand on its nodes;
 //! * [`cdf`], [`survival`], [`ln_prob_no_response`]: the defective distribution function
-//!   (Blurton, Kesselmeier & Gondan 2012);
+//!   (Blurton, Kesselmeier & Gondan 2012); [`ln_survival_with_gradient`] with all seven partial
+//!   derivatives;
 //! * [`bound_probability`]: the probability of each bound (Cox & Miller 1965);
+//!   [`ln_bound_probability_with_gradient`] with its partial derivatives;
 //! * [`mean_decision_time`], [`mean_decision_time_given`]: mean decision times overall and per
 //!   bound (Grasman, Wagenmakers & van der Maas 2009);
 //! * [`sample`]: exact draws of (bound, response time).
@@ -44,7 +48,7 @@ mod quadrature;
 mod sampler;
 mod series;
 
-pub use density::{DensityGradient, GradientUnavailable, ln_density, ln_density_with_gradient};
+pub use density::{DensityGradient, ln_density, ln_density_with_gradient};
 pub use distribution::{
     bound_probability, cdf, ln_bound_probability, ln_bound_probability_with_gradient, ln_cdf,
     ln_prob_no_response, ln_survival, ln_survival_with_gradient, survival,

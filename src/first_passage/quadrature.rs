@@ -171,7 +171,11 @@ pub(crate) fn time_nodes(lo: f64, hi: f64, shape: TimeShape) -> Vec<(f64, f64)> 
         let steep = shape
             .nats_per_log_time(y.exp())
             .max(shape.nats_per_log_time(probe_end.exp()));
+        // A panel is never narrower than a few rounding units of y: at decision times near
+        // 1e-17 (a window end that rounding puts just above zero) the steepness c/s asks for
+        // panels below the spacing of doubles around ln s, and y would stop advancing.
         let width = (MAX_NATS_PER_PANEL / steep)
+            .max(8.0 * f64::EPSILON * y.abs().max(1.0))
             .min(MAX_LOG_TIME_PANEL)
             .min(y_hi - y);
         let width = if y_hi - y - width < 1e-3 * width {

@@ -95,7 +95,8 @@ pub struct SubjectLikelihood<'a> {
     slot_transforms: Vec<Transform>,
 }
 
-/// Upper limit of ndt relative to the fastest response: the density is zero below ndt.
+/// Upper limit of the earliest possible response, ndt − ndt_range/2, relative to the fastest
+/// response: the density is zero below it.
 const NDT_BELOW_FASTEST: f64 = 0.999;
 
 impl<'a> SubjectLikelihood<'a> {
@@ -160,17 +161,28 @@ impl<'a> SubjectLikelihood<'a> {
         let mut transforms = Vec::with_capacity(free.len());
         let mut slot_transforms: Vec<Transform> =
             model.parameters.iter().map(|p| p.transform()).collect();
+        // The largest width of a uniform non-decision time (diffusion stage): responses can
+        // come from ndt − ndt_range/2 on.
+        let widest_ndt_range = (0..model.parameters.len())
+            .filter(|&slot| model.component_parameter_of(slot) == "ndt_range")
+            .map(|slot| model.parameters[slot].upper)
+            .fold(0.0, f64::max);
         for &slot in &free {
             let spec = &model.parameters[slot];
             let mut upper = spec.upper;
             if model.component_parameter_of(slot) == "ndt" && model.uses_response_times() {
-                // Below the fastest response of the trials that use this ndt (all trials, or
-                // those of its level when ndt differs by condition).
+                // The earliest possible response, ndt − ndt_range/2, below the fastest response
+                // of the trials that use this ndt (all trials, or those of its level when ndt
+                // differs by condition). A box bound on ndt alone can only use the widest
+                // allowed ndt_range: below it ndt keeps every value the data allow, and the
+                // points between with a narrower ndt_range, whose density is zero at the fastest
+                // response, have likelihood zero (the fitter treats them as invalid). Without an
+                // ndt_range this is ndt < 0.999·fastest.
                 let fastest = ndt_trials(model, subject, &design, slot)
                     .filter_map(|t| t.rt)
                     .fold(f64::INFINITY, f64::min);
                 if fastest.is_finite() {
-                    upper = upper.min(NDT_BELOW_FASTEST * fastest);
+                    upper = upper.min(NDT_BELOW_FASTEST * fastest + 0.5 * widest_ndt_range);
                 }
                 if upper <= spec.lower {
                     return Err(mismatch(format!(

@@ -307,6 +307,68 @@ impl Reader<'_> {
     }
 }
 
+/// The diffusion stage's across-trial ranges must keep the process defined at every allowed
+/// value (the domain of [`crate::first_passage::DiffusionParams::with_variability`]): the
+/// relative start w′ ∈ [start − start_range/2, start + start_range/2] inside (0, 1), so
+/// start_range ∈ [0, 1) with start's lower bound above start_range's upper bound / 2 and start's
+/// upper bound below 1 − that; the non-decision time ndt′ ∈ [ndt − ndt_range/2, ndt + ndt_range/2]
+/// at or above 0, so ndt_range ≥ 0 with ndt's lower bound at least half of ndt_range's upper
+/// bound. Undeclared parameters take their fixed defaults (start 0.5, ranges 0).
+fn check_diffusion_ranges(parameters: &[ParameterSpec]) -> Result<(), (String, String)> {
+    let bounds = |name: &str, default: f64| {
+        parameters
+            .iter()
+            .find(|p| p.name == name)
+            .map_or((default, default), |p| (p.lower, p.upper))
+    };
+    let key = |name: &str| format!("parameters.{name}");
+    let (start_lo, start_hi) = bounds("start", 0.5);
+    let (sz_lo, sz_hi) = bounds("start_range", 0.0);
+    if !(sz_lo >= 0.0 && sz_hi < 1.0) {
+        return Err((
+            key("start_range"),
+            format!(
+                "bounds [{sz_lo}, {sz_hi}] must lie within [0, 1) (a width on the scale of start)"
+            ),
+        ));
+    }
+    let half = 0.5 * sz_hi;
+    if !(start_lo - half > 0.0 && start_hi + half < 1.0) {
+        return Err((
+            key("start_range"),
+            format!(
+                "start ± start_range/2 must stay inside (0, 1): start's bounds [{start_lo}, \
+                 {start_hi}] with start_range up to {sz_hi} reach [{}, {}]; lower start_range's \
+                 upper bound or narrow start's bounds",
+                start_lo - half,
+                start_hi + half
+            ),
+        ));
+    }
+    let (ndt_lo, _) = bounds("ndt", 0.0);
+    let (st_lo, st_hi) = bounds("ndt_range", 0.0);
+    if !(st_lo >= 0.0 && st_hi.is_finite()) {
+        return Err((
+            key("ndt_range"),
+            format!(
+                "bounds [{st_lo}, {st_hi}] must be finite and at or above 0 (a width in seconds)"
+            ),
+        ));
+    }
+    if ndt_lo < 0.5 * st_hi {
+        return Err((
+            key("ndt_range"),
+            format!(
+                "ndt − ndt_range/2 must stay at or above 0: ndt's lower bound {ndt_lo} is below \
+                 half of ndt_range's upper bound {st_hi}; raise ndt's lower bound to at least {} \
+                 or lower ndt_range's upper bound",
+                0.5 * st_hi
+            ),
+        ));
+    }
+    Ok(())
+}
+
 fn dotted(prefix: &str, key: &str) -> String {
     if prefix.is_empty() {
         key.to_string()
@@ -489,15 +551,20 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
         check_range(rate, 0.0, 1.0)?;
     }
     check_range("start", 1e-9, 1.0 - 1e-9)?;
-    for positive in ["boundary", "threshold", "start_range", "threshold_gap"] {
+    for positive in ["boundary", "threshold", "threshold_gap"] {
         check_range(positive, 1e-9, f64::INFINITY)?;
     }
     if choice.name == "ballistic-race" {
-        // The rate's spread divides every quantity of the ballistic accumulator.
+        // The rate's spread divides every quantity of the ballistic accumulator, and the start
+        // range (the width of the uniform start below the threshold) divides its density.
         check_range("drift_sd", 1e-9, f64::INFINITY)?;
+        check_range("start_range", 1e-9, f64::INFINITY)?;
     }
     for non_negative in ["ndt", "drift_sd"] {
         check_range(non_negative, 0.0, f64::INFINITY)?;
+    }
+    if choice.name == "diffusion" {
+        check_diffusion_ranges(&parameters).map_err(|(key, message)| r.error(&key, message))?;
     }
     let forget_slot = (forgetting && learning.name != "none").then(|| slot("forget_rate"));
     for (spec, variation) in parameters.iter().zip(&variations) {

@@ -182,7 +182,7 @@ fn gradient_matches_central_differences() {
                 .unwrap()
         };
         let x = [v, a, w, ndt, sd];
-        let (ln_f, g) = ln_density_with_gradient(rt, bound, &make(x)).unwrap();
+        let (ln_f, g) = ln_density_with_gradient(rt, bound, &make(x));
         assert!((ln_f - ln_density(rt, bound, &make(x))).abs() < 1e-12);
         let analytic = [g.drift, g.boundary, g.start, g.ndt, g.drift_sd];
         for k in 0..5 {
@@ -258,7 +258,7 @@ fn survival_gradient_matches_the_series_and_central_differences() {
         let x = [v, a, w, ndt, sd];
         for deadline in [0.6, 1.5] {
             for bound in [Bound::Upper, Bound::Lower] {
-                let (ln_s, g) = ln_survival_with_gradient(deadline, bound, &make(x)).unwrap();
+                let (ln_s, g) = ln_survival_with_gradient(deadline, bound, &make(x));
                 let series = ln_survival(deadline, bound, &make(x));
                 assert!((ln_s - series).abs() < 1e-9, "{ln_s} vs {series}");
                 let analytic = [g.drift, g.boundary, g.start, g.ndt, g.drift_sd];
@@ -308,7 +308,7 @@ fn choice_only_gradient_matches_central_differences() {
         };
         let x = [v, a, w, sd];
         for bound in [Bound::Upper, Bound::Lower] {
-            let (ln_p, g) = ln_bound_probability_with_gradient(bound, &make(x)).unwrap();
+            let (ln_p, g) = ln_bound_probability_with_gradient(bound, &make(x));
             let direct = ln_bound_probability(bound, &make(x));
             assert!((ln_p - direct).abs() < 1e-9, "{ln_p} vs {direct}");
             assert_eq!(g.ndt, 0.0, "P(bound) does not depend on ndt");

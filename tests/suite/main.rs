@@ -14,6 +14,7 @@ mod fit_behaviour;
 mod fit_folder;
 mod fit_optima;
 mod fitted_inputs;
+mod full_diffusion;
 mod group_prior_covariates;
 mod group_statistics;
 mod haemodynamic_response;

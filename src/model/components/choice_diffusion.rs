@@ -1,8 +1,22 @@
 //! Diffusion choice stage: choices and response times jointly through the Wiener first-passage
 //! density (Ratcliff 1978; Navarro & Fuss 2009), choosing `a` at the upper bound. Optional
-//! across-trial drift variability and a lapse mixture in which, with probability `lapse`, a
-//! response is a guess (either option, time uniform over the subject's observed range). A
-//! choice whose time is not used (trimmed) scores the absorption probability of its bound alone.
+//! across-trial variability of the full diffusion model (Ratcliff & Tuerlinckx 2002): a normal
+//! drift with standard deviation `drift_sd`, a uniform relative start of width `start_range`
+//! centred on `start`, a uniform non-decision time of width `ndt_range` centred on `ndt`; and a
+//! lapse mixture in which, with probability `lapse`, a response is a guess (either option, time
+//! uniform over the subject's observed range). A choice whose time is not used (trimmed) scores
+//! the absorption probability of its bound alone.
+//!
+//! # Across-trial ranges
+//! The ranges enter through the first-passage engine's averages, whose partial derivatives
+//! (on the quadrature nodes, see [`crate::first_passage::ln_density_with_gradient`]) are
+//! chained to the free parameters like the others. The model file keeps start ± start_range/2
+//! inside (0, 1) and ndt − ndt_range/2 ≥ 0 for every allowed value (src/model/spec.rs). The
+//! earliest possible response is ndt − ndt_range/2, so ndt itself may lie above the fastest
+//! response: the likelihood bounds ndt by the fastest response plus half the largest allowed
+//! ndt_range (src/likelihood/mod.rs); a point where ndt − ndt_range/2 reaches the fastest response
+//! has likelihood zero and the fitter treats it as invalid. A lock conditions the process when it
+//! is later than ndt − ndt_range/2.
 //!
 //! # Response windows
 //! With a deadline D, a trial without response scores S(D) = S_a(D) + S_b(D), the probability
@@ -33,10 +47,26 @@ use std::cell::RefCell;
 /// The table entry.
 pub const ENTRY: Entry<dyn ChoiceStage> = Entry {
     name: "diffusion",
-    parameters: &["boundary", "ndt", "start", "drift_sd", "lapse"],
-    defaults: &[("start", 0.5), ("drift_sd", 0.0), ("lapse", 0.0)],
-    equation: "(choice, rt) ~ Wiener first passage(drift, boundary, start, ndt, drift_sd); a = upper bound; \
-               with lapse: (1 − lapse)·f + lapse·½/(rt_max − rt_min)  (Navarro & Fuss 2009)",
+    parameters: &[
+        "boundary",
+        "ndt",
+        "start",
+        "drift_sd",
+        "start_range",
+        "ndt_range",
+        "lapse",
+    ],
+    defaults: &[
+        ("start", 0.5),
+        ("drift_sd", 0.0),
+        ("start_range", 0.0),
+        ("ndt_range", 0.0),
+        ("lapse", 0.0),
+    ],
+    equation: "(choice, rt) ~ Wiener first passage(drift ~ N(drift, drift_sd²), boundary, \
+               start' ~ U(start ± start_range/2), ndt' ~ U(ndt ± ndt_range/2)); a = upper bound; \
+               with lapse: (1 − lapse)·f + lapse·½/(rt_max − rt_min)  \
+               (Navarro & Fuss 2009; Ratcliff & Tuerlinckx 2002)",
     build,
 };
 
@@ -45,6 +75,8 @@ struct Diffusion {
     ndt: usize,
     start: usize,
     drift_sd: usize,
+    start_range: usize,
+    ndt_range: usize,
     lapse: usize,
 }
 
@@ -55,6 +87,8 @@ fn build(options: &Options, slots: Slots<'_>) -> Result<Box<dyn ChoiceStage>, St
         ndt: slots("ndt"),
         start: slots("start"),
         drift_sd: slots("drift_sd"),
+        start_range: slots("start_range"),
+        ndt_range: slots("ndt_range"),
         lapse: slots("lapse"),
     }))
 }
@@ -82,7 +116,13 @@ impl ChoiceStage for Diffusion {
             value(self.start),
             value(self.ndt),
         )
-        .and_then(|q| q.with_variability(value(self.drift_sd), 0.0, 0.0))
+        .and_then(|q| {
+            q.with_variability(
+                value(self.drift_sd),
+                value(self.start_range),
+                value(self.ndt_range),
+            )
+        })
         .ok();
         let lapse = p[self.lapse];
         let guess_density = 0.5 / (context.rt_max - context.rt_min).max(1e-3);
@@ -133,6 +173,8 @@ impl Prepared<'_> {
                 (g.start, &self.p[s.start]),
                 (g.ndt, &self.p[s.ndt]),
                 (g.drift_sd, &self.p[s.drift_sd]),
+                (g.start_range, &self.p[s.start_range]),
+                (g.ndt_range, &self.p[s.ndt_range]),
             ],
         )
     }
@@ -140,7 +182,7 @@ impl Prepared<'_> {
 
 impl Prepared<'_> {
     /// ln S_c(t) for a bound, with its gradient.
-    fn ln_survival(&self, t: f64, bound: Bound, params: &DiffusionParams, signal: &D) -> Option<D> {
+    fn ln_survival(&self, t: f64, bound: Bound, params: &DiffusionParams, signal: &D) -> D {
         let key = (t.to_bits(), params.drift().to_bits(), bound == Bound::Upper);
         let cached = self
             .survivals
@@ -151,7 +193,7 @@ impl Prepared<'_> {
         let (ln_s, g) = match cached {
             Some(hit) => hit,
             None => {
-                let fresh = ln_survival_with_gradient(t, bound, params).ok()?;
+                let fresh = ln_survival_with_gradient(t, bound, params);
                 let mut cache = self.survivals.borrow_mut();
                 if cache.len() < SURVIVAL_CACHE {
                     cache.push((key.0, key.1, key.2, fresh));
@@ -159,20 +201,22 @@ impl Prepared<'_> {
                 fresh
             }
         };
-        Some(self.chained(ln_s, g, signal))
+        self.chained(ln_s, g, signal)
     }
 
     /// ln S(t) = ln(S_a(t) + S_b(t)), the probability that no bound is reached by time t.
-    fn ln_undecided_by(&self, t: f64, params: &DiffusionParams, signal: &D) -> Option<D> {
-        Some(ln_add_exp(
-            self.ln_survival(t, Bound::Upper, params, signal)?,
-            self.ln_survival(t, Bound::Lower, params, signal)?,
-        ))
+    fn ln_undecided_by(&self, t: f64, params: &DiffusionParams, signal: &D) -> D {
+        ln_add_exp(
+            self.ln_survival(t, Bound::Upper, params, signal),
+            self.ln_survival(t, Bound::Lower, params, signal),
+        )
     }
 
-    /// The lock when it is after ndt (so that it conditions the process), else `None`.
+    /// The lock when it is after the earliest possible response, ndt − ndt_range/2 (so that it
+    /// conditions the process), else `None`.
     fn active_lock(&self, params: &DiffusionParams) -> Option<f64> {
-        self.context.lock.filter(|&lock| lock > params.ndt())
+        let earliest = params.ndt() - 0.5 * params.ndt_range();
+        self.context.lock.filter(|&lock| lock > earliest)
     }
 }
 
@@ -184,10 +228,9 @@ impl PreparedChoice for Prepared<'_> {
         };
         let params = base.with_drift(signal.re);
         // ln S(lock): what every observation is conditioned on.
-        let ln_window = match self.active_lock(&params) {
-            Some(lock) => Some(self.ln_undecided_by(lock, &params, &signal)?),
-            None => None,
-        };
+        let ln_window = self
+            .active_lock(&params)
+            .map(|lock| self.ln_undecided_by(lock, &params, &signal));
         let conditioned = |x: D| match ln_window {
             Some(w) => x - w,
             None => x,
@@ -195,7 +238,7 @@ impl PreparedChoice for Prepared<'_> {
         match (observation.choice, observation.rt) {
             (Some(choice), Some(rt)) => {
                 let bound = bound_of(choice);
-                let (ln_f, g) = ln_density_with_gradient(rt, bound, &params).ok()?;
+                let (ln_f, g) = ln_density_with_gradient(rt, bound, &params);
                 let ln_f = conditioned(self.chained(ln_f, g, &signal));
                 Some(match self.lapse {
                     Some((ln_keep, ln_guess)) => ln_add_exp(ln_keep + ln_f, ln_guess),
@@ -204,7 +247,7 @@ impl PreparedChoice for Prepared<'_> {
             }
             (None, _) => {
                 let deadline = self.context.deadline?;
-                let total = conditioned(self.ln_undecided_by(deadline, &params, &signal)?);
+                let total = conditioned(self.ln_undecided_by(deadline, &params, &signal));
                 Some(match self.lapse {
                     Some((ln_keep, _)) => ln_keep + total,
                     None => total,
@@ -215,9 +258,9 @@ impl PreparedChoice for Prepared<'_> {
                 // probability (Feller 1968); with lapses (1 − lapse)·P + lapse·½.
                 let bound = bound_of(choice);
                 let ln_p = match self.active_lock(&params) {
-                    Some(lock) => conditioned(self.ln_survival(lock, bound, &params, &signal)?),
+                    Some(lock) => conditioned(self.ln_survival(lock, bound, &params, &signal)),
                     None => {
-                        let (ln_p, g) = ln_bound_probability_with_gradient(bound, &params).ok()?;
+                        let (ln_p, g) = ln_bound_probability_with_gradient(bound, &params);
                         self.chained(ln_p, g, &signal)
                     }
                 };
