@@ -75,9 +75,13 @@ pub fn ln_prob_no_response(deadline: f64, params: &DiffusionParams) -> f64 {
 /// Used for trials that end without a response at a deadline and for the response lock.
 ///
 /// # Accuracy
-/// About 1e-10 relative (the time quadrature), checked against central differences of
-/// [`ln_survival`] in tests/suite/first_passage_properties.rs (no ranges) and
-/// tests/suite/full_diffusion.rs (ranges).
+/// The value agrees with [`ln_survival`] within 1e-9 (its time quadrature against the series
+/// and the integration by parts of [`ln_survival`]). The partial derivatives agree with central
+/// differences of [`ln_survival`] to 1e-6 relative without ranges
+/// (tests/suite/first_passage_properties.rs); with ranges the largest relative error measured
+/// against Richardson-extrapolated central differences was 3.4e-8 (ndt_range in the slow tail
+/// of a 0.02-s window, where the numeric side limits it), 8.3e-9 or less for the others
+/// (tests/suite/full_diffusion.rs; required 1e-7).
 pub fn ln_survival_with_gradient(
     rt: f64,
     bound: Bound,
@@ -183,11 +187,12 @@ pub fn ln_bound_probability(bound: Bound, params: &DiffusionParams) -> f64 {
 /// depend on ndt or ndt_range (those derivatives are zero).
 ///
 /// # Accuracy
-/// The value is [`ln_bound_probability`] (to about 1e-12 with drift variability); the
-/// derivatives are within about 1e-12 relative without drift variability and 1e-10 with it,
-/// checked against central differences of [`ln_bound_probability`] and, for the value, against
-/// the mpmath table tests/reference/first_passage_moments.csv (tests/suite/first_passage_reference.rs,
-/// tests/suite/first_passage_properties.rs, tests/suite/full_diffusion.rs).
+/// The value agrees with [`ln_bound_probability`] within 1e-9 and, through it, with the mpmath
+/// table tests/reference/first_passage_moments.csv (tests/suite/first_passage_reference.rs). The derivatives agree with central differences of
+/// [`ln_bound_probability`] to 1e-6 relative without ranges
+/// (tests/suite/first_passage_properties.rs); with start ranges the largest relative error
+/// measured against Richardson-extrapolated central differences was 7.2e-11
+/// (tests/suite/full_diffusion.rs; required 1e-7).
 pub fn ln_bound_probability_with_gradient(
     bound: Bound,
     params: &DiffusionParams,

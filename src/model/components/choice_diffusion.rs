@@ -63,7 +63,7 @@ pub const ENTRY: Entry<dyn ChoiceStage> = Entry {
         ("ndt_range", 0.0),
         ("lapse", 0.0),
     ],
-    equation: "(choice, rt) ~ Wiener first passage(drift ~ N(drift, drift_sd²), boundary, \
+    equation: "(choice, rt) ~ Wiener first passage(drift' ~ N(drift, drift_sd²), boundary, \
                start' ~ U(start ± start_range/2), ndt' ~ U(ndt ± ndt_range/2)); a = upper bound; \
                with lapse: (1 − lapse)·f + lapse·½/(rt_max − rt_min)  \
                (Navarro & Fuss 2009; Ratcliff & Tuerlinckx 2002)",
