@@ -14,6 +14,7 @@
 //! statistics and 1e-8 relative for the p values on the cases of `tests/suite/group_statistics.rs`.
 
 pub mod contrast;
+pub mod power;
 pub mod selection;
 
 use statrs::distribution::{ChiSquared, ContinuousCDF, Normal};
