@@ -17,6 +17,7 @@ pub mod fit;
 pub mod group;
 pub mod likelihood;
 pub mod model;
+pub mod plan;
 pub mod progress;
 pub mod race;
 pub mod results;

@@ -9,6 +9,7 @@ mod export;
 mod fit;
 mod input;
 mod models;
+pub mod plan;
 mod simulate;
 
 use crate::results::fit_folder::{RUN_RECORD, RunRecord};
@@ -312,6 +313,32 @@ pub enum Command {
         /// Choice codes and missing-value tokens of the design file.
         #[command(flatten)]
         reading: input::ReadingArgs,
+    },
+    /// Plan a study before collecting data: simulate cohorts from a design with the exact
+    /// sampler, fit them exactly as `fit` would, and report parameter recovery per design size
+    /// (Pearson r, bias, RMSE, 95 % interval coverage, share at a bound; per-subject and
+    /// empirical-Bayes estimates), model recovery (per-subject confusion by BIC, Schwarz 1978;
+    /// random-effects selection per study, Stephan et al. 2009, Rigoux et al. 2014) and the power
+    /// of the group contrast (Welch 1947) per number of participants, with Wilson (1927)
+    /// intervals and the normal-theory power from the noncentral t (Lenth 1989).
+    ///
+    /// The plan is a TOML file (see the README's "Planning a study"). Writes OUT/plan_recovery,
+    /// plan_confusion, plan_model_recovery, plan_power, plan_trials_needed, plan_estimates
+    /// (.csv + .parquet) and plan.json. Results depend on the seed only, not on --threads.
+    #[command(after_help = RESEARCH_CAUTION)]
+    Plan {
+        /// The plan file (TOML).
+        #[arg(long)]
+        plan: PathBuf,
+        /// Output folder.
+        #[arg(long)]
+        out: PathBuf,
+        /// Threads (0: all cores); results do not depend on it.
+        #[arg(long, default_value_t = 0)]
+        threads: usize,
+        /// Whether an existing result may be replaced.
+        #[command(flatten)]
+        replace: ReplaceArg,
     },
     /// List the built-in models (or describe one, by name or file) with their components,
     /// equations and parameters.
@@ -636,6 +663,19 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 replace.replace,
             )
         }
+        Command::Plan {
+            plan: file,
+            out,
+            threads,
+            replace,
+        } => plan::run(
+            &file,
+            &out,
+            input::check_threads(threads)?,
+            replace.replace,
+            &command_line,
+        )
+        .map(|_| ()),
         Command::Models { name } => models::run(name.as_deref()),
         Command::Density {
             input,

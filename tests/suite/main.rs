@@ -25,6 +25,8 @@ mod model_selection;
 mod output_formats;
 mod output_safety;
 mod parameter_recovery;
+mod plan;
+mod power;
 mod predictive_check;
 mod race_models;
 mod race_reference;
