@@ -20,5 +20,6 @@ pub mod model;
 pub mod plan;
 pub mod progress;
 pub mod race;
+pub mod report;
 pub mod results;
 pub mod simulate;

@@ -10,6 +10,7 @@ mod fit;
 mod input;
 mod models;
 pub mod plan;
+mod report;
 mod simulate;
 
 use crate::results::fit_folder::{RUN_RECORD, RunRecord};
@@ -336,6 +337,29 @@ pub enum Command {
         /// Threads (0: all cores); results do not depend on it.
         #[arg(long, default_value_t = 0)]
         threads: usize,
+        /// Whether an existing result may be replaced.
+        #[command(flatten)]
+        replace: ReplaceArg,
+    },
+    /// One self-contained HTML report (inline SVG figures, no script, nothing fetched from
+    /// anywhere) of a fit folder and what sits beside it: data screen, fits, estimates by group,
+    /// model selection with protected exceedance probabilities, group contrast, empirical-Bayes
+    /// priors, predictive-check figures (--check), a plan's recovery, model recovery and power
+    /// (--plan), the run's settings and a methods paragraph with references.
+    #[command(after_help = RESEARCH_CAUTION)]
+    Report {
+        /// Folder written by `valuedrift fit` (with `compare` and `contrast` outputs, if any).
+        #[arg(long)]
+        fits: Option<PathBuf>,
+        /// Folder written by `valuedrift check`.
+        #[arg(long)]
+        check: Option<PathBuf>,
+        /// Folder written by `valuedrift plan`.
+        #[arg(long)]
+        plan: Option<PathBuf>,
+        /// The HTML file to write.
+        #[arg(long)]
+        out: PathBuf,
         /// Whether an existing result may be replaced.
         #[command(flatten)]
         replace: ReplaceArg,
@@ -676,6 +700,17 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             &command_line,
         )
         .map(|_| ()),
+        Command::Report {
+            fits,
+            check,
+            plan,
+            out,
+            replace,
+        } => report::run(
+            &crate::report::ReportInputs { fits, check, plan },
+            &out,
+            replace.replace,
+        ),
         Command::Models { name } => models::run(name.as_deref()),
         Command::Density {
             input,
