@@ -228,14 +228,18 @@ fn binary() -> Command {
     Command::new(env!("CARGO_BIN_EXE_valuedrift"))
 }
 
-/// Trial table of three simulated subjects and a parameters.csv at the generating values.
-fn inputs(dir: &Path) -> (std::path::PathBuf, std::path::PathBuf) {
-    let model = load_model("delta-linear").unwrap();
-    let subjects = orchard_subjects(&model, 3, 60, 8);
+/// A trial table of `subjects` and a parameters.csv giving each of them `values` under the
+/// model called `name`.
+fn write_inputs(
+    dir: &Path,
+    model: &Model,
+    subjects: Vec<Subject>,
+    values: &[f64],
+) -> (std::path::PathBuf, std::path::PathBuf) {
     let mut params = String::from("subject,group,model,parameter,estimate\n");
     for s in &subjects {
-        for (p, x) in model.parameters.iter().zip(natural(&model, 1.0)) {
-            params.push_str(&format!("{},sim,delta-linear,{},{x}\n", s.id, p.name));
+        for (p, x) in model.parameters.iter().zip(values) {
+            params.push_str(&format!("{},sim,{},{},{x}\n", s.id, model.name, p.name));
         }
     }
     let fits = dir.join("fits");
@@ -254,9 +258,16 @@ fn inputs(dir: &Path) -> (std::path::PathBuf, std::path::PathBuf) {
     (fits, data)
 }
 
-fn check(fits: &Path, data: &Path, out: &Path) -> std::process::Output {
+/// Trial table of three simulated subjects and a parameters.csv at the generating values.
+fn inputs(dir: &Path) -> (std::path::PathBuf, std::path::PathBuf) {
+    let model = load_model("delta-linear").unwrap();
+    let subjects = orchard_subjects(&model, 3, 60, 8);
+    write_inputs(dir, &model, subjects, &natural(&model, 1.0))
+}
+
+fn check_with(model: &str, fits: &Path, data: &Path, out: &Path) -> std::process::Output {
     binary()
-        .args(["check", "--model", "delta-linear", "--sims", "15"])
+        .args(["check", "--model", model, "--sims", "15"])
         .arg("--fits")
         .arg(fits)
         .arg("--data")
@@ -265,6 +276,41 @@ fn check(fits: &Path, data: &Path, out: &Path) -> std::process::Output {
         .arg(out)
         .output()
         .unwrap()
+}
+
+fn check(fits: &Path, data: &Path, out: &Path) -> std::process::Output {
+    check_with("delta-linear", fits, data, out)
+}
+
+/// The texts of an SVG file's `<text>` elements, trimmed.
+fn svg_texts(path: &Path) -> Vec<String> {
+    let svg = std::fs::read_to_string(path).unwrap();
+    svg.split("<text")
+        .skip(1)
+        .filter_map(|t| {
+            let body = &t[t.find('>')? + 1..];
+            Some(body[..body.find("</text>")?].trim().to_string())
+        })
+        .collect()
+}
+
+/// The legend under every figure names the marks (common practice for a figure: every mark
+/// explained), and figures of times name the quantile colours and the unit of time.
+fn assert_legend(path: &Path, with_quantiles: bool) {
+    let texts = svg_texts(path);
+    for entry in [
+        "observed",
+        "predicted 95 % band (2.5–97.5 % of replicate datasets)",
+        "predicted mean",
+    ] {
+        assert!(texts.iter().any(|t| t == entry), "{path:?}: no {entry:?}");
+    }
+    if with_quantiles {
+        for entry in ["response-time quantile:", ".1", ".3", ".5", ".7", ".9"] {
+            assert!(texts.iter().any(|t| t == entry), "{path:?}: no {entry:?}");
+        }
+        assert!(texts.iter().any(|t| t == "response time (s)"), "{path:?}");
+    }
 }
 
 #[test]
@@ -289,15 +335,62 @@ fn check_writes_tables_and_figures_and_malformed_input_writes_nothing() {
             assert!(out.join(format!("{stem}.{ext}")).is_file(), "{stem}.{ext}");
         }
     }
-    for svg in ["check_choices.svg", "check_rt_quantiles.svg"] {
+    for svg in [
+        "check_choices.svg",
+        "check_rt_quantiles.svg",
+        "check_options.svg",
+    ] {
         let text = std::fs::read_to_string(out.join(svg)).unwrap();
         assert!(text.contains("<svg") && text.contains("</svg>"), "{svg}");
+        assert_legend(&out.join(svg), svg != "check_choices.svg");
     }
+    // Effort bins are labelled by the effort they hold: each pooled effort bin's value in the
+    // table (bin_low = bin_high, one bin per orchard effort level) is a tick label.
+    let choices = std::fs::read_to_string(out.join("check_choices.csv")).unwrap();
+    let header: Vec<&str> = choices.lines().next().unwrap().split(',').collect();
+    let column = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    let ticks = svg_texts(&out.join("check_choices.svg"));
+    let effort_bins: Vec<Vec<&str>> = choices
+        .lines()
+        .map(|l| l.split(',').collect::<Vec<_>>())
+        .filter(|c| c[0] == "pooled" && c[column("factor")] == "effort_of_better_option")
+        .collect();
+    assert!(effort_bins.len() >= 2, "{choices}");
+    for cells in &effort_bins {
+        let (lo, hi) = (cells[column("bin_low")], cells[column("bin_high")]);
+        assert_eq!(lo, hi, "one effort level per bin");
+        let level: f64 = lo.parse().unwrap();
+        assert!(
+            ticks.iter().any(|t| t.parse::<f64>() == Ok(level)),
+            "effort {level} not among the tick labels {ticks:?}"
+        );
+    }
+    assert!(
+        ticks
+            .iter()
+            .any(|t| t.starts_with("effort of the better option"))
+    );
+    // The shares of sides a and b, pooled, sum to 1 (arithmetic: every response chose a side).
+    let shares: Vec<f64> = choices
+        .lines()
+        .map(|l| l.split(',').collect::<Vec<_>>())
+        .filter(|c| c[0] == "pooled" && c[column("kind")] == "choice_share")
+        .map(|c| c[column("observed")].parse().unwrap())
+        .collect();
+    assert_eq!(shares.len(), 2, "{choices}");
+    assert!(
+        (shares.iter().sum::<f64>() - 1.0).abs() < 1e-12,
+        "{shares:?}"
+    );
     let misfit = std::fs::read_to_string(out.join("check_misfit.csv")).unwrap();
     assert_eq!(misfit.lines().count(), 4, "{misfit}"); // header + 3 subjects
     // Figures of the worst-fitting subject (first row of the misfit table) name it.
     let worst = misfit.lines().nth(1).unwrap().split(',').next().unwrap();
-    for svg in ["check_worst1_choices.svg", "check_worst1_rt_quantiles.svg"] {
+    for svg in [
+        "check_worst1_choices.svg",
+        "check_worst1_rt_quantiles.svg",
+        "check_worst1_options.svg",
+    ] {
         let text = std::fs::read_to_string(out.join(svg)).unwrap();
         assert!(text.contains(&format!("subject {worst} ")), "{svg}");
     }
@@ -608,4 +701,57 @@ fn misfit_counts_the_shares_of_every_side_but_the_last() {
     let m = misfit(&[share(0, 0.7, a), share(1, 0.3, b)]);
     assert_eq!(m.n_statistics, 1);
     assert_eq!(m.fraction_outside, Some(1.0));
+}
+
+/// End to end with three options and a racing accumulator per option: the check writes the
+/// shares of sides a, b and c and the quantiles of the responses choosing each, and a figure of
+/// them with its legend and the sides as tick labels.
+#[test]
+fn check_runs_end_to_end_with_a_three_option_race() {
+    let dir = tempfile::tempdir().unwrap();
+    let model = three_arm_model();
+    let subjects = three_option_subjects(&model, 3, 90, 31);
+    let (fits, data) = write_inputs(dir.path(), &model, subjects, &race_values(&model));
+    let out = dir.path().join("out");
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/models/three-arm-wald-race.toml");
+    let run = check_with(path.to_str().unwrap(), &fits, &data, &out);
+    assert!(
+        run.status.success(),
+        "{}",
+        String::from_utf8_lossy(&run.stderr)
+    );
+    let choices = std::fs::read_to_string(out.join("check_choices.csv")).unwrap();
+    let header: Vec<&str> = choices.lines().next().unwrap().split(',').collect();
+    let column = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    let sides: Vec<String> = choices
+        .lines()
+        .map(|l| l.split(',').collect::<Vec<_>>())
+        .filter(|c| c[0] == "pooled" && c[column("kind")] == "choice_share")
+        .map(|c| c[column("side")].to_string())
+        .collect();
+    assert_eq!(sides, ["a", "b", "c"]);
+    let quantiles = std::fs::read_to_string(out.join("check_quantiles.csv")).unwrap();
+    for side in ["a", "b", "c"] {
+        let rows = quantiles
+            .lines()
+            .filter(|l| l.starts_with("pooled,") && l.contains(",option,"))
+            .filter(|l| l.contains(&format!(",{side},")) && l.contains(",all,"))
+            .count();
+        assert_eq!(rows, 5, "side {side}: one row per quantile\n{quantiles}");
+    }
+    for stem in ["check_choices", "check_quantiles", "check_misfit"] {
+        assert!(
+            out.join(format!("{stem}.parquet")).is_file(),
+            "{stem}.parquet"
+        );
+    }
+    let figure = out.join("check_options.svg");
+    assert_legend(&figure, true);
+    let texts = svg_texts(&figure);
+    for label in ["a", "b", "c", "option side chosen", "share of responses"] {
+        assert!(
+            texts.iter().any(|t| t == label),
+            "no {label:?} in {texts:?}"
+        );
+    }
 }
