@@ -91,14 +91,19 @@ pub fn check_subject(
         .trace(natural);
     let condition = settings.condition.as_ref();
     let observed = classify(subject, &observed_traces, condition);
-    // Condition bins are the levels themselves, the same for every subject.
-    let level_cuts = condition.map_or(Vec::new(), |c| {
-        (1..c.levels.len()).map(|i| i as f64 - 0.5).collect()
-    });
-    let cuts = [
+    // Condition bins are the levels themselves, option bins the sides, the same for every
+    // subject.
+    let sides = subject
+        .trials
+        .iter()
+        .map(|t| t.offers.len())
+        .max()
+        .unwrap_or(0);
+    let cuts: Cuts = [
         cuts(&observed, Factor::ValueDifference),
         cuts(&observed, Factor::Effort),
-        level_cuts,
+        condition.map_or(Vec::new(), |c| index_cuts(c.levels.len())),
+        index_cuts(sides),
     ];
     let keys = keys_for(&cuts, model.uses_response_times(), condition.is_some());
     let observed_stats = statistics_of(&observed, &cuts, &keys);
@@ -143,12 +148,13 @@ pub fn check_subject(
         .iter()
         .enumerate()
         .map(|(k, &key)| {
+            // The side of an option bin is its label; other bins span the values in them.
             let in_bin: Vec<f64> = observed
                 .iter()
-                .map(|c| factor_value(c, key.factor))
+                .filter_map(|c| factor_value(c, key.factor))
                 .filter(|&x| bin_of(x, &cuts[key.factor as usize]) == key.bin)
                 .collect();
-            let bin_range = (!in_bin.is_empty()).then(|| {
+            let bin_range = (key.factor != Factor::Option && !in_bin.is_empty()).then(|| {
                 let lo = in_bin.iter().copied().fold(f64::INFINITY, f64::min);
                 let hi = in_bin.iter().copied().fold(f64::NEG_INFINITY, f64::max);
                 (lo, hi)
@@ -194,7 +200,8 @@ pub fn check_subjects(
 
 /// Pooled statistics: for each (factor, bin, kind) present in any subject, the mean over the
 /// subjects with an observed value of their observed values, and for replicate r the mean over
-/// those subjects of their replicate-r values (those that exist).
+/// those subjects of their replicate-r values (those that exist); the bin's range is the
+/// smallest and largest value any subject had in that bin.
 pub fn pooled(checks: &[SubjectCheck]) -> Vec<Statistic> {
     let mut keys: Vec<Key> = Vec::new();
     for check in checks {
@@ -228,9 +235,20 @@ pub fn pooled(checks: &[SubjectCheck]) -> Vec<Statistic> {
                     mean(&values)
                 })
                 .collect();
+            let ranges = || {
+                checks
+                    .iter()
+                    .flat_map(|c| c.statistics.iter().find(|s| s.key == key))
+                    .filter_map(|s| s.bin_range)
+            };
+            let bin_range = ranges().next().map(|_| {
+                ranges().fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), (a, b)| {
+                    (lo.min(a), hi.max(b))
+                })
+            });
             Statistic {
                 key,
-                bin_range: None,
+                bin_range,
                 n_observed: members.iter().map(|s| s.n_observed).sum(),
                 observed: mean(&observed),
                 replicates,

@@ -1,5 +1,6 @@
-//! What a dataset is summarised by: trials classified by value difference, effort and condition,
-//! bins, choice proportions and response-time quantiles, predicted bands and misfit.
+//! What a dataset is summarised by: trials classified by value difference, effort, condition and
+//! the side chosen, bins, choice proportions and shares, response-time quantiles, predicted bands
+//! and misfit.
 
 use crate::data::{Choice, Subject};
 use crate::likelihood::TrialTrace;
@@ -73,6 +74,8 @@ pub enum Factor {
     Effort,
     /// The level of a column of the trial table ([`CheckSettings::condition`]).
     Condition,
+    /// The side chosen (a, b, c, …): one bin per option side of the subject's trials.
+    Option,
 }
 
 impl Factor {
@@ -82,6 +85,7 @@ impl Factor {
             Factor::ValueDifference => "abs_value_difference",
             Factor::Effort => "effort_of_better_option",
             Factor::Condition => "condition",
+            Factor::Option => "option",
         }
     }
 }
@@ -91,8 +95,10 @@ impl Factor {
 pub enum Response {
     /// Chose the option with the larger subjective value.
     CorrectByValue,
-    /// Chose the other option.
+    /// Chose another option.
     Other,
+    /// Every response in the bin (for [`Factor::Option`]: every response that chose that side).
+    All,
 }
 
 impl Response {
@@ -101,6 +107,7 @@ impl Response {
         match self {
             Response::CorrectByValue => "correct_by_value",
             Response::Other => "other",
+            Response::All => "all",
         }
     }
 }
@@ -110,6 +117,10 @@ impl Response {
 pub enum Kind {
     /// Proportion of responses that were correct by value.
     ChoiceProportion,
+    /// Share of all the dataset's responses that chose the bin's side ([`Factor::Option`]):
+    /// k_s / n with k_s the responses choosing side s and n every response, so that the shares of
+    /// a dataset sum to 1.
+    ChoiceShare,
     /// Response-time quantile of one kind of response.
     RtQuantile {
         /// Correct-by-value or other responses.
@@ -117,6 +128,17 @@ pub enum Kind {
         /// The quantile's probability.
         quantile: f64,
     },
+}
+
+impl Kind {
+    /// Label in the tables.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Kind::ChoiceProportion => "proportion_correct_by_value",
+            Kind::ChoiceShare => "choice_share",
+            Kind::RtQuantile { .. } => "rt_quantile",
+        }
+    }
 }
 
 /// Identifies a statistic: factor, bin (0-based) and kind.
@@ -218,11 +240,22 @@ pub struct Misfit {
 /// Misfit summary of a set of statistics: the fraction of observed values outside their 95 %
 /// replicate bands, and rms z = √(mean of ((x_obs − mean_rep)/sd_rep)²) over statistics with
 /// sd_rep > 0 (common practice for posterior-predictive summaries; no single published source).
+/// The choice share of the last side ([`Kind::ChoiceShare`] with the largest bin) is left out:
+/// the shares of a dataset sum to 1, so it is fixed by the others (with two options it mirrors
+/// the share of `a` exactly) and would count one discrepancy twice.
 pub fn misfit(statistics: &[Statistic]) -> Misfit {
+    let last_side = statistics
+        .iter()
+        .filter(|s| s.key.kind == Kind::ChoiceShare)
+        .map(|s| s.key.bin)
+        .max();
     let mut n = 0usize;
     let mut outside = 0usize;
     let mut z2 = Vec::new();
     for s in statistics {
+        if s.key.kind == Kind::ChoiceShare && Some(s.key.bin) == last_side {
+            continue;
+        }
         let (Some(x), Some(band)) = (s.observed, s.band()) else {
             continue;
         };
@@ -288,28 +321,48 @@ impl Condition {
         })
     }
 
-    /// Index of the trial's level (NaN when its cell is empty).
-    pub(super) fn index_of(&self, subject: &Subject, trial: &crate::data::Trial) -> f64 {
+    /// Index of the trial's level (None when its cell is empty).
+    pub(super) fn index_of(&self, subject: &Subject, trial: &crate::data::Trial) -> Option<usize> {
         subject
             .covariate_column(&self.column)
             .and_then(|at| trial.covariate(at))
             .and_then(|level| self.levels.iter().position(|l| *l == level.as_ref()))
-            .map_or(f64::NAN, |i| i as f64)
     }
+}
+
+/// The option with the larger subjective value on a trial whose values do not tie.
+#[derive(Clone, Copy, Debug)]
+struct Better {
+    /// Its margin over the next best option.
+    abs_difference: f64,
+    /// The effort it demands.
+    effort_level: f64,
+}
+
+/// A response of a classified trial.
+#[derive(Clone, Copy, Debug)]
+struct Responded {
+    /// Index of the side chosen.
+    side: usize,
+    /// Correct by value or other; None when the values tie.
+    kind: Option<Response>,
+    /// Its response time (None when trimmed or unknown).
+    rt: Option<f64>,
 }
 
 /// One classified trial of a dataset.
 #[derive(Clone, Copy, Debug)]
 pub(super) struct Classified {
-    abs_difference: f64,
-    effort_level: f64,
-    /// Index of the trial's level of the condition column (NaN without one).
-    condition: f64,
-    /// (kind of response, response time) when there was a response.
-    response: Option<(Response, Option<f64>)>,
+    /// None when the subjective values tie (no correct-by-value option).
+    better: Option<Better>,
+    /// Index of the trial's level of the condition column (None without one or when its cell
+    /// is empty).
+    condition: Option<usize>,
+    /// None without a response.
+    response: Option<Responded>,
 }
 
-/// Classifies the trials of a dataset by its own value trajectory; ties are left out.
+/// Classifies every trial of a dataset by its own value trajectory.
 pub(super) fn classify(
     subject: &Subject,
     traces: &[TrialTrace],
@@ -319,49 +372,65 @@ pub(super) fn classify(
         .trials
         .iter()
         .zip(traces)
-        .filter_map(|(t, tr)| {
+        .map(|(t, tr)| {
             // The best option by subjective value and its margin over the next best.
             let sv = &tr.subjective_values;
-            let best = (0..sv.len()).max_by(|&i, &j| sv[i].total_cmp(&sv[j]))?;
-            let runner_up = (0..sv.len())
-                .filter(|&k| k != best)
-                .map(|k| sv[k])
-                .fold(f64::NEG_INFINITY, f64::max);
-            let difference = sv[best] - runner_up;
-            if difference.is_nan() || difference <= TIE {
-                return None;
-            }
-            let better = Choice(best);
-            let effort_level = t.offers[best].effort;
-            let response = t.choice.map(|c| {
-                let kind = if c == better {
-                    Response::CorrectByValue
-                } else {
-                    Response::Other
-                };
-                (kind, t.rt)
+            let better = (0..sv.len())
+                .max_by(|&i, &j| sv[i].total_cmp(&sv[j]))
+                .and_then(|best| {
+                    let runner_up = (0..sv.len())
+                        .filter(|&k| k != best)
+                        .map(|k| sv[k])
+                        .fold(f64::NEG_INFINITY, f64::max);
+                    let difference = sv[best] - runner_up;
+                    (difference > TIE).then(|| {
+                        (
+                            best,
+                            Better {
+                                abs_difference: difference,
+                                effort_level: t.offers[best].effort,
+                            },
+                        )
+                    })
+                });
+            let response = t.choice.map(|c| Responded {
+                side: c.index(),
+                kind: better.map(|(best, _)| {
+                    if c == Choice(best) {
+                        Response::CorrectByValue
+                    } else {
+                        Response::Other
+                    }
+                }),
+                rt: t.rt,
             });
-            Some(Classified {
-                abs_difference: difference.abs(),
-                effort_level,
-                condition: condition.map_or(f64::NAN, |c| c.index_of(subject, t)),
+            Classified {
+                better: better.map(|b| b.1),
+                condition: condition.and_then(|c| c.index_of(subject, t)),
                 response,
-            })
+            }
         })
         .collect()
 }
 
-pub(super) fn factor_value(c: &Classified, factor: Factor) -> f64 {
+/// The trial's value of `factor`: None when it has none (values tie for the value factors and
+/// the condition, whose statistics are of correct-by-value responses; an empty condition cell;
+/// no response for the side chosen).
+pub(super) fn factor_value(c: &Classified, factor: Factor) -> Option<f64> {
     match factor {
-        Factor::ValueDifference => c.abs_difference,
-        Factor::Effort => c.effort_level,
-        Factor::Condition => c.condition,
+        Factor::ValueDifference => c.better.map(|b| b.abs_difference),
+        Factor::Effort => c.better.map(|b| b.effort_level),
+        Factor::Condition => c.better.and(c.condition).map(|i| i as f64),
+        Factor::Option => c.response.map(|r| r.side as f64),
     }
 }
 
 /// Interior cut points: a value x falls in bin #{cuts c : x > c}.
 pub(super) fn cuts(observed: &[Classified], factor: Factor) -> Vec<f64> {
-    let mut x: Vec<f64> = observed.iter().map(|c| factor_value(c, factor)).collect();
+    let mut x: Vec<f64> = observed
+        .iter()
+        .filter_map(|c| factor_value(c, factor))
+        .collect();
     x.sort_by(f64::total_cmp);
     if factor == Factor::Effort {
         let mut levels = x.clone();
@@ -376,36 +445,51 @@ pub(super) fn cuts(observed: &[Classified], factor: Factor) -> Vec<f64> {
         .collect()
 }
 
+/// Cut points that give one bin per index 0, 1, …, `n` − 1 (condition levels, option sides).
+pub(super) fn index_cuts(n: usize) -> Vec<f64> {
+    (1..n).map(|i| i as f64 - 0.5).collect()
+}
+
 pub(super) fn bin_of(x: f64, cuts: &[f64]) -> usize {
     cuts.iter().filter(|&&c| x > c).count()
 }
 
+/// Cut points of every factor, indexed by `Factor as usize`.
+pub(super) type Cuts = [Vec<f64>; 4];
+
 /// The statistics of one dataset for `keys`, with the cell sizes.
 pub(super) fn statistics_of(
     classified: &[Classified],
-    cuts: &[Vec<f64>; 3],
+    cuts: &Cuts,
     keys: &[Key],
 ) -> Vec<(Option<f64>, usize)> {
     keys.iter()
         .map(|key| {
             let edges = &cuts[key.factor as usize];
-            let in_bin = classified
-                .iter()
-                .filter(|c| bin_of(factor_value(c, key.factor), edges) == key.bin);
+            let in_bin = classified.iter().filter(|c| {
+                factor_value(c, key.factor).is_some_and(|x| bin_of(x, edges) == key.bin)
+            });
             match key.kind {
                 Kind::ChoiceProportion => {
-                    let (n, correct) =
-                        in_bin.fold((0usize, 0usize), |(n, k), c| match c.response {
-                            Some((r, _)) => (n + 1, k + usize::from(r == Response::CorrectByValue)),
-                            None => (n, k),
+                    let (n, correct) = in_bin
+                        .filter_map(|c| c.response.and_then(|r| r.kind))
+                        .fold((0usize, 0usize), |(n, k), r| {
+                            (n + 1, k + usize::from(r == Response::CorrectByValue))
                         });
                     ((n > 0).then(|| correct as f64 / n as f64), n)
                 }
+                Kind::ChoiceShare => {
+                    let n = classified.iter().filter(|c| c.response.is_some()).count();
+                    let k = in_bin.count();
+                    ((n > 0).then(|| k as f64 / n as f64), n)
+                }
                 Kind::RtQuantile { response, quantile } => {
                     let mut rts: Vec<f64> = in_bin
-                        .filter_map(|c| match c.response {
-                            Some((r, Some(rt))) if r == response => Some(rt),
-                            _ => None,
+                        .filter_map(|c| {
+                            let r = c.response?;
+                            (response == Response::All || r.kind == Some(response))
+                                .then_some(r.rt)
+                                .flatten()
                         })
                         .collect();
                     rts.sort_by(f64::total_cmp);
@@ -421,24 +505,38 @@ pub(super) fn statistics_of(
         .collect()
 }
 
-/// The keys of a subject: per factor and bin, the choice proportion, then (for models of time)
-/// the quantiles of correct-by-value and of other responses.
-pub(super) fn keys_for(cuts: &[Vec<f64>; 3], with_times: bool, by_condition: bool) -> Vec<Key> {
+/// The keys of a subject: per factor and bin, the choice proportion (the choice share for
+/// [`Factor::Option`]), then (for models of time) the quantiles of correct-by-value and of
+/// other responses (of every response that chose the side for [`Factor::Option`]).
+pub(super) fn keys_for(cuts: &Cuts, with_times: bool, by_condition: bool) -> Vec<Key> {
     let mut keys = Vec::new();
     let factors: &[Factor] = if by_condition {
-        &[Factor::ValueDifference, Factor::Effort, Factor::Condition]
+        &[
+            Factor::ValueDifference,
+            Factor::Effort,
+            Factor::Condition,
+            Factor::Option,
+        ]
     } else {
-        &[Factor::ValueDifference, Factor::Effort]
+        &[Factor::ValueDifference, Factor::Effort, Factor::Option]
     };
     for &factor in factors {
+        let (choice, responses): (Kind, &[Response]) = if factor == Factor::Option {
+            (Kind::ChoiceShare, &[Response::All])
+        } else {
+            (
+                Kind::ChoiceProportion,
+                &[Response::CorrectByValue, Response::Other],
+            )
+        };
         for bin in 0..=cuts[factor as usize].len() {
             keys.push(Key {
                 factor,
                 bin,
-                kind: Kind::ChoiceProportion,
+                kind: choice,
             });
             if with_times {
-                for response in [Response::CorrectByValue, Response::Other] {
+                for &response in responses {
                     for quantile in RT_QUANTILES {
                         keys.push(Key {
                             factor,

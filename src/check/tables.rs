@@ -1,5 +1,5 @@
-//! The check's tables: observed against predicted choice proportions and response-time
-//! quantiles per subject and pooled, and subjects ranked by misfit.
+//! The check's tables: observed against predicted choice proportions, choice shares per option
+//! side and response-time quantiles per subject and pooled, and subjects ranked by misfit.
 
 use super::statistics::*;
 use crate::results::{Column, Table};
@@ -32,8 +32,8 @@ pub(super) fn rows<'a>(
     rows
 }
 
-/// Columns common to both statistic tables; with a condition, `level` names the level of its
-/// bins.
+/// Columns common to both statistic tables: `kind` names the statistic, `side` the option side
+/// of the bins of factor `option`, and with a condition `level` names the level of its bins.
 pub(super) fn statistic_table(
     rows: &[Row<'_>],
     condition: Option<&Condition>,
@@ -50,13 +50,25 @@ pub(super) fn statistic_table(
         .with("subject", text(&|r| r.0.to_string()))
         .with("group", text(&|r| r.1.to_string()))
         .with("mode", text(&|r| r.2.to_string()))
+        .with("kind", text(&|r| r.3.key.kind.as_str().to_string()))
         .with("factor", text(&|r| r.3.key.factor.as_str().to_string()))
         .with(
             "bin",
             Column::Integer(rows.iter().map(|r| r.3.key.bin as i64 + 1).collect()),
         )
         .with("bin_low", number(&|s| s.bin_range.map(|b| b.0)))
-        .with("bin_high", number(&|s| s.bin_range.map(|b| b.1)));
+        .with("bin_high", number(&|s| s.bin_range.map(|b| b.1)))
+        .with(
+            "side",
+            Column::OptionalText(
+                rows.iter()
+                    .map(|r| {
+                        (r.3.key.factor == Factor::Option)
+                            .then(|| crate::data::Choice(r.3.key.bin).as_str().to_string())
+                    })
+                    .collect(),
+            ),
+        );
     if let Some(c) = condition {
         table = table.with(
             "level",
@@ -94,17 +106,23 @@ pub(super) fn statistic_table(
         )
 }
 
-/// Observed against predicted proportions of correct-by-value responses, per subject and pooled.
+/// Observed against predicted proportions of correct-by-value responses (kind
+/// `proportion_correct_by_value`) and shares of responses per option side (kind `choice_share`,
+/// factor `option`), per subject and pooled.
 pub fn choices_table(
     checks: &[SubjectCheck],
     pooled: &[Statistic],
     condition: Option<&Condition>,
 ) -> Table {
-    let rows = rows(checks, pooled, |k| matches!(k, Kind::ChoiceProportion));
+    let rows = rows(checks, pooled, |k| {
+        matches!(k, Kind::ChoiceProportion | Kind::ChoiceShare)
+    });
     statistic_table(&rows, condition, Vec::new())
 }
 
-/// Observed against predicted response-time quantiles, per subject and pooled.
+/// Observed against predicted response-time quantiles, per subject and pooled: of
+/// correct-by-value and of other responses (`response`) per bin of the value factors, and of
+/// every response that chose the side (`response` = `all`) per bin of factor `option`.
 pub fn quantiles_table(
     checks: &[SubjectCheck],
     pooled: &[Statistic],
@@ -115,7 +133,7 @@ pub fn quantiles_table(
         rows.iter()
             .map(|r| match r.3.key.kind {
                 Kind::RtQuantile { quantile, .. } => Some(quantile),
-                Kind::ChoiceProportion => None,
+                Kind::ChoiceProportion | Kind::ChoiceShare => None,
             })
             .collect(),
     );
@@ -123,7 +141,7 @@ pub fn quantiles_table(
         rows.iter()
             .map(|r| match r.3.key.kind {
                 Kind::RtQuantile { response, .. } => response.as_str().to_string(),
-                Kind::ChoiceProportion => String::new(),
+                Kind::ChoiceProportion | Kind::ChoiceShare => String::new(),
             })
             .collect(),
     );

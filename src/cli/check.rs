@@ -1,6 +1,6 @@
 //! `valuedrift check`: predictive checks of a fitted model against the data it was fitted to.
 
-use crate::check::plots::{choice_figure, rt_quantile_figure};
+use crate::check::plots::{choice_figure, option_figure, rt_quantile_figure};
 use crate::check::{
     CheckSettings, Condition, FLAG_FRACTION, Mode, POOLED, check_subjects, choices_table, misfit,
     misfit_table, pooled, quantiles_table, ranked_misfits,
@@ -76,6 +76,11 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     outputs.stage(&out.join("check_choices.svg"), |w| {
         w.write_all(svg.as_bytes())
     })?;
+    if let Some(svg) = option_figure(&pooled, POOLED)? {
+        outputs.stage(&out.join("check_options.svg"), |w| {
+            w.write_all(svg.as_bytes())
+        })?;
+    }
     let ranked = ranked_misfits(&checks);
     for (rank, (check, _)) in ranked.iter().take(WORST_FIGURES).enumerate() {
         let scope = format!("subject {} (misfit rank {})", check.subject, rank + 1);
@@ -87,6 +92,12 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         if let Some(svg) = rt_quantile_figure(&check.statistics, &scope)? {
             outputs.stage(
                 &out.join(format!("check_worst{}_rt_quantiles.svg", rank + 1)),
+                |w| w.write_all(svg.as_bytes()),
+            )?;
+        }
+        if let Some(svg) = option_figure(&check.statistics, &scope)? {
+            outputs.stage(
+                &out.join(format!("check_worst{}_options.svg", rank + 1)),
                 |w| w.write_all(svg.as_bytes()),
             )?;
         }

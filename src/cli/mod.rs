@@ -183,12 +183,13 @@ pub enum Command {
     /// outcome_if_b, else one trial ahead of the observed history) and compare observed with
     /// predicted proportions of correct-by-value choices and response-time quantiles
     /// (.1 .3 .5 .7 .9; Ratcliff & Tuerlinckx 2002) in quintiles of |value difference| and by
-    /// the effort of the better option; bands are 2.5-97.5 % across replicate datasets, pooled
-    /// statistics average subjects' quantiles (Ratcliff 1979).
+    /// the effort of the better option, and per option side (a, b, c, ...) the share of responses
+    /// choosing it and the quantiles of their times; bands are 2.5-97.5 % across replicate
+    /// datasets, pooled statistics average subjects' quantiles (Ratcliff 1979).
     ///
     /// Writes OUT/check_choices.csv, check_quantiles.csv, check_misfit.csv (+ Parquet) and
-    /// check_choices.svg, check_rt_quantiles.svg (pooled), and the same two figures for the three
-    /// worst-fitting subjects (check_worst1_choices.svg, ...).
+    /// check_choices.svg, check_rt_quantiles.svg, check_options.svg (pooled), and the same
+    /// figures for the three worst-fitting subjects (check_worst1_choices.svg, ...).
     #[command(after_help = RESEARCH_CAUTION)]
     Check {
         /// The fit folder, trial table, model and output folder.
