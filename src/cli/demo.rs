@@ -27,6 +27,11 @@ fn median(mut xs: Vec<f64>) -> f64 {
     }
 }
 
+/// Folder of the demo's predictive check of the reference model, inside the output folder.
+pub const CHECK_FOLDER: &str = "check";
+/// The demo's HTML report, inside the output folder.
+pub const REPORT: &str = "report.html";
+
 /// Fits every built-in model but the races to the demo study, prints the summary and writes the outputs: the
 /// fit, the comparison and the contrast are written into one staging folder that replaces `out`
 /// as a whole (an existing non-empty `out` only with `replace`).
@@ -167,8 +172,48 @@ pub fn run(
         }
         println!();
     }
+    println!();
+    let check_dir = staging.join(CHECK_FOLDER);
+    super::check::run(super::check::CheckRun {
+        input: &super::FittedRun {
+            fits: staging.clone(),
+            data: data.clone(),
+            model: REFERENCE.to_string(),
+            out: check_dir.clone(),
+            columns: String::new(),
+            reading: super::input::ReadingArgs {
+                choice_codes: String::new(),
+                missing: String::new(),
+            },
+            estimates: super::EstimatesArg {
+                estimates: crate::results::EstimateSource::PerSubject,
+            },
+            replace: super::ReplaceArg { replace: false },
+        },
+        settings: crate::check::CheckSettings {
+            sims: 100,
+            seed: 1,
+            deadline: None,
+            lock: None,
+            condition: None,
+        },
+        by: None,
+    })?;
+    let report = crate::report::build(
+        &crate::report::ReportInputs {
+            fits: Some(staging.clone()),
+            check: Some(check_dir),
+            plan: None,
+        },
+        super::RESEARCH_CAUTION,
+    )?;
+    std::fs::write(staging.join(REPORT), report)?;
     outputs.commit()?;
     println!();
+    println!(
+        "report of the whole run (open in a browser): {}",
+        out.join(REPORT).display()
+    );
     println!("outputs in {}", out.display());
     println!("{}", super::RESEARCH_CAUTION);
     Ok(())

@@ -40,7 +40,9 @@ pub enum Command {
     /// empirical-Bayes group prior per cohort for the reference model (Huys et al. 2011), print
     /// model comparison by BIC (Schwarz 1978), iBIC and random-effects Bayesian model selection
     /// per cohort (Stephan et al. 2009; Rigoux et al. 2014), and per-cohort parameter medians
-    /// beside the values that generated the data, and write the full outputs.
+    /// beside the values that generated the data; run a predictive check of the reference model
+    /// (OUT/check) and write the full outputs with one self-contained HTML report
+    /// (OUT/report.html).
     #[command(after_help = RESEARCH_CAUTION)]
     Demo {
         /// Output folder.

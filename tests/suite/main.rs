@@ -31,5 +31,6 @@ mod predictive_check;
 mod race_models;
 mod race_reference;
 mod real_data;
+mod report;
 mod response_window;
 mod task_shapes;
