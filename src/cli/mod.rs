@@ -354,10 +354,10 @@ pub enum Command {
         /// Folder written by `valuedrift fit` (with `compare` and `contrast` outputs, if any).
         #[arg(long)]
         fits: Option<PathBuf>,
-        /// Folder written by `valuedrift check`.
+        /// Folder written by `valuedrift check` (default: the fit folder's `check/`, if any).
         #[arg(long)]
         check: Option<PathBuf>,
-        /// Folder written by `valuedrift plan`.
+        /// Folder written by `valuedrift plan` (default: the fit folder's `plan/`, if any).
         #[arg(long)]
         plan: Option<PathBuf>,
         /// The HTML file to write.

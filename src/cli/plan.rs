@@ -95,6 +95,30 @@ pub fn run(
         plan.candidates.len(),
         plan.total_steps()
     );
+    for (model, population) in plan.candidates.iter().zip(&plan.populations) {
+        let Some(population) = population else {
+            continue;
+        };
+        for (spec, source) in model.parameters.iter().zip(&population.sources) {
+            if matches!(source, crate::plan::population::Source::StartRange(..)) {
+                eprintln!(
+                    "note: {}: {} is not in the plan's population: {}",
+                    model.name,
+                    spec.name,
+                    source.describe()
+                );
+            }
+        }
+        if !population.file_rows_left_out.is_empty() {
+            eprintln!(
+                "note: {}: {} rows of the population file left out (a value at or beyond a \
+                 bound of the model; lines {:?})",
+                model.name,
+                population.file_rows_left_out.len(),
+                population.file_rows_left_out
+            );
+        }
+    }
     let progress = Progress::new("planning", plan.total_steps());
     let studies = plan.run(threads, &|| progress.inc())?;
     progress.finish();
@@ -142,11 +166,6 @@ pub fn run(
 /// The run record: the plan as read, each generating model's population in words, the models'
 /// definitions and the command line.
 fn record(plan: &Plan, plan_path: &Path, command_line: &[String]) -> serde_json::Value {
-    let file_columns = plan
-        .values_file
-        .as_ref()
-        .map(|f| f.columns.clone())
-        .unwrap_or_default();
     serde_json::json!({
         "tool": "valuedrift",
         "version": env!("CARGO_PKG_VERSION"),
@@ -166,8 +185,9 @@ fn record(plan: &Plan, plan_path: &Path, command_line: &[String]) -> serde_json:
                 "parameters": m.parameters.iter().zip(&p.sources).filter(|(s, _)| s.is_free())
                     .map(|(s, source)| serde_json::json!({
                         "parameter": s.name,
-                        "generated": source.describe(&file_columns),
+                        "generated": source.describe(),
                     })).collect::<Vec<_>>(),
+                "population_file_lines_left_out": p.file_rows_left_out,
             }))
         }).collect::<Vec<_>>(),
         "caution": super::RESEARCH_CAUTION,

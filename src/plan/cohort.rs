@@ -143,7 +143,7 @@ impl Plan {
         let truth = population
             .as_ref()
             .expect("generating models have a population")
-            .draw(&mut rng, shifted, self.values_file.as_ref())
+            .draw(&mut rng, shifted)
             .expect("checked feasible when the plan was built");
         let design = &self.design[index % self.design.len()];
         let mut design = first_trials(design, self.largest_trials());

@@ -13,41 +13,60 @@ use std::path::Path;
 /// falling outside the bounds).
 const MOST_DRAWS: usize = 10_000;
 
-/// A file of generating values: one column per parameter, one row per participant profile.
+/// A file of generating values: one column per parameter, one row per participant profile,
+/// kept as text until a model says which columns it needs. It may be the `estimates_wide.csv`
+/// of a pilot fit: with a `model` column, each generating model uses only its own rows.
 #[derive(Clone, Debug, PartialEq)]
 pub struct ValuesFile {
-    /// Column names (parameters; other columns such as `subject` are ignored by models that
-    /// do not have them).
+    /// Where it was read from.
+    pub path: std::path::PathBuf,
+    /// Column names.
     pub columns: Vec<String>,
-    /// Rows of numbers, in file order.
-    pub rows: Vec<Vec<f64>>,
+    /// Rows of cells with their line numbers (header = line 1), in file order.
+    pub rows: Vec<(u64, Vec<String>)>,
 }
 
 impl ValuesFile {
-    /// Reads a CSV of generating values; columns `subject` and `group` are skipped, every other
-    /// cell must be a finite number (errors name the file, line and column).
+    /// Reads a CSV of generating values (errors name the file and line).
     pub fn read(path: &Path) -> Result<ValuesFile, InputError> {
         let (mut reader, header) = crate::files::open_csv(path)?;
-        let keep: Vec<usize> = (0..header.len())
-            .filter(|&i| !matches!(header[i].as_str(), "subject" | "group"))
-            .collect();
         let mut rows = Vec::new();
         for row in crate::files::csv_rows(path, &mut reader) {
             let (line, record) = row?;
-            let mut row = Vec::with_capacity(keep.len());
-            for &i in &keep {
-                let text = record.get(i).unwrap_or("");
-                row.push(crate::files::finite_number(path, line, &header[i], text)?);
-            }
-            rows.push(row);
+            rows.push((line, record.iter().map(str::to_string).collect()));
         }
         if rows.is_empty() {
             return Err(InputError::file(path, "no rows of values"));
         }
         Ok(ValuesFile {
-            columns: keep.iter().map(|&i| header[i].clone()).collect(),
+            path: path.to_path_buf(),
+            columns: header,
             rows,
         })
+    }
+
+    /// The rows for `model` (all rows without a `model` column) with the numbers of `columns`:
+    /// an error names the line and column of a cell that is not a finite number.
+    fn numbers(&self, model: &str, columns: &[usize]) -> Result<Vec<(u64, Vec<f64>)>, InputError> {
+        let model_column = self.columns.iter().position(|c| c == "model");
+        let mut out = Vec::new();
+        for (line, cells) in &self.rows {
+            if model_column.is_some_and(|m| cells.get(m).map(String::as_str) != Some(model)) {
+                continue;
+            }
+            let mut values = Vec::with_capacity(columns.len());
+            for &c in columns {
+                let text = cells.get(c).map_or("", String::as_str);
+                values.push(crate::files::finite_number(
+                    &self.path,
+                    *line,
+                    &self.columns[c],
+                    text,
+                )?);
+            }
+            out.push((*line, values));
+        }
+        Ok(out)
     }
 }
 
@@ -58,15 +77,15 @@ pub enum Source {
     ModelFixed(f64),
     /// A distribution of the plan.
     Drawn(Distribution),
-    /// A column of the file of values.
-    FileColumn(usize),
+    /// A column of the file of values (its name), through the model's rows of the file.
+    FileColumn(String),
     /// Named by nothing: uniform over the model's start range (low, high).
     StartRange(f64, f64),
 }
 
 impl Source {
     /// How the value is generated, in words, for the run record and the report.
-    pub fn describe(&self, file_columns: &[String]) -> String {
+    pub fn describe(&self) -> String {
         match self {
             Source::ModelFixed(x) => format!("fixed by the model at {x}"),
             Source::Drawn(Distribution::Uniform([a, b])) => format!("uniform on [{a}, {b}]"),
@@ -74,10 +93,9 @@ impl Source {
                 format!("normal (mean {mean}, sd {sd}), truncated to the bounds")
             }
             Source::Drawn(Distribution::Fixed(x)) => format!("fixed at {x}"),
-            Source::FileColumn(c) => format!(
-                "column `{}` of the population file, a row drawn at random",
-                file_columns[*c]
-            ),
+            Source::FileColumn(c) => {
+                format!("column `{c}` of the population file, a row drawn at random")
+            }
             Source::StartRange(a, b) => {
                 format!("uniform on the model's start range [{a}, {b}] (not given by the plan)")
             }
@@ -94,12 +112,30 @@ pub struct Population {
     bounds: Vec<(f64, f64)>,
     /// Model slot of the shifted parameter, and the shift.
     shift: Option<(usize, f64)>,
+    /// The model's rows of the population file: per row, the values of the file columns in
+    /// the order of `file_slots`.
+    file_rows: Vec<Vec<f64>>,
+    /// Model slots filled from the file, in the order of `file_rows`' values.
+    file_slots: Vec<usize>,
+    /// Rows of the population file left out: a value at or beyond a bound of the model.
+    pub file_rows_left_out: Vec<u64>,
 }
 
 /// A plan's population that does not suit a model.
 #[derive(Debug, thiserror::Error)]
+pub enum PopulationError {
+    /// A distribution or shift that does not suit a parameter.
+    #[error(transparent)]
+    Parameter(#[from] ParameterError),
+    /// A population file whose cells are not numbers.
+    #[error(transparent)]
+    File(#[from] InputError),
+}
+
+/// A population that does not suit one parameter of a model.
+#[derive(Debug, thiserror::Error)]
 #[error("model `{model}`, parameter `{parameter}`: {message}")]
-pub struct PopulationError {
+pub struct ParameterError {
     /// The model.
     pub model: String,
     /// The parameter.
@@ -118,7 +154,7 @@ impl Population {
         file: Option<&ValuesFile>,
         shift: Option<(&str, f64)>,
     ) -> Result<Population, PopulationError> {
-        let fail = |parameter: &str, message: String| PopulationError {
+        let fail = |parameter: &str, message: String| ParameterError {
             model: model.name.clone(),
             parameter: parameter.to_string(),
             message,
@@ -144,24 +180,12 @@ impl Population {
                             "the population {d:?} reaches outside the bounds ({}, {})",
                             p.lower, p.upper
                         ),
-                    ));
+                    )
+                    .into());
                 }
                 Source::Drawn(d.clone())
-            } else if let Some(c) = file.and_then(|f| f.columns.iter().position(|n| *n == p.name)) {
-                let file = file.expect("found in it");
-                if let Some(row) = file.rows.iter().position(|r| !inside(r[c])) {
-                    return Err(fail(
-                        &p.name,
-                        format!(
-                            "row {} of the population file has {}, outside the bounds ({}, {})",
-                            row + 1,
-                            file.rows[row][c],
-                            p.lower,
-                            p.upper
-                        ),
-                    ));
-                }
-                Source::FileColumn(c)
+            } else if file.is_some_and(|f| f.columns.contains(&p.name)) {
+                Source::FileColumn(p.name.clone())
             } else {
                 Source::StartRange(p.start_range.0, p.start_range.1)
             };
@@ -178,16 +202,54 @@ impl Population {
                 }
             }
         };
+        let mut file_slots = Vec::new();
+        let mut file_columns = Vec::new();
+        for (slot, source) in sources.iter().enumerate() {
+            if let Source::FileColumn(name) = source {
+                file_slots.push(slot);
+                file_columns.push(
+                    file.and_then(|f| f.columns.iter().position(|c| c == name))
+                        .expect("a file column"),
+                );
+            }
+        }
+        let (mut file_rows, mut file_rows_left_out) = (Vec::new(), Vec::new());
+        if let Some(file) = file.filter(|_| !file_slots.is_empty()) {
+            for (line, values) in file.numbers(&model.name, &file_columns)? {
+                let inside = file_slots.iter().zip(&values).all(|(&slot, &x)| {
+                    x > model.parameters[slot].lower && x < model.parameters[slot].upper
+                });
+                if inside {
+                    file_rows.push(values);
+                } else {
+                    file_rows_left_out.push(line);
+                }
+            }
+            if file_rows.is_empty() {
+                return Err(fail(
+                    &model.parameters[file_slots[0]].name,
+                    format!(
+                        "no row of the population file {} has values of this model inside its \
+                         bounds",
+                        file.path.display()
+                    ),
+                )
+                .into());
+            }
+        }
         let population = Population {
             sources,
             bounds,
             shift,
+            file_rows,
+            file_slots,
+            file_rows_left_out,
         };
         // A population whose shifted values almost never fit inside the bounds is refused now,
         // not after hours of simulation.
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(0x5eed);
         for shifted in [false, true] {
-            if population.draw(&mut rng, shifted, file).is_none() {
+            if population.draw(&mut rng, shifted).is_none() {
                 let name = population
                     .shift
                     .map_or("?", |(s, _)| model.parameters[s].name.as_str());
@@ -197,7 +259,8 @@ impl Population {
                         "no value inside the bounds in {MOST_DRAWS} draws (is the shift too large \
                          for the bounds?)"
                     ),
-                ));
+                )
+                .into());
             }
         }
         Ok(population)
@@ -211,14 +274,10 @@ impl Population {
     /// One participant's values of every parameter (model order), with the shift when
     /// `shifted`; values outside the bounds are redrawn (the whole profile, so that rows of a
     /// file of values stay together). `None` after [`MOST_DRAWS`] failures.
-    pub fn draw(
-        &self,
-        rng: &mut dyn Rng,
-        shifted: bool,
-        file: Option<&ValuesFile>,
-    ) -> Option<Vec<f64>> {
+    pub fn draw(&self, rng: &mut dyn Rng, shifted: bool) -> Option<Vec<f64>> {
         for _ in 0..MOST_DRAWS {
-            let row = file.map(|f| &f.rows[rng.random_range(0..f.rows.len())]);
+            let row = (!self.file_rows.is_empty())
+                .then(|| &self.file_rows[rng.random_range(0..self.file_rows.len())]);
             let mut values = Vec::with_capacity(self.sources.len());
             for source in &self.sources {
                 values.push(match source {
@@ -229,7 +288,11 @@ impl Population {
                     Source::Drawn(Distribution::Normal { mean, sd }) => {
                         Normal::new(*mean, *sd).ok()?.sample(rng)
                     }
-                    Source::FileColumn(c) => row?[*c],
+                    Source::FileColumn(_) => {
+                        let slot = values.len();
+                        let at = self.file_slots.iter().position(|&s| s == slot)?;
+                        row?[at]
+                    }
                 });
             }
             if shifted && let Some((slot, by)) = self.shift {

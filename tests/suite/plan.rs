@@ -277,3 +277,115 @@ fn impossible_plans_are_refused_with_their_reason() {
         assert!(!out.exists(), "a refused plan left output");
     }
 }
+
+/// On the published effort-offer study (tests/data/effort_offers_subset.csv: 60 participants of
+/// Mehrhof & Nord 2025, MIT licence, see tests/data/effort_offers_README.md): a pilot fit's
+/// estimates_wide.csv as the population file and the real offer sequences as the design. Every
+/// simulated participant's generating values are one row of the pilot's estimates (drawn, not
+/// invented), the rows the plan leaves out are exactly those with a value at or beyond a bound
+/// of the model, and the plan runs end to end on the real design.
+#[test]
+fn plan_runs_on_the_published_design_with_a_pilot_population() {
+    let dir = tempfile::tempdir().unwrap();
+    let data = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/effort_offers_subset.csv");
+    let pilot = dir.path().join("pilot");
+    succeed(
+        bin()
+            .args([
+                "fit",
+                "--model",
+                "offered-linear",
+                "--starts",
+                "2",
+                "--data",
+            ])
+            .arg(&data)
+            .arg("--out")
+            .arg(&pilot),
+    );
+    let plan = dir.path().join("plan.toml");
+    std::fs::write(
+        &plan,
+        format!(
+            "design = {:?}\nmodels = [\"offered-linear\"]\nparticipants = [5]\ntrials = [40]\n\
+             studies = 2\nempirical_bayes = false\npopulation_file = {:?}\n",
+            data.display().to_string(),
+            pilot.join("estimates_wide.csv").display().to_string()
+        ),
+    )
+    .unwrap();
+    let out = dir.path().join("out");
+    let output = succeed(
+        bin()
+            .args(["plan", "--plan"])
+            .arg(&plan)
+            .arg("--out")
+            .arg(&out),
+    );
+    let notes = String::from_utf8_lossy(&output.stderr);
+
+    // The pilot's rows of the model, with the values the model estimates.
+    let model = load_model("offered-linear").unwrap();
+    let free: Vec<&valuedrift::model::params::ParameterSpec> =
+        model.parameters.iter().filter(|p| p.is_free()).collect();
+    let mut reader = csv::Reader::from_path(pilot.join("estimates_wide.csv")).unwrap();
+    let header = reader.headers().unwrap().clone();
+    let (mut inside, mut outside) = (Vec::new(), Vec::new());
+    for (i, record) in reader.records().enumerate() {
+        let record = record.unwrap();
+        let values: Vec<f64> = free
+            .iter()
+            .map(|p| {
+                let at = header.iter().position(|h| h == p.name).unwrap();
+                record[at].parse().unwrap()
+            })
+            .collect();
+        if free
+            .iter()
+            .zip(&values)
+            .all(|(p, &x)| x > p.lower && x < p.upper)
+        {
+            inside.push(values);
+        } else {
+            outside.push(i + 2);
+        }
+    }
+    if outside.is_empty() {
+        assert!(
+            !notes.contains("rows of the population file left out"),
+            "{notes}"
+        );
+    } else {
+        assert!(
+            notes.contains(&format!("{:?}", outside)),
+            "expected lines {outside:?} left out: {notes}"
+        );
+    }
+    // Every simulated participant's generating values are a row of the pilot.
+    let mut reader = csv::Reader::from_path(out.join("plan_estimates.csv")).unwrap();
+    let header = reader.headers().unwrap().clone();
+    let column = |name: &str| header.iter().position(|h| h == name).unwrap();
+    let mut by_participant: std::collections::BTreeMap<String, Vec<(String, f64)>> =
+        Default::default();
+    for record in reader.records() {
+        let record = record.unwrap();
+        by_participant
+            .entry(record[column("participant")].to_string())
+            .or_default()
+            .push((
+                record[column("parameter")].to_string(),
+                record[column("true_value")].parse().unwrap(),
+            ));
+    }
+    assert_eq!(by_participant.len(), 10);
+    for (participant, values) in &by_participant {
+        let tuple: Vec<f64> = free
+            .iter()
+            .map(|p| values.iter().find(|(n, _)| *n == p.name).unwrap().1)
+            .collect();
+        assert!(
+            inside.iter().any(|row| row == &tuple),
+            "{participant}: generating values {tuple:?} are not a row of the pilot"
+        );
+    }
+}
