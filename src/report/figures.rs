@@ -185,11 +185,19 @@ pub fn bars(
             .margin(10)
             .x_label_area_size(45)
             .y_label_area_size(60)
-            .build_cartesian_2d(-0.5..categories.len() as f64 - 0.5, 0.0..1.05)
+            // Room above 1 for the legend; the axis is labelled up to 1 only.
+            .build_cartesian_2d(-0.5..categories.len() as f64 - 0.5, 0.0..1.3)
             .map_err(&err)?;
         chart
             .configure_mesh()
             .disable_x_mesh()
+            .y_label_formatter(&|y| {
+                if *y <= 1.0 + 1e-9 {
+                    format!("{y:.1}")
+                } else {
+                    String::new()
+                }
+            })
             .x_labels(categories.len().max(1))
             .x_label_formatter(&|x| {
                 let i = x.round();

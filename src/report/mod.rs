@@ -176,16 +176,20 @@ fn data_screen(screen: &Tidy) -> Section {
     }
 }
 
+/// Per model: fits, converged fits, summed BIC, flagged fits, what the likelihood scored.
+type FitCounts = (usize, usize, f64, Vec<String>, String);
+
 fn fit_overview(summary: &Tidy) -> Result<Section, ReportError> {
     let mut models: Vec<String> = Vec::new();
-    let mut stats: BTreeMap<String, (usize, usize, f64, Vec<String>)> = BTreeMap::new();
+    let mut stats: BTreeMap<String, FitCounts> = BTreeMap::new();
     for (i, r) in summary.rows.iter().enumerate() {
         let model = summary.text(r, "model").to_string();
         if !models.contains(&model) {
             models.push(model.clone());
         }
-        let entry = stats.entry(model).or_insert((0, 0, 0.0, Vec::new()));
+        let entry = stats.entry(model).or_default();
         entry.0 += 1;
+        entry.4 = summary.text(r, "scored").replace('_', " ");
         if summary.text(r, "converged") == "true" {
             entry.1 += 1;
         } else {
@@ -200,9 +204,10 @@ fn fit_overview(summary: &Tidy) -> Result<Section, ReportError> {
     let rows: Vec<Vec<String>> = models
         .iter()
         .map(|m| {
-            let (n, ok, bic, _) = &stats[m];
+            let (n, ok, bic, _, scored) = &stats[m];
             vec![
                 m.clone(),
+                scored.clone(),
                 n.to_string(),
                 ok.to_string(),
                 format!("{bic:.1}"),
@@ -226,8 +231,12 @@ fn fit_overview(summary: &Tidy) -> Result<Section, ReportError> {
         title: "Fits".into(),
         body: format!(
             "<p>A fit is flagged when the fitter's examination of its best point failed (see \
-             the status); flagged estimates should not be interpreted.</p>{}{flagged}",
-            table(&["model", "participants", "converged", "summed BIC"], &rows)
+             the status); flagged estimates should not be interpreted. BIC is comparable only \
+             between models that score the same data (column scored).</p>{}{flagged}",
+            table(
+                &["model", "scored", "participants", "converged", "summed BIC"],
+                &rows
+            )
         ),
     })
 }
