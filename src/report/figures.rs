@@ -2,6 +2,7 @@
 //! units and a legend of its marks. Colours are the palette of Okabe & Ito (2008), readable with
 //! the common forms of colour blindness.
 
+use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
 
 /// Okabe & Ito (2008) colours: blue, orange, bluish green, vermillion, sky blue, reddish purple,
@@ -35,6 +36,50 @@ fn fail<E: std::fmt::Debug>(figure: &str) -> impl Fn(E) -> FigureError + '_ {
     move |e| FigureError {
         figure: figure.to_string(),
         message: format!("{e:?}"),
+    }
+}
+
+type Chart<'a, 'b> = ChartContext<'a, SVGBackend<'b>, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
+type Area<'b> = DrawingArea<SVGBackend<'b>, plotters::coord::Shift>;
+
+/// An SVG figure of `size` drawn by `body` on a white area, as inline SVG text.
+fn render(
+    title: &str,
+    size: (u32, u32),
+    body: impl FnOnce(&Area<'_>) -> Result<(), FigureError>,
+) -> Result<String, FigureError> {
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, size).into_drawing_area();
+        root.fill(&WHITE).map_err(fail(title))?;
+        body(&root)?;
+        root.present().map_err(fail(title))?;
+    }
+    Ok(inline(&svg))
+}
+
+/// Draws the legend of the labelled series at `position`.
+fn legend<'a, 'b: 'a>(
+    chart: &mut Chart<'a, 'b>,
+    position: SeriesLabelPosition,
+    title: &str,
+) -> Result<(), FigureError> {
+    chart
+        .configure_series_labels()
+        .position(position)
+        .background_style(WHITE.mix(0.85))
+        .border_style(BLACK)
+        .draw()
+        .map_err(fail(title))
+}
+
+/// The label of category `x` (an integer position) among `names`, empty between them.
+fn category(names: &[String], x: f64) -> String {
+    let i = x.round();
+    if (x - i).abs() < 1e-6 && i >= 0.0 {
+        names.get(i as usize).cloned().unwrap_or_default()
+    } else {
+        String::new()
     }
 }
 
@@ -77,16 +122,13 @@ pub fn strip(
     groups: &[(String, Vec<f64>)],
 ) -> Result<String, FigureError> {
     let err = fail(title);
-    let mut svg = String::new();
-    {
-        let width = (220 + 150 * groups.len() as u32).min(900);
-        let root = SVGBackend::with_string(&mut svg, (width, 340)).into_drawing_area();
-        root.fill(&WHITE).map_err(&err)?;
+    let width = (220 + 150 * groups.len() as u32).min(900);
+    render(title, (width, 340), |root| {
         let (lo, hi) = span(groups.iter().flat_map(|(_, v)| v.iter().copied()));
         // Room above the points for the legend.
         let hi = hi + 0.3 * (hi - lo);
         let names: Vec<String> = groups.iter().map(|(g, _)| g.clone()).collect();
-        let mut chart = ChartBuilder::on(&root)
+        let mut chart = ChartBuilder::on(root)
             .caption(title, ("sans-serif", 15))
             .margin(10)
             .x_label_area_size(35)
@@ -97,14 +139,7 @@ pub fn strip(
             .configure_mesh()
             .disable_x_mesh()
             .x_labels(groups.len().max(1))
-            .x_label_formatter(&|x| {
-                let i = x.round();
-                if (x - i).abs() < 1e-6 && i >= 0.0 {
-                    names.get(i as usize).cloned().unwrap_or_default()
-                } else {
-                    String::new()
-                }
-            })
+            .x_label_formatter(&|x| category(&names, *x))
             .x_desc("group")
             .y_desc(y_label)
             .draw()
@@ -155,16 +190,8 @@ pub fn strip(
                 });
             }
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK)
-            .draw()
-            .map_err(&err)?;
-        root.present().map_err(&err)?;
-    }
-    Ok(inline(&svg))
+        legend(&mut chart, SeriesLabelPosition::UpperRight, title)
+    })
 }
 
 /// Grouped bars: per category (x), one bar per series, with a legend of the series.
@@ -175,12 +202,9 @@ pub fn bars(
     series: &[(String, Vec<f64>)],
 ) -> Result<String, FigureError> {
     let err = fail(title);
-    let mut svg = String::new();
-    {
-        let width = (260 + 110 * categories.len() as u32).min(1000);
-        let root = SVGBackend::with_string(&mut svg, (width, 360)).into_drawing_area();
-        root.fill(&WHITE).map_err(&err)?;
-        let mut chart = ChartBuilder::on(&root)
+    let width = (260 + 110 * categories.len() as u32).min(1000);
+    render(title, (width, 360), |root| {
+        let mut chart = ChartBuilder::on(root)
             .caption(title, ("sans-serif", 15))
             .margin(10)
             .x_label_area_size(45)
@@ -199,14 +223,7 @@ pub fn bars(
                 }
             })
             .x_labels(categories.len().max(1))
-            .x_label_formatter(&|x| {
-                let i = x.round();
-                if (x - i).abs() < 1e-6 && i >= 0.0 {
-                    categories.get(i as usize).cloned().unwrap_or_default()
-                } else {
-                    String::new()
-                }
-            })
+            .x_label_formatter(&|x| category(categories, *x))
             .x_desc("model")
             .y_desc(y_label)
             .draw()
@@ -223,16 +240,8 @@ pub fn bars(
                 .label(label.as_str())
                 .legend(move |(x, y)| Rectangle::new([(x, y - 5), (x + 16, y + 5)], c.filled()));
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK)
-            .draw()
-            .map_err(&err)?;
-        root.present().map_err(&err)?;
-    }
-    Ok(inline(&svg))
+        legend(&mut chart, SeriesLabelPosition::UpperRight, title)
+    })
 }
 
 /// Generating values (x) against estimates (y) per series, with the identity line.
@@ -243,13 +252,10 @@ pub fn scatter(
     series: &[(String, Vec<(f64, f64)>)],
 ) -> Result<String, FigureError> {
     let err = fail(title);
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, (420, 380)).into_drawing_area();
-        root.fill(&WHITE).map_err(&err)?;
+    render(title, (420, 380), |root| {
         let all = || series.iter().flat_map(|(_, p)| p.iter());
         let (lo, hi) = span(all().flat_map(|&(x, y)| [x, y]));
-        let mut chart = ChartBuilder::on(&root)
+        let mut chart = ChartBuilder::on(root)
             .caption(title, ("sans-serif", 14))
             .margin(10)
             .x_label_area_size(40)
@@ -279,16 +285,8 @@ pub fn scatter(
                 .label(label.as_str())
                 .legend(move |(x, y)| Circle::new((x + 8, y), 3, c.filled()));
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperLeft)
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK)
-            .draw()
-            .map_err(&err)?;
-        root.present().map_err(&err)?;
-    }
-    Ok(inline(&svg))
+        legend(&mut chart, SeriesLabelPosition::UpperLeft, title)
+    })
 }
 
 /// A curve of estimates with intervals (x, y, low, high), and an optional theoretical curve.
@@ -311,12 +309,9 @@ pub fn curves(
     reference: Option<(f64, &str)>,
 ) -> Result<String, FigureError> {
     let err = fail(title);
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, (560, 380)).into_drawing_area();
-        root.fill(&WHITE).map_err(&err)?;
+    render(title, (560, 380), |root| {
         let (x_lo, x_hi) = span(curves.iter().flat_map(|c| c.points.iter().map(|p| p.0)));
-        let mut chart = ChartBuilder::on(&root)
+        let mut chart = ChartBuilder::on(root)
             .caption(title, ("sans-serif", 14))
             .margin(10)
             .x_label_area_size(40)
@@ -379,14 +374,6 @@ pub fn curves(
                     });
             }
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::LowerRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK)
-            .draw()
-            .map_err(&err)?;
-        root.present().map_err(&err)?;
-    }
-    Ok(inline(&svg))
+        legend(&mut chart, SeriesLabelPosition::LowerRight, title)
+    })
 }

@@ -10,15 +10,8 @@ use valuedrift::likelihood::SubjectLikelihood;
 use valuedrift::model::load_model;
 use valuedrift::simulate::{SimulationSettings, orchard_design, simulate_subject};
 
-/// Generating ranges (the documented ranges of the README's recovery section).
-const RANGES: [(&str, f64, f64); 6] = [
-    ("gain_rate", 0.1, 0.7),
-    ("loss_rate", 0.1, 0.7),
-    ("effort_weight", 0.2, 1.5),
-    ("value_scale", 2.0, 8.0),
-    ("boundary", 1.0, 2.5),
-    ("ndt", 0.2, 0.5),
-];
+/// Generating ranges of the reference model's recovery tests.
+const RANGES: [(&str, f64, f64); 6] = crate::common::RECOVERY_RANGES;
 
 #[test]
 fn reference_model_parameters_are_recovered() {

@@ -16,15 +16,8 @@ use valuedrift::plan::spec::PlanSpec;
 use valuedrift::plan::summaries::{EstimateKind, recovery};
 use valuedrift::simulate::{SimulationSettings, orchard_design, simulate_subject};
 
-/// Generating ranges of the recovery test (tests/suite/parameter_recovery.rs).
-const RANGES: [(&str, f64, f64); 6] = [
-    ("gain_rate", 0.1, 0.7),
-    ("loss_rate", 0.1, 0.7),
-    ("effort_weight", 0.2, 1.5),
-    ("value_scale", 2.0, 8.0),
-    ("boundary", 1.0, 2.5),
-    ("ndt", 0.2, 0.5),
-];
+/// Generating ranges of the reference model's recovery tests.
+const RANGES: [(&str, f64, f64); 6] = crate::common::RECOVERY_RANGES;
 
 const SEED: u64 = 20_261_201;
 

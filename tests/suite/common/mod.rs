@@ -41,6 +41,17 @@ pub fn pearson(x: &[f64], y: &[f64]) -> f64 {
     sxy / (sxx * syy).sqrt()
 }
 
+/// Generating ranges of the reference model's recovery tests (the documented ranges of the
+/// README's recovery section): tests/suite/parameter_recovery.rs and tests/suite/plan.rs.
+pub const RECOVERY_RANGES: [(&str, f64, f64); 6] = [
+    ("gain_rate", 0.1, 0.7),
+    ("loss_rate", 0.1, 0.7),
+    ("effort_weight", 0.2, 1.5),
+    ("value_scale", 2.0, 8.0),
+    ("boundary", 1.0, 2.5),
+    ("ndt", 0.2, 0.5),
+];
+
 /// Every parameter of `model` (model order): a uniform draw from `ranges` for the parameters it
 /// names, the fixed value for the others.
 pub fn draw_values(
