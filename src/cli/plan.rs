@@ -86,7 +86,8 @@ pub fn run(
     let started = std::time::Instant::now();
     eprintln!(
         "plan: {} generating model(s) × {} studies × {} group(s) × {} participants, {} design \
-         size(s), {} candidate model(s): {} fits",
+         size(s), {} candidate model(s): {} steps (per-subject fits and empirical-Bayes group \
+         fits)",
         plan.generating().len(),
         plan.spec.studies,
         plan.groups.len(),
