@@ -18,6 +18,7 @@
 
 mod ballistic;
 mod real;
+mod tails;
 mod wald;
 
 pub use ballistic::BallisticAccumulator;
