@@ -42,16 +42,34 @@ pub trait Accumulator<T: Real>: Copy + Send + Sync {
     fn sample(&self, drift: f64, rng: &mut dyn Rng) -> f64;
     /// c such that the density's leading edge falls like e^{−c/t} or faster (for quadrature).
     fn leading_edge(&self) -> f64;
+    /// The density at values, split for a race's product: (e, m) with ln f(t) = e + ln m and
+    /// m > 0, so that [`ln_winner_density`] can multiply the m of all accumulators and take one
+    /// logarithm; None where the accumulator has no such form (then logarithms are added).
+    fn split_ln_density(&self, _t: f64, _drift: f64) -> Option<(f64, f64)> {
+        None
+    }
+    /// The survival at values, split as [`Accumulator::split_ln_density`]: ln S(t) = e + ln m.
+    fn split_ln_survival(&self, _t: f64, _drift: f64) -> Option<(f64, f64)> {
+        None
+    }
 }
 
 /// ln g_k(t) = ln f_k(t) + Σ_{j≠k} ln S_j(t): the density that accumulator `k` arrives first at
-/// decision time t (Logan et al. 2014, eq. 1).
+/// decision time t (Logan et al. 2014, eq. 1). For values, from the accumulators' split forms
+/// (ln g_k = Σ e + ln Π m, one logarithm) where every accumulator has one and the product lies
+/// within [1e-250, 1e250]; the product's rounding (a few units in the last place of g_k) is an
+/// absolute error of the same order in ln g_k.
 pub fn ln_winner_density<T: Real, A: Accumulator<T>>(
     accumulator: &A,
     drifts: &[T],
     k: usize,
     t: T,
 ) -> T {
+    if !T::CARRIES_DERIVATIVES
+        && let Some(ln_g) = split_winner_density(accumulator, drifts, k, t.value())
+    {
+        return T::from(ln_g);
+    }
     let mut total = accumulator.ln_density(t, drifts[k]);
     for (j, &v) in drifts.iter().enumerate() {
         if j != k && total.value() > f64::NEG_INFINITY {
@@ -59,6 +77,27 @@ pub fn ln_winner_density<T: Real, A: Accumulator<T>>(
         }
     }
     total
+}
+
+/// ln g_k(t) = Σ e + ln Π m from the accumulators' split forms; None where one has none or the
+/// product leaves [1e-250, 1e250].
+fn split_winner_density<T: Real, A: Accumulator<T>>(
+    accumulator: &A,
+    drifts: &[T],
+    k: usize,
+    t: f64,
+) -> Option<f64> {
+    let (mut exponent, mut product) = accumulator.split_ln_density(t, drifts[k].value())?;
+    for (j, v) in drifts.iter().enumerate() {
+        if j != k {
+            let (e, m) = accumulator.split_ln_survival(t, v.value())?;
+            exponent += e;
+            product *= m;
+        }
+    }
+    (1e-250..=1e250)
+        .contains(&product)
+        .then(|| exponent + product.ln())
 }
 
 /// ln S(t) = Σ_j ln S_j(t): no accumulator has arrived by decision time t.
@@ -312,5 +351,11 @@ impl<T: Real, A: Accumulator<T>> Accumulator<f64> for ValueOf<'_, T, A> {
     }
     fn leading_edge(&self) -> f64 {
         self.0.leading_edge()
+    }
+    fn split_ln_density(&self, t: f64, drift: f64) -> Option<(f64, f64)> {
+        self.0.split_ln_density(t, drift)
+    }
+    fn split_ln_survival(&self, t: f64, drift: f64) -> Option<(f64, f64)> {
+        self.0.split_ln_survival(t, drift)
     }
 }

@@ -17,7 +17,7 @@
 
 use super::Accumulator;
 use super::real::{LN_SQRT_2PI, Real, lift, ln_1m_exp, ln_add_exp, ln_sub_exp};
-use super::tails::{ln_normal_pdf, scaled_tails};
+use super::tails::{INV_SQRT_2PI, ln_normal_pdf, scaled_tails};
 use crate::first_passage::ln_normal_cdf;
 use rand::Rng;
 use rand_distr::{Distribution, InverseGaussian, StandardNormal};
@@ -89,6 +89,29 @@ impl<T: Real> Accumulator<T> for WaldAccumulator<T> {
         )
     }
 
+    /// (−(α − vt)²/(2t), α/(√(2π)·t^{3/2})): the density without a logarithm.
+    fn split_ln_density(&self, t: f64, drift: f64) -> Option<(f64, f64)> {
+        let a = self.threshold.value();
+        let gap = a - drift * t;
+        (t > 0.0).then(|| (-gap * gap / (2.0 * t), a * INV_SQRT_2PI / (t * t.sqrt())))
+    }
+
+    /// [`ln_survival_by_tails`]'s two parts before their logarithm.
+    fn split_ln_survival(&self, t: f64, drift: f64) -> Option<(f64, f64)> {
+        if t <= 0.0 {
+            return Some((0.0, 1.0));
+        }
+        let a = self.threshold.value();
+        let root = t.sqrt();
+        let c1 = (drift * t - a) / root;
+        let (part, _) = survival_by_tails(c1, (drift * t + a) / root)?;
+        Some(if c1 >= 0.0 {
+            (-0.5 * c1 * c1, part)
+        } else {
+            (0.0, 1.0 - part)
+        })
+    }
+
     /// ln P(the accumulator ever arrives): 0 for v ≥ 0, 2vα for v < 0.
     fn ln_arrival_probability(&self, drift: T) -> T {
         if drift.value() >= 0.0 {
@@ -146,16 +169,28 @@ impl<T: Real> Accumulator<T> for WaldAccumulator<T> {
 /// (by about (vt + α)/(2α), the ratio of the terms to S). Returns (ln S, M(x₂)); None when
 /// x₂ < 0 or rounding leaves no positive difference.
 fn ln_survival_by_tails(c1: f64, x2: f64) -> Option<(f64, f64)> {
+    let (part, m2) = survival_by_tails(c1, x2)?;
+    let ln_s = if c1 >= 0.0 {
+        -0.5 * c1 * c1 + part.ln()
+    } else {
+        (-part).ln_1p()
+    };
+    Some((ln_s, m2))
+}
+
+/// The parts of [`ln_survival_by_tails`] before the logarithm: (M(c₁) − M(x₂), M(x₂)) for
+/// c₁ ≥ 0, (F, M(x₂)) for c₁ < 0.
+fn survival_by_tails(c1: f64, x2: f64) -> Option<(f64, f64)> {
     if x2.is_nan() || x2 < 0.0 {
         return None;
     }
     let m2 = scaled_tails(x2).0;
     if c1 >= 0.0 {
         let difference = scaled_tails(c1).0 - m2;
-        (difference > 0.0).then(|| (-0.5 * c1 * c1 + difference.ln(), m2))
+        (difference > 0.0).then_some((difference, m2))
     } else {
         let arrived = (-0.5 * c1 * c1).exp() * (scaled_tails(-c1).0 + m2);
-        (arrived < 1.0).then(|| ((-arrived).ln_1p(), m2))
+        (arrived < 1.0).then_some((arrived, m2))
     }
 }
 
