@@ -22,9 +22,9 @@
 //! larger (so that their difference would amplify rounding more than a hundredfold). Largest
 //! error against mpmath 3.8e-12 in ln f and 4.7e-13 in ln S (tests/suite/race_reference.rs).
 
-use super::Accumulator;
 use super::real::{LN_SQRT_2PI, Real, lift, ln_normal_cdf_of, ln_sum_exp};
 use super::tails::{INV_SQRT_2PI, scaled_tails};
+use super::{Accumulator, Moment};
 use rand::{Rng, RngExt};
 use rand_distr::{Distribution, StandardNormal};
 
@@ -100,71 +100,77 @@ fn panel_nodes(lo: f64, hi: f64, slope: impl Fn(f64) -> f64) -> Vec<(f64, f64)> 
 /// w = [`NARROW`] they would lose more than three digits, and there the caller integrates.
 #[derive(Clone, Copy)]
 struct Closed {
+    /// Where z₁ and z₂ lie against 0.
+    side: Side,
     /// ln e_L.
     ln_lead: f64,
     /// ρ₁, ρ₂.
     rho: (f64, f64),
-    /// ΔΦ/e_L.
-    cdf_gap: f64,
-    /// (Φ(z₁), Φ(z₂))/(w·S): −∂ln S/∂z₁ and ∂ln S/∂z₂.
-    cdf_over_ws: (f64, f64),
-    /// w·S/e^{ws_lead}.
-    ws: f64,
-    /// ln of the factor taken out of w·S: ln e_L for z₂ < 0 (where S ≤ ½), else 0.
-    ws_lead: f64,
+    /// M and K at |z₁| and at |z₂|.
+    tails: ((f64, f64), (f64, f64)),
+    /// z₂.
+    z2: f64,
+}
+
+/// Where the bounds lie: both at or above 0, both below, or one on each side.
+#[derive(Clone, Copy, PartialEq)]
+enum Side {
+    Above,
+    Below,
+    Across,
 }
 
 impl Closed {
+    #[inline]
     fn new(z1: f64, z2: f64, width: f64) -> Self {
-        let (up1, up2) = (z1 >= 0.0, z2 >= 0.0);
-        let (m1, k1) = scaled_tails(z1.abs());
-        let (m2, k2) = scaled_tails(z2.abs());
-        if up1 {
+        let tails = (scaled_tails(z1.abs()), scaled_tails(z2.abs()));
+        if z1 >= 0.0 {
             // e_L = e₁; ρ₂ = e^{−w(z₁ + z₂)/2}.
-            let ln_lead = -0.5 * z1 * z1;
-            let r = (-0.5 * width * (z1 + z2)).exp();
-            let lead = ln_lead.exp();
-            let ws = width - lead * (k1 - r * k2);
             Self {
-                ln_lead,
-                rho: (1.0, r),
-                cdf_gap: m1 - r * m2,
-                cdf_over_ws: ((1.0 - lead * m1) / ws, (1.0 - lead * r * m2) / ws),
-                ws,
-                ws_lead: 0.0,
+                side: Side::Above,
+                ln_lead: -0.5 * z1 * z1,
+                rho: (1.0, (-0.5 * width * (z1 + z2)).exp()),
+                tails,
+                z2,
             }
-        } else if !up2 {
+        } else if z2 < 0.0 {
             // e_L = e₂; ρ₁ = e^{w(z₁ + z₂)/2}.
-            let ln_lead = -0.5 * z2 * z2;
-            let r = (0.5 * width * (z1 + z2)).exp();
-            let ws = k2 - r * k1;
             Self {
-                ln_lead,
-                rho: (r, 1.0),
-                cdf_gap: m2 - r * m1,
-                cdf_over_ws: (r * m1 / ws, m2 / ws),
-                ws,
-                ws_lead: ln_lead,
+                side: Side::Below,
+                ln_lead: -0.5 * z2 * z2,
+                rho: ((0.5 * width * (z1 + z2)).exp(), 1.0),
+                tails,
+                z2,
             }
         } else {
-            let (e1, e2) = ((-0.5 * z1 * z1).exp(), (-0.5 * z2 * z2).exp());
-            let ws = z2 + e2 * k2 - e1 * k1;
             Self {
+                side: Side::Across,
                 ln_lead: 0.0,
-                rho: (e1, e2),
-                cdf_gap: 1.0 - e1 * m1 - e2 * m2,
-                cdf_over_ws: (e1 * m1 / ws, (1.0 - e2 * m2) / ws),
-                ws,
-                ws_lead: 0.0,
+                rho: ((-0.5 * z1 * z1).exp(), (-0.5 * z2 * z2).exp()),
+                tails,
+                z2,
             }
+        }
+    }
+
+    /// ΔΦ/e_L.
+    #[inline]
+    fn cdf_gap(&self) -> f64 {
+        let ((m1, _), (m2, _)) = self.tails;
+        let (r1, r2) = self.rho;
+        match self.side {
+            Side::Above => r1 * m1 - r2 * m2,
+            Side::Below => r2 * m2 - r1 * m1,
+            Side::Across => 1.0 - r1 * m1 - r2 * m2,
         }
     }
 
     /// (ln e_L, B) with A·f = e_L·B, B = v·ΔΦ/e_L + s·Δφ/e_L; None when B is not positive or
     /// its two terms cancel to within [`CANCELLING`] (so that rounding would be amplified more
     /// than a hundredfold).
+    #[inline]
     fn density(&self, v: f64, s: f64) -> Option<(f64, f64)> {
-        let first = v * self.cdf_gap;
+        let first = v * self.cdf_gap();
         let second = s * (self.rho.0 - self.rho.1) * INV_SQRT_2PI;
         let bracket = first + second;
         let cancels =
@@ -172,11 +178,42 @@ impl Closed {
         (bracket > 0.0 && !cancels).then_some((self.ln_lead, bracket))
     }
 
-    /// (ln e, m) with S = e·m: (ln e_L, w·S/(e_L·w)) for z₂ < 0 (where S ≤ ½), else (0, S)
-    /// with S capped at 1 (rounding can put it a hair above where nothing has arrived yet);
-    /// None when rounding left no positive w·S.
-    fn survival(&self, width: f64) -> Option<(f64, f64)> {
-        (self.ws > 0.0 && self.ws.is_finite()).then(|| (self.ws_lead, (self.ws / width).min(1.0)))
+    /// (ln e, w·S/e, e_L): w·S with e = e_L taken out for z₂ < 0 (where S ≤ ½), else e = 1.
+    #[inline]
+    fn ws(&self, width: f64) -> (f64, f64, f64) {
+        let ((_, k1), (_, k2)) = self.tails;
+        let (r1, r2) = self.rho;
+        match self.side {
+            Side::Above => {
+                let lead = self.ln_lead.exp();
+                (0.0, width - lead * (k1 - r2 * k2), lead)
+            }
+            Side::Below => (self.ln_lead, k2 - r1 * k1, 1.0),
+            Side::Across => (0.0, self.z2 + r2 * k2 - r1 * k1, 1.0),
+        }
+    }
+
+    /// (ln e, m) with S = e·m: (ln e_L, w·S/(e_L·w)) for z₂ < 0, else (0, S) with S capped at 1
+    /// (rounding can put it a hair above where nothing has arrived yet); None when rounding
+    /// left no positive w·S.
+    #[inline]
+    fn survival(&self, width: f64, inverse_width: f64) -> Option<(f64, f64)> {
+        let (ln_e, ws, _) = self.ws(width);
+        (ws > 0.0 && ws.is_finite()).then(|| (ln_e, (ws * inverse_width).min(1.0)))
+    }
+
+    /// (Φ(z₁), Φ(z₂))/(w·S), that is −∂ln S/∂z₁ and ∂ln S/∂z₂ (values of [`Closed::survival`]'s
+    /// domain only).
+    fn cdf_over_ws(&self, width: f64) -> (f64, f64) {
+        let ((m1, _), (m2, _)) = self.tails;
+        let (r1, r2) = self.rho;
+        let (_, ws, lead) = self.ws(width);
+        let (cdf1, cdf2) = match self.side {
+            Side::Above => (1.0 - lead * m1, 1.0 - lead * r2 * m2),
+            Side::Below => (r1 * m1, m2),
+            Side::Across => (r1 * m1, 1.0 - r2 * m2),
+        };
+        (cdf1 / ws, cdf2 / ws)
     }
 }
 
@@ -201,20 +238,23 @@ impl<T: Real> BallisticAccumulator<T> {
         self.start_range.ln() + ln_sum_exp(&terms)
     }
 
-    /// The closed forms at decision time t and mean rate v with the width w = A/(ts); None for
-    /// t ≤ 0 or below w = [`NARROW`] (where the caller integrates).
-    fn closed(&self, t: f64, v: f64) -> Option<(Closed, f64)> {
+    /// The closed forms at decision time t and mean rate v with the width w = A/(ts) and 1/w;
+    /// None below w = [`NARROW`] (where the caller integrates).
+    #[inline]
+    fn closed(&self, at: &Moment, v: f64) -> Option<(Closed, f64, f64)> {
         let (gap, a, s) = (
             self.threshold_gap.value(),
             self.start_range.value(),
             self.drift_sd.value(),
         );
-        let width = a / (t * s);
-        (t > 0.0 && width >= NARROW).then(|| {
-            // The same operations as `bounds`, so that the values agree.
-            let z1 = (gap / t - v) / s;
-            let z2 = ((gap + a) / t - v) / s;
-            (Closed::new(z1, z2, width), width)
+        // One division for 1/s and 1/A.
+        let q = 1.0 / (s * a);
+        let inverse_s = a * q;
+        let width = a * at.inverse * inverse_s;
+        (width >= NARROW).then(|| {
+            let z1 = (gap * at.inverse - v) * inverse_s;
+            let z2 = ((gap + a) * at.inverse - v) * inverse_s;
+            (Closed::new(z1, z2, width), width, at.t * s * s * q)
         })
     }
 
@@ -241,8 +281,8 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
         }
         let (s, a) = (self.drift_sd.value(), self.start_range.value());
         let parts = self
-            .closed(tv, v)
-            .and_then(|(closed, _)| closed.density(v, s).map(|d| (closed, d)));
+            .closed(&Moment::new(tv), v)
+            .and_then(|(closed, _, _)| closed.density(v, s).map(|d| (closed, d)));
         let Some((closed, (ln_lead, bracket))) = parts else {
             // z₁ ≈ z₂, or the two terms cancel: f = (1/(At²s))∫_{b−A}^{b} c·φ((c/t − v)/s) dc,
             // a positive integrand over the distance c to the threshold.
@@ -264,7 +304,7 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
             &[
                 (rho2 * pdf * (gap + a) / tv, z2),
                 (-rho1 * pdf * gap / tv, z1),
-                (closed.cdf_gap / bracket, drift),
+                (closed.cdf_gap() / bracket, drift),
                 ((rho1 - rho2) * pdf, self.drift_sd),
                 (-1.0 / a, self.start_range),
             ],
@@ -280,9 +320,13 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
             return T::from(0.0);
         }
         let parts = self
-            .closed(tv, v)
-            .and_then(|(closed, width)| closed.survival(width).map(|d| (closed, d)));
-        let Some((closed, (ln_lead, ratio))) = parts else {
+            .closed(&Moment::new(tv), v)
+            .and_then(|(closed, width, inverse_width)| {
+                closed
+                    .survival(width, inverse_width)
+                    .map(|d| (closed, width, d))
+            });
+        let Some((closed, width, (ln_lead, ratio))) = parts else {
             // S = (1/A)∫_{b−A}^{b} Φ((c/t − v)/s) dc over the distance c to the threshold
             // (z₁ ≈ z₂ would lose digits in z₂ − z₁).
             let ln_s = self.ln_over_distances(t, drift, |_, u| ln_normal_cdf_of(u))
@@ -301,19 +345,19 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
         // integral's by the chain rule in z₁ and z₂.
         let (z1, z2) = self.bounds(t, drift);
         let scale = (t * self.drift_sd / self.start_range).ln();
-        let (cdf1, cdf2) = closed.cdf_over_ws;
+        let (cdf1, cdf2) = closed.cdf_over_ws(width);
         scale + lift(ln_s - scale.value(), &[(cdf2, z2), (-cdf1, z1)])
     }
 
-    fn split_ln_density(&self, t: f64, drift: f64) -> Option<(f64, f64)> {
-        let (closed, _) = self.closed(t, drift)?;
+    fn split_ln_density(&self, at: &Moment, drift: f64) -> Option<(f64, f64)> {
+        let (closed, _, _) = self.closed(at, drift)?;
         let (ln_lead, bracket) = closed.density(drift, self.drift_sd.value())?;
         Some((ln_lead, bracket / self.start_range.value()))
     }
 
-    fn split_ln_survival(&self, t: f64, drift: f64) -> Option<(f64, f64)> {
-        let (closed, width) = self.closed(t, drift)?;
-        closed.survival(width)
+    fn split_ln_survival(&self, at: &Moment, drift: f64) -> Option<(f64, f64)> {
+        let (closed, width, inverse_width) = self.closed(at, drift)?;
+        closed.survival(width, inverse_width)
     }
 
     /// ln P(arrives) = ln Φ(v/s).

@@ -42,15 +42,44 @@ pub trait Accumulator<T: Real>: Copy + Send + Sync {
     fn sample(&self, drift: f64, rng: &mut dyn Rng) -> f64;
     /// c such that the density's leading edge falls like e^{−c/t} or faster (for quadrature).
     fn leading_edge(&self) -> f64;
-    /// The density at values, split for a race's product: (e, m) with ln f(t) = e + ln m and
-    /// m > 0, so that [`ln_winner_density`] can multiply the m of all accumulators and take one
-    /// logarithm; None where the accumulator has no such form (then logarithms are added).
-    fn split_ln_density(&self, _t: f64, _drift: f64) -> Option<(f64, f64)> {
+    /// The density at values at decision time `at` > 0, split for a race's product: (e, m) with
+    /// ln f(t) = e + ln m and m > 0, so that [`ln_winner_density`] can multiply the m of all
+    /// accumulators and take one logarithm; None where the accumulator has no such form (then
+    /// logarithms are added).
+    fn split_ln_density(&self, _at: &Moment, _drift: f64) -> Option<(f64, f64)> {
         None
     }
     /// The survival at values, split as [`Accumulator::split_ln_density`]: ln S(t) = e + ln m.
-    fn split_ln_survival(&self, _t: f64, _drift: f64) -> Option<(f64, f64)> {
+    fn split_ln_survival(&self, _at: &Moment, _drift: f64) -> Option<(f64, f64)> {
         None
+    }
+}
+
+/// A decision time t > 0 with the powers the accumulators' split forms use, computed once for
+/// all accumulators of a race.
+#[derive(Clone, Copy, Debug)]
+pub struct Moment {
+    /// t.
+    pub t: f64,
+    /// 1/t.
+    pub inverse: f64,
+    /// √t.
+    pub root: f64,
+    /// 1/√t.
+    pub inverse_root: f64,
+}
+
+impl Moment {
+    /// The powers of t.
+    #[inline]
+    pub fn new(t: f64) -> Self {
+        let root = t.sqrt();
+        Self {
+            t,
+            inverse: 1.0 / t,
+            root,
+            inverse_root: 1.0 / root,
+        }
     }
 }
 
@@ -87,10 +116,14 @@ fn split_winner_density<T: Real, A: Accumulator<T>>(
     k: usize,
     t: f64,
 ) -> Option<f64> {
-    let (mut exponent, mut product) = accumulator.split_ln_density(t, drifts[k].value())?;
+    if t <= 0.0 {
+        return None;
+    }
+    let at = Moment::new(t);
+    let (mut exponent, mut product) = accumulator.split_ln_density(&at, drifts[k].value())?;
     for (j, v) in drifts.iter().enumerate() {
         if j != k {
-            let (e, m) = accumulator.split_ln_survival(t, v.value())?;
+            let (e, m) = accumulator.split_ln_survival(&at, v.value())?;
             exponent += e;
             product *= m;
         }
@@ -352,10 +385,10 @@ impl<T: Real, A: Accumulator<T>> Accumulator<f64> for ValueOf<'_, T, A> {
     fn leading_edge(&self) -> f64 {
         self.0.leading_edge()
     }
-    fn split_ln_density(&self, t: f64, drift: f64) -> Option<(f64, f64)> {
-        self.0.split_ln_density(t, drift)
+    fn split_ln_density(&self, at: &Moment, drift: f64) -> Option<(f64, f64)> {
+        self.0.split_ln_density(at, drift)
     }
-    fn split_ln_survival(&self, t: f64, drift: f64) -> Option<(f64, f64)> {
-        self.0.split_ln_survival(t, drift)
+    fn split_ln_survival(&self, at: &Moment, drift: f64) -> Option<(f64, f64)> {
+        self.0.split_ln_survival(at, drift)
     }
 }

@@ -102,40 +102,41 @@ const MIDDLE_END: f64 = 5.656_854_249_492_381;
 /// approximations (see the module docs for the equations, source and accuracy). Both are
 /// positive and decrease like 1/(x√(2π)) and 1/(x²√(2π)) for large x. NaN for negative or NaN
 /// x.
+#[inline]
 pub(crate) fn scaled_tails(x: f64) -> (f64, f64) {
+    // Estrin's scheme (the polynomials split into pairs, combined with x², x⁴, x⁸) rather than
+    // Horner's: the same terms, all positive, in a shorter chain of dependent operations.
     if x <= SMALL_END {
         if x.is_nan() || x < 0.0 {
             return (f64::NAN, f64::NAN);
         }
-        let xsq = x * x;
-        let mut num = SMALL_NUM[4] * xsq;
-        let mut den = xsq;
-        for i in 0..3 {
-            num = (num + SMALL_NUM[i]) * xsq;
-            den = (den + SMALL_DEN[i]) * xsq;
-        }
-        let upper = 0.5 - x * (num + SMALL_NUM[3]) / (den + SMALL_DEN[3]);
-        let m = upper * (0.5 * xsq).exp();
+        let (a, b) = (&SMALL_NUM, &SMALL_DEN);
+        let y = x * x;
+        let y2 = y * y;
+        let num = (a[3] + a[2] * y) + y2 * ((a[1] + a[0] * y) + y2 * a[4]);
+        let den = (b[3] + b[2] * y) + y2 * ((b[1] + b[0] * y) + y2);
+        let upper = 0.5 - x * num / den;
+        let m = upper * (0.5 * y).exp();
         (m, INV_SQRT_2PI - x * m)
     } else if x <= MIDDLE_END {
-        let mut num = MID_NUM[8] * x;
-        let mut den = x;
-        for i in 0..7 {
-            num = (num + MID_NUM[i]) * x;
-            den = (den + MID_DEN[i]) * x;
-        }
-        let m = (num + MID_NUM[7]) / (den + MID_DEN[7]);
+        let (c, d) = (&MID_NUM, &MID_DEN);
+        let x2 = x * x;
+        let x4 = x2 * x2;
+        let num = ((c[7] + c[6] * x) + x2 * (c[5] + c[4] * x))
+            + x4 * (((c[3] + c[2] * x) + x2 * (c[1] + c[0] * x)) + x4 * c[8]);
+        let den = ((d[7] + d[6] * x) + x2 * (d[5] + d[4] * x))
+            + x4 * (((d[3] + d[2] * x) + x2 * (d[1] + d[0] * x)) + x4);
+        let m = num / den;
         (m, INV_SQRT_2PI - x * m)
     } else {
-        let xsq = 1.0 / (x * x);
-        let mut num = LARGE_NUM[5] * xsq;
-        let mut den = xsq;
-        for i in 0..4 {
-            num = (num + LARGE_NUM[i]) * xsq;
-            den = (den + LARGE_DEN[i]) * xsq;
-        }
-        let r = xsq * (num + LARGE_NUM[4]) / (den + LARGE_DEN[4]);
-        ((INV_SQRT_2PI - r) / x, r)
+        let (p, q) = (&LARGE_NUM, &LARGE_DEN);
+        let inverse = 1.0 / x;
+        let y = inverse * inverse;
+        let y2 = y * y;
+        let num = (p[4] + p[3] * y) + y2 * ((p[2] + p[1] * y) + y2 * (p[0] + p[5] * y));
+        let den = (q[4] + q[3] * y) + y2 * ((q[2] + q[1] * y) + y2 * (q[0] + y));
+        let r = y * num / den;
+        ((INV_SQRT_2PI - r) * inverse, r)
     }
 }
 

@@ -15,9 +15,9 @@
 //! approaches (vt − α)/(vt + α) when vt ≫ α, so its relative error grows like 1e-16·vt/(2α):
 //! about 1e-13 at vt = 1000α (checked against mpmath in tests/suite/race_reference.rs).
 
-use super::Accumulator;
 use super::real::{LN_SQRT_2PI, Real, lift, ln_1m_exp, ln_add_exp, ln_sub_exp};
 use super::tails::{INV_SQRT_2PI, ln_normal_pdf, scaled_tails};
+use super::{Accumulator, Moment};
 use crate::first_passage::ln_normal_cdf;
 use rand::Rng;
 use rand_distr::{Distribution, InverseGaussian, StandardNormal};
@@ -90,21 +90,20 @@ impl<T: Real> Accumulator<T> for WaldAccumulator<T> {
     }
 
     /// (−(α − vt)²/(2t), α/(√(2π)·t^{3/2})): the density without a logarithm.
-    fn split_ln_density(&self, t: f64, drift: f64) -> Option<(f64, f64)> {
+    fn split_ln_density(&self, at: &Moment, drift: f64) -> Option<(f64, f64)> {
         let a = self.threshold.value();
-        let gap = a - drift * t;
-        (t > 0.0).then(|| (-gap * gap / (2.0 * t), a * INV_SQRT_2PI / (t * t.sqrt())))
+        let gap = a - drift * at.t;
+        Some((
+            -0.5 * gap * gap * at.inverse,
+            a * INV_SQRT_2PI * at.inverse * at.inverse_root,
+        ))
     }
 
     /// [`ln_survival_by_tails`]'s two parts before their logarithm.
-    fn split_ln_survival(&self, t: f64, drift: f64) -> Option<(f64, f64)> {
-        if t <= 0.0 {
-            return Some((0.0, 1.0));
-        }
+    fn split_ln_survival(&self, at: &Moment, drift: f64) -> Option<(f64, f64)> {
         let a = self.threshold.value();
-        let root = t.sqrt();
-        let c1 = (drift * t - a) / root;
-        let (part, _) = survival_by_tails(c1, (drift * t + a) / root)?;
+        let c1 = (drift * at.t - a) * at.inverse_root;
+        let (part, _) = survival_by_tails(c1, (drift * at.t + a) * at.inverse_root)?;
         Some(if c1 >= 0.0 {
             (-0.5 * c1 * c1, part)
         } else {
@@ -180,6 +179,7 @@ fn ln_survival_by_tails(c1: f64, x2: f64) -> Option<(f64, f64)> {
 
 /// The parts of [`ln_survival_by_tails`] before the logarithm: (M(c₁) − M(x₂), M(x₂)) for
 /// c₁ ≥ 0, (F, M(x₂)) for c₁ < 0.
+#[inline]
 fn survival_by_tails(c1: f64, x2: f64) -> Option<(f64, f64)> {
     if x2.is_nan() || x2 < 0.0 {
         return None;
