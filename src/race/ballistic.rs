@@ -184,6 +184,9 @@ impl Closed {
         let ((_, k1), (_, k2)) = self.tails;
         let (r1, r2) = self.rho;
         match self.side {
+            // Beyond z₁² = 94, e₁·K(z₁) < e^{−47}/√(2π) is below 1e-18 of w ≥ 1e-3, so w·S rounds
+            // to w and the exponential can be skipped.
+            Side::Above if self.ln_lead < -47.0 => (0.0, width, 0.0),
             Side::Above => {
                 let lead = self.ln_lead.exp();
                 (0.0, width - lead * (k1 - r2 * k2), lead)
@@ -349,12 +352,14 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
         scale + lift(ln_s - scale.value(), &[(cdf2, z2), (-cdf1, z1)])
     }
 
+    #[inline]
     fn split_ln_density(&self, at: &Moment, drift: f64) -> Option<(f64, f64)> {
         let (closed, _, _) = self.closed(at, drift)?;
         let (ln_lead, bracket) = closed.density(drift, self.drift_sd.value())?;
         Some((ln_lead, bracket / self.start_range.value()))
     }
 
+    #[inline]
     fn split_ln_survival(&self, at: &Moment, drift: f64) -> Option<(f64, f64)> {
         let (closed, width, inverse_width) = self.closed(at, drift)?;
         closed.survival(width, inverse_width)

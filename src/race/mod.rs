@@ -55,30 +55,22 @@ pub trait Accumulator<T: Real>: Copy + Send + Sync {
     }
 }
 
-/// A decision time t > 0 with the powers the accumulators' split forms use, computed once for
-/// all accumulators of a race.
+/// A decision time t > 0 with its reciprocal, computed once for all accumulators of a race.
 #[derive(Clone, Copy, Debug)]
 pub struct Moment {
     /// t.
     pub t: f64,
     /// 1/t.
     pub inverse: f64,
-    /// √t.
-    pub root: f64,
-    /// 1/√t.
-    pub inverse_root: f64,
 }
 
 impl Moment {
-    /// The powers of t.
+    /// t and 1/t.
     #[inline]
     pub fn new(t: f64) -> Self {
-        let root = t.sqrt();
         Self {
             t,
             inverse: 1.0 / t,
-            root,
-            inverse_root: 1.0 / root,
         }
     }
 }

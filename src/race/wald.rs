@@ -95,15 +95,16 @@ impl<T: Real> Accumulator<T> for WaldAccumulator<T> {
         let gap = a - drift * at.t;
         Some((
             -0.5 * gap * gap * at.inverse,
-            a * INV_SQRT_2PI * at.inverse * at.inverse_root,
+            a * INV_SQRT_2PI * at.inverse * at.inverse.sqrt(),
         ))
     }
 
     /// [`ln_survival_by_tails`]'s two parts before their logarithm.
     fn split_ln_survival(&self, at: &Moment, drift: f64) -> Option<(f64, f64)> {
         let a = self.threshold.value();
-        let c1 = (drift * at.t - a) * at.inverse_root;
-        let (part, _) = survival_by_tails(c1, (drift * at.t + a) * at.inverse_root)?;
+        let inverse_root = at.inverse.sqrt();
+        let c1 = (drift * at.t - a) * inverse_root;
+        let (part, _) = survival_by_tails(c1, (drift * at.t + a) * inverse_root)?;
         Some(if c1 >= 0.0 {
             (-0.5 * c1 * c1, part)
         } else {

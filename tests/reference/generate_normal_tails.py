@@ -5,7 +5,8 @@
     M(x) = Phi(-x) * exp(x^2/2)
     K(x) = G(-x) * exp(x^2/2),   G(z) = z Phi(z) + phi(z),  so G(-x) = phi(x) - x Phi(-x)
 
-for x >= 0, computed by mpmath at 40 significant digits from Phi(-x) = erfc(x/sqrt(2))/2
+for x >= 0, computed by mpmath at 150 significant digits (K cancels about 2*log10(x)
+digits) from Phi(-x) = erfc(x/sqrt(2))/2
 (Abramowitz & Stegun 1964, 7.1.2 and 26.2.29). Offline tool: the Rust test only reads the CSV
 written next to this script.
 
@@ -13,7 +14,7 @@ written next to this script.
     python3 tests/reference/generate_normal_tails.py
 
 Deterministic: a fixed grid (dense around the approximation switches at 0.66291 and sqrt(32),
-log-spaced out to 1e6).
+log-spaced out to 1e6, then 1 and 3 times each power of ten to 1e30).
 """
 
 import csv
@@ -21,7 +22,7 @@ import os
 
 import mpmath as mp
 
-mp.mp.dps = 40
+mp.mp.dps = 150
 
 
 def tails(x):
@@ -42,6 +43,9 @@ def grid():
             xs.add(centre + d)
     for i in range(0, 121):  # 8 to 1e6, log-spaced
         xs.add(mp.mpf(8) * mp.power(mp.mpf(125000), mp.mpf(i) / 120))
+    for e in range(7, 31):  # 1e7 to 1e30 (past the asymptotic switch at 1e20)
+        for mantissa in (1, 3):
+            xs.add(mp.mpf(mantissa) * mp.power(10, e))
     return sorted(xs)
 
 
