@@ -140,18 +140,27 @@ pub fn ln_never<T: Real, A: Accumulator<T>>(accumulator: &A, drifts: &[T]) -> T 
 }
 
 /// ln P(some accumulator arrives) = ln(1 − Π_j P(never_j)). When every accumulator is
-/// unlikely to arrive (each ln P(arrives_j) < −30) the product's complement is formed as
-/// ln Σ_j P(arrives_j), whose relative error is below N·e^−30 (the pairwise terms of
-/// inclusion–exclusion); otherwise as ln(1 − e^{Σ ln P(never_j)}) (Mächler 2012).
+/// unlikely to arrive (each ln P(arrives_j) < −30, that is ln P(never_j) > ln(1 − e^−30)) the
+/// product's complement is formed as ln Σ_j P(arrives_j), whose relative error is below N·e^−30
+/// (the pairwise terms of inclusion–exclusion); otherwise as ln(1 − e^{Σ ln P(never_j)})
+/// (Mächler 2012).
 pub fn ln_some_arrival<T: Real, A: Accumulator<T>>(accumulator: &A, drifts: &[T]) -> T {
-    let arrivals: Vec<T> = drifts
+    /// ln(1 − e^−30) (mpmath).
+    const NEARLY_NEVER: f64 = -9.357_622_968_840_612e-14;
+    let (never, unlikely) = drifts
         .iter()
-        .map(|&v| accumulator.ln_arrival_probability(v))
-        .collect();
-    if arrivals.iter().all(|x| x.value() < -30.0) {
+        .fold((T::from(0.0), true), |(sum, unlikely), &v| {
+            let never = accumulator.ln_never(v);
+            (sum + never, unlikely && never.value() > NEARLY_NEVER)
+        });
+    if unlikely {
+        let arrivals: Vec<T> = drifts
+            .iter()
+            .map(|&v| accumulator.ln_arrival_probability(v))
+            .collect();
         ln_sum_exp(&arrivals)
     } else {
-        real::ln_1m_exp(ln_never(accumulator, drifts))
+        real::ln_1m_exp(never)
     }
 }
 
