@@ -261,12 +261,36 @@ impl<T: Real> BallisticAccumulator<T> {
         })
     }
 
-    /// (z₁, z₂) at time t and mean rate v.
-    fn bounds(&self, t: T, drift: T) -> (T, T) {
-        // (b/t − v)/s rather than (b − tv)/(ts): no cancellation between b and tv at long t.
-        (
-            (self.threshold_gap / t - drift) / self.drift_sd,
-            ((self.threshold_gap + self.start_range) / t - drift) / self.drift_sd,
+    /// A value f0 of ln f or ln S with its derivatives carried to t, v and the parameters: the
+    /// partials `d_z` with respect to z₁ and z₂ by the chain rule through
+    /// z₁ = (g/t − v)/s, z₂ = ((g + A)/t − v)/s (g the threshold gap), whose derivatives are
+    /// ∂z/∂t = −c/(t²s) (c = g or g + A), ∂z/∂v = −1/s, ∂z/∂s = −z/s,
+    /// ∂z₁/∂g = ∂z₂/∂g = ∂z₂/∂A = 1/(ts), plus the direct partials `direct` with respect to
+    /// (t, v, s, A). One combination of the gradients instead of dual arithmetic for z.
+    fn lift_through_bounds(
+        &self,
+        f0: f64,
+        (t, drift): (T, T),
+        (d_z1, d_z2): (f64, f64),
+        direct: [f64; 4],
+    ) -> T {
+        let (tv, v) = (t.value(), drift.value());
+        let (g, a, s) = (
+            self.threshold_gap.value(),
+            self.start_range.value(),
+            self.drift_sd.value(),
+        );
+        let its = 1.0 / (tv * s);
+        let (z1, z2) = ((g / tv - v) / s, ((g + a) / tv - v) / s);
+        lift(
+            f0,
+            &[
+                (direct[0] - (d_z1 * g + d_z2 * (g + a)) * its / tv, t),
+                (direct[1] - (d_z1 + d_z2) / s, drift),
+                (direct[2] - (d_z1 * z1 + d_z2 * z2) / s, self.drift_sd),
+                (direct[3] + d_z2 * its, self.start_range),
+                ((d_z1 + d_z2) * its, self.threshold_gap),
+            ],
         )
     }
 }
@@ -298,18 +322,18 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
         if !T::CARRIES_DERIVATIVES {
             return T::from(ln_f);
         }
-        let (z1, z2) = self.bounds(t, drift);
         let gap = self.threshold_gap.value();
         let (rho1, rho2) = closed.rho;
         let pdf = INV_SQRT_2PI / bracket;
-        lift(
+        self.lift_through_bounds(
             ln_f,
-            &[
-                (rho2 * pdf * (gap + a) / tv, z2),
-                (-rho1 * pdf * gap / tv, z1),
-                (closed.cdf_gap() / bracket, drift),
-                ((rho1 - rho2) * pdf, self.drift_sd),
-                (-1.0 / a, self.start_range),
+            (t, drift),
+            (-rho1 * pdf * gap / tv, rho2 * pdf * (gap + a) / tv),
+            [
+                0.0,
+                closed.cdf_gap() / bracket,
+                (rho1 - rho2) * pdf,
+                -1.0 / a,
             ],
         )
     }
@@ -344,12 +368,19 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
         if !T::CARRIES_DERIVATIVES {
             return T::from(ln_s);
         }
-        // ln S = ln(ts/A) + ln ∫: the scale's derivatives through the dual numbers, the
-        // integral's by the chain rule in z₁ and z₂.
-        let (z1, z2) = self.bounds(t, drift);
-        let scale = (t * self.drift_sd / self.start_range).ln();
+        // ln S = ln(ts/A) + ln ∫: the scale's partials directly, the integral's through z₁, z₂.
         let (cdf1, cdf2) = closed.cdf_over_ws(width);
-        scale + lift(ln_s - scale.value(), &[(cdf2, z2), (-cdf1, z1)])
+        self.lift_through_bounds(
+            ln_s,
+            (t, drift),
+            (-cdf1, cdf2),
+            [
+                1.0 / tv,
+                0.0,
+                1.0 / self.drift_sd.value(),
+                -1.0 / self.start_range.value(),
+            ],
+        )
     }
 
     #[inline]
@@ -439,6 +470,60 @@ mod tests {
                 (got_s - ln_s).abs() < 1e-10,
                 "survival at {t}: {got_s} vs {ln_s}"
             );
+        }
+    }
+
+    #[test]
+    fn derivatives_match_central_differences() {
+        // ∂/∂(t, v, s, A, gap) of ln f and ln S through the dual numbers against central
+        // differences of the values (common practice), on each side of z = 0 and across it.
+        use num_dual::DualSVec64;
+        type D5 = DualSVec64<5>;
+        for &(t, v, s, a, gap) in &[
+            (0.4, 1.2, 1.0, 0.6, 0.5),
+            (2.5, 1.5, 0.8, 0.5, 0.3),
+            (0.8, 0.9, 1.1, 0.7, 0.4),
+            (0.05, 2.0, 1.0, 0.8, 0.6),
+        ] {
+            let x = [t, v, s, a, gap];
+            let dual = |k: usize| D5::from_re(x[k]).derivative(k);
+            let acc = BallisticAccumulator {
+                start_range: dual(3),
+                threshold_gap: dual(4),
+                drift_sd: dual(2),
+            };
+            let value = |y: [f64; 5], density: bool| {
+                let acc = BallisticAccumulator {
+                    start_range: y[3],
+                    threshold_gap: y[4],
+                    drift_sd: y[2],
+                };
+                if density {
+                    acc.ln_density(y[0], y[1])
+                } else {
+                    acc.ln_survival(y[0], y[1])
+                }
+            };
+            for density in [true, false] {
+                let got = if density {
+                    acc.ln_density(dual(0), dual(1))
+                } else {
+                    acc.ln_survival(dual(0), dual(1))
+                };
+                let grad = got.eps.unwrap_generic(nalgebra::Const::<5>, nalgebra::U1);
+                for k in 0..5 {
+                    let h = 1e-6 * x[k];
+                    let (mut up, mut down) = (x, x);
+                    up[k] += h;
+                    down[k] -= h;
+                    let numeric = (value(up, density) - value(down, density)) / (2.0 * h);
+                    assert!(
+                        (grad[k] - numeric).abs() < 1e-6 * numeric.abs().max(1.0),
+                        "{x:?} density {density} ∂{k}: {} vs {numeric}",
+                        grad[k]
+                    );
+                }
+            }
         }
     }
 }

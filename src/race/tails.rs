@@ -195,3 +195,97 @@ mod tests {
         assert!(scaled_tails(f64::NAN).1.is_nan());
     }
 }
+#[cfg(test)]
+mod probe_speed {
+    #[test]
+    #[ignore]
+    fn probe_speed() {
+        use std::hint::black_box;
+        use std::time::Instant;
+        for (lo, hi) in [
+            (0.0, 0.66),
+            (0.7, 5.6),
+            (5.7, 50.0),
+            (0.0, 10.0),
+            (-1.0, 10.0),
+        ] {
+            let mut xs: Vec<f64> = (0..4096)
+                .map(|i| lo + (hi - lo) * (i as f64 / 4096.0))
+                .collect();
+            if lo < 0.0 {
+                let mut state = 12345u64;
+                for i in (1..xs.len()).rev() {
+                    state = state
+                        .wrapping_mul(6364136223846793005)
+                        .wrapping_add(1442695040888963407);
+                    xs.swap(i, (state >> 33) as usize % (i + 1));
+                }
+                for x in &mut xs {
+                    *x = x.abs() * 1.0;
+                }
+            }
+            let mut best = f64::INFINITY;
+            for _ in 0..7 {
+                let start = Instant::now();
+                let mut sum = 0.0;
+                for _ in 0..64 {
+                    for &x in &xs {
+                        let (m, k) = super::scaled_tails(black_box(x));
+                        sum += m + k;
+                    }
+                }
+                black_box(sum);
+                best = best.min(start.elapsed().as_nanos() as f64 / (4096.0 * 64.0));
+            }
+            let mut best_exp = f64::INFINITY;
+            let mut best_ln = f64::INFINITY;
+            for _ in 0..7 {
+                let start = Instant::now();
+                let mut sum = 0.0;
+                for _ in 0..64 {
+                    for &x in &xs {
+                        sum += black_box(-x).exp();
+                    }
+                }
+                black_box(sum);
+                best_exp = best_exp.min(start.elapsed().as_nanos() as f64 / (4096.0 * 64.0));
+                let start = Instant::now();
+                let mut sum = 0.0;
+                for _ in 0..64 {
+                    for &x in &xs {
+                        sum += black_box(x + 1.0).ln();
+                    }
+                }
+                black_box(sum);
+                best_ln = best_ln.min(start.elapsed().as_nanos() as f64 / (4096.0 * 64.0));
+            }
+            let mut best_libm_exp = f64::INFINITY;
+            let mut best_libm_ln = f64::INFINITY;
+            for _ in 0..7 {
+                let start = Instant::now();
+                let mut sum = 0.0;
+                for _ in 0..64 {
+                    for &x in &xs {
+                        sum += libm::exp(black_box(-x));
+                    }
+                }
+                black_box(sum);
+                best_libm_exp =
+                    best_libm_exp.min(start.elapsed().as_nanos() as f64 / (4096.0 * 64.0));
+                let start = Instant::now();
+                let mut sum = 0.0;
+                for _ in 0..64 {
+                    for &x in &xs {
+                        sum += libm::log(black_box(x + 1.0));
+                    }
+                }
+                black_box(sum);
+                best_libm_ln =
+                    best_libm_ln.min(start.elapsed().as_nanos() as f64 / (4096.0 * 64.0));
+            }
+            println!(
+                "[{lo}, {hi}]: tails {best:.2} ns, exp {best_exp:.2} ns, ln {best_ln:.2} ns, libm exp {best_libm_exp:.2}, libm ln {best_libm_ln:.2}"
+            );
+        }
+    }
+}
