@@ -155,6 +155,7 @@ pub(crate) fn scaled_tails(x: f64) -> (f64, f64) {
     }
 }
 
+/// ln φ(x) = −x²/2 − ½ln(2π).
 #[inline]
 pub(crate) fn ln_normal_pdf(x: f64) -> f64 {
     -0.5 * x * x - LN_SQRT_2PI
