@@ -8,12 +8,16 @@
 //! * distribution F(t) = Φ((vt − α)/√t) + e^{2vα}·Φ(−(vt + α)/√t), defective for v < 0 with
 //!   total mass e^{2vα} (the process may drift away and never arrive);
 //! * survival S(t) = 1 − F(t) = Φ((α − vt)/√t) − e^{2vα}·Φ(−(vt + α)/√t), computed as that
-//!   difference in log space (no 1 − F rounding).
+//!   difference (no 1 − F rounding) with the Gaussian factor e^{−c₁²/2} taken out of both terms
+//!   (scaled normal tails of Cody 1969, `tails.rs`), so that ln S needs two rational
+//!   evaluations and one logarithm; where vt + α < 0 (a negative drift at long times) from two
+//!   log-space normal distribution functions instead.
 //!
 //! # Accuracy
 //! ln f is a closed form, accurate to rounding. ln S subtracts two positive terms whose ratio
 //! approaches (vt − α)/(vt + α) when vt ≫ α, so its relative error grows like 1e-16·vt/(2α):
-//! about 1e-13 at vt = 1000α (checked against mpmath in tests/suite/race_reference.rs).
+//! about 1e-13 at vt = 1000α. Largest errors against mpmath (tests/suite/race_reference.rs, 601
+//! points with the ballistic accumulator): 3.8e-12 in ln f, 2.6e-13 in ln S, 5.7e-14 in ln F.
 
 use super::real::{LN_SQRT_2PI, Real, lift, ln_1m_exp, ln_add_exp, ln_sub_exp};
 use super::tails::{INV_SQRT_2PI, ln_normal_pdf, scaled_tails};
