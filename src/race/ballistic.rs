@@ -112,6 +112,23 @@ struct Closed {
     z2: f64,
 }
 
+/// The bounds of one accumulator at (t, v), with the width w = z₂ − z₁ = A/(ts) and 1/w.
+#[derive(Clone, Copy)]
+struct Bounds {
+    z1: f64,
+    z2: f64,
+    width: f64,
+    inverse_width: f64,
+}
+
+/// Beyond z₁ = 9.7 (z₁²/2 > 47) nothing can have arrived to rounding: w·S = w − (G(−z₁) −
+/// G(−z₂)) with G(−z₁) < e^{−47}/√(2π) < 1e-21, below 1e-18 of w ≥ 1e-3, so S rounds to 1 and
+/// ln S to 0 (its derivatives are as small).
+const NOTHING_ARRIVED: f64 = 9.7;
+
+/// A split form (ln e, m) of a logarithm, ln x = ln e + ln m.
+type Split = (f64, f64);
+
 /// Where the bounds lie: both at or above 0, both below, or one on each side.
 #[derive(Clone, Copy, PartialEq)]
 enum Side {
@@ -184,9 +201,6 @@ impl Closed {
         let ((_, k1), (_, k2)) = self.tails;
         let (r1, r2) = self.rho;
         match self.side {
-            // Beyond z₁² = 94, e₁·K(z₁) < e^{−47}/√(2π) is below 1e-18 of w ≥ 1e-3, so w·S rounds
-            // to w and the exponential can be skipped.
-            Side::Above if self.ln_lead < -47.0 => (0.0, width, 0.0),
             Side::Above => {
                 let lead = self.ln_lead.exp();
                 (0.0, width - lead * (k1 - r2 * k2), lead)
@@ -241,10 +255,10 @@ impl<T: Real> BallisticAccumulator<T> {
         self.start_range.ln() + ln_sum_exp(&terms)
     }
 
-    /// The closed forms at decision time t and mean rate v with the width w = A/(ts) and 1/w;
-    /// None below w = [`NARROW`] (where the caller integrates).
+    /// The bounds (z₁, z₂) at decision time t and mean rate v with the width w = A/(ts) and
+    /// 1/w; None below w = [`NARROW`] (where the caller integrates).
     #[inline]
-    fn closed(&self, at: &Moment, v: f64) -> Option<(Closed, f64, f64)> {
+    fn bounds(&self, at: &Moment, v: f64) -> Option<Bounds> {
         let (gap, a, s) = (
             self.threshold_gap.value(),
             self.start_range.value(),
@@ -254,11 +268,34 @@ impl<T: Real> BallisticAccumulator<T> {
         let q = 1.0 / (s * a);
         let inverse_s = a * q;
         let width = a * at.inverse * inverse_s;
-        (width >= NARROW).then(|| {
-            let z1 = (gap * at.inverse - v) * inverse_s;
-            let z2 = ((gap + a) * at.inverse - v) * inverse_s;
-            (Closed::new(z1, z2, width), width, at.t * s * s * q)
+        (width >= NARROW).then_some(Bounds {
+            z1: (gap * at.inverse - v) * inverse_s,
+            z2: ((gap + a) * at.inverse - v) * inverse_s,
+            width,
+            inverse_width: at.t * s * s * q,
         })
+    }
+
+    /// The closed forms at decision time t and mean rate v, with the bounds; None below
+    /// w = [`NARROW`].
+    #[inline]
+    fn closed(&self, at: &Moment, v: f64) -> Option<(Closed, Bounds)> {
+        self.bounds(at, v)
+            .map(|b| (Closed::new(b.z1, b.z2, b.width), b))
+    }
+
+    /// The survival's split form (ln e, m) at values with the closed forms behind it (None
+    /// where nothing can have arrived: S = 1 to rounding), or None below w = [`NARROW`] or
+    /// where rounding left no positive w·S.
+    #[inline]
+    fn split_survival(&self, at: &Moment, v: f64) -> Option<(Split, Option<(Closed, Bounds)>)> {
+        let b = self.bounds(at, v)?;
+        if b.z1 > NOTHING_ARRIVED {
+            return Some(((0.0, 1.0), None));
+        }
+        let closed = Closed::new(b.z1, b.z2, b.width);
+        let split = closed.survival(b.width, b.inverse_width)?;
+        Some((split, Some((closed, b))))
     }
 
     /// A value f0 of ln f or ln S with its derivatives carried to t, v and the parameters: the
@@ -309,7 +346,7 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
         let (s, a) = (self.drift_sd.value(), self.start_range.value());
         let parts = self
             .closed(&Moment::new(tv), v)
-            .and_then(|(closed, _, _)| closed.density(v, s).map(|d| (closed, d)));
+            .and_then(|(closed, _)| closed.density(v, s).map(|d| (closed, d)));
         let Some((closed, (ln_lead, bracket))) = parts else {
             // z₁ ≈ z₂, or the two terms cancel: f = (1/(At²s))∫_{b−A}^{b} c·φ((c/t − v)/s) dc,
             // a positive integrand over the distance c to the threshold.
@@ -346,14 +383,7 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
         if tv <= 0.0 {
             return T::from(0.0);
         }
-        let parts = self
-            .closed(&Moment::new(tv), v)
-            .and_then(|(closed, width, inverse_width)| {
-                closed
-                    .survival(width, inverse_width)
-                    .map(|d| (closed, width, d))
-            });
-        let Some((closed, width, (ln_lead, ratio))) = parts else {
+        let Some(((ln_lead, ratio), closed)) = self.split_survival(&Moment::new(tv), v) else {
             // S = (1/A)∫_{b−A}^{b} Φ((c/t − v)/s) dc over the distance c to the threshold
             // (z₁ ≈ z₂ would lose digits in z₂ − z₁).
             let ln_s = self.ln_over_distances(t, drift, |_, u| ln_normal_cdf_of(u))
@@ -365,11 +395,11 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
             };
         };
         let ln_s = ln_lead + ratio.ln();
-        if !T::CARRIES_DERIVATIVES {
+        let Some((closed, bounds)) = closed.filter(|_| T::CARRIES_DERIVATIVES) else {
             return T::from(ln_s);
-        }
+        };
         // ln S = ln(ts/A) + ln ∫: the scale's partials directly, the integral's through z₁, z₂.
-        let (cdf1, cdf2) = closed.cdf_over_ws(width);
+        let (cdf1, cdf2) = closed.cdf_over_ws(bounds.width);
         self.lift_through_bounds(
             ln_s,
             (t, drift),
@@ -385,15 +415,14 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
 
     #[inline]
     fn split_ln_density(&self, at: &Moment, drift: f64) -> Option<(f64, f64)> {
-        let (closed, _, _) = self.closed(at, drift)?;
+        let (closed, _) = self.closed(at, drift)?;
         let (ln_lead, bracket) = closed.density(drift, self.drift_sd.value())?;
         Some((ln_lead, bracket / self.start_range.value()))
     }
 
     #[inline]
     fn split_ln_survival(&self, at: &Moment, drift: f64) -> Option<(f64, f64)> {
-        let (closed, width, inverse_width) = self.closed(at, drift)?;
-        closed.survival(width, inverse_width)
+        self.split_survival(at, drift).map(|(split, _)| split)
     }
 
     /// ln P(arrives) = ln Φ(v/s).
