@@ -20,12 +20,13 @@
 //! Both accumulators evaluate their closed forms in linear space from scaled normal tails
 //! (Cody 1969's rational approximations, `tails.rs`), the Gaussian factor e^{−z²/2} taken out
 //! so that nothing underflows; for values, [`ln_winner_density`] multiplies the accumulators'
-//! split factors and takes one logarithm. Gradients come from the chain rule in `f64`, lifted
-//! onto the dual numbers once per quantity. Measured by `cargo run --release --example
-//! race_speed` (three options, on a shared 2-core machine, three runs): the Wiener race's
-//! winner density 31.5–32.7 ns and the ballistic race's 65.4–67.2 ns against 19.8–20.4 ns for
-//! the two-bound diffusion's density, ratios 1.59–1.60 (target ≤ 3 met) and 3.25–3.37 (target
-//! ≤ 3 not met); before this engine, 136–142 ns and 654–678 ns.
+//! split factors and takes one logarithm. The gradients of the survivals and of the ballistic
+//! density come from the chain rule in `f64`, lifted onto the dual numbers once per quantity
+//! (the Wiener density, a short closed form, stays in dual arithmetic). Measured by `cargo run --release --example
+//! race_speed` (three options, on a shared 2-core machine, five runs): the Wiener race's
+//! winner density 30.8–32.3 ns and the ballistic race's 61.4–64.4 ns against 20.8–22.5 ns for
+//! the two-bound diffusion's density, ratios 1.44–1.49 (target ≤ 3 met) and 2.86–3.05 (at the
+//! target, not reliably below it); before this engine 135–142 ns and 636–670 ns.
 
 mod ballistic;
 mod real;
