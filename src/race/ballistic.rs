@@ -335,7 +335,7 @@ impl<T: Real> BallisticAccumulator<T> {
 impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
     /// ln f(t), f = (1/A)[v(Φ(z₂) − Φ(z₁)) + s(φ(z₁) − φ(z₂))], with ∂f/∂z₂ = φ(z₂)(v + sz₂)/A,
     /// ∂f/∂z₁ = −φ(z₁)(v + sz₁)/A, ∂f/∂v = (Φ(z₂) − Φ(z₁))/A, ∂f/∂s = (φ(z₁) − φ(z₂))/A,
-    /// ∂f/∂A = −f/A at fixed z (Brown & Heathcote 2008); in linear space ([`Closed`]) unless the
+    /// ∂f/∂A = −f/A at fixed z (Brown & Heathcote 2008); in linear space (`Closed`) unless the
     /// bounds are too close or the terms cancel, then by quadrature over the distance to the
     /// threshold.
     fn ln_density(&self, t: T, drift: T) -> T {
@@ -376,7 +376,7 @@ impl<T: Real> Accumulator<T> for BallisticAccumulator<T> {
     }
 
     /// ln S(t) = ln(ts/A) + ln ∫_{z₁}^{z₂} Φ(u) du, with ∂/∂z₂ = Φ(z₂)/∫ and ∂/∂z₁ = −Φ(z₁)/∫;
-    /// in linear space ([`Closed`]) unless the bounds are too close, then by quadrature over the
+    /// in linear space (`Closed`) unless the bounds are too close, then by quadrature over the
     /// distance to the threshold.
     fn ln_survival(&self, t: T, drift: T) -> T {
         let (tv, v) = (t.value(), drift.value());

@@ -47,7 +47,7 @@ impl<T: Real> Accumulator<T> for WaldAccumulator<T> {
     /// ln S(t) = ln[Φ((α − vt)/√t) − e^{2vα}·Φ(−(vt + α)/√t)], with ∂/∂t = −f/S,
     /// ∂/∂α = [2φ(c₁)/√t − 2v·e^{2vα}Φ(c₂)]/S and ∂/∂v = −2α·e^{2vα}Φ(c₂)/S, where
     /// c₁ = (vt − α)/√t, c₂ = −(vt + α)/√t (differentiating F; e^{2vα}φ(c₂) = φ(c₁), and
-    /// f = α·t^{−3/2}·φ(c₁)). From the scaled normal tails ([`ln_survival_by_tails`]) where
+    /// f = α·t^{−3/2}·φ(c₁)). From the scaled normal tails (`ln_survival_by_tails`) where
     /// vt + α ≥ 0, else from two log-space normal distribution functions.
     fn ln_survival(&self, t: T, drift: T) -> T {
         let (tv, a, v) = (t.value(), self.threshold.value(), drift.value());
@@ -103,7 +103,7 @@ impl<T: Real> Accumulator<T> for WaldAccumulator<T> {
         ))
     }
 
-    /// [`ln_survival_by_tails`]'s two parts before their logarithm.
+    /// `ln_survival_by_tails`'s two parts before their logarithm.
     fn split_ln_survival(&self, at: &Moment, drift: f64) -> Option<(f64, f64)> {
         let a = self.threshold.value();
         let inverse_root = at.inverse.sqrt();
