@@ -2,7 +2,7 @@
 //! (`num_dual::DualSVec64`) that carry the gradient with respect to a model's parameters through
 //! the same formulas (exact derivatives, no finite differences).
 
-use crate::first_passage::ln_normal_cdf;
+use super::tails::{INV_SQRT_2PI, scaled_tails};
 use num_dual::{DualNum, DualSVec64};
 
 /// ½·ln(2π).
@@ -45,13 +45,24 @@ pub(crate) fn lift<T: Real>(f0: f64, partials: &[(f64, T)]) -> T {
         .fold(T::from(f0), |acc, &(d, x)| acc + (x - x.value()) * d)
 }
 
-/// ln Φ(z) with derivative φ(z)/Φ(z) (the value from [`ln_normal_cdf`], accurate to about
-/// 1e-15 relative).
+/// ln Φ(z) with derivative φ(z)/Φ(z), from the scaled tail M(x) = Φ(−x)·e^{x²/2} of
+/// [`scaled_tails`] (Cody 1969's rational approximations; relative accuracy 5e-16, see
+/// `tails.rs`): for z ≤ 0, ln Φ(z) = −z²/2 + ln M(−z) and φ(z)/Φ(z) = 1/(√(2π)·M(−z)); for
+/// z > 0, ln Φ(z) = ln(1 − e^{−z²/2}·M(z)) (by ln_1p) and φ(z)/Φ(z) = e^{−z²/2}/(√(2π)·Φ(z)).
 #[inline]
 pub(crate) fn ln_normal_cdf_of<T: Real>(z: T) -> T {
     let zv = z.value();
-    let ln_cdf = ln_normal_cdf(zv);
-    let ratio = (-0.5 * zv * zv - LN_SQRT_2PI - ln_cdf).exp();
+    let (ln_cdf, ratio) = if zv <= 0.0 {
+        let m = scaled_tails(-zv).0;
+        (-0.5 * zv * zv + m.ln(), INV_SQRT_2PI / m)
+    } else {
+        let gaussian = (-0.5 * zv * zv).exp();
+        let upper = gaussian * scaled_tails(zv).0;
+        ((-upper).ln_1p(), gaussian * INV_SQRT_2PI / (1.0 - upper))
+    };
+    if !T::CARRIES_DERIVATIVES {
+        return T::from(ln_cdf);
+    }
     lift(ln_cdf, &[(ratio, z)])
 }
 
