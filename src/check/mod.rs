@@ -8,7 +8,7 @@
 //!   (`outcome_if_a`, `outcome_if_b`): the whole task is simulated, learning from the simulated
 //!   choices ([`crate::simulate::simulate_subject`]);
 //! - **one step ahead** ([`Mode::OneStepAhead`]) otherwise: the learning recursion follows the
-//!   observed choices and outcomes ([`SubjectLikelihood::trace`]) and each trial's choice and
+//!   observed choices and outcomes ([`crate::likelihood::SubjectLikelihood::trace`]) and each trial's choice and
 //!   response time is drawn from the choice stage at that trial's decision signal
 //!   ([`crate::simulate::draw_trial`], the simulator's own code path).
 //!

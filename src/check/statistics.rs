@@ -72,7 +72,7 @@ pub enum Factor {
     ValueDifference,
     /// Effort demanded by the correct-by-value option.
     Effort,
-    /// The level of a column of the trial table ([`CheckSettings::condition`]).
+    /// The level of a column of the trial table ([`crate::check::CheckSettings::condition`]).
     Condition,
     /// The side chosen (a, b, c, …): one bin per option side of the subject's trials.
     Option,

@@ -46,7 +46,7 @@ pub(crate) type Partials = [f64; 7];
 ///
 /// ln f = −2 ln a − ½ ln D + (η²a²w² − 2avw − v²t) / (2D) + ln g(u, w),
 ///
-/// where g is the standardised density of [`series`](super::series) (small-time or large-time
+/// where g is the standardised density of the series module (small-time or large-time
 /// series of Navarro & Fuss 2009). The upper bound uses f_upper(t | v, w) = f_lower(t | −v, 1 − w).
 /// With `start_range` or `ndt_range` above zero the density is averaged over the uniform start
 /// and non-decision time by composite Gauss–Legendre quadrature (see the crate's accuracy notes).

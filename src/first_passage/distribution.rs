@@ -17,7 +17,7 @@ use super::series::{StdCdf, ln_add_exp, ln_prob_lower, std_cdf};
 /// Without across-trial variability, in standardised units (λ = v·a, u = (rt − ndt)/a²):
 /// the small-time sum of Wald distribution functions for u < 0.5 and the large-time series of the
 /// survival for u ≥ 0.5 (Blurton, Kesselmeier & Gondan 2012, eqs. 5 and 8; see
-/// [`series`](super::series)). With drift variability η > 0 the closed-form density of
+/// the series module). With drift variability η > 0 the closed-form density of
 /// [`ln_density`](super::ln_density) is integrated over time; start and non-decision time ranges
 /// are averaged by composite Gauss–Legendre quadrature.
 ///

@@ -47,7 +47,7 @@ pub fn mean_decision_time_given(bound: Bound, params: &DiffusionParams) -> f64 {
     (ln_moment - ln_bound_probability(bound, params)).exp()
 }
 
-/// Unconditional mean decision time E[T] = P_upper·E[T | upper] + P_lower·E[T | lower]
+/// Unconditional mean decision time E\[T\] = P_upper·E\[T | upper\] + P_lower·E\[T | lower\]
 /// (for fixed drift and start equal to (a·P_upper − z)/v, Grasman et al. 2009; for an
 /// unbiased start a/(2v)·(1 − e^(−va))/(1 + e^(−va)), Wagenmakers, van der Maas & Grasman 2007).
 pub fn mean_decision_time(params: &DiffusionParams) -> f64 {

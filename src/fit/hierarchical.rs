@@ -401,7 +401,7 @@ fn e_step(
 /// place of μ. `modes` are the θ̂_i, `covariances` the posterior covariances Σ_i; off-diagonal
 /// terms of Σ are 0 unless `full`. A subject without a covariance contributes the previous
 /// prior covariance (it is taken as uninformative about its deviation); before any prior
-/// exists, the spread of the modes alone. Variances are floored at [`MIN_VARIANCE`]; a full
+/// exists, the spread of the modes alone. Variances are floored at `MIN_VARIANCE`; a full
 /// estimate that is not positive definite falls back to its diagonal.
 ///
 /// Returns the prior (its mean: μ, or the intercepts B_j0) and the coefficients, k rows of

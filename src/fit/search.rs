@@ -22,7 +22,7 @@
 //! to the middle of their start ranges) are optimised, then everything is released
 //! (a short search from the interior, which a bound optimum must survive); when the point was
 //! flat or value-blind, fresh starts from the start ranges are run as well. A better optimum
-//! found (by more than [`SAME_OPTIMUM`](super::SAME_OPTIMUM)) replaces the best and is examined
+//! found (by more than [`crate::fit::SAME_OPTIMUM`]) replaces the best and is examined
 //! again, at most [`ESCAPE_ROUNDS`] times.
 //!
 //! The verdict: `converged` only when the best run stopped by its tolerance test (or could not

@@ -50,7 +50,7 @@ pub struct Model {
 
 /// One cost attribute of a model: its name (the column prefix of the trial table), its shape.
 pub struct CostAttribute {
-    /// Attribute name: `effort` (columns effort_a, effort_b) or another (columns <name>_a, …).
+    /// Attribute name: `effort` (columns effort_a, effort_b) or another (columns `<name>_a`, …).
     pub name: String,
     /// Name of the cost shape.
     pub shape_name: &'static str,

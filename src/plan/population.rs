@@ -273,7 +273,7 @@ impl Population {
 
     /// One participant's values of every parameter (model order), with the shift when
     /// `shifted`; values outside the bounds are redrawn (the whole profile, so that rows of a
-    /// file of values stay together). `None` after [`MOST_DRAWS`] failures.
+    /// file of values stay together). `None` after `MOST_DRAWS` (10 000) failures.
     pub fn draw(&self, rng: &mut dyn Rng, shifted: bool) -> Option<Vec<f64>> {
         for _ in 0..MOST_DRAWS {
             let row = (!self.file_rows.is_empty())

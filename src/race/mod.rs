@@ -270,7 +270,7 @@ fn time_scale<T: Real, A: Accumulator<T>>(accumulator: &A, drifts: &[T]) -> f64 
 }
 
 /// ln P(accumulator `k` arrives first, after decision time `from`) = ln ∫_from^∞ g_k(t) dt,
-/// by Gauss–Legendre quadrature in ln t ([`time_nodes`]), with its gradient (including that of
+/// by Gauss–Legendre quadrature in ln t (`time_nodes`), with its gradient (including that of
 /// the lower limit, ∂/∂from = −g_k(from)/P). Relative accuracy about 1e-12 (checked against
 /// mpmath quadrature in tests/suite/race_reference.rs).
 pub fn ln_choice_probability<T: Real, A: Accumulator<T>>(
