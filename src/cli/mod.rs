@@ -326,9 +326,10 @@ pub enum Command {
     /// of the group contrast (Welch 1947) per number of participants, with Wilson (1927)
     /// intervals and the normal-theory power from the noncentral t (Lenth 1989).
     ///
-    /// The plan is a TOML file (see the README's "Planning a study"). Writes OUT/plan_recovery,
-    /// plan_confusion, plan_model_recovery, plan_power, plan_trials_needed, plan_estimates
-    /// (.csv + .parquet) and plan.json. Results depend on the seed only, not on --threads.
+    /// The plan is a TOML file (see the README's section on `valuedrift plan`, and
+    /// examples/plan/). Writes OUT/plan_recovery, plan_confusion, plan_model_recovery,
+    /// plan_power, plan_trials_needed, plan_estimates (.csv + .parquet) and plan.json. Results
+    /// depend on the seed only, not on --threads.
     #[command(after_help = RESEARCH_CAUTION)]
     Plan {
         /// The plan file (TOML).
