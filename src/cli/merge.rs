@@ -1,0 +1,412 @@
+//! `valuedrift merge`: the folders of `fit --shard 1/N` … `N/N` combined into the folder a single
+//! run of the same fit writes, byte for byte.
+//!
+//! Each table's rows are read back cell for cell ([`Table::read_csv_as`]) and put in the order
+//! of a single run: models in the order given, subjects in table order (recorded by every
+//! shard); the wide estimates are rebuilt from the long ones by the writer `fit` uses. run.json
+//! is a shard's with the per-shard parts (fits, pairs not fitted, trimming) summed over the
+//! shards, the shard entry removed and `--out` of the command line set to this command's.
+
+use super::input::Screened;
+use super::shard::{self, Shard};
+use crate::data::ScreenSettings;
+use crate::files::{InputError, OutputSet};
+use crate::fit::ParameterEstimate;
+use crate::results::fit_folder::{self, FolderTable, key};
+use crate::results::{Table, WideRow, parameters_table, summary_table, wide_table};
+use serde_json::Value;
+use std::collections::HashMap;
+use std::path::{Path, PathBuf};
+
+/// A shard's folder and its run record.
+struct ShardFolder {
+    dir: PathBuf,
+    shard: Shard,
+    record: Value,
+}
+
+/// Merges the shard folders `dirs` into `out`.
+pub fn run(dirs: &[PathBuf], out: &Path, replace: bool) -> Result<(), Box<dyn std::error::Error>> {
+    let shards = read_shards(dirs)?;
+    let first = &shards[0];
+    let order = Order::of(first)?;
+    check_subjects(&shards, &order)?;
+    let mut outputs = OutputSet::create(out, replace)?;
+    let models: Vec<String> = order.models.clone();
+    let screen = merged(
+        &shards,
+        fit_folder::DATA_SCREEN,
+        &screen_template(&models),
+        |t| order.rows(t, false),
+    )?;
+    let parameters = merged(
+        &shards,
+        fit_folder::PARAMETERS,
+        &parameters_table(&[]),
+        |t| order.rows(t, true),
+    )?;
+    let summary = merged(&shards, fit_folder::SUMMARY, &summary_table(&[]), |t| {
+        order.rows(t, true)
+    })?;
+    if summary.rows() == 0 {
+        return Err("no subject could be fitted in any shard".into());
+    }
+    screen.stage_both(&mut outputs, out, fit_folder::DATA_SCREEN.stem)?;
+    parameters.stage_both(&mut outputs, out, fit_folder::PARAMETERS.stem)?;
+    wide_from_long(&summary, &parameters)?.stage_both(
+        &mut outputs,
+        out,
+        fit_folder::ESTIMATES_WIDE.stem,
+    )?;
+    summary.stage_both(&mut outputs, out, fit_folder::SUMMARY.stem)?;
+    let record = merged_record(&shards, &order, summary.rows(), out);
+    outputs.stage(&out.join(fit_folder::RUN_RECORD), |w| {
+        serde_json::to_writer_pretty(w, &record)
+    })?;
+    outputs.commit()?;
+    println!(
+        "merged {} shards: {} fits of {} subjects; outputs in {}",
+        shards.len(),
+        summary.rows(),
+        order.position.len(),
+        out.display()
+    );
+    println!("{}", super::RESEARCH_CAUTION);
+    Ok(())
+}
+
+/// Reads the run records of `dirs`, sorted by shard; refuses a folder that is not a shard, shards
+/// of different runs, and a missing or repeated shard.
+fn read_shards(dirs: &[PathBuf]) -> Result<Vec<ShardFolder>, Box<dyn std::error::Error>> {
+    let mut shards = Vec::new();
+    for dir in dirs {
+        let path = dir.join(fit_folder::RUN_RECORD);
+        let bytes = std::fs::read(&path)
+            .map_err(|e| InputError::file(&path, format!("cannot be read: {e}")))?;
+        let record: Value = serde_json::from_slice(&bytes)
+            .map_err(|e| InputError::file(&path, format!("is not readable JSON: {e}")))?;
+        let entry = &record[key::SHARD];
+        let number = |name: &str| entry[name].as_u64().map(|x| x as usize);
+        let (Some(index), Some(count)) = (number(shard::KEY_INDEX), number(shard::KEY_COUNT))
+        else {
+            return Err(InputError::file(
+                &path,
+                "has no shard entry: expected the folder of `valuedrift fit --shard I/N`",
+            )
+            .into());
+        };
+        shards.push(ShardFolder {
+            dir: dir.clone(),
+            shard: Shard { index, count },
+            record,
+        });
+    }
+    shards.sort_by_key(|s| s.shard.index);
+    let first = &shards[0];
+    let count = first.shard.count;
+    for s in &shards[1..] {
+        if s.shard.count != count {
+            return Err(format!(
+                "{} holds shard {} of {} but {} holds shard {} of {count}: not shards of one run",
+                s.dir.display(),
+                s.shard.index,
+                s.shard.count,
+                first.dir.display(),
+                first.shard.index
+            )
+            .into());
+        }
+        let differ = differing_keys(&first.record, &s.record);
+        if !differ.is_empty() {
+            return Err(format!(
+                "{} and {} are not shards of one run: their run.json differ in {}",
+                first.dir.display(),
+                s.dir.display(),
+                differ.join(", ")
+            )
+            .into());
+        }
+    }
+    for pair in shards.windows(2) {
+        if pair[0].shard.index == pair[1].shard.index {
+            return Err(format!(
+                "shard {} of {count} is given twice: {} and {}",
+                pair[0].shard.index,
+                pair[0].dir.display(),
+                pair[1].dir.display()
+            )
+            .into());
+        }
+    }
+    let missing: Vec<String> = (1..=count)
+        .filter(|i| !shards.iter().any(|s| s.shard.index == *i))
+        .map(|i| format!("shard {i} of {count} is missing"))
+        .collect();
+    if !missing.is_empty() {
+        return Err(format!("{} (given: {} folders)", missing.join("; "), shards.len()).into());
+    }
+    Ok(shards)
+}
+
+/// The top-level keys of two shards' run records that differ beyond what differs between
+/// shards of one run (the shard's number, its fits, pairs not fitted and trimming counts, and
+/// the output folder of the command line).
+fn differing_keys(a: &Value, b: &Value) -> Vec<String> {
+    let (a, b) = (run_identity(a), run_identity(b));
+    let empty = serde_json::Map::new();
+    let (a, b) = (
+        a.as_object().unwrap_or(&empty),
+        b.as_object().unwrap_or(&empty),
+    );
+    let mut keys: Vec<String> = a.keys().chain(b.keys()).cloned().collect();
+    keys.sort();
+    keys.dedup();
+    keys.retain(|k| a.get(k) != b.get(k));
+    keys
+}
+
+/// A shard's run record without what differs between the shards of one run.
+fn run_identity(record: &Value) -> Value {
+    let mut r = record.clone();
+    if let Some(o) = r.as_object_mut() {
+        for k in ["fits", "skipped", key::NOT_FITTED] {
+            o.remove(k);
+        }
+    }
+    if let Some(o) = r[key::SHARD].as_object_mut() {
+        o.remove(shard::KEY_INDEX);
+    }
+    if let Some(o) = r["data_screen"].as_object_mut() {
+        o.remove("trimmed_total");
+        o.remove("trimmed_per_subject");
+    }
+    r["command_line"] = serde_json::json!(shard::with_out(&strings(&r["command_line"]), ""));
+    r
+}
+
+/// The strings of a JSON list (others skipped).
+fn strings(list: &Value) -> Vec<String> {
+    list.as_array()
+        .into_iter()
+        .flatten()
+        .filter_map(|v| v.as_str().map(str::to_string))
+        .collect()
+}
+
+/// The order of a single run's rows: models as given, subjects in table order.
+struct Order {
+    models: Vec<String>,
+    subjects: Vec<String>,
+    position: HashMap<String, usize>,
+    count: usize,
+}
+
+impl Order {
+    fn of(first: &ShardFolder) -> Result<Order, InputError> {
+        let models: Vec<String> = first.record[key::MODELS]
+            .as_array()
+            .into_iter()
+            .flatten()
+            .filter_map(|m| m[key::NAME].as_str().map(str::to_string))
+            .collect();
+        let subjects = strings(&first.record[key::SHARD][shard::KEY_SUBJECTS]);
+        if models.is_empty() || subjects.is_empty() {
+            return Err(InputError::file(
+                &first.dir.join(fit_folder::RUN_RECORD),
+                "has no models or no table subjects: expected the run record of `fit --shard`",
+            ));
+        }
+        let position = subjects
+            .iter()
+            .enumerate()
+            .map(|(k, s)| (s.clone(), k))
+            .collect();
+        Ok(Order {
+            models,
+            subjects,
+            position,
+            count: first.shard.count,
+        })
+    }
+
+    /// (model, subject) of a row as a sort key; unknown names sort last.
+    fn key(&self, model: Option<&str>, subject: &str) -> (usize, usize) {
+        (
+            model.map_or(0, |m| {
+                self.models
+                    .iter()
+                    .position(|x| x == m)
+                    .unwrap_or(usize::MAX)
+            }),
+            self.position.get(subject).copied().unwrap_or(usize::MAX),
+        )
+    }
+
+    /// The rows of `table` in a single run's order (by model first when `by_model`); rows of one
+    /// key keep their order.
+    fn rows(&self, table: &Table, by_model: bool) -> Vec<usize> {
+        let subjects = table.texts("subject").unwrap_or_default();
+        let models = table.texts("model").filter(|_| by_model);
+        let mut rows: Vec<usize> = (0..table.rows()).collect();
+        rows.sort_by_key(|&r| self.key(models.map(|m| m[r].as_str()), &subjects[r]));
+        rows
+    }
+}
+
+/// Refuses shards whose data screens list other subjects than their shard holds (a folder
+/// changed after its fit, or shards of tables with other subjects).
+fn check_subjects(shards: &[ShardFolder], order: &Order) -> Result<(), Box<dyn std::error::Error>> {
+    let models = &order.models;
+    for s in shards {
+        let path = fit_folder::DATA_SCREEN.csv_in(&s.dir);
+        let screen = Table::read_csv_as(&path, &screen_template(models))?;
+        let listed = screen.texts("subject").unwrap_or_default();
+        let held: Vec<&String> = order
+            .subjects
+            .iter()
+            .filter(|label| Shard::of(label, order.count) == s.shard.index)
+            .collect();
+        if listed.len() != held.len() || listed.iter().zip(&held).any(|(a, b)| a != *b) {
+            return Err(InputError::file(
+                &path,
+                format!(
+                    "lists {} subjects, but shard {} of {} of the recorded table holds {}: the \
+                     folder does not hold this shard's fit",
+                    listed.len(),
+                    s.shard.index,
+                    s.shard.count,
+                    held.len()
+                ),
+            )
+            .into());
+        }
+    }
+    Ok(())
+}
+
+/// The data screen's columns for `models` (the table `fit` writes, without rows).
+fn screen_template(models: &[String]) -> Table {
+    super::input::screen_table_output(&Screened {
+        settings: ScreenSettings::default(),
+        subjects: Vec::new(),
+        unmet: models.iter().map(|m| (m.clone(), Vec::new())).collect(),
+    })
+}
+
+/// The table `name` of every shard, its rows in the order `rows` gives.
+fn merged(
+    shards: &[ShardFolder],
+    name: FolderTable,
+    template: &Table,
+    rows: impl Fn(&Table) -> Vec<usize>,
+) -> Result<Table, InputError> {
+    let tables = shards
+        .iter()
+        .map(|s| Table::read_csv_as(&name.csv_in(&s.dir), template))
+        .collect::<Result<Vec<Table>, InputError>>()?;
+    let all = Table::concatenated(template, &tables);
+    Ok(all.reordered(&rows(&all)))
+}
+
+/// The wide estimates of the fits of `summary` from the long estimates table `parameters`.
+fn wide_from_long(summary: &Table, parameters: &Table) -> Result<Table, String> {
+    let column = |name: &str| parameters.texts(name).unwrap_or_default();
+    let number = |name: &str| parameters.numbers(name).unwrap_or_default();
+    let flag = |name: &str| parameters.flags(name).unwrap_or_default();
+    let (subject, model, parameter) = (column("subject"), column("model"), column("parameter"));
+    let (estimate, std_error, low, high) = (
+        number("estimate"),
+        number("std_error"),
+        number("ci_low"),
+        number("ci_high"),
+    );
+    let (at_bound, fixed) = (flag("at_bound"), flag("fixed"));
+    let mut estimates: HashMap<(&str, &str), Vec<ParameterEstimate>> = HashMap::new();
+    for r in 0..parameters.rows() {
+        let Some(value) = estimate[r] else {
+            return Err(format!(
+                "{} of a shard: subject {}, model {}, parameter {}: an empty estimate; expected \
+                 a number",
+                fit_folder::PARAMETERS.csv(),
+                subject[r],
+                model[r],
+                parameter[r]
+            ));
+        };
+        estimates
+            .entry((subject[r].as_str(), model[r].as_str()))
+            .or_default()
+            .push(ParameterEstimate {
+                name: parameter[r].clone(),
+                estimate: value,
+                std_error: std_error[r],
+                interval: low[r].zip(high[r]),
+                at_bound: at_bound[r],
+                fixed: fixed[r],
+            });
+    }
+    let text = |name: &str| summary.texts(name).unwrap_or_default();
+    let (subjects, groups, models) = (text("subject"), text("group"), text("model"));
+    let rows: Vec<WideRow<'_>> = (0..summary.rows())
+        .map(|r| WideRow {
+            subject: &subjects[r],
+            group: &groups[r],
+            model: &models[r],
+            estimates: estimates
+                .get(&(subjects[r].as_str(), models[r].as_str()))
+                .map_or(&[], Vec::as_slice),
+        })
+        .collect();
+    Ok(wide_table(&rows))
+}
+
+/// The run record of the merged run: the first shard's, with fits, pairs not fitted and
+/// trimming of all shards in a single run's order, without the shard entry, and `--out` of the
+/// command line set to `out`.
+fn merged_record(shards: &[ShardFolder], order: &Order, fits: usize, out: &Path) -> Value {
+    let mut record = shards[0].record.clone();
+    if let Some(o) = record.as_object_mut() {
+        o.remove(key::SHARD);
+    }
+    record["command_line"] = serde_json::json!(shard::with_out(
+        &strings(&record["command_line"]),
+        &out.display().to_string()
+    ));
+    record["fits"] = serde_json::json!(fits);
+    let mut skipped: Vec<(Value, Value)> = shards
+        .iter()
+        .flat_map(|s| {
+            let list = |k: &str| s.record[k].as_array().cloned().unwrap_or_default();
+            list("skipped").into_iter().zip(list(key::NOT_FITTED))
+        })
+        .collect();
+    skipped.sort_by_key(|(_, pair)| {
+        order.key(
+            pair[key::MODEL].as_str(),
+            pair[key::SUBJECT].as_str().unwrap_or_default(),
+        )
+    });
+    let (text, pairs): (Vec<Value>, Vec<Value>) = skipped.into_iter().unzip();
+    record["skipped"] = Value::Array(text);
+    record[key::NOT_FITTED] = Value::Array(pairs);
+    let mut trimmed: Vec<Value> = shards
+        .iter()
+        .flat_map(|s| {
+            s.record["data_screen"]["trimmed_per_subject"]
+                .as_array()
+                .cloned()
+                .unwrap_or_default()
+        })
+        .collect();
+    trimmed.sort_by_key(|t| order.key(None, t["subject"].as_str().unwrap_or_default()));
+    let total = |side: &str| -> u64 {
+        shards
+            .iter()
+            .filter_map(|s| s.record["data_screen"]["trimmed_total"][side].as_u64())
+            .sum()
+    };
+    record["data_screen"]["trimmed_total"] =
+        serde_json::json!({ "below": total("below"), "above": total("above") });
+    record["data_screen"]["trimmed_per_subject"] = Value::Array(trimmed);
+    record
+}
