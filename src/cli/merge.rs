@@ -87,11 +87,14 @@ fn read_shards(dirs: &[PathBuf]) -> Result<Vec<ShardFolder>, Box<dyn std::error:
             .map_err(|e| InputError::file(&path, format!("is not readable JSON: {e}")))?;
         let entry = &record[key::SHARD];
         let number = |name: &str| entry[name].as_u64().map(|x| x as usize);
-        let (Some(index), Some(count)) = (number(shard::KEY_INDEX), number(shard::KEY_COUNT))
+        let Some((index, count)) = number(shard::KEY_INDEX)
+            .zip(number(shard::KEY_COUNT))
+            .filter(|&(i, n)| 1 <= i && i <= n)
         else {
             return Err(InputError::file(
                 &path,
-                "has no shard entry: expected the folder of `valuedrift fit --shard I/N`",
+                "has no shard entry with 1 ≤ index ≤ count: expected the folder of \
+                 `valuedrift fit --shard I/N`",
             )
             .into());
         };
