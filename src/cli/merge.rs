@@ -30,24 +30,23 @@ pub fn run(dirs: &[PathBuf], out: &Path, replace: bool) -> Result<(), Box<dyn st
     let shards = read_shards(dirs)?;
     let first = &shards[0];
     let order = Order::of(first)?;
-    check_subjects(&shards, &order)?;
+    let screen_columns = screen_template(&order.models);
+    let screens = read_all(&shards, fit_folder::DATA_SCREEN, &screen_columns)?;
+    check_subjects(&shards, &screens, &order)?;
     let mut outputs = OutputSet::create(out, replace)?;
-    let models: Vec<String> = order.models.clone();
-    let screen = merged(
-        &shards,
-        fit_folder::DATA_SCREEN,
-        &screen_template(&models),
-        |t| order.rows(t, false),
-    )?;
+    let screen = merged(&screen_columns, &screens, |t| order.rows(t, false));
+    let template = parameters_table(&[]);
     let parameters = merged(
-        &shards,
-        fit_folder::PARAMETERS,
-        &parameters_table(&[]),
+        &template,
+        &read_all(&shards, fit_folder::PARAMETERS, &template)?,
         |t| order.rows(t, true),
-    )?;
-    let summary = merged(&shards, fit_folder::SUMMARY, &summary_table(&[]), |t| {
-        order.rows(t, true)
-    })?;
+    );
+    let template = summary_table(&[]);
+    let summary = merged(
+        &template,
+        &read_all(&shards, fit_folder::SUMMARY, &template)?,
+        |t| order.rows(t, true),
+    );
     if summary.rows() == 0 {
         return Err("no subject could be fitted in any shard".into());
     }
@@ -256,13 +255,14 @@ impl Order {
     }
 }
 
-/// Refuses shards whose data screens list other subjects than their shard holds (a folder
-/// changed after its fit, or shards of tables with other subjects).
-fn check_subjects(shards: &[ShardFolder], order: &Order) -> Result<(), Box<dyn std::error::Error>> {
-    let models = &order.models;
-    for s in shards {
-        let path = fit_folder::DATA_SCREEN.csv_in(&s.dir);
-        let screen = Table::read_csv_as(&path, &screen_template(models))?;
+/// Refuses shards whose data screens (`screens`, one per shard) list other subjects than their
+/// shard holds (a folder changed after its fit, or shards of tables with other subjects).
+fn check_subjects(
+    shards: &[ShardFolder],
+    screens: &[Table],
+    order: &Order,
+) -> Result<(), InputError> {
+    for (s, screen) in shards.iter().zip(screens) {
         let listed = screen.texts("subject").unwrap_or_default();
         let held: Vec<&String> = order
             .subjects
@@ -271,7 +271,7 @@ fn check_subjects(shards: &[ShardFolder], order: &Order) -> Result<(), Box<dyn s
             .collect();
         if listed.len() != held.len() || listed.iter().zip(&held).any(|(a, b)| a != *b) {
             return Err(InputError::file(
-                &path,
+                &fit_folder::DATA_SCREEN.csv_in(&s.dir),
                 format!(
                     "lists {} subjects, but shard {} of {} of the recorded table holds {}: the \
                      folder does not hold this shard's fit",
@@ -280,8 +280,7 @@ fn check_subjects(shards: &[ShardFolder], order: &Order) -> Result<(), Box<dyn s
                     s.shard.count,
                     held.len()
                 ),
-            )
-            .into());
+            ));
         }
     }
     Ok(())
@@ -296,19 +295,23 @@ fn screen_template(models: &[String]) -> Table {
     })
 }
 
-/// The table `name` of every shard, its rows in the order `rows` gives.
-fn merged(
+/// The table `name` of every shard, read with the columns of `template`.
+fn read_all(
     shards: &[ShardFolder],
     name: FolderTable,
     template: &Table,
-    rows: impl Fn(&Table) -> Vec<usize>,
-) -> Result<Table, InputError> {
-    let tables = shards
+) -> Result<Vec<Table>, InputError> {
+    shards
         .iter()
         .map(|s| Table::read_csv_as(&name.csv_in(&s.dir), template))
-        .collect::<Result<Vec<Table>, InputError>>()?;
-    let all = Table::concatenated(template, &tables);
-    Ok(all.reordered(&rows(&all)))
+        .collect()
+}
+
+/// The rows of `tables` (with the columns of `template`) in one table, in the order `rows`
+/// gives.
+fn merged(template: &Table, tables: &[Table], rows: impl Fn(&Table) -> Vec<usize>) -> Table {
+    let all = Table::concatenated(template, tables);
+    all.reordered(&rows(&all))
 }
 
 /// The wide estimates of the fits of `summary` from the long estimates table `parameters`.

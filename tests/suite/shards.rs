@@ -206,4 +206,21 @@ fn merge_refuses_shards_of_different_runs_and_names_missing_ones() {
     let single = dir.path().join("single");
     succeed(&mut fit(&single, &[]));
     refused(&[single], &["run.json", "no shard entry"]);
+    // Shard 1's folder relabelled as shard 2 in its run.json: its data screen lists shard 1's
+    // subjects, not those the hash gives shard 2.
+    let relabelled = dir.path().join("relabelled");
+    std::fs::create_dir(&relabelled).unwrap();
+    for entry in std::fs::read_dir(&seed_1[0]).unwrap() {
+        let path = entry.unwrap().path();
+        std::fs::copy(&path, relabelled.join(path.file_name().unwrap())).unwrap();
+    }
+    let run_json = relabelled.join("run.json");
+    let mut record: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(&run_json).unwrap()).unwrap();
+    record["shard"]["index"] = serde_json::json!(2);
+    std::fs::write(&run_json, serde_json::to_vec(&record).unwrap()).unwrap();
+    refused(
+        &[seed_1[0].clone(), relabelled, seed_1[2].clone()],
+        &["data_screen.csv", "does not hold this shard's fit"],
+    );
 }
