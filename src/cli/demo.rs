@@ -78,6 +78,7 @@ pub fn run(
                 centred: true,
             }),
             screen: crate::data::ScreenSettings::default(),
+            shard: None,
         },
         command_line,
     )?;

@@ -1,6 +1,7 @@
 //! `valuedrift fit`: per-subject fits of one or more models, with tidy outputs and a run record.
 
 use super::input::ColumnsError;
+use super::shard::{self, Shard};
 use crate::data::{ColumnMap, ScreenSettings, TrialTable};
 use crate::files::OutputSet;
 use crate::fit::prior_regression::{INTERCEPT, SubjectScores};
@@ -36,6 +37,8 @@ pub struct FitRun<'a> {
     pub hierarchical: Option<Hierarchical>,
     /// The data screen's settings (fast floor, trimming).
     pub screen: ScreenSettings,
+    /// Fit only this shard's subjects (`--shard I/N`; per-subject fits only).
+    pub shard: Option<Shard>,
 }
 
 /// Settings of the empirical-Bayes fit.
@@ -195,13 +198,17 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         None => None,
     };
     let models = load_models(run.models)?;
-    let screened = super::input::screen_before_fit(
+    let mut screened = super::input::screen_before_fit(
         run.data,
         &mut table,
         &run.screen,
         &models,
         (run.options.lock, run.options.deadline),
     )?;
+    let table_subjects: Vec<String> = table.subjects.iter().map(|s| s.id.clone()).collect();
+    if let Some(shard) = run.shard {
+        shard.restrict(&mut table, &mut screened);
+    }
     let bar = Progress::new("fitting", super::input::screened_jobs(&screened));
     let (fits, skipped) = super::input::fit_screened(
         &models,
@@ -212,7 +219,9 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         &|| bar.inc(),
     )?;
     bar.finish();
-    if fits.is_empty() {
+    // A shard may hold no subject, or only subjects that cannot be fitted: `merge` judges the
+    // whole run.
+    if fits.is_empty() && run.shard.is_none() {
         let reasons: Vec<String> = skipped
             .iter()
             .take(3)
@@ -269,8 +278,12 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         groups = fitted;
     }
     let bytes = std::fs::read(run.data)?;
+    let command_line = match run.shard {
+        Some(_) => shard::without_shard(command_line),
+        None => command_line.to_vec(),
+    };
     let mut record = run_record(
-        command_line,
+        &command_line,
         &run.options,
         run.data,
         &bytes,
@@ -280,6 +293,9 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
     );
     record[key::GROUP_COLUMN] = serde_json::json!(run.columns.file_name("group"));
     record["data_screen"] = super::input::screen_record(&screened);
+    if let Some(shard) = run.shard {
+        record[key::SHARD] = shard.record(&table_subjects);
+    }
     super::input::screen_table_output(&screened).stage_both(
         &mut outputs,
         run.out,
@@ -363,7 +379,7 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
 
 /// Stages the estimate tables of `fits` in `dir` under the names of `source`: the parameters
 /// (long and wide) and the fit summary.
-fn stage_estimates(
+pub(super) fn stage_estimates(
     outputs: &mut OutputSet,
     dir: &Path,
     fits: &[SubjectFit],

@@ -447,7 +447,8 @@ fn limit_text(limit: Option<f64>) -> String {
 }
 
 /// Fits each model to the subjects whose data meet its needs; the others are returned as
-/// skipped with the reason. Results are in (model, subject) order, as from [`fit_table`].
+/// skipped with the reason. Fits and skipped pairs are in (model, subject) order, subjects in
+/// table order.
 pub fn fit_screened(
     models: &[Model],
     table: &TrialTable,
@@ -489,6 +490,21 @@ pub fn fit_screened(
         fits.extend(f);
         skipped.extend(s);
     }
+    // The pairs the screen set aside come first within each model; put every model's pairs in
+    // table order, the order `merge` restores from shards.
+    let position: std::collections::HashMap<&str, usize> = table
+        .subjects
+        .iter()
+        .enumerate()
+        .map(|(k, s)| (s.id.as_str(), k))
+        .collect();
+    let model_index = |name: &str| models.iter().position(|m| m.name == name);
+    skipped.sort_by_key(|s| {
+        (
+            model_index(&s.model),
+            position.get(s.reason.subject.as_str()).copied(),
+        )
+    });
     Ok((fits, skipped))
 }
 

@@ -8,9 +8,11 @@ mod density;
 mod export;
 mod fit;
 mod input;
+mod merge;
 mod models;
 pub mod plan;
 mod report;
+mod shard;
 mod simulate;
 
 use crate::results::fit_folder::{RUN_RECORD, RunRecord};
@@ -140,6 +142,27 @@ pub enum Command {
         /// intercept is then the group mean of a participant whose scores are all 0.
         #[arg(long, requires = "prior_covariates")]
         covariates_as_given: bool,
+        /// Fit only shard I of N (e.g. --shard 3/8, one job of a cluster array): the subjects
+        /// whose label hashes to shard I. `valuedrift merge` combines the N folders into the
+        /// folder a single run writes. Not yet with --hierarchical.
+        #[arg(long, value_name = "I/N")]
+        shard: Option<String>,
+        /// Whether an existing result may be replaced.
+        #[command(flatten)]
+        replace: ReplaceArg,
+    },
+    /// Combines the folders of `fit --shard 1/N` … `--shard N/N` into the folder a single run of
+    /// the same fit writes, byte for byte (its run.json records the command line without
+    /// --shard, with this command's --out). Refuses folders of different runs (data checksum,
+    /// models, seed, options) and names missing or repeated shards.
+    #[command(after_help = RESEARCH_CAUTION)]
+    Merge {
+        /// The shard folders (any order; a shell glob such as fits/shard-* works).
+        #[arg(long, num_args = 1.., required = true)]
+        shards: Vec<PathBuf>,
+        /// Output folder.
+        #[arg(long)]
+        out: PathBuf,
         /// Whether an existing result may be replaced.
         #[command(flatten)]
         replace: ReplaceArg,
@@ -543,10 +566,19 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             full_covariance,
             prior_covariates,
             covariates_as_given,
+            shard,
             replace,
             reading,
             screen,
         } => {
+            let shard = shard.as_deref().map(shard::Shard::parse).transpose()?;
+            if shard.is_some() && hierarchical {
+                return Err(
+                    "--shard with --hierarchical is not supported yet: the group priors \
+                            need every subject at once; fit without --shard"
+                        .into(),
+                );
+            }
             let columns = reading.apply(fit::column_map(&columns, by.as_deref())?)?;
             let starts = input::check_at_least("--starts", starts, 1, "start per subject")?;
             let threads = input::check_threads(threads)?;
@@ -593,6 +625,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                     centred: !covariates_as_given,
                 }),
                 screen,
+                shard,
             };
             let fitted = fit::run(run, &command_line)?;
             fit::print_summary(&fitted);
@@ -602,6 +635,11 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             println!("{RESEARCH_CAUTION}");
             Ok(())
         }
+        Command::Merge {
+            shards,
+            out,
+            replace,
+        } => merge::run(&shards, &out, replace.replace),
         Command::Export {
             input,
             scale,

@@ -306,6 +306,8 @@ pub mod key {
     pub const EMPIRICAL_BAYES: &str = "empirical_bayes";
     /// One group prior per group (`--by`) rather than one over all subjects (flag).
     pub const PER_GROUP: &str = "per_group";
+    /// The shard of a `fit --shard I/N` run (an object; absent from single and merged runs).
+    pub const SHARD: &str = "shard";
 }
 
 /// A model recorded in the run record: its name and, when recorded, its definition.

@@ -2,6 +2,7 @@
 
 pub mod fit_folder;
 pub mod parameters_file;
+mod table_reader;
 
 pub use fit_folder::EstimateSource;
 
@@ -218,21 +219,47 @@ pub fn parameters_table(fits: &[SubjectFit]) -> Table {
 /// `<name>_at_bound`. Parameters are those of all models, in order of first appearance; a
 /// model without a parameter has empty cells (Parquet nulls) there.
 pub fn estimates_wide_table(fits: &[SubjectFit]) -> Table {
+    let rows: Vec<WideRow<'_>> = fits
+        .iter()
+        .map(|f| WideRow {
+            subject: &f.subject,
+            group: &f.group,
+            model: &f.model,
+            estimates: &f.estimates,
+        })
+        .collect();
+    wide_table(&rows)
+}
+
+/// One row of [`estimates_wide_table`]: a subject's estimates under one model.
+pub struct WideRow<'a> {
+    /// Subject label.
+    pub subject: &'a str,
+    /// Group label.
+    pub group: &'a str,
+    /// Model name.
+    pub model: &'a str,
+    /// The estimates, in the model's parameter order.
+    pub estimates: &'a [crate::fit::ParameterEstimate],
+}
+
+/// The table of [`estimates_wide_table`] from its rows (also built by `merge` from the long
+/// estimates table).
+pub fn wide_table(rows: &[WideRow<'_>]) -> Table {
     let mut names: Vec<&str> = Vec::new();
-    for e in fits.iter().flat_map(|f| &f.estimates) {
+    for e in rows.iter().flat_map(|r| r.estimates) {
         if !names.contains(&e.name.as_str()) {
             names.push(&e.name);
         }
     }
-    let text =
-        |f: fn(&SubjectFit) -> &String| Column::Text(fits.iter().map(|x| f(x).clone()).collect());
+    let text = |f: fn(&WideRow<'_>) -> String| Column::Text(rows.iter().map(f).collect());
     let mut table = Table::default()
-        .with("subject", text(|f| &f.subject))
-        .with("group", text(|f| &f.group))
-        .with("model", text(|f| &f.model));
+        .with("subject", text(|r| r.subject.to_string()))
+        .with("group", text(|r| r.group.to_string()))
+        .with("model", text(|r| r.model.to_string()));
     for name in names {
-        let of = |f: &'_ SubjectFit| f.estimates.iter().find(|e| e.name == name).cloned();
-        let cells: Vec<Option<crate::fit::ParameterEstimate>> = fits.iter().map(of).collect();
+        let of = |r: &WideRow<'_>| r.estimates.iter().find(|e| e.name == name).cloned();
+        let cells: Vec<Option<crate::fit::ParameterEstimate>> = rows.iter().map(of).collect();
         let number = |f: fn(&crate::fit::ParameterEstimate) -> Option<f64>| {
             Column::Number(cells.iter().map(|e| e.as_ref().and_then(f)).collect())
         };

@@ -779,6 +779,27 @@ fn fit_options_out_of_range() {
             vec!["--choice-codes", "1=a,2=b", "--missing", "2"],
             vec!["--missing", "`2`", "choice code"],
         ),
+        // Shard I of N exists for 1 ≤ I ≤ N only (src/cli/shard.rs).
+        (
+            "shard 0",
+            vec!["--shard", "0/3"],
+            vec!["--shard 0/3", "1 ≤ I ≤ N"],
+        ),
+        (
+            "shard above the count",
+            vec!["--shard", "4/3"],
+            vec!["--shard 4/3", "1 ≤ I ≤ N"],
+        ),
+        (
+            "shard not a number",
+            vec!["--shard", "x/3"],
+            vec!["--shard x/3", "expected I/N"],
+        ),
+        (
+            "shard of a hierarchical fit",
+            vec!["--hierarchical", "--shard", "1/2"],
+            vec!["--shard", "--hierarchical", "not supported yet"],
+        ),
     ];
     for (case, extra, needles) in cases {
         fit_option_fails(case, &extra, &needles);

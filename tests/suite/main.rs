@@ -33,4 +33,5 @@ mod race_reference;
 mod real_data;
 mod report;
 mod response_window;
+mod shards;
 mod task_shapes;

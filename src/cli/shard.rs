@@ -1,0 +1,143 @@
+//! `fit --shard I/N`: the part of a fit's subjects one job of a cluster array fits.
+//!
+//! A subject's shard is a stable hash of its label (the first eight bytes of SHA-256, as for its
+//! start points, [`crate::fit::starts::subject_stream`], modulo N, plus 1), so it depends
+//! neither on the order of the file nor on the other subjects. A shard's fits are those of a
+//! single run, since each subject's fit depends only on its own data and the seed.
+
+use super::input::{OptionError, Screened};
+use crate::data::TrialTable;
+use crate::fit::starts::subject_stream;
+
+/// Shard `index` of `count` (1 ≤ index ≤ count).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Shard {
+    /// This shard, from 1.
+    pub index: usize,
+    /// Number of shards.
+    pub count: usize,
+}
+
+/// The option that selects a shard.
+pub const OPTION: &str = "--shard";
+
+impl Shard {
+    /// Parses `I/N` with 1 ≤ I ≤ N.
+    pub fn parse(text: &str) -> Result<Shard, OptionError> {
+        let expected = "expected I/N with whole numbers 1 ≤ I ≤ N (shard I of N), e.g. 2/8";
+        let error = || OptionError::new(OPTION, text, expected);
+        let (i, n) = text.split_once('/').ok_or_else(error)?;
+        let (index, count) = (
+            i.trim().parse::<usize>().map_err(|_| error())?,
+            n.trim().parse::<usize>().map_err(|_| error())?,
+        );
+        if index == 0 || index > count {
+            return Err(error());
+        }
+        Ok(Shard { index, count })
+    }
+
+    /// The shard (from 1) of the subject labelled `label` among `count` shards.
+    pub fn of(label: &str, count: usize) -> usize {
+        (subject_stream(label) % count as u64) as usize + 1
+    }
+
+    /// Whether the subject labelled `label` is in this shard.
+    pub fn holds(self, label: &str) -> bool {
+        Shard::of(label, self.count) == self.index
+    }
+
+    /// Keeps only this shard's subjects in `table` and in the screen of it.
+    pub fn restrict(self, table: &mut TrialTable, screened: &mut Screened) {
+        let keep: Vec<bool> = table.subjects.iter().map(|s| self.holds(&s.id)).collect();
+        kept(&mut table.subjects, &keep);
+        kept(&mut screened.subjects, &keep);
+        for (_, per_subject) in &mut screened.unmet {
+            kept(per_subject, &keep);
+        }
+    }
+
+    /// The shard's entry of run.json: the shard, the shard count and every subject of the
+    /// table in table order (so that `merge` restores the order of a single run's tables).
+    pub fn record(self, table_subjects: &[String]) -> serde_json::Value {
+        serde_json::json!({
+            (KEY_INDEX): self.index,
+            (KEY_COUNT): self.count,
+            (KEY_SUBJECTS): table_subjects,
+        })
+    }
+}
+
+/// Keeps the items of `items` whose flag in `keep` is set.
+fn kept<T>(items: &mut Vec<T>, keep: &[bool]) {
+    let mut flags = keep.iter();
+    items.retain(|_| *flags.next().expect("one flag per item"));
+}
+
+/// The shard's number in its run.json entry.
+pub const KEY_INDEX: &str = "index";
+/// The shard count in its run.json entry.
+pub const KEY_COUNT: &str = "count";
+/// Every subject of the table in table order, in its run.json entry.
+pub const KEY_SUBJECTS: &str = "table_subjects";
+
+/// `command_line` without `--shard I/N` (or `--shard=I/N`): the command line a single run of
+/// the same fit would record.
+pub fn without_shard(command_line: &[String]) -> Vec<String> {
+    let mut out = Vec::with_capacity(command_line.len());
+    let mut args = command_line.iter();
+    while let Some(arg) = args.next() {
+        if arg == OPTION {
+            args.next();
+        } else if !arg.starts_with(&format!("{OPTION}=")) {
+            out.push(arg.clone());
+        }
+    }
+    out
+}
+
+/// `command_line` with the value of `--out` replaced by `out`.
+pub fn with_out(command_line: &[String], out: &str) -> Vec<String> {
+    let mut out_next = false;
+    command_line
+        .iter()
+        .map(|arg| {
+            if std::mem::take(&mut out_next) {
+                out.to_string()
+            } else if arg == "--out" {
+                out_next = true;
+                arg.clone()
+            } else if arg.starts_with("--out=") {
+                format!("--out={out}")
+            } else {
+                arg.clone()
+            }
+        })
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn command_lines() {
+        let line = |s: &str| s.split(' ').map(str::to_string).collect::<Vec<_>>();
+        assert_eq!(
+            without_shard(&line("vd fit --shard 2/3 --out a --seed 1")),
+            line("vd fit --out a --seed 1")
+        );
+        assert_eq!(
+            without_shard(&line("vd fit --shard=2/3 --out a")),
+            line("vd fit --out a")
+        );
+        assert_eq!(
+            with_out(&line("vd fit --out a --seed 1"), "b"),
+            line("vd fit --out b --seed 1")
+        );
+        assert_eq!(
+            with_out(&line("vd fit --out=a"), "b"),
+            line("vd fit --out=b")
+        );
+    }
+}

@@ -1,0 +1,226 @@
+//! `fit --shard I/N` and `merge`: the shards of a fit merged give the folder of a single run,
+//! byte for byte (the design of src/cli/merge.rs; common practice for splitting independent
+//! per-subject fits over a job array), and merge refuses shards of different runs and names a
+//! missing shard.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use crate::common::{MODEL, bin, contents, demo_file, succeed};
+
+/// `fit` of the demo data with two starts into `out`, with `extra` options.
+fn fit(out: &Path, extra: &[&str]) -> Command {
+    fit_data(&demo_file("orchard_trials.csv"), out, extra)
+}
+
+/// `fit` of `data` with two starts into `out`, with `extra` options.
+fn fit_data(data: &Path, out: &Path, extra: &[&str]) -> Command {
+    let mut command = bin();
+    command
+        .args(["fit", "--data", data.to_str().unwrap(), "--model", MODEL])
+        .args([
+            "--starts",
+            "2",
+            "--threads",
+            "1",
+            "--out",
+            out.to_str().unwrap(),
+        ])
+        .args(extra);
+    command
+}
+
+/// Fits shards 1..=n of the demo data into `dir`/shard-<i> with `extra` options; their folders.
+fn shards(dir: &Path, n: usize, extra: &[&str]) -> Vec<PathBuf> {
+    shards_of(&demo_file("orchard_trials.csv"), dir, n, extra)
+}
+
+/// Fits shards 1..=n of `data` into `dir`/shard-<i> with `extra` options; their folders.
+fn shards_of(data: &Path, dir: &Path, n: usize, extra: &[&str]) -> Vec<PathBuf> {
+    (1..=n)
+        .map(|i| {
+            let out = dir.join(format!("shard-{i}"));
+            let shard = format!("{i}/{n}");
+            let mut options = vec!["--shard", shard.as_str()];
+            options.extend_from_slice(extra);
+            succeed(&mut fit_data(data, &out, &options));
+            out
+        })
+        .collect()
+}
+
+/// `merge` of `folders` into `out`.
+fn merge(folders: &[PathBuf], out: &Path) -> std::process::Output {
+    bin()
+        .arg("merge")
+        .arg("--shards")
+        .args(folders)
+        .args(["--out", out.to_str().unwrap()])
+        .output()
+        .unwrap()
+}
+
+/// Asserts that `merged` has the files of `single`, each with the same bytes.
+fn assert_same_files(
+    single: &BTreeMap<PathBuf, Vec<u8>>,
+    merged: &BTreeMap<PathBuf, Vec<u8>>,
+    case: &str,
+) {
+    assert_eq!(
+        merged.keys().collect::<Vec<_>>(),
+        single.keys().collect::<Vec<_>>(),
+        "{case}: files"
+    );
+    for (file, bytes) in single {
+        assert!(
+            merged[file] == *bytes,
+            "{case}: {} differs from the single run's",
+            file.display()
+        );
+    }
+}
+
+#[test]
+fn merged_shards_equal_a_single_run_byte_for_byte() {
+    let dir = tempfile::tempdir().unwrap();
+    // The single run and the merges write to the same path, since run.json records the command
+    // line with its --out (a merged run records the shards' command line without --shard and
+    // with the merge's --out).
+    let out = dir.path().join("fit");
+    succeed(&mut fit(&out, &[]));
+    let single = contents(&out);
+    std::fs::remove_dir_all(&out).unwrap();
+    for n in [1, 3, 7] {
+        let shard_dir = dir.path().join(format!("{n}-shards"));
+        let mut folders = shards(&shard_dir, n, &[]);
+        // The order of the folders given does not matter.
+        folders.reverse();
+        let output = merge(&folders, &out);
+        assert!(
+            output.status.success(),
+            "{n} shards: {}",
+            String::from_utf8_lossy(&output.stderr)
+        );
+        assert_same_files(&single, &contents(&out), &format!("{n} shards"));
+        // The shards together hold every subject once: each shard's data screen lists only its
+        // own subjects, so the shards' rows add up to the single run's (40 subjects, source:
+        // demo-data/README.md, plus the header of each file).
+        let screened: usize = folders
+            .iter()
+            .map(|f| {
+                std::fs::read_to_string(f.join("data_screen.csv"))
+                    .unwrap()
+                    .lines()
+                    .count()
+                    - 1
+            })
+            .sum();
+        assert_eq!(screened, 40, "{n} shards: subjects over the data screens");
+        std::fs::remove_dir_all(&out).unwrap();
+    }
+}
+
+#[test]
+fn merged_shards_keep_a_single_runs_pairs_not_fitted_and_trimming() {
+    // The demo with three participants cut to their first 30 trials: with 10 responses needed
+    // per free parameter (the default) the screen sets them aside (README, data screen), and
+    // --trim-above 0.9 sets aside slow times of every participant, so run.json lists pairs not
+    // fitted and trimming per subject, which merge gathers from the shards. Of 3 shards, sub-02
+    // is in shard 3, sub-12 in 1 and sub-21 in 2 (by the hash), so the shards' lists must be
+    // put back in table order.
+    let dir = tempfile::tempdir().unwrap();
+    let demo = std::fs::read_to_string(demo_file("orchard_trials.csv")).unwrap();
+    let cut: String = demo
+        .lines()
+        .filter(|line| {
+            let mut cells = line.split(',');
+            let subject = cells.next().unwrap_or_default();
+            let trial: usize = cells.nth(2).and_then(|t| t.parse().ok()).unwrap_or(0);
+            !(["sub-02", "sub-12", "sub-21"].contains(&subject) && trial > 30)
+        })
+        .map(|line| format!("{line}\n"))
+        .collect();
+    let data = dir.path().join("cut.csv");
+    std::fs::write(&data, cut).unwrap();
+    let options = ["--trim-above", "0.9"];
+    let out = dir.path().join("fit");
+    succeed(&mut fit_data(&data, &out, &options));
+    let single = contents(&out);
+    let record: serde_json::Value = serde_json::from_slice(&single[Path::new("run.json")]).unwrap();
+    assert_eq!(
+        record["not_fitted"].as_array().unwrap().len(),
+        3,
+        "{record}"
+    );
+    assert!(
+        !record["data_screen"]["trimmed_per_subject"]
+            .as_array()
+            .unwrap()
+            .is_empty()
+    );
+    std::fs::remove_dir_all(&out).unwrap();
+    let folders = shards_of(&data, &dir.path().join("shards"), 3, &options);
+    let output = merge(&folders, &out);
+    assert!(
+        output.status.success(),
+        "{}",
+        String::from_utf8_lossy(&output.stderr)
+    );
+    assert_same_files(&single, &contents(&out), "3 shards, pairs not fitted");
+}
+
+#[test]
+fn merge_refuses_shards_of_different_runs_and_names_missing_ones() {
+    let dir = tempfile::tempdir().unwrap();
+    let seed_1 = shards(&dir.path().join("seed-1"), 3, &[]);
+    let seed_2 = shards(&dir.path().join("seed-2"), 3, &["--seed", "2"]);
+    let out = dir.path().join("merged");
+    let refused = |folders: &[PathBuf], needles: &[&str]| {
+        let output = merge(folders, &out);
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(!output.status.success(), "merged: {folders:?}");
+        for needle in needles {
+            assert!(stderr.contains(needle), "{needle:?} not in: {stderr}");
+        }
+        assert!(!out.exists(), "an output was written for {folders:?}");
+    };
+    refused(
+        &[seed_1[0].clone(), seed_2[1].clone(), seed_1[2].clone()],
+        &["not shards of one run", "seed"],
+    );
+    refused(
+        &[seed_1[0].clone(), seed_1[2].clone()],
+        &["shard 2 of 3 is missing"],
+    );
+    refused(
+        &[
+            seed_1[0].clone(),
+            seed_1[1].clone(),
+            seed_1[1].clone(),
+            seed_1[2].clone(),
+        ],
+        &["shard 2 of 3 is given twice"],
+    );
+    // A single run's folder is not a shard.
+    let single = dir.path().join("single");
+    succeed(&mut fit(&single, &[]));
+    refused(&[single], &["run.json", "no shard entry"]);
+    // Shard 1's folder relabelled as shard 2 in its run.json: its data screen lists shard 1's
+    // subjects, not those the hash gives shard 2.
+    let relabelled = dir.path().join("relabelled");
+    std::fs::create_dir(&relabelled).unwrap();
+    for entry in std::fs::read_dir(&seed_1[0]).unwrap() {
+        let path = entry.unwrap().path();
+        std::fs::copy(&path, relabelled.join(path.file_name().unwrap())).unwrap();
+    }
+    let run_json = relabelled.join("run.json");
+    let mut record: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(&run_json).unwrap()).unwrap();
+    record["shard"]["index"] = serde_json::json!(2);
+    std::fs::write(&run_json, serde_json::to_vec(&record).unwrap()).unwrap();
+    refused(
+        &[seed_1[0].clone(), relabelled, seed_1[2].clone()],
+        &["data_screen.csv", "does not hold this shard's fit"],
+    );
+}
