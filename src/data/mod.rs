@@ -38,7 +38,9 @@
 mod read;
 mod screen;
 
-pub use read::{ColumnMap, ColumnMapError, ReadNotes, read_trials, read_trials_noted};
+pub use read::{
+    ColumnMap, ColumnMapError, ReadNotes, SubjectParts, read_trials, read_trials_noted,
+};
 pub use screen::{
     DEFAULT_FAST_FLOOR, MILLISECOND_MEDIAN, ModelNeeds, ScreenError, ScreenSettings,
     ScreenSettingsError, SubjectScreen, TRIALS_PER_PARAMETER, TrimCounts, screen, screen_table,
