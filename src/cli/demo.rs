@@ -131,7 +131,7 @@ pub fn run(
     println!(
         "{REFERENCE}, per cohort: median of per-subject estimates / empirical-Bayes group median (median of the generating values)"
     );
-    let groups = super::fit::group_labels(&fitted.table);
+    let groups = fitted.group_labels.clone();
     print!("{:<16}", "parameter");
     for g in &groups {
         print!(" {g:>26}");
