@@ -20,8 +20,11 @@ cd "$(dirname "$0")/../.."
 repo="$PWD"
 export CARGO_TARGET_DIR="${CARGO_TARGET_DIR:-$HOME/.cache/valuedrift/target}"
 bin="$CARGO_TARGET_DIR/release/valuedrift"
-[ -x "$bin" ] || cargo build --release
 say() { echo "slurm_array: $*"; }
+if [ ! -x "$bin" ]; then
+  command -v cargo >/dev/null 2>&1 || { say "$bin missing and no cargo to build it" >&2; exit 1; }
+  cargo build --release
+fi
 
 if [ "$(id -u)" -ne 0 ]; then
   if command -v sudo >/dev/null 2>&1 && sudo -n true 2>/dev/null; then
