@@ -16,7 +16,8 @@
 # are stopped and the folder removed on exit; on failure their logs and the jobs' logs are
 # printed. Uses the release binary of `cargo test --release` (built when missing).
 set -euo pipefail
-cd "$(dirname "$0")/../.."
+script="$(realpath "$0")"
+cd "$(dirname "$script")/../.."
 repo="$PWD"
 export CARGO_TARGET_DIR="${CARGO_TARGET_DIR:-$HOME/.cache/valuedrift/target}"
 bin="$CARGO_TARGET_DIR/release/valuedrift"
@@ -28,7 +29,7 @@ fi
 
 if [ "$(id -u)" -ne 0 ]; then
   if command -v sudo >/dev/null 2>&1 && sudo -n true 2>/dev/null; then
-    exec sudo -n CARGO_TARGET_DIR="$CARGO_TARGET_DIR" bash "$0" "$@"
+    exec sudo -n CARGO_TARGET_DIR="$CARGO_TARGET_DIR" bash "$script" "$@"
   fi
   say "needs root (slurmd starts jobs as their user) or password-less sudo; user $(id -un) has neither" >&2
   exit 1
