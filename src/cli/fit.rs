@@ -1,6 +1,7 @@
 //! `valuedrift fit`: per-subject fits of one or more models, with tidy outputs and a run record.
 
 use super::input::ColumnsError;
+use super::journal::{self, Journal};
 use super::shard::{self, Shard};
 use crate::data::{ColumnMap, ScreenSettings, TrialTable};
 use crate::files::OutputSet;
@@ -39,6 +40,8 @@ pub struct FitRun<'a> {
     pub screen: ScreenSettings,
     /// Fit only this shard's subjects (`--shard I/N`; per-subject fits only).
     pub shard: Option<Shard>,
+    /// What to do with the journal of an interrupted run (None: keep no journal).
+    pub journal: Option<journal::Mode>,
 }
 
 /// Settings of the empirical-Bayes fit.
@@ -209,14 +212,45 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
     if let Some(shard) = run.shard {
         shard.restrict(&mut table, &mut screened);
     }
-    let bar = Progress::new("fitting", super::input::screened_jobs(&screened));
+    let bytes = std::fs::read(run.data)?;
+    let (journal, earlier) = match run.journal {
+        Some(mode) => {
+            let header = journal::Header::new(
+                &format!("{:x}", Sha256::digest(&bytes)),
+                &run.columns,
+                &models,
+                &run.options,
+                &run.screen,
+                run.shard,
+            );
+            let (journal, earlier) = Journal::open(run.out, mode, &header)?;
+            (Some(journal), earlier)
+        }
+        None => (None, Vec::new()),
+    };
+    let jobs = super::input::screened_jobs(&screened);
+    if !earlier.is_empty() {
+        eprintln!(
+            "resuming: {} of the {jobs} (model, subject) pairs from the journal; fitting the \
+             other {}",
+            earlier.len(),
+            jobs.saturating_sub(earlier.len())
+        );
+    }
+    let bar = Progress::new("fitting", jobs.saturating_sub(earlier.len()));
     let (fits, skipped) = super::input::fit_screened(
         &models,
         &table,
         &screened,
         &run.options,
         run.threads,
-        &|| bar.inc(),
+        earlier,
+        &|outcome| {
+            if let Some(journal) = &journal {
+                journal.append(outcome);
+            }
+            bar.inc();
+        },
     )?;
     bar.finish();
     // A shard may hold no subject, or only subjects that cannot be fitted: `merge` judges the
@@ -277,10 +311,11 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         }
         groups = fitted;
     }
-    let bytes = std::fs::read(run.data)?;
+    // A resumed run records the command line of an uninterrupted one.
+    let command_line = journal::without_flags(command_line);
     let command_line = match run.shard {
-        Some(_) => shard::without_shard(command_line),
-        None => command_line.to_vec(),
+        Some(_) => shard::without_shard(&command_line),
+        None => command_line,
     };
     let mut record = run_record(
         &command_line,
@@ -368,6 +403,9 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         serde_json::to_writer_pretty(w, &record)
     })?;
     outputs.commit()?;
+    if let Some(journal) = journal {
+        journal.finish();
+    }
     Ok(Fitted {
         table,
         models,

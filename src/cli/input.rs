@@ -7,7 +7,7 @@ use crate::data::{
     SubjectScreen, TRIALS_PER_PARAMETER, TrialTable, read_trials_noted, screen_table,
     share_slower_than, unmet_needs,
 };
-use crate::fit::{FitOptions, Skipped, SubjectFit, fit_table};
+use crate::fit::{FitOptions, Outcome, Skipped, SubjectFit, fit_table_each};
 use crate::likelihood::DataMismatch;
 use crate::model::Model;
 use crate::results::{Column, Table};
@@ -447,17 +447,23 @@ fn limit_text(limit: Option<f64>) -> String {
 }
 
 /// Fits each model to the subjects whose data meet its needs; the others are returned as
-/// skipped with the reason. Fits and skipped pairs are in (model, subject) order, subjects in
-/// table order.
+/// skipped with the reason. Pairs with an outcome in `earlier` (from the journal of an
+/// interrupted run) are not fitted again: their outcomes take their places (outcomes of pairs
+/// this run does not fit are ignored). `finished` sees each
+/// new outcome as soon as it is done. Fits and skipped pairs are in (model, subject) order,
+/// subjects in table order, whichever pairs came from `earlier`.
 pub fn fit_screened(
     models: &[Model],
     table: &TrialTable,
     screened: &Screened,
     options: &FitOptions,
     threads: usize,
-    progress: &(dyn Fn() + Sync),
+    earlier: Vec<Outcome>,
+    finished: &(dyn Fn(&Outcome) + Sync),
 ) -> Result<(Vec<SubjectFit>, Vec<Skipped>), rayon::ThreadPoolBuildError> {
-    let mut fits = Vec::new();
+    let mut earlier: std::collections::HashMap<(String, String), Outcome> =
+        earlier.into_iter().map(|o| (outcome_pair(&o), o)).collect();
+    let mut outcomes = Vec::new();
     let mut skipped = Vec::new();
     for (model, (_, per_subject)) in models.iter().zip(&screened.unmet) {
         let mut kept = TrialTable {
@@ -465,9 +471,7 @@ pub fn fit_screened(
             present: table.present.clone(),
         };
         for (subject, unmet) in table.subjects.iter().zip(per_subject) {
-            if unmet.is_empty() {
-                kept.subjects.push(subject.clone());
-            } else {
+            if !unmet.is_empty() {
                 skipped.push(Skipped {
                     model: model.name.clone(),
                     reason: DataMismatch {
@@ -475,23 +479,34 @@ pub fn fit_screened(
                         message: unmet.join("; "),
                     },
                 });
+            } else if let Some(outcome) = earlier.remove(&(model.name.clone(), subject.id.clone()))
+            {
+                outcomes.push(outcome);
+            } else {
+                kept.subjects.push(subject.clone());
             }
         }
         if kept.subjects.is_empty() {
             continue;
         }
-        let (f, s) = fit_table(
+        outcomes.extend(fit_table_each(
             std::slice::from_ref(model),
             &kept,
             options,
             threads,
-            progress,
-        )?;
-        fits.extend(f);
-        skipped.extend(s);
+            finished,
+        )?);
     }
-    // The pairs the screen set aside come first within each model; put every model's pairs in
-    // table order, the order `merge` restores from shards.
+    let mut fits = Vec::new();
+    for outcome in outcomes {
+        match outcome {
+            Ok(f) => fits.push(f),
+            Err(s) => skipped.push(s),
+        }
+    }
+    // The pairs the screen set aside come first within each model, and journalled pairs before
+    // the new ones; put every model's pairs in table order, the order of an uninterrupted run
+    // and the order `merge` restores from shards.
     let position: std::collections::HashMap<&str, usize> = table
         .subjects
         .iter()
@@ -499,13 +514,18 @@ pub fn fit_screened(
         .map(|(k, s)| (s.id.as_str(), k))
         .collect();
     let model_index = |name: &str| models.iter().position(|m| m.name == name);
-    skipped.sort_by_key(|s| {
-        (
-            model_index(&s.model),
-            position.get(s.reason.subject.as_str()).copied(),
-        )
-    });
+    let order = |model: &str, subject: &str| (model_index(model), position.get(subject).copied());
+    fits.sort_by_key(|f| order(&f.model, &f.subject));
+    skipped.sort_by_key(|s| order(&s.model, &s.reason.subject));
     Ok((fits, skipped))
+}
+
+/// The (model, subject) pair of an outcome.
+pub fn outcome_pair(outcome: &Outcome) -> (String, String) {
+    match outcome {
+        Ok(f) => (f.model.clone(), f.subject.clone()),
+        Err(s) => (s.model.clone(), s.reason.subject.clone()),
+    }
 }
 
 /// Number of (model, subject) fits the screen lets through.

@@ -8,6 +8,7 @@ mod density;
 mod export;
 mod fit;
 mod input;
+mod journal;
 mod merge;
 mod models;
 pub mod plan;
@@ -150,6 +151,9 @@ pub enum Command {
         /// Whether an existing result may be replaced.
         #[command(flatten)]
         replace: ReplaceArg,
+        /// Resuming an interrupted run (--resume) or discarding its journal (--restart).
+        #[command(flatten)]
+        journal: journal::JournalArgs,
     },
     /// Combines the folders of `fit --shard 1/N` … `--shard N/N` into the folder a single run of
     /// the same fit writes, byte for byte (its run.json records the command line without
@@ -568,6 +572,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             covariates_as_given,
             shard,
             replace,
+            journal,
             reading,
             screen,
         } => {
@@ -626,6 +631,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 }),
                 screen,
                 shard,
+                journal: Some(journal.mode()),
             };
             let fitted = fit::run(run, &command_line)?;
             fit::print_summary(&fitted);
