@@ -3,6 +3,7 @@
 //! must not change results), never leaves partial results in --out, refuses a journal of other
 //! inputs, and drops a record torn by a crash (common practice for append-only logs).
 
+use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
 use std::time::Duration;
@@ -75,6 +76,22 @@ fn folder_with_data(root: &Path, name: &str) -> PathBuf {
     dir
 }
 
+/// Asserts that folder `out` holds the files of `reference`, each with the same bytes.
+fn assert_same_files(reference: &BTreeMap<PathBuf, Vec<u8>>, out: &Path) {
+    let outputs = contents(out);
+    assert_eq!(
+        outputs.keys().collect::<Vec<_>>(),
+        reference.keys().collect::<Vec<_>>()
+    );
+    for (file, bytes) in reference {
+        assert!(
+            outputs[file] == *bytes,
+            "{} differs from the uninterrupted run's",
+            file.display()
+        );
+    }
+}
+
 /// Three models on the 40 demo subjects: 120 pairs, a few seconds of fitting.
 const MODELS: &str = "gainloss-linear,delta-linear,gainloss-exponential";
 
@@ -112,18 +129,7 @@ fn killed_twice_and_resumed_equals_an_uninterrupted_run_byte_for_byte() {
         String::from_utf8_lossy(&resumed.stderr)
             .contains(&format!("fitting the other {}", 120 - second)),
     );
-    let outputs = contents(&dir.join("out"));
-    assert_eq!(
-        outputs.keys().collect::<Vec<_>>(),
-        reference.keys().collect::<Vec<_>>()
-    );
-    for (file, bytes) in &reference {
-        assert!(
-            outputs[file] == *bytes,
-            "{} differs from the uninterrupted run's",
-            file.display()
-        );
-    }
+    assert_same_files(&reference, &dir.join("out"));
     assert!(!journal(&dir).parent().unwrap().exists());
 }
 
@@ -183,5 +189,34 @@ fn resume_refuses_changed_inputs_keeps_the_journal_and_drops_a_torn_record() {
     let resumed = succeed(&mut fit(&dir, "d.csv", "m.toml", &["--resume"]));
     assert!(String::from_utf8_lossy(&resumed.stderr).contains("torn last record"));
     assert_eq!(resumed_pairs(&resumed.stderr), done);
-    assert_eq!(contents(&dir.join("out")), reference);
+    assert_same_files(&reference, &dir.join("out"));
+}
+
+#[test]
+fn hierarchical_fit_resumed_equals_an_uninterrupted_run_byte_for_byte() {
+    // The per-subject stage is journalled; the EM runs again on the resume (README). A short EM
+    // keeps the test quick: the outputs must be equal whatever its length.
+    let options = [
+        "--hierarchical",
+        "--by",
+        "group",
+        "--em-iterations",
+        "5",
+        "--ibic-samples",
+        "200",
+    ];
+    let root = tempfile::tempdir().unwrap();
+    let whole = folder_with_data(root.path(), "whole");
+    succeed(&mut fit(&whole, "d.csv", "gainloss-linear", &options));
+    let dir = folder_with_data(root.path(), "killed");
+    let done = kill_after(
+        &mut fit(&dir, "d.csv", "gainloss-linear", &options),
+        &journal(&dir),
+        10,
+    );
+    let mut resume = options.to_vec();
+    resume.push("--resume");
+    let resumed = succeed(&mut fit(&dir, "d.csv", "gainloss-linear", &resume));
+    assert_eq!(resumed_pairs(&resumed.stderr), done);
+    assert_same_files(&contents(&whole.join("out")), &dir.join("out"));
 }
