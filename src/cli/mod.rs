@@ -68,7 +68,9 @@ pub enum Command {
     ///
     /// Writes DIR/parameters.csv (one row per subject, model and parameter), DIR/estimates_wide.csv
     /// (one row per subject and model), DIR/fit_summary.csv (with each fit's status),
-    /// DIR/data_screen.csv, their Parquet twins, and DIR/run.json.
+    /// DIR/data_screen.csv, their Parquet twins, and DIR/run.json. Each finished (model,
+    /// subject) pair is journalled beside DIR (.<DIR>.valuedrift-journal) until DIR is written,
+    /// so a stopped run continues with --resume.
     #[command(after_help = RESEARCH_CAUTION)]
     Fit {
         /// Trial table (.csv, .tsv or .parquet); see the README for its columns.
