@@ -449,9 +449,9 @@ fn limit_text(limit: Option<f64>) -> String {
 /// Fits each model to the subjects whose data meet its needs; the others are returned as
 /// skipped with the reason. Pairs with an outcome in `earlier` (from the journal of an
 /// interrupted run) are not fitted again: their outcomes take their places (outcomes of pairs
-/// this run does not fit are ignored). `finished` sees each
-/// new outcome as soon as it is done. Fits and skipped pairs are in (model, subject) order,
-/// subjects in table order, whichever pairs came from `earlier`.
+/// this run does not fit are ignored). `finished` sees each new outcome as soon as it is done.
+/// Fits and skipped pairs are in (model, subject) order, subjects in table order, whichever
+/// pairs came from `earlier`.
 pub fn fit_screened(
     models: &[Model],
     table: &TrialTable,
