@@ -1,6 +1,7 @@
 //! `valuedrift fit`: per-subject fits of one or more models, with tidy outputs and a run record.
 
 use super::input::ColumnsError;
+use super::journal::{self, Journal};
 use super::shard::{self, Shard};
 use crate::data::{ColumnMap, ScreenSettings, TrialTable};
 use crate::files::OutputSet;
@@ -38,6 +39,8 @@ pub struct FitRun<'a> {
     pub screen: ScreenSettings,
     /// Fit only this shard's subjects (`--shard I/N`; per-subject fits only).
     pub shard: Option<Shard>,
+    /// What to do with the journal of an interrupted run (None: keep no journal).
+    pub journal: Option<journal::Mode>,
 }
 
 /// Settings of the empirical-Bayes fit.
@@ -229,7 +232,38 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             None => shard.restrict_screen(&mut screened),
         }
     }
-    let bar = Progress::new("fitting", super::input::screened_jobs(&screened));
+    let data_sha256 = crate::files::sha256_of_file(run.data)?;
+    let (journal, earlier) = match run.journal {
+        Some(mode) => {
+            let header = journal::Header::new(
+                &data_sha256,
+                &run.columns,
+                &models,
+                &run.options,
+                &run.screen,
+                run.shard,
+            );
+            let (journal, earlier) = Journal::open(run.out, mode, &header)?;
+            (Some(journal), earlier)
+        }
+        None => (None, Vec::new()),
+    };
+    let jobs = super::input::screened_jobs(&screened);
+    if !earlier.is_empty() {
+        eprintln!(
+            "resuming: {} of the {jobs} (model, subject) pairs from the journal; fitting the \
+             other {}",
+            earlier.len(),
+            jobs.saturating_sub(earlier.len())
+        );
+    }
+    let bar = Progress::new("fitting", jobs.saturating_sub(earlier.len()));
+    let finished = |outcome: &crate::fit::Outcome| {
+        if let Some(journal) = &journal {
+            journal.append(outcome);
+        }
+        bar.inc();
+    };
     let (fits, skipped) = match &whole {
         Some(table) => super::input::fit_screened(
             &models,
@@ -237,7 +271,8 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             &screened,
             &run.options,
             run.threads,
-            &|| bar.inc(),
+            earlier,
+            &finished,
         )?,
         None => super::input::fit_streamed(
             run.data,
@@ -247,7 +282,8 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             &|label| run.shard.is_none_or(|s| s.holds(label)),
             &run.options,
             run.threads,
-            &|| bar.inc(),
+            earlier,
+            &finished,
         )?,
     };
     bar.finish();
@@ -312,10 +348,11 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         }
         groups = fitted;
     }
-    let data_sha256 = crate::files::sha256_of_file(run.data)?;
+    // A resumed run records the command line of an uninterrupted one.
+    let command_line = journal::without_flags(command_line);
     let command_line = match run.shard {
-        Some(_) => shard::without_shard(command_line),
-        None => command_line.to_vec(),
+        Some(_) => shard::without_shard(&command_line),
+        None => command_line,
     };
     let mut record = run_record(
         &command_line,
@@ -403,6 +440,9 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         serde_json::to_writer_pretty(w, &record)
     })?;
     outputs.commit()?;
+    if let Some(journal) = journal {
+        journal.finish();
+    }
     Ok(Fitted {
         group_labels: group_labels(&screened),
         models,

@@ -7,7 +7,7 @@ use crate::data::{
     SubjectParts, SubjectScreen, TRIALS_PER_PARAMETER, TrialTable, judge_screens,
     millisecond_medians, read_trials_noted, screen_subjects, trim_response_times, unmet_needs,
 };
-use crate::fit::{FitOptions, Skipped, SubjectFit, fit_table};
+use crate::fit::{FitOptions, Outcome, Skipped, SubjectFit, fit_table_each};
 use crate::likelihood::DataMismatch;
 use crate::model::Model;
 use crate::results::{Column, Table};
@@ -519,24 +519,28 @@ fn limit_text(limit: Option<f64>) -> String {
 }
 
 /// Fits each model to the subjects whose data meet its needs; the others are returned as
-/// skipped with the reason. Fits and skipped pairs are in (model, subject) order, subjects in
-/// table order.
+/// skipped with the reason. Pairs with an outcome in `earlier` (from the journal of an
+/// interrupted run) are not fitted again: their outcomes take their places (outcomes of pairs
+/// this run does not fit are ignored). `finished` sees each new outcome as soon as it is done.
+/// Fits and skipped pairs are in (model, subject) order, subjects in table order, whichever
+/// pairs came from `earlier`.
 pub fn fit_screened(
     models: &[Model],
     table: &TrialTable,
     screened: &Screened,
     options: &FitOptions,
     threads: usize,
-    progress: &(dyn Fn() + Sync),
+    earlier: Vec<Outcome>,
+    finished: &(dyn Fn(&Outcome) + Sync),
 ) -> Result<(Vec<SubjectFit>, Vec<Skipped>), rayon::ThreadPoolBuildError> {
-    let mut fitted = FitsByModel::new(models.len());
-    fitted.add(models, table, screened, 0, options, threads, progress)?;
+    let mut fitted = FitsByModel::new(models.len(), earlier);
+    fitted.add(models, table, screened, 0, options, threads, finished)?;
     Ok(fitted.finish(models, screened))
 }
 
 /// [`fit_screened`] of the trial table at `path`, read again a part at a time, each part trimmed
-/// as the screen trimmed it and, with `shard`, kept to the shard's subjects (`screened` must hold
-/// exactly the subjects fitted, in table order). Memory holds one part and the fits.
+/// as the screen trimmed it and kept to the subjects `keep` accepts (a shard's; `screened` must
+/// hold exactly those subjects, in table order). Memory holds one part and the fits.
 #[allow(clippy::too_many_arguments)]
 pub fn fit_streamed(
     path: &Path,
@@ -546,10 +550,11 @@ pub fn fit_streamed(
     keep: &dyn Fn(&str) -> bool,
     options: &FitOptions,
     threads: usize,
-    progress: &(dyn Fn() + Sync),
+    earlier: Vec<Outcome>,
+    finished: &(dyn Fn(&Outcome) + Sync),
 ) -> Result<(Vec<SubjectFit>, Vec<Skipped>), Box<dyn std::error::Error>> {
     let mut parts = SubjectParts::open(path, columns)?;
-    let mut fitted = FitsByModel::new(models.len());
+    let mut fitted = FitsByModel::new(models.len(), earlier);
     let mut first = 0;
     while let Some(mut part) = parts.next_part(SUBJECTS_PER_PART)? {
         part.subjects.retain(|s| keep(&s.id));
@@ -558,7 +563,7 @@ pub fn fit_streamed(
             screened.settings.trim_below,
             screened.settings.trim_above,
         );
-        fitted.add(models, &part, screened, first, options, threads, progress)?;
+        fitted.add(models, &part, screened, first, options, threads, finished)?;
         first += part.subjects.len();
     }
     if first != screened.subjects.len() {
@@ -573,22 +578,25 @@ pub fn fit_streamed(
     Ok(fitted.finish(models, screened))
 }
 
-/// Fits gathered per model over the parts of a table.
+/// Outcomes gathered over the parts of a table: pairs journalled by an earlier run are taken
+/// from it, the others fitted.
 struct FitsByModel {
-    fits: Vec<Vec<SubjectFit>>,
+    earlier: std::collections::HashMap<(String, String), Outcome>,
+    outcomes: Vec<Outcome>,
     skipped: Vec<Skipped>,
 }
 
 impl FitsByModel {
-    fn new(models: usize) -> Self {
+    fn new(models: usize, earlier: Vec<Outcome>) -> Self {
         FitsByModel {
-            fits: (0..models).map(|_| Vec::new()).collect(),
+            earlier: earlier.into_iter().map(|o| (outcome_pair(&o), o)).collect(),
+            outcomes: Vec::with_capacity(models),
             skipped: Vec::new(),
         }
     }
 
-    /// Fits every model to the subjects of `part` whose data meet its needs; the part's subjects
-    /// are `screened.subjects[first..]`.
+    /// Fits every model to the subjects of `part` whose data meet its needs and that no earlier
+    /// run has fitted; the part's subjects are `screened.subjects[first..]`.
     #[allow(clippy::too_many_arguments)]
     fn add(
         &mut self,
@@ -598,19 +606,15 @@ impl FitsByModel {
         first: usize,
         options: &FitOptions,
         threads: usize,
-        progress: &(dyn Fn() + Sync),
+        finished: &(dyn Fn(&Outcome) + Sync),
     ) -> Result<(), rayon::ThreadPoolBuildError> {
-        for ((model, (_, per_subject)), fits) in
-            models.iter().zip(&screened.unmet).zip(&mut self.fits)
-        {
+        for (model, (_, per_subject)) in models.iter().zip(&screened.unmet) {
             let mut kept = TrialTable {
                 subjects: Vec::new(),
                 present: part.present.clone(),
             };
             for (subject, unmet) in part.subjects.iter().zip(&per_subject[first..]) {
-                if unmet.is_empty() {
-                    kept.subjects.push(subject.clone());
-                } else {
+                if !unmet.is_empty() {
                     self.skipped.push(Skipped {
                         model: model.name.clone(),
                         reason: DataMismatch {
@@ -618,29 +622,42 @@ impl FitsByModel {
                             message: unmet.join("; "),
                         },
                     });
+                } else if let Some(outcome) = self
+                    .earlier
+                    .remove(&(model.name.clone(), subject.id.clone()))
+                {
+                    self.outcomes.push(outcome);
+                } else {
+                    kept.subjects.push(subject.clone());
                 }
             }
             if kept.subjects.is_empty() {
                 continue;
             }
-            let (f, s) = fit_table(
+            self.outcomes.extend(fit_table_each(
                 std::slice::from_ref(model),
                 &kept,
                 options,
                 threads,
-                progress,
-            )?;
-            fits.extend(f);
-            self.skipped.extend(s);
+                finished,
+            )?);
         }
         Ok(())
     }
 
     /// Fits and skipped pairs in (model, subject) order, subjects in table order.
     fn finish(self, models: &[Model], screened: &Screened) -> (Vec<SubjectFit>, Vec<Skipped>) {
+        let mut fits = Vec::new();
         let mut skipped = self.skipped;
-        // The pairs the screen set aside come first within each model; put every model's pairs
-        // in table order, the order `merge` restores from shards.
+        for outcome in self.outcomes {
+            match outcome {
+                Ok(f) => fits.push(f),
+                Err(s) => skipped.push(s),
+            }
+        }
+        // The pairs the screen set aside come first within each model, and journalled pairs
+        // before the new ones; put every model's pairs in table order, the order of an
+        // uninterrupted run and the order `merge` restores from shards.
         let position: std::collections::HashMap<&str, usize> = screened
             .subjects
             .iter()
@@ -648,13 +665,19 @@ impl FitsByModel {
             .map(|(k, s)| (s.subject.as_str(), k))
             .collect();
         let model_index = |name: &str| models.iter().position(|m| m.name == name);
-        skipped.sort_by_key(|s| {
-            (
-                model_index(&s.model),
-                position.get(s.reason.subject.as_str()).copied(),
-            )
-        });
-        (self.fits.into_iter().flatten().collect(), skipped)
+        let order =
+            |model: &str, subject: &str| (model_index(model), position.get(subject).copied());
+        fits.sort_by_key(|f| order(&f.model, &f.subject));
+        skipped.sort_by_key(|s| order(&s.model, &s.reason.subject));
+        (fits, skipped)
+    }
+}
+
+/// The (model, subject) pair of an outcome.
+pub fn outcome_pair(outcome: &Outcome) -> (String, String) {
+    match outcome {
+        Ok(f) => (f.model.clone(), f.subject.clone()),
+        Err(s) => (s.model.clone(), s.reason.subject.clone()),
     }
 }
 
