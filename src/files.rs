@@ -543,6 +543,18 @@ impl OutputSet {
         path: &Path,
         fill: impl FnOnce(&mut dyn Write) -> Result<(), E>,
     ) -> Result<(), OutputError> {
+        let mut staged = self.stage_writer(path)?;
+        fill(&mut staged.writer).map_err(|e| OutputError::Content {
+            path: path.to_path_buf(),
+            message: e.to_string(),
+        })?;
+        staged.finish()
+    }
+
+    /// Stages `path` (a path inside the output folder) as a file its caller writes over time,
+    /// for outputs written a part at a time; it is part of the set once created, and must be
+    /// finished with [`StagedFile::finish`] before [`OutputSet::commit`].
+    pub fn stage_writer(&mut self, path: &Path) -> Result<StagedFile, OutputError> {
         let relative = path
             .strip_prefix(&self.target)
             .map_err(|_| OutputError::Outside {
@@ -564,14 +576,11 @@ impl OutputSet {
             std::fs::create_dir_all(folder).map_err(io)?;
         }
         let file = std::fs::File::create(&staged).map_err(io)?;
-        let mut buffered = std::io::BufWriter::new(file);
-        fill(&mut buffered).map_err(|e| OutputError::Content {
-            path: path.to_path_buf(),
-            message: e.to_string(),
-        })?;
-        buffered.flush().map_err(io)?;
         self.staged += 1;
-        Ok(())
+        Ok(StagedFile {
+            path: path.to_path_buf(),
+            writer: std::io::BufWriter::new(file),
+        })
     }
 
     /// Number of files staged so far.
@@ -729,4 +738,30 @@ pub fn sha256_of_file(path: &Path) -> Result<String, InputError> {
     std::io::copy(&mut file, &mut hasher)
         .map_err(|e| InputError::file(path, format!("cannot be read: {e}")))?;
     Ok(format!("{:x}", hasher.finalize()))
+}
+
+/// A file of an [`OutputSet`] being written (from [`OutputSet::stage_writer`]).
+pub struct StagedFile {
+    /// Where the file will be once the set is committed (for messages).
+    pub path: PathBuf,
+    /// The staged file.
+    pub writer: std::io::BufWriter<std::fs::File>,
+}
+
+impl StagedFile {
+    /// Writes out what is buffered; errors name the file's final path.
+    pub fn finish(mut self) -> Result<(), OutputError> {
+        self.writer.flush().map_err(|source| OutputError::Io {
+            path: self.path.clone(),
+            source,
+        })
+    }
+
+    /// An error about the file's content (a writer's error, with the file's final path).
+    pub fn content_error(&self, error: impl std::fmt::Display) -> OutputError {
+        OutputError::Content {
+            path: self.path.clone(),
+            message: error.to_string(),
+        }
+    }
 }

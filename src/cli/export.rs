@@ -2,6 +2,8 @@
 //! events files with parametric modulators and, given the scan timing, design matrices of the
 //! events convolved with the haemodynamic response, for imaging analyses.
 
+use super::input::SUBJECTS_PER_PART;
+use crate::data::SubjectParts;
 use crate::exports::hrf::{DesignFile, DoubleGamma, Timing, design_file};
 use crate::exports::{
     BIDS_IGNORE, Scale, bids_label, bids_labels, dataset_description, dataset_readme, events_files,
@@ -9,6 +11,7 @@ use crate::exports::{
 };
 use crate::files::OutputSet;
 use crate::progress::Progress;
+use crate::results::TableParts;
 use std::path::Path;
 
 /// Everything `export` needs, resolved from the command line.
@@ -60,7 +63,9 @@ pub fn timing(
     Ok(Some(Timing { tr, scans, bins }))
 }
 
-/// Reads, computes and writes every output at once (nothing is written on error).
+/// Reads, computes and writes every output (nothing is written on error). The trial table is
+/// read a part at a time and each subject's latents, events files and design matrices are
+/// written as soon as they are computed, so memory does not grow with the number of subjects.
 pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     let out = run.input.out.as_path();
     if bids_label(run.task).as_deref() != Some(run.task) {
@@ -71,90 +76,100 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         .into());
     }
     let mut outputs = OutputSet::create(out, run.input.replace.replace)?;
-    let (table, model, estimates) = run.input.load()?;
-    let labels = bids_labels(&table.subjects)?;
-    let has_onsets = table.has_column("onset");
-    let with_outcomes = table.has_column("outcome_onset");
-    let mut all = Vec::new();
-    let mut events = Vec::new();
-    let progress = Progress::new("exporting: latents of subjects", table.subjects.len());
-    for ((subject, natural), label) in table.subjects.iter().zip(&estimates).zip(&labels) {
-        let rows = latents(&model, subject, natural)?;
-        progress.inc();
-        if has_onsets {
-            events.extend(events_files(
-                &model,
-                subject,
-                label,
-                run.task,
-                &rows,
-                run.scale,
-                with_outcomes,
-            ));
+    let fitted = run.input.load_labels()?;
+    let model = &fitted.model;
+    let labels = bids_labels(&fitted.subjects)?;
+    let has_onsets = fitted.present.iter().any(|c| c == "onset");
+    let with_outcomes = fitted.present.iter().any(|c| c == "outcome_onset");
+    let hrf = DoubleGamma::CANONICAL;
+    let varying = crate::exports::varying_parameter_names(model);
+    let mut latents_file = TableParts::stage(&mut outputs, out, "latents")?;
+    let mut written = Written::default();
+    let progress = Progress::new(
+        "exporting: latents, events and design files of subjects",
+        fitted.subjects.len(),
+    );
+    let mut parts = SubjectParts::open(&run.input.data, &fitted.columns)?;
+    let mut next = 0;
+    while let Some(part) = parts.next_part(SUBJECTS_PER_PART)? {
+        let mut rows = Vec::new();
+        for subject in part.subjects.iter().filter(|s| fitted.keeps(&s.id)) {
+            if fitted.subjects.get(next).map(|s| s.id.as_str()) != Some(subject.id.as_str()) {
+                return Err(format!(
+                    "{}: changed while it was being exported (subject {:?} was not read before); \
+                     run the export again",
+                    run.input.data.display(),
+                    subject.id
+                )
+                .into());
+            }
+            let subject_rows = latents(model, subject, &fitted.estimates[next])?;
+            if has_onsets {
+                let events = events_files(
+                    model,
+                    subject,
+                    &labels[next],
+                    run.task,
+                    &subject_rows,
+                    run.scale,
+                    with_outcomes,
+                );
+                for f in &events {
+                    stage_pair(&mut outputs, out, &f.stem, &f.sidecar, &|w| f.write_tsv(w))?;
+                    written.skipped_choice += f.skipped_choice;
+                    written.skipped_outcome += f.skipped_outcome;
+                    if let Some(timing) = run.timing {
+                        let d = design_file(f, &hrf, timing, run.scale, with_outcomes);
+                        stage_pair(&mut outputs, out, &d.stem, &d.sidecar, &|w| d.write_tsv(w))?;
+                        written.designs.push(DesignNote::of(&d));
+                    }
+                }
+                written.events += events.len();
+            }
+            rows.extend(subject_rows);
+            next += 1;
+            progress.inc();
         }
-        all.extend(rows);
+        if !rows.is_empty() {
+            written.trials += rows.len();
+            latents_file.write(&latents_table(&rows, &varying))?;
+        }
     }
     progress.finish();
-    let hrf = DoubleGamma::CANONICAL;
-    let designs: Vec<DesignFile> = match run.timing {
-        Some(timing) if has_onsets => events
-            .iter()
-            .map(|e| design_file(e, &hrf, timing, run.scale, with_outcomes))
-            .collect(),
-        _ => Vec::new(),
-    };
-    latents_table(&all, &crate::exports::varying_parameter_names(&model)).stage_both(
-        &mut outputs,
-        out,
-        "latents",
-    )?;
-    if !events.is_empty() {
+    if next != fitted.subjects.len() {
+        return Err(format!(
+            "{}: changed while it was being exported ({} subjects fitted, {next} read); run the \
+             export again",
+            run.input.data.display(),
+            fitted.subjects.len()
+        )
+        .into());
+    }
+    latents_file.finish()?;
+    if written.events > 0 {
         // The files a BIDS derivative dataset has at its root besides the subjects' folders.
         for (name, value) in [
             (
                 "dataset_description.json",
-                dataset_description(&model, super::RESEARCH_CAUTION),
+                dataset_description(model, super::RESEARCH_CAUTION),
             ),
             ("participants.json", participants_sidecar()),
         ] {
             outputs.stage(&out.join(name), |w| serde_json::to_writer_pretty(w, &value))?;
         }
         outputs.stage(&out.join("participants.tsv"), |w| {
-            participants_table(&table.subjects, &labels).write_delimited(w, b'\t')
+            participants_table(&fitted.subjects, &labels).write_delimited(w, b'\t')
         })?;
-        let readme = dataset_readme(&model, super::RESEARCH_CAUTION);
+        let readme = dataset_readme(model, super::RESEARCH_CAUTION);
         for (name, text) in [("README", readme.as_str()), (".bidsignore", BIDS_IGNORE)] {
             outputs.stage(&out.join(name), |w| w.write_all(text.as_bytes()))?;
         }
     }
-    {
-        // Each events file and design matrix: a TSV and its JSON sidecar.
-        type Fill<'f> = &'f dyn Fn(&mut dyn std::io::Write) -> std::io::Result<()>;
-        let mut stage_pair = |stem: &str, sidecar: &serde_json::Value, fill: Fill<'_>| {
-            outputs.stage(&out.join(format!("{stem}.tsv")), fill)?;
-            outputs.stage(&out.join(format!("{stem}.json")), |w| {
-                serde_json::to_writer_pretty(w, sidecar)
-            })
-        };
-        let files = Progress::new(
-            "exporting: events and design files",
-            events.len() + designs.len(),
-        );
-        for f in &events {
-            stage_pair(&f.stem, &f.sidecar, &|w| f.write_tsv(w))?;
-            files.inc();
-        }
-        for f in &designs {
-            stage_pair(&f.stem, &f.sidecar, &|w| f.write_tsv(w))?;
-            files.inc();
-        }
-        files.finish();
-    }
     outputs.commit()?;
     println!(
         "latents of {} trials ({} subjects, model {}) in {}",
-        all.len(),
-        table.subjects.len(),
+        written.trials,
+        fitted.subjects.len(),
         model.name,
         out.join("latents.csv").display()
     );
@@ -166,7 +181,7 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         println!(
             "{} events files (modulators {}) in the BIDS derivative dataset {} \
              (sub-<label>/func/)",
-            events.len(),
+            written.events,
             match run.scale {
                 Scale::Center => "mean-centred per run",
                 Scale::Zscore => "z-scored per run (sd with n − 1)",
@@ -178,10 +193,9 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
             println!("the trial table has no outcome_onset column: no outcome events written");
         }
         if let Some(timing) = run.timing {
-            report_designs(&designs, timing, &hrf, out);
+            report_designs(&written.designs, timing, &hrf, out);
         }
-        let choice: usize = events.iter().map(|e| e.skipped_choice).sum();
-        let outcome: usize = events.iter().map(|e| e.skipped_outcome).sum();
+        let (choice, outcome) = (written.skipped_choice, written.skipped_outcome);
         if choice + outcome > 0 {
             println!(
                 "skipped {choice} choice events without onset and {outcome} outcome events \
@@ -196,9 +210,52 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     Ok(())
 }
 
+/// Stages a TSV file and its JSON sidecar (an events file or a design matrix).
+fn stage_pair(
+    outputs: &mut OutputSet,
+    out: &Path,
+    stem: &str,
+    sidecar: &serde_json::Value,
+    fill: &dyn Fn(&mut dyn std::io::Write) -> std::io::Result<()>,
+) -> Result<(), crate::files::OutputError> {
+    outputs.stage(&out.join(format!("{stem}.tsv")), fill)?;
+    outputs.stage(&out.join(format!("{stem}.json")), |w| {
+        serde_json::to_writer_pretty(w, sidecar)
+    })
+}
+
+/// What an export wrote, for its summary.
+#[derive(Default)]
+struct Written {
+    trials: usize,
+    events: usize,
+    skipped_choice: usize,
+    skipped_outcome: usize,
+    designs: Vec<DesignNote>,
+}
+
+/// What the summary says of one design matrix (the matrix itself is written and dropped).
+struct DesignNote {
+    stem: String,
+    events_end: f64,
+    events_after_last_scan: usize,
+    zero_columns: Vec<String>,
+}
+
+impl DesignNote {
+    fn of(d: &DesignFile) -> Self {
+        DesignNote {
+            stem: d.stem.clone(),
+            events_end: d.events_end,
+            events_after_last_scan: d.events_after_last_scan,
+            zero_columns: d.zero_columns.clone(),
+        }
+    }
+}
+
 /// Prints what was written and warns (stderr) about runs whose events outlast the scans and
 /// about columns that are zero at every scan.
-fn report_designs(designs: &[DesignFile], timing: Timing, hrf: &DoubleGamma, out: &Path) {
+fn report_designs(designs: &[DesignNote], timing: Timing, hrf: &DoubleGamma, out: &Path) {
     println!(
         "{} design matrices ({} scans of TR {} s, {} microtime bins per scan; canonical double \
          gamma, peak {:.3} s, sampled at the start of each scan) in {}",

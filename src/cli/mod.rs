@@ -458,6 +458,30 @@ pub struct FittedRun {
 /// The trial table, the model and each subject's estimates (all parameters, model order).
 pub type FittedInputs = (crate::data::TrialTable, crate::model::Model, Vec<Vec<f64>>);
 
+/// What `export` reads before the trials: the column mapping, the model, the fitted subjects'
+/// labels and estimates in table order, and the table's optional columns.
+pub struct FittedSubjects {
+    /// How the trial table is read.
+    pub columns: crate::data::ColumnMap,
+    /// The model.
+    pub model: crate::model::Model,
+    /// The subjects fitted with the model, in table order.
+    pub subjects: Vec<crate::data::SubjectLabel>,
+    /// Each subject's estimates (all parameters, model order).
+    pub estimates: Vec<Vec<f64>>,
+    /// The table's optional canonical columns present.
+    pub present: Vec<String>,
+    /// Subjects of the table the fit did not fit with the model.
+    skipped: std::collections::HashSet<String>,
+}
+
+impl FittedSubjects {
+    /// Whether the subject `id` of the table was fitted with the model.
+    pub fn keeps(&self, id: &str) -> bool {
+        !self.skipped.contains(id)
+    }
+}
+
 impl FittedRun {
     /// Reads the trial table (with the column mapping), loads the model, checks it against the
     /// definition recorded in the fit folder's run.json and reads each subject's estimates of it
@@ -465,10 +489,62 @@ impl FittedRun {
     /// fit with this model (run.json's `skipped`, for example too few responses for its free
     /// parameters) are left out with a note.
     pub fn load(&self) -> Result<FittedInputs, Box<dyn std::error::Error>> {
+        let columns = self.column_map()?;
+        let mut table = input::read_table(&self.data, &columns)?;
+        let (model, skipped) = self.fitted_model()?;
+        self.keep_fitted(&model, &skipped, &mut table.subjects)?;
+        let estimates = crate::exports::read_estimates(
+            &self.estimates.estimates.parameters_file(&self.fits),
+            &model,
+            &table.subjects,
+        )?;
+        Ok((table, model, estimates))
+    }
+
+    /// [`FittedRun::load`] without keeping the trials: the table is read a part at a time for
+    /// its subjects' labels (and read again by the caller), so memory does not grow with the
+    /// number of subjects.
+    pub fn load_labels(&self) -> Result<FittedSubjects, Box<dyn std::error::Error>> {
+        let columns = self.column_map()?;
+        let mut parts = crate::data::SubjectParts::open(&self.data, &columns)?;
+        let mut subjects = Vec::new();
+        let mut present = Vec::new();
+        while let Some(part) = parts.next_part(input::SUBJECTS_PER_PART)? {
+            subjects.extend(part.subjects.iter().map(crate::data::Subject::label));
+            present = part.present;
+        }
+        for line in parts.notes().lines(&self.data) {
+            eprintln!("{line}");
+        }
+        let (model, skipped) = self.fitted_model()?;
+        self.keep_fitted(&model, &skipped, &mut subjects)?;
+        let estimates = crate::exports::read_estimates(
+            &self.estimates.estimates.parameters_file(&self.fits),
+            &model,
+            &subjects,
+        )?;
+        Ok(FittedSubjects {
+            columns,
+            model,
+            subjects,
+            estimates,
+            present,
+            skipped,
+        })
+    }
+
+    fn column_map(&self) -> Result<crate::data::ColumnMap, Box<dyn std::error::Error>> {
         let columns =
             crate::data::ColumnMap::parse(&self.columns).map_err(input::ColumnsError::Mapping)?;
-        let columns = self.reading.apply(columns)?;
-        let mut table = input::read_table(&self.data, &columns)?;
+        Ok(self.reading.apply(columns)?)
+    }
+
+    /// The model, checked against the fit folder's record, and the subjects it was not fitted
+    /// to there.
+    fn fitted_model(
+        &self,
+    ) -> Result<(crate::model::Model, std::collections::HashSet<String>), Box<dyn std::error::Error>>
+    {
         let model = crate::model::load_model(self.model.trim())?;
         if !crate::exports::check_recorded_model(&self.fits, &model)? {
             eprintln!(
@@ -480,17 +556,27 @@ impl FittedRun {
         let skipped = RunRecord::if_readable(&self.fits)
             .map(|record| record.not_fitted_with(&model.name))
             .unwrap_or_default();
-        let before = table.subjects.len();
-        table.subjects.retain(|s| !skipped.contains(&s.id));
-        if table.subjects.len() < before {
+        Ok((model, skipped))
+    }
+
+    /// Leaves out of `subjects` those in `skipped`, with a note; refuses when none is left.
+    fn keep_fitted<S: AsRef<str>>(
+        &self,
+        model: &crate::model::Model,
+        skipped: &std::collections::HashSet<String>,
+        subjects: &mut Vec<S>,
+    ) -> Result<(), Box<dyn std::error::Error>> {
+        let before = subjects.len();
+        subjects.retain(|s| !skipped.contains(s.as_ref()));
+        if subjects.len() < before {
             eprintln!(
                 "note: {} of {before} subjects were not fitted with model {} ({RUN_RECORD} lists \
                  why under `skipped`); they are left out",
-                before - table.subjects.len(),
+                before - subjects.len(),
                 model.name
             );
         }
-        if table.subjects.is_empty() {
+        if subjects.is_empty() {
             return Err(format!(
                 "{}: no subject of {} was fitted with model {}",
                 self.fits.display(),
@@ -499,12 +585,7 @@ impl FittedRun {
             )
             .into());
         }
-        let estimates = crate::exports::read_estimates(
-            &self.estimates.estimates.parameters_file(&self.fits),
-            &model,
-            &table.subjects,
-        )?;
-        Ok((table, model, estimates))
+        Ok(())
     }
 }
 

@@ -195,6 +195,38 @@ impl Subject {
     }
 }
 
+/// A subject's label and group, without its trials (what outputs about subjects need when the
+/// trials are read a part at a time).
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct SubjectLabel {
+    /// Participant label.
+    pub id: String,
+    /// Group label (empty string when the file has no `group` column).
+    pub group: String,
+}
+
+impl AsRef<str> for SubjectLabel {
+    fn as_ref(&self) -> &str {
+        &self.id
+    }
+}
+
+impl AsRef<str> for Subject {
+    fn as_ref(&self) -> &str {
+        &self.id
+    }
+}
+
+impl Subject {
+    /// The subject's label and group.
+    pub fn label(&self) -> SubjectLabel {
+        SubjectLabel {
+            id: self.id.clone(),
+            group: self.group.clone(),
+        }
+    }
+}
+
 /// A whole trial table.
 #[derive(Clone, Debug, PartialEq)]
 pub struct TrialTable {

@@ -2,7 +2,7 @@
 //! description label of a model, dataset_description.json, participants.tsv, README and
 //! .bidsignore.
 
-use crate::data::Subject;
+use crate::data::{Subject, SubjectLabel};
 use crate::model::Model;
 use crate::results::{Column, Table};
 use std::collections::HashMap;
@@ -39,17 +39,18 @@ pub fn dataset_description(model: &Model, caution: &str) -> serde_json::Value {
 
 /// BIDS labels of all subjects, in order; an error when a label would be empty or two subjects
 /// would share one.
-pub fn bids_labels(subjects: &[Subject]) -> Result<Vec<String>, BidsLabelError> {
+pub fn bids_labels<S: AsRef<str>>(subjects: &[S]) -> Result<Vec<String>, BidsLabelError> {
     let mut labels: Vec<String> = Vec::with_capacity(subjects.len());
     let mut owner: HashMap<String, &str> = HashMap::new();
     for s in subjects {
-        let label = bids_label(&s.id).ok_or_else(|| BidsLabelError::Empty {
-            subject: s.id.clone(),
+        let id = s.as_ref();
+        let label = bids_label(id).ok_or_else(|| BidsLabelError::Empty {
+            subject: id.to_string(),
         })?;
-        if let Some(other) = owner.insert(label.clone(), &s.id) {
+        if let Some(other) = owner.insert(label.clone(), id) {
             return Err(BidsLabelError::Shared {
                 first: other.to_string(),
-                second: s.id.clone(),
+                second: id.to_string(),
                 label,
             });
         }
@@ -134,7 +135,7 @@ pub fn desc_label(model_name: &str) -> String {
 /// The `participants.tsv` of the derivative dataset: `participant_id` (`sub-<label>`), the
 /// `subject` label of the trial table it stands for (labels keep letters and digits only, so
 /// they may differ) and the `group`.
-pub fn participants_table(subjects: &[Subject], labels: &[String]) -> Table {
+pub fn participants_table(subjects: &[SubjectLabel], labels: &[String]) -> Table {
     Table::default()
         .with(
             "participant_id",

@@ -1,7 +1,6 @@
 //! A fit folder's estimates read back for a model: parameters.csv (or eb_parameters.csv) and the
 //! model definition recorded in run.json, checked against the model given.
 
-use crate::data::Subject;
 use crate::files::InputError;
 use crate::model::Model;
 use crate::results::fit_folder::RunRecord;
@@ -15,7 +14,7 @@ use std::path::Path;
 pub fn read_estimates(
     path: &Path,
     model: &Model,
-    subjects: &[Subject],
+    subjects: &[impl AsRef<str>],
 ) -> Result<Vec<Vec<f64>>, InputError> {
     // subject → parameter slot → estimate
     let mut found: HashMap<String, HashMap<usize, f64>> = HashMap::new();
@@ -41,12 +40,13 @@ pub fn read_estimates(
     subjects
         .iter()
         .map(|s| {
-            let Some(estimates) = found.get(&s.id) else {
+            let id = s.as_ref();
+            let Some(estimates) = found.get(id) else {
                 return Err(InputError::file(
                     path,
                     format!(
                         "has no estimates of model {} for subject {} (was it fitted?)",
-                        model.name, s.id
+                        model.name, id
                     ),
                 ));
             };
@@ -61,7 +61,7 @@ pub fn read_estimates(
                         path,
                         format!(
                             "has no estimate of `{}` of model {} for subject {}",
-                            spec.name, model.name, s.id
+                            spec.name, model.name, id
                         ),
                     )),
                 })

@@ -3,6 +3,9 @@
 pub mod fit_folder;
 pub mod parameters_file;
 mod table_reader;
+mod table_writer;
+
+pub use table_writer::TableParts;
 
 pub use fit_folder::EstimateSource;
 
@@ -18,6 +21,17 @@ use polars_parquet::write::{
 };
 use std::io::Write;
 use std::path::Path;
+
+/// How every Parquet file is written: Snappy compression, format version 1, the default
+/// statistics.
+fn parquet_options() -> WriteOptions {
+    WriteOptions {
+        statistics: StatisticsOptions::default(),
+        compression: CompressionOptions::Snappy,
+        version: Version::V1,
+        data_page_size: None,
+    }
+}
 
 /// Text that parses back to exactly `x`, never longer than 24 characters: Rust's `{}` (the
 /// shortest round-trip digits, plain decimal) for 0 and for 10⁻⁵ ≤ |x| < 10¹⁶, where it is what
@@ -112,10 +126,16 @@ impl Table {
             .delimiter(delimiter)
             .from_writer(w);
         writer.write_record(self.columns.iter().map(|(n, _)| n))?;
+        self.write_rows(&mut writer)?;
+        writer.flush()?;
+        Ok(())
+    }
+
+    /// Writes the rows (no header) to a CSV writer.
+    fn write_rows<W: Write>(&self, writer: &mut csv::Writer<W>) -> Result<(), csv::Error> {
         for row in 0..self.rows() {
             writer.write_record(self.columns.iter().map(|(_, c)| c.cell(row)))?;
         }
-        writer.flush()?;
         Ok(())
     }
 
@@ -127,6 +147,16 @@ impl Table {
     /// schema polars' own writer embeds declares string views, which older readers reject:
     /// pyarrow 12.0.1 fails with "Unrecognized type: 24").
     pub fn write_parquet(&self, w: &mut dyn Write) -> Result<(), polars::error::PolarsError> {
+        let (schema, arrays) = self.arrow();
+        let mut writer = FileWriter::try_new(w, schema.clone(), parquet_options())?;
+        self.write_row_group(&mut writer, &schema, arrays)?;
+        // An empty key-value list instead of the default embedded Arrow schema (see above).
+        writer.end(Some(Vec::new()))?;
+        Ok(())
+    }
+
+    /// The columns as Arrow arrays, with their schema (nullable where a value may be missing).
+    fn arrow(&self) -> (ArrowSchema, Vec<Box<dyn Array>>) {
         let mut fields = Vec::with_capacity(self.columns.len());
         let mut arrays: Vec<Box<dyn Array>> = Vec::with_capacity(self.columns.len());
         for (name, column) in &self.columns {
@@ -150,26 +180,31 @@ impl Table {
             arrays.push(array);
         }
         let schema: ArrowSchema = fields.into_iter().map(|f| (f.name.clone(), f)).collect();
-        let options = WriteOptions {
-            statistics: StatisticsOptions::default(),
-            compression: CompressionOptions::Snappy,
-            version: Version::V1,
-            data_page_size: None,
-        };
+        (schema, arrays)
+    }
+
+    /// Writes `arrays` (this table's, from [`Table::arrow`]) as one row group.
+    fn write_row_group<W: Write>(
+        &self,
+        writer: &mut FileWriter<W>,
+        schema: &ArrowSchema,
+        arrays: Vec<Box<dyn Array>>,
+    ) -> Result<(), polars::error::PolarsError> {
         let encodings = schema
             .iter_values()
             .map(|f| get_dtype_encoding(&f.dtype))
             .collect();
         let batch =
             RecordBatchT::try_new(self.rows(), std::sync::Arc::new(schema.clone()), arrays)?;
-        let row_groups =
-            RowGroupIterator::try_new(std::iter::once(Ok(batch)), &schema, options, encodings)?;
-        let mut writer = FileWriter::try_new(w, schema, options)?;
+        let row_groups = RowGroupIterator::try_new(
+            std::iter::once(Ok(batch)),
+            schema,
+            parquet_options(),
+            encodings,
+        )?;
         for group in row_groups {
             writer.write(self.rows() as u64, group?)?;
         }
-        // An empty key-value list instead of the default embedded Arrow schema (see above).
-        writer.end(Some(Vec::new()))?;
         Ok(())
     }
 

@@ -583,7 +583,7 @@ fn export_writes_latents_and_bids_events_files() {
     assert!(with_task("orchard", &tasked).status.success());
     assert!(
         tasked
-            .join("sub-01/func/sub-01_task-orchard_run-1_desc-gainlosslinear_events.tsv")
+            .join("sub-01/func/sub-01_task-choice_run-1_desc-gainlosslinear_events.tsv")
             .is_file()
     );
     let refused = dir.path().join("refused");
@@ -961,5 +961,121 @@ fn tr_without_scans_or_a_bad_tr_is_an_error_and_writes_nothing() {
         assert!(!run.status.success(), "{args:?}");
         assert!(stderr.contains(message), "{args:?}: {stderr}");
         assert!(!out.exists(), "{args:?}: nothing is written on error");
+    }
+}
+
+#[test]
+fn export_streamed_in_parts_gives_each_subject_its_own_latents() {
+    // The trial table is read and exported a few hundred subjects at a time; a table of 600
+    // subjects (the 40 demo participants, each copied 15 times under new labels with the same
+    // estimates) spans several parts. Every copy must get exactly its original's latents and
+    // events files, and the Parquet table (one row group per part) must hold the CSV's rows
+    // (common practice: streaming changes nothing).
+    let dir = tempfile::tempdir().unwrap();
+    let demo = std::fs::read_to_string(common::demo_file("orchard_trials.csv")).unwrap();
+    let generating = std::fs::read_to_string(common::demo_file("generating_values.csv")).unwrap();
+    let (header, rows) = demo.split_once('\n').unwrap();
+    let (names, values) = generating.split_once('\n').unwrap();
+    let names: Vec<&str> = names.split(',').collect();
+    let copies = 15;
+    let mut data = format!("{header}\n");
+    let mut parameters = String::from("subject,group,model,parameter,estimate\n");
+    for copy in 0..copies {
+        for row in rows.lines() {
+            data.push_str(&format!("c{copy:02}{row}\n"));
+        }
+        for line in values.lines() {
+            let cells: Vec<&str> = line.split(',').collect();
+            for (name, value) in names.iter().zip(&cells).skip(2) {
+                parameters.push_str(&format!(
+                    "c{copy:02}{},{},gainloss-linear,{name},{value}\n",
+                    cells[0], cells[1]
+                ));
+            }
+        }
+    }
+    let data_path = dir.path().join("copies.csv");
+    std::fs::write(&data_path, data).unwrap();
+    let fits = dir.path().join("fits");
+    std::fs::create_dir_all(&fits).unwrap();
+    std::fs::write(fits.join("parameters.csv"), parameters).unwrap();
+    // The original table with the original labels, in one part.
+    let single_fits = dir.path().join("single-fits");
+    std::fs::create_dir_all(&single_fits).unwrap();
+    let single = std::fs::read_to_string(fits.join("parameters.csv"))
+        .unwrap()
+        .lines()
+        .filter(|l| !l.starts_with('c') || l.starts_with("c00"))
+        .map(|l| format!("{}\n", l.strip_prefix("c00").unwrap_or(l)))
+        .collect::<String>();
+    std::fs::write(single_fits.join("parameters.csv"), single).unwrap();
+    let export = |fits: &Path, data: &Path, out: &Path| {
+        let output = binary()
+            .args(["export", "--model", "gainloss-linear", "--fits"])
+            .arg(fits)
+            .arg("--data")
+            .arg(data)
+            .arg("--out")
+            .arg(out)
+            .output()
+            .unwrap();
+        assert!(output.status.success(), "{output:?}");
+        let csv = std::fs::read_to_string(out.join("latents.csv")).unwrap();
+        let mut by_subject: HashMap<String, Vec<String>> = HashMap::new();
+        for line in csv.lines().skip(1) {
+            let (subject, rest) = line.split_once(',').unwrap();
+            by_subject
+                .entry(subject.to_string())
+                .or_default()
+                .push(rest.to_string());
+        }
+        (csv, by_subject)
+    };
+    let single_out = dir.path().join("single");
+    let (_, originals) = export(
+        &single_fits,
+        &common::demo_file("orchard_trials.csv"),
+        &single_out,
+    );
+    let out = dir.path().join("export");
+    let (csv, by_subject) = export(&fits, &data_path, &out);
+    let csv_header = csv.lines().next().unwrap();
+    assert_eq!(by_subject.len(), 40 * copies);
+    for (subject, rows) in &by_subject {
+        let original = &subject[3..];
+        assert_eq!(rows, &originals[original], "{subject} against {original}");
+        let events = |s: &str| {
+            let label = bids_label(s).unwrap();
+            let name = format!("sub-{label}_task-choice_run-1_desc-gainlosslinear_events.tsv");
+            std::fs::read_to_string(out.join(format!("sub-{label}/func/{name}"))).unwrap()
+        };
+        assert_eq!(
+            events(subject),
+            events(&format!("c00{original}")),
+            "{subject}"
+        );
+    }
+    use polars::prelude::SerReader;
+    let frame = polars::prelude::ParquetReader::new(
+        std::fs::File::open(out.join("latents.parquet")).unwrap(),
+    )
+    .finish()
+    .unwrap();
+    assert_eq!(frame.height(), csv.lines().count() - 1);
+    let columns: Vec<String> = frame
+        .get_column_names()
+        .iter()
+        .map(|c| c.to_string())
+        .collect();
+    assert_eq!(columns.join(","), csv_header);
+    let subjects = frame.column("subject").unwrap().str().unwrap().clone();
+    let trials = frame.column("trial").unwrap().i64().unwrap().clone();
+    for (k, line) in csv.lines().skip(1).enumerate().step_by(997) {
+        let cells: Vec<&str> = line.split(',').collect();
+        assert_eq!(subjects.get(k), Some(cells[0]), "row {k}");
+        assert_eq!(
+            trials.get(k).map(|t| t.to_string()).as_deref(),
+            Some(cells[3])
+        );
     }
 }

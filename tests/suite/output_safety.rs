@@ -370,12 +370,12 @@ fn progress_lines_appear_when_stderr_is_a_file() {
         .unwrap();
     assert!(status.success());
     let log = std::fs::read_to_string(dir.path().join("log")).unwrap();
-    // 40 subjects in the demo data (demo-data/README.md), so the final line of the subjects step
-    // reads 40/40; 80 runs give 160 events and design files (two per run).
-    for (what, total) in [
-        ("exporting: latents of subjects", 40),
-        ("exporting: events and design files", 160),
-    ] {
+    // 40 subjects in the demo data (demo-data/README.md), so the final line of the export's one
+    // step (each subject's latents, events and design files together) reads 40/40.
+    for (what, total) in [(
+        "exporting: latents, events and design files of subjects",
+        40,
+    )] {
         let line = log
             .lines()
             .find(|l| l.starts_with(&format!("progress: {what} {total}/{total} ")))
