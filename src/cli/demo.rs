@@ -79,6 +79,7 @@ pub fn run(
             }),
             screen: crate::data::ScreenSettings::default(),
             shard: None,
+            from_shards: None,
         },
         command_line,
     )?;

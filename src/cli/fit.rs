@@ -37,8 +37,22 @@ pub struct FitRun<'a> {
     pub hierarchical: Option<Hierarchical>,
     /// The data screen's settings (fast floor, trimming).
     pub screen: ScreenSettings,
-    /// Fit only this shard's subjects (`--shard I/N`; per-subject fits only).
+    /// Fit only this shard's subjects (`--shard I/N`; with `--hierarchical` the per-subject
+    /// fits only, and each fit's unconstrained optimum for the EM that `merge` runs).
     pub shard: Option<Shard>,
+    /// The per-subject fits of every shard of this run, gathered by `merge`: used instead of
+    /// fitting, so that the EM of `--hierarchical` starts from exactly the shards' fits.
+    pub from_shards: Option<FromShards>,
+}
+
+/// The per-subject fits and pairs not fitted of all shards of a run, in a single run's order.
+pub struct FromShards {
+    /// Successful fits in (model, subject) order.
+    pub fits: Vec<SubjectFit>,
+    /// Pairs that could not be fitted, in (model, subject) order.
+    pub skipped: Vec<Skipped>,
+    /// `merge --replace`: replace an existing result (the shards' own option is not used).
+    pub replace: bool,
 }
 
 /// Settings of the empirical-Bayes fit.
@@ -209,16 +223,22 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
     if let Some(shard) = run.shard {
         shard.restrict(&mut table, &mut screened);
     }
-    let bar = Progress::new("fitting", super::input::screened_jobs(&screened));
-    let (fits, skipped) = super::input::fit_screened(
-        &models,
-        &table,
-        &screened,
-        &run.options,
-        run.threads,
-        &|| bar.inc(),
-    )?;
-    bar.finish();
+    let (fits, skipped) = match run.from_shards {
+        Some(done) => (done.fits, done.skipped),
+        None => {
+            let bar = Progress::new("fitting", super::input::screened_jobs(&screened));
+            let fitted = super::input::fit_screened(
+                &models,
+                &table,
+                &screened,
+                &run.options,
+                run.threads,
+                &|| bar.inc(),
+            )?;
+            bar.finish();
+            fitted
+        }
+    };
     // A shard may hold no subject, or only subjects that cannot be fitted: `merge` judges the
     // whole run.
     if fits.is_empty() && run.shard.is_none() {
@@ -230,7 +250,8 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         return Err(format!("no subject could be fitted ({})", reasons.join("; ")).into());
     }
     let mut groups = Vec::new();
-    if let Some(settings) = &run.hierarchical {
+    // A shard's EM waits for `merge`, which has every subject's fit.
+    if let Some(settings) = run.hierarchical.as_ref().filter(|_| run.shard.is_none()) {
         let spinner = crate::progress::Iterations::new(
             "empirical Bayes: EM iterations of",
             settings.em.max_iterations,
@@ -332,36 +353,10 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
                 "table": fit_folder::EB_PRIOR_REGRESSION.csv(),
             });
         }
-        let shrunken: Vec<SubjectFit> = groups.iter().flat_map(|g| g.subjects.clone()).collect();
-        stage_estimates(
-            &mut outputs,
-            run.out,
-            &shrunken,
-            EstimateSource::EmpiricalBayes,
-        )?;
-        group_prior_table(&groups).stage_both(
-            &mut outputs,
-            run.out,
-            fit_folder::EB_GROUP_PRIORS.stem,
-        )?;
-        group_evidence_table(&groups).stage_both(
-            &mut outputs,
-            run.out,
-            fit_folder::EB_MODEL_EVIDENCE.stem,
-        )?;
-        if !settings.covariates.is_empty() {
-            prior_regression_table(&groups).stage_both(
-                &mut outputs,
-                run.out,
-                fit_folder::EB_PRIOR_REGRESSION.stem,
-            )?;
-        }
-        if settings.em.full_covariance {
-            group_correlation_table(&groups).stage_both(
-                &mut outputs,
-                run.out,
-                fit_folder::EB_GROUP_CORRELATIONS.stem,
-            )?;
+        if run.shard.is_some() {
+            shard::stage_em_starts(&mut outputs, run.out, &fits)?;
+        } else {
+            stage_group_tables(&mut outputs, run.out, settings, &groups)?;
         }
     }
     outputs.stage(&run.out.join(fit_folder::RUN_RECORD), |w| {
@@ -375,6 +370,34 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         skipped,
         groups,
     })
+}
+
+/// Stages the tables of the empirical-Bayes fits `groups` in `dir`.
+fn stage_group_tables(
+    outputs: &mut OutputSet,
+    dir: &Path,
+    settings: &Hierarchical,
+    groups: &[GroupFit],
+) -> Result<(), crate::files::OutputError> {
+    let shrunken: Vec<SubjectFit> = groups.iter().flat_map(|g| g.subjects.clone()).collect();
+    stage_estimates(outputs, dir, &shrunken, EstimateSource::EmpiricalBayes)?;
+    group_prior_table(groups).stage_both(outputs, dir, fit_folder::EB_GROUP_PRIORS.stem)?;
+    group_evidence_table(groups).stage_both(outputs, dir, fit_folder::EB_MODEL_EVIDENCE.stem)?;
+    if !settings.covariates.is_empty() {
+        prior_regression_table(groups).stage_both(
+            outputs,
+            dir,
+            fit_folder::EB_PRIOR_REGRESSION.stem,
+        )?;
+    }
+    if settings.em.full_covariance {
+        group_correlation_table(groups).stage_both(
+            outputs,
+            dir,
+            fit_folder::EB_GROUP_CORRELATIONS.stem,
+        )?;
+    }
+    Ok(())
 }
 
 /// Stages the estimate tables of `fits` in `dir` under the names of `source`: the parameters

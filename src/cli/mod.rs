@@ -144,7 +144,8 @@ pub enum Command {
         covariates_as_given: bool,
         /// Fit only shard I of N (e.g. --shard 3/8, one job of a cluster array): the subjects
         /// whose label hashes to shard I. `valuedrift merge` combines the N folders into the
-        /// folder a single run writes. Not yet with --hierarchical.
+        /// folder a single run writes. With --hierarchical the shards fit their subjects and
+        /// `merge` runs the EM steps (which need every subject) on one node.
         #[arg(long, value_name = "I/N")]
         shard: Option<String>,
         /// Whether an existing result may be replaced.
@@ -537,6 +538,16 @@ pub fn group_column(fits: &std::path::Path, by: &str) -> String {
 /// Runs the parsed command.
 pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
     let command_line: Vec<String> = std::env::args().collect();
+    run_as(cli, &command_line, None)
+}
+
+/// Runs the command `cli` parsed from `command_line`; a fit takes its per-subject fits from
+/// `from_shards` when given (the EM step of `merge`, see [`merge`]).
+fn run_as(
+    cli: Cli,
+    command_line: &[String],
+    from_shards: Option<fit::FromShards>,
+) -> Result<(), Box<dyn std::error::Error>> {
     match cli.command {
         Command::Demo {
             out,
@@ -546,7 +557,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             &out,
             input::check_threads(threads)?,
             replace.replace,
-            &command_line,
+            command_line,
         ),
         Command::Fit {
             data,
@@ -572,13 +583,6 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             screen,
         } => {
             let shard = shard.as_deref().map(shard::Shard::parse).transpose()?;
-            if shard.is_some() && hierarchical {
-                return Err(
-                    "--shard with --hierarchical is not supported yet: the group priors \
-                            need every subject at once; fit without --shard"
-                        .into(),
-                );
-            }
             let columns = reading.apply(fit::column_map(&columns, by.as_deref())?)?;
             let starts = input::check_at_least("--starts", starts, 1, "start per subject")?;
             let threads = input::check_threads(threads)?;
@@ -601,7 +605,8 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 data: &data,
                 models: &model,
                 out: &out,
-                replace: replace.replace,
+                // merge's own --replace decides for the folder it writes.
+                replace: from_shards.as_ref().map_or(replace.replace, |f| f.replace),
                 options: crate::fit::FitOptions {
                     starts,
                     seed,
@@ -626,8 +631,9 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 }),
                 screen,
                 shard,
+                from_shards,
             };
-            let fitted = fit::run(run, &command_line)?;
+            let fitted = fit::run(run, command_line)?;
             fit::print_summary(&fitted);
             fit::print_diagnostics(&fitted.fits, &fitted.models, &out);
             fit::print_group_summary(&fitted.groups);
@@ -739,7 +745,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             &out,
             input::check_threads(threads)?,
             replace.replace,
-            &command_line,
+            command_line,
         )
         .map(|_| ()),
         Command::Report {
