@@ -84,6 +84,9 @@ fn check_data(record: &Value) -> Result<(), String> {
     Ok(())
 }
 
+/// A covariance cell (i, j, value) of [`shard::EM_STARTS`].
+type Cell = (usize, usize, f64);
+
 /// The per-subject fits of the fit summary `summary` (rows in a single run's order), with their
 /// estimates from `parameters` and θ and its covariance from `starts`.
 fn fits_from_tables(
@@ -104,7 +107,7 @@ fn fits_from_tables(
     );
     let value = starts.numbers("value").unwrap_or_default();
     let mut theta: HashMap<(&str, &str), Vec<f64>> = HashMap::new();
-    let mut entries: HashMap<(&str, &str), Vec<(usize, usize, f64)>> = HashMap::new();
+    let mut entries: HashMap<(&str, &str), Vec<Cell>> = HashMap::new();
     for r in 0..starts.rows() {
         let fit = (subject[r].as_str(), model[r].as_str());
         let v = value[r].unwrap_or(f64::NAN);
