@@ -200,6 +200,9 @@ pub fn run(
             condition: None,
         },
         by: None,
+        shard: None,
+        from_shards: None,
+        command_line,
     })?;
     let report = crate::report::build(
         &crate::report::ReportInputs {

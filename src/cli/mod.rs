@@ -236,6 +236,12 @@ pub enum Command {
         /// quantiles per level, with a `level` column in the tables.
         #[arg(long)]
         by: Option<String>,
+        /// Check only shard I of N of the subjects (e.g. --shard 3/8, one job of a cluster
+        /// array; the subjects whose label hashes to shard I, as for `fit --shard`). The folder
+        /// holds the shard's replicate statistics (shard_checks.csv) and run.json;
+        /// `valuedrift merge` pools the N folders into the folder a single check writes.
+        #[arg(long, value_name = "I/N")]
+        shard: Option<String>,
     },
     /// Compare one model's fitted parameters between groups of subjects: per free parameter,
     /// Welch's t test (Welch 1947), Mann-Whitney U (normal approximation with tie and continuity
@@ -541,12 +547,47 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
     run_as(cli, &command_line, None)
 }
 
-/// Runs the command `cli` parsed from `command_line`; a fit takes its per-subject fits from
-/// `from_shards` when given (the EM step of `merge`, see [`merge`]).
+/// What `merge` gathered from the shards of a run, used by the run's own command in place of
+/// the per-subject work (see [`merge`]).
+enum ShardResults {
+    /// The per-subject fits of `fit --hierarchical --shard`.
+    Fit(fit::FromShards),
+    /// The per-subject checks of `check --shard`.
+    Check(check::FromShards),
+}
+
+impl ShardResults {
+    /// The fits, if these are fits.
+    fn fit(self) -> Option<fit::FromShards> {
+        match self {
+            ShardResults::Fit(f) => Some(f),
+            ShardResults::Check(_) => None,
+        }
+    }
+
+    /// The checks, if these are checks.
+    fn check(self) -> Option<check::FromShards> {
+        match self {
+            ShardResults::Check(c) => Some(c),
+            ShardResults::Fit(_) => None,
+        }
+    }
+
+    /// `merge --replace`: the merged folder may replace an existing result.
+    fn replace(&self) -> bool {
+        match self {
+            ShardResults::Fit(f) => f.replace,
+            ShardResults::Check(c) => c.replace,
+        }
+    }
+}
+
+/// Runs the command `cli` parsed from `command_line`; with `from_shards` (from `merge`), the
+/// command takes its per-subject results from them instead of computing them.
 fn run_as(
     cli: Cli,
     command_line: &[String],
-    from_shards: Option<fit::FromShards>,
+    from_shards: Option<ShardResults>,
 ) -> Result<(), Box<dyn std::error::Error>> {
     match cli.command {
         Command::Demo {
@@ -606,7 +647,9 @@ fn run_as(
                 models: &model,
                 out: &out,
                 // merge's own --replace decides for the folder it writes.
-                replace: from_shards.as_ref().map_or(replace.replace, |f| f.replace),
+                replace: from_shards
+                    .as_ref()
+                    .map_or(replace.replace, ShardResults::replace),
                 options: crate::fit::FitOptions {
                     starts,
                     seed,
@@ -631,7 +674,7 @@ fn run_as(
                 }),
                 screen,
                 shard,
-                from_shards,
+                from_shards: from_shards.and_then(ShardResults::fit),
             };
             let fitted = fit::run(run, command_line)?;
             fit::print_summary(&fitted);
@@ -665,6 +708,7 @@ fn run_as(
             seed,
             deadline,
             by,
+            shard,
         } => check::run(check::CheckRun {
             input: &input,
             settings: crate::check::CheckSettings {
@@ -675,6 +719,9 @@ fn run_as(
                 condition: None,
             },
             by,
+            shard: shard.as_deref().map(shard::Shard::parse).transpose()?,
+            from_shards: from_shards.and_then(ShardResults::check),
+            command_line,
         }),
         Command::Contrast {
             fits,

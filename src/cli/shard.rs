@@ -74,7 +74,7 @@ impl Shard {
 }
 
 /// Keeps the items of `items` whose flag in `keep` is set.
-fn kept<T>(items: &mut Vec<T>, keep: &[bool]) {
+pub fn kept<T>(items: &mut Vec<T>, keep: &[bool]) {
     let mut flags = keep.iter();
     items.retain(|_| *flags.next().expect("one flag per item"));
 }

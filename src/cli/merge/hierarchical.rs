@@ -12,7 +12,7 @@
 //! path (checked against the recorded checksum), the memory of a single run's EM, and the EM's
 //! time (every E-step refits each subject's posterior mode, in parallel on `--threads`).
 
-use super::record::{ShardFolder, strings};
+use super::record::{ShardFolder, check_data, strings};
 use super::{estimates_by_fit, read_all};
 use crate::cli::fit::FromShards;
 use crate::cli::shard::{self, em_starts_table};
@@ -22,7 +22,6 @@ use crate::results::Table;
 use crate::results::fit_folder::{self, Scored, key};
 use clap::Parser;
 use serde_json::Value;
-use sha2::{Digest, Sha256};
 use std::collections::HashMap;
 
 /// Runs the EM steps of the shards' fit command into the folder recorded in `record` (the merged
@@ -55,33 +54,12 @@ pub(super) fn run(
     crate::cli::run_as(
         cli,
         &line,
-        Some(FromShards {
+        Some(crate::cli::ShardResults::Fit(FromShards {
             fits,
             skipped,
             replace,
-        }),
+        })),
     )
-}
-
-/// Refuses a trial table that is missing at the recorded path or has changed since the shards
-/// read it (its SHA-256 differs from the recorded one).
-fn check_data(record: &Value) -> Result<(), String> {
-    let path = record["data"]["path"].as_str().unwrap_or_default();
-    let recorded = record["data"]["sha256"].as_str().unwrap_or_default();
-    let bytes = std::fs::read(path).map_err(|e| {
-        format!(
-            "{path}: the trial table the shards fitted cannot be read ({e}); the EM steps of \
-             --hierarchical read it again: run merge where the shards' --data path leads to it"
-        )
-    })?;
-    let found = format!("{:x}", Sha256::digest(&bytes));
-    if found != recorded {
-        return Err(format!(
-            "{path}: SHA-256 {found}, but the shards fitted a file with SHA-256 {recorded}: the \
-             trial table has changed since the shards were fitted"
-        ));
-    }
-    Ok(())
 }
 
 /// A covariance cell (i, j, value) of [`shard::EM_STARTS`].

@@ -18,6 +18,7 @@ use record::{ShardFolder, merged_record, read_shards, strings};
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 
+mod check;
 mod hierarchical;
 mod record;
 
@@ -25,6 +26,9 @@ mod record;
 pub fn run(dirs: &[PathBuf], out: &Path, replace: bool) -> Result<(), Box<dyn std::error::Error>> {
     let shards = read_shards(dirs)?;
     let first = &shards[0];
+    if first.record["command"] == super::check::COMMAND {
+        return check::run(&shards, out, replace);
+    }
     let order = Order::of(first)?;
     let screen_columns = screen_template(&order.models);
     let screens = read_all(&shards, fit_folder::DATA_SCREEN, &screen_columns)?;

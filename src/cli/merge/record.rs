@@ -6,6 +6,7 @@ use crate::cli::shard::{self, Shard};
 use crate::files::InputError;
 use crate::results::fit_folder::{self, key};
 use serde_json::Value;
+use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
 
 /// A shard's folder and its run record.
@@ -36,7 +37,7 @@ pub(super) fn read_shards(
             return Err(InputError::file(
                 &path,
                 "has no shard entry with 1 ≤ index ≤ count: expected the folder of \
-                 `valuedrift fit --shard I/N`",
+                 `valuedrift fit --shard I/N` or `check --shard I/N`",
             )
             .into());
         };
@@ -192,4 +193,25 @@ pub(super) fn merged_record(
         serde_json::json!({ "below": total("below"), "above": total("above") });
     record["data_screen"]["trimmed_per_subject"] = Value::Array(trimmed);
     record
+}
+
+/// Refuses a trial table that is missing at the recorded path or has changed since the shards
+/// read it (its SHA-256 differs from the recorded one).
+pub(super) fn check_data(record: &Value) -> Result<(), String> {
+    let path = record["data"]["path"].as_str().unwrap_or_default();
+    let recorded = record["data"]["sha256"].as_str().unwrap_or_default();
+    let bytes = std::fs::read(path).map_err(|e| {
+        format!(
+            "{path}: the trial table the shards read cannot be read ({e}); merge reads it again \
+             (for the EM steps of --hierarchical, or a check): run merge where the shards' --data path leads to it"
+        )
+    })?;
+    let found = format!("{:x}", Sha256::digest(&bytes));
+    if found != recorded {
+        return Err(format!(
+            "{path}: SHA-256 {found}, but the shards read a file with SHA-256 {recorded}: the \
+             trial table has changed since the shards ran"
+        ));
+    }
+    Ok(())
 }
