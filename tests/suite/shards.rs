@@ -224,3 +224,114 @@ fn merge_refuses_shards_of_different_runs_and_names_missing_ones() {
         &["data_screen.csv", "does not hold this shard's fit"],
     );
 }
+
+/// `merge` of `folders` into `out`, asserting that it succeeded.
+fn merged(folders: &[PathBuf], out: &Path) {
+    let output = merge(folders, out);
+    assert!(
+        output.status.success(),
+        "{}",
+        String::from_utf8_lossy(&output.stderr)
+    );
+}
+
+#[test]
+fn hierarchical_fit_from_merged_shards_equals_a_single_run() {
+    // One group prior per group of the demo (two cohorts, source: demo-data/README.md): the
+    // shards fit their subjects, merge runs the EM steps from exactly those fits (common
+    // practice: the EM needs every subject each iteration, so it runs on one node).
+    let dir = tempfile::tempdir().unwrap();
+    let options = ["--hierarchical", "--by", "group"];
+    let out = dir.path().join("fit");
+    succeed(&mut fit(&out, &options));
+    let single = contents(&out);
+    assert!(single.contains_key(Path::new("eb_group_priors.csv")));
+    std::fs::remove_dir_all(&out).unwrap();
+    let folders = shards(&dir.path().join("shards"), 3, &options);
+    // A shard runs no EM: it has no group tables, only its fits and their optima.
+    assert!(!folders[0].join("eb_group_priors.csv").exists());
+    assert!(folders[0].join("shard_em_starts.csv").exists());
+    merged(&folders, &out);
+    assert_same_files(&single, &contents(&out), "3 hierarchical shards");
+}
+
+/// `check` of the fit in `fits` (demo data, the demo's model) with 20 replicates into `out`,
+/// with `extra` options.
+fn check(fits: &Path, out: &Path, extra: &[&str]) -> Command {
+    let mut command = bin();
+    command
+        .args(["check", "--fits", fits.to_str().unwrap(), "--data"])
+        .arg(demo_file("orchard_trials.csv"))
+        .args(["--model", MODEL, "--sims", "20"])
+        .args(["--out", out.to_str().unwrap()])
+        .args(extra);
+    command
+}
+
+/// Checks shards 1..=n of the fit in `fits` into `dir`/shard-<i> with `extra` options.
+fn check_shards(fits: &Path, dir: &Path, n: usize, extra: &[&str]) -> Vec<PathBuf> {
+    (1..=n)
+        .map(|i| {
+            let out = dir.join(format!("shard-{i}"));
+            let shard = format!("{i}/{n}");
+            let mut options = vec!["--shard", shard.as_str()];
+            options.extend_from_slice(extra);
+            succeed(&mut check(fits, &out, &options));
+            out
+        })
+        .collect()
+}
+
+#[test]
+fn merged_check_shards_equal_a_single_check_byte_for_byte() {
+    // Pooled statistics and figures need every subject's replicates: the shards keep them and
+    // merge pools them (common practice: byte-identity with a single run).
+    let dir = tempfile::tempdir().unwrap();
+    let fits = dir.path().join("fit");
+    succeed(&mut fit(&fits, &[]));
+    let out = dir.path().join("check");
+    succeed(&mut check(&fits, &out, &[]));
+    let single = contents(&out);
+    assert!(single.contains_key(Path::new("check_choices.svg")));
+    assert!(single.contains_key(Path::new("run.json")));
+    std::fs::remove_dir_all(&out).unwrap();
+    for n in [1, 3] {
+        let mut folders = check_shards(&fits, &dir.path().join(format!("{n}-shards")), n, &[]);
+        folders.reverse();
+        merged(&folders, &out);
+        assert_same_files(&single, &contents(&out), &format!("{n} check shards"));
+        std::fs::remove_dir_all(&out).unwrap();
+    }
+}
+
+#[test]
+fn merge_refuses_mixed_and_foreign_check_shards_and_names_missing_ones() {
+    let dir = tempfile::tempdir().unwrap();
+    let fits = dir.path().join("fit");
+    succeed(&mut fit(&fits, &[]));
+    let seed_1 = check_shards(&fits, &dir.path().join("seed-1"), 3, &[]);
+    let seed_2 = check_shards(&fits, &dir.path().join("seed-2"), 3, &["--seed", "2"]);
+    let fit_shards = shards(&dir.path().join("fit-shards"), 3, &[]);
+    let out = dir.path().join("merged");
+    let refused = |folders: &[PathBuf], needles: &[&str]| {
+        let output = merge(folders, &out);
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(!output.status.success(), "merged: {folders:?}");
+        for needle in needles {
+            assert!(stderr.contains(needle), "{needle:?} not in: {stderr}");
+        }
+        assert!(!out.exists(), "an output was written for {folders:?}");
+    };
+    refused(
+        &[seed_1[0].clone(), seed_2[1].clone(), seed_1[2].clone()],
+        &["not shards of one run", "seed"],
+    );
+    refused(
+        &[seed_1[0].clone(), fit_shards[1].clone(), seed_1[2].clone()],
+        &["not shards of one run", "command"],
+    );
+    refused(
+        &[seed_1[1].clone(), seed_1[2].clone()],
+        &["shard 1 of 3 is missing"],
+    );
+}
