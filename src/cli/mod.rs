@@ -371,6 +371,12 @@ pub enum Command {
         /// Threads (0: all cores); results do not depend on it.
         #[arg(long, default_value_t = 0)]
         threads: usize,
+        /// Simulate only shard I of N of the studies (e.g. --shard 3/8, one job of a cluster
+        /// array; studies dealt to the shards in turn, in plan order). The folder holds the
+        /// shard's studies (shard_studies.csv) and plan.json; `valuedrift merge` summarises the
+        /// N folders into the folder a single plan writes.
+        #[arg(long, value_name = "I/N")]
+        shard: Option<String>,
         /// Whether an existing result may be replaced.
         #[command(flatten)]
         replace: ReplaceArg,
@@ -554,6 +560,8 @@ enum ShardResults {
     Fit(fit::FromShards),
     /// The per-subject checks of `check --shard`.
     Check(check::FromShards),
+    /// The studies of `plan --shard`.
+    Plan(plan::FromShards),
 }
 
 impl ShardResults {
@@ -561,7 +569,7 @@ impl ShardResults {
     fn fit(self) -> Option<fit::FromShards> {
         match self {
             ShardResults::Fit(f) => Some(f),
-            ShardResults::Check(_) => None,
+            _ => None,
         }
     }
 
@@ -569,7 +577,15 @@ impl ShardResults {
     fn check(self) -> Option<check::FromShards> {
         match self {
             ShardResults::Check(c) => Some(c),
-            ShardResults::Fit(_) => None,
+            _ => None,
+        }
+    }
+
+    /// The studies, if these are studies.
+    fn plan(self) -> Option<plan::FromShards> {
+        match self {
+            ShardResults::Plan(p) => Some(p),
+            _ => None,
         }
     }
 
@@ -578,6 +594,7 @@ impl ShardResults {
         match self {
             ShardResults::Fit(f) => f.replace,
             ShardResults::Check(c) => c.replace,
+            ShardResults::Plan(p) => p.replace,
         }
     }
 }
@@ -786,6 +803,7 @@ fn run_as(
             plan: file,
             out,
             threads,
+            shard,
             replace,
         } => plan::run(
             &file,
@@ -793,6 +811,10 @@ fn run_as(
             input::check_threads(threads)?,
             replace.replace,
             command_line,
+            (
+                shard.as_deref().map(shard::Shard::parse).transpose()?,
+                from_shards.and_then(ShardResults::plan),
+            ),
         )
         .map(|_| ()),
         Command::Report {

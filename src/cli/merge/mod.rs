@@ -20,6 +20,7 @@ use std::path::{Path, PathBuf};
 
 mod check;
 mod hierarchical;
+mod plan;
 mod record;
 
 /// Merges the shard folders `dirs` into `out`.
@@ -28,6 +29,9 @@ pub fn run(dirs: &[PathBuf], out: &Path, replace: bool) -> Result<(), Box<dyn st
     let first = &shards[0];
     if first.record["command"] == super::check::COMMAND {
         return check::run(&shards, out, replace);
+    }
+    if first.record.get("plan").is_some() {
+        return plan::run(&shards, out, replace);
     }
     let order = Order::of(first)?;
     let screen_columns = screen_template(&order.models);

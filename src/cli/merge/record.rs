@@ -23,7 +23,13 @@ pub(super) fn read_shards(
 ) -> Result<Vec<ShardFolder>, Box<dyn std::error::Error>> {
     let mut shards = Vec::new();
     for dir in dirs {
-        let path = dir.join(fit_folder::RUN_RECORD);
+        // A plan's record is plan.json; every other command's run.json.
+        let plan_record = dir.join(crate::cli::plan::RECORD);
+        let path = if plan_record.exists() && !dir.join(fit_folder::RUN_RECORD).exists() {
+            plan_record
+        } else {
+            dir.join(fit_folder::RUN_RECORD)
+        };
         let bytes = std::fs::read(&path)
             .map_err(|e| InputError::file(&path, format!("cannot be read: {e}")))?;
         let record: Value = serde_json::from_slice(&bytes)
@@ -37,7 +43,7 @@ pub(super) fn read_shards(
             return Err(InputError::file(
                 &path,
                 "has no shard entry with 1 ≤ index ≤ count: expected the folder of \
-                 `valuedrift fit --shard I/N` or `check --shard I/N`",
+                 `valuedrift fit|check|plan --shard I/N`",
             )
             .into());
         };
