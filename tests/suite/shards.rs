@@ -335,3 +335,69 @@ fn merge_refuses_mixed_and_foreign_check_shards_and_names_missing_ones() {
         &["shard 1 of 3 is missing"],
     );
 }
+
+/// A plan like examples/plan/quick-plan.toml, shrunk (3 and 4 participants per group, 40 and 60
+/// trials, 2 studies), written into `dir` with the demo design; its path.
+fn small_plan(dir: &Path) -> PathBuf {
+    let quick = Path::new(env!("CARGO_MANIFEST_DIR")).join("examples/plan/quick-plan.toml");
+    let text = std::fs::read_to_string(quick)
+        .unwrap()
+        .replace(
+            "\"../../demo-data/orchard_design.csv\"",
+            &format!("{:?}", demo_file("orchard_design.csv").to_str().unwrap()),
+        )
+        .replace("participants = [4, 8]", "participants = [3, 4]")
+        .replace("trials = [60, 120]", "trials = [40, 60]")
+        .replace("studies = 3", "studies = 2");
+    assert!(text.contains("studies = 2"), "the quick plan changed: {text}");
+    let path = dir.join("plan.toml");
+    std::fs::write(&path, text).unwrap();
+    path
+}
+
+/// `plan` of `plan` into `out` with `extra` options.
+fn plan(plan: &Path, out: &Path, extra: &[&str]) -> Command {
+    let mut command = bin();
+    command
+        .args(["plan", "--plan", plan.to_str().unwrap(), "--threads", "1"])
+        .args(["--out", out.to_str().unwrap()])
+        .args(extra);
+    command
+}
+
+#[test]
+fn merged_plan_shards_equal_a_single_plan_byte_for_byte() {
+    // Studies are independent given the seed and their labels, so shards of the studies merged
+    // give a single run's summaries (common practice: byte-identity with a single run).
+    let dir = tempfile::tempdir().unwrap();
+    let file = small_plan(dir.path());
+    let out = dir.path().join("plan");
+    succeed(&mut plan(&file, &out, &[]));
+    let single = contents(&out);
+    assert!(single.contains_key(Path::new("plan_power.csv")));
+    std::fs::remove_dir_all(&out).unwrap();
+    for n in [1, 3] {
+        let mut folders: Vec<PathBuf> = (1..=n)
+            .map(|i| {
+                let folder = dir.path().join(format!("{n}-shards-{i}"));
+                succeed(&mut plan(&file, &folder, &["--shard", &format!("{i}/{n}")]));
+                folder
+            })
+            .collect();
+        folders.reverse();
+        merged(&folders, &out);
+        assert_same_files(&single, &contents(&out), &format!("{n} plan shards"));
+        std::fs::remove_dir_all(&out).unwrap();
+    }
+    // A plan file changed after the shards ran is refused, and nothing is written.
+    let text = std::fs::read_to_string(&file).unwrap();
+    std::fs::write(&file, text.replace("target_r = 0.8", "target_r = 0.9")).unwrap();
+    let folders: Vec<PathBuf> = (1..=3)
+        .map(|i| dir.path().join(format!("3-shards-{i}")))
+        .collect();
+    let output = merge(&folders, &out);
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert!(!output.status.success());
+    assert!(stderr.contains("have changed since the shards ran"), "{stderr}");
+    assert!(!out.exists());
+}
