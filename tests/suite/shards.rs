@@ -38,13 +38,24 @@ fn shards(dir: &Path, n: usize, extra: &[&str]) -> Vec<PathBuf> {
 
 /// Fits shards 1..=n of `data` into `dir`/shard-<i> with `extra` options; their folders.
 fn shards_of(data: &Path, dir: &Path, n: usize, extra: &[&str]) -> Vec<PathBuf> {
+    run_shards(dir, n, extra, |out, options| fit_data(data, out, options))
+}
+
+/// Runs `command(out, options)` for shards 1..=n, `out` = `dir`/shard-<i> and the options
+/// `--shard i/n` and `extra`; the folders.
+fn run_shards(
+    dir: &Path,
+    n: usize,
+    extra: &[&str],
+    command: impl Fn(&Path, &[&str]) -> Command,
+) -> Vec<PathBuf> {
     (1..=n)
         .map(|i| {
             let out = dir.join(format!("shard-{i}"));
             let shard = format!("{i}/{n}");
             let mut options = vec!["--shard", shard.as_str()];
             options.extend_from_slice(extra);
-            succeed(&mut fit_data(data, &out, &options));
+            succeed(&mut command(&out, &options));
             out
         })
         .collect()
@@ -59,6 +70,33 @@ fn merge(folders: &[PathBuf], out: &Path) -> std::process::Output {
         .args(["--out", out.to_str().unwrap()])
         .output()
         .unwrap()
+}
+
+/// Asserts that `merge` of `folders` into `out` fails with every one of `needles` in its error
+/// output and writes nothing.
+fn refused(folders: &[PathBuf], out: &Path, needles: &[&str]) {
+    let output = merge(folders, out);
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert!(!output.status.success(), "merged: {folders:?}");
+    for needle in needles {
+        assert!(stderr.contains(needle), "{needle:?} not in: {stderr}");
+    }
+    assert!(!out.exists(), "an output was written for {folders:?}");
+}
+
+/// Asserts that merge refuses shard 2 of 3 of `seed_2` (another seed) among shards 1 and 3 of
+/// `seed_1`, and names shard 2 as missing when it is left out.
+fn refuses_other_seed_and_names_missing(seed_1: &[PathBuf], seed_2: &[PathBuf], out: &Path) {
+    refused(
+        &[seed_1[0].clone(), seed_2[1].clone(), seed_1[2].clone()],
+        out,
+        &["not shards of one run", "seed"],
+    );
+    refused(
+        &[seed_1[0].clone(), seed_1[2].clone()],
+        out,
+        &["shard 2 of 3 is missing"],
+    );
 }
 
 /// Asserts that `merged` has the files of `single`, each with the same bytes.
@@ -176,23 +214,8 @@ fn merge_refuses_shards_of_different_runs_and_names_missing_ones() {
     let seed_1 = shards(&dir.path().join("seed-1"), 3, &[]);
     let seed_2 = shards(&dir.path().join("seed-2"), 3, &["--seed", "2"]);
     let out = dir.path().join("merged");
-    let refused = |folders: &[PathBuf], needles: &[&str]| {
-        let output = merge(folders, &out);
-        let stderr = String::from_utf8_lossy(&output.stderr);
-        assert!(!output.status.success(), "merged: {folders:?}");
-        for needle in needles {
-            assert!(stderr.contains(needle), "{needle:?} not in: {stderr}");
-        }
-        assert!(!out.exists(), "an output was written for {folders:?}");
-    };
-    refused(
-        &[seed_1[0].clone(), seed_2[1].clone(), seed_1[2].clone()],
-        &["not shards of one run", "seed"],
-    );
-    refused(
-        &[seed_1[0].clone(), seed_1[2].clone()],
-        &["shard 2 of 3 is missing"],
-    );
+    refuses_other_seed_and_names_missing(&seed_1, &seed_2, &out);
+    let refused = |folders: &[PathBuf], needles: &[&str]| refused(folders, &out, needles);
     refused(
         &[
             seed_1[0].clone(),
@@ -270,16 +293,7 @@ fn check(fits: &Path, out: &Path, extra: &[&str]) -> Command {
 
 /// Checks shards 1..=n of the fit in `fits` into `dir`/shard-<i> with `extra` options.
 fn check_shards(fits: &Path, dir: &Path, n: usize, extra: &[&str]) -> Vec<PathBuf> {
-    (1..=n)
-        .map(|i| {
-            let out = dir.join(format!("shard-{i}"));
-            let shard = format!("{i}/{n}");
-            let mut options = vec!["--shard", shard.as_str()];
-            options.extend_from_slice(extra);
-            succeed(&mut check(fits, &out, &options));
-            out
-        })
-        .collect()
+    run_shards(dir, n, extra, |out, options| check(fits, out, options))
 }
 
 #[test]
@@ -313,26 +327,11 @@ fn merge_refuses_mixed_and_foreign_check_shards_and_names_missing_ones() {
     let seed_2 = check_shards(&fits, &dir.path().join("seed-2"), 3, &["--seed", "2"]);
     let fit_shards = shards(&dir.path().join("fit-shards"), 3, &[]);
     let out = dir.path().join("merged");
-    let refused = |folders: &[PathBuf], needles: &[&str]| {
-        let output = merge(folders, &out);
-        let stderr = String::from_utf8_lossy(&output.stderr);
-        assert!(!output.status.success(), "merged: {folders:?}");
-        for needle in needles {
-            assert!(stderr.contains(needle), "{needle:?} not in: {stderr}");
-        }
-        assert!(!out.exists(), "an output was written for {folders:?}");
-    };
-    refused(
-        &[seed_1[0].clone(), seed_2[1].clone(), seed_1[2].clone()],
-        &["not shards of one run", "seed"],
-    );
+    refuses_other_seed_and_names_missing(&seed_1, &seed_2, &out);
     refused(
         &[seed_1[0].clone(), fit_shards[1].clone(), seed_1[2].clone()],
+        &out,
         &["not shards of one run", "command"],
-    );
-    refused(
-        &[seed_1[1].clone(), seed_1[2].clone()],
-        &["shard 1 of 3 is missing"],
     );
 }
 
@@ -349,7 +348,10 @@ fn small_plan(dir: &Path) -> PathBuf {
         .replace("participants = [4, 8]", "participants = [3, 4]")
         .replace("trials = [60, 120]", "trials = [40, 60]")
         .replace("studies = 3", "studies = 2");
-    assert!(text.contains("studies = 2"), "the quick plan changed: {text}");
+    assert!(
+        text.contains("studies = 2"),
+        "the quick plan changed: {text}"
+    );
     let path = dir.join("plan.toml");
     std::fs::write(&path, text).unwrap();
     path
@@ -377,13 +379,9 @@ fn merged_plan_shards_equal_a_single_plan_byte_for_byte() {
     assert!(single.contains_key(Path::new("plan_power.csv")));
     std::fs::remove_dir_all(&out).unwrap();
     for n in [1, 3] {
-        let mut folders: Vec<PathBuf> = (1..=n)
-            .map(|i| {
-                let folder = dir.path().join(format!("{n}-shards-{i}"));
-                succeed(&mut plan(&file, &folder, &["--shard", &format!("{i}/{n}")]));
-                folder
-            })
-            .collect();
+        let mut folders = run_shards(&dir.path().join(format!("{n}-shards")), n, &[], |out, o| {
+            plan(&file, out, o)
+        });
         folders.reverse();
         merged(&folders, &out);
         assert_same_files(&single, &contents(&out), &format!("{n} plan shards"));
@@ -393,11 +391,7 @@ fn merged_plan_shards_equal_a_single_plan_byte_for_byte() {
     let text = std::fs::read_to_string(&file).unwrap();
     std::fs::write(&file, text.replace("target_r = 0.8", "target_r = 0.9")).unwrap();
     let folders: Vec<PathBuf> = (1..=3)
-        .map(|i| dir.path().join(format!("3-shards-{i}")))
+        .map(|i| dir.path().join(format!("3-shards/shard-{i}")))
         .collect();
-    let output = merge(&folders, &out);
-    let stderr = String::from_utf8_lossy(&output.stderr);
-    assert!(!output.status.success());
-    assert!(stderr.contains("have changed since the shards ran"), "{stderr}");
-    assert!(!out.exists());
+    refused(&folders, &out, &["have changed since the shards ran"]);
 }

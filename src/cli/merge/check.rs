@@ -11,13 +11,14 @@
 //! recorded paths.
 
 use super::record::{ShardFolder, check_data, strings};
+use super::run_recorded;
 use crate::check::{checks_from_stored, stored_checks_table};
+use crate::cli::ShardResults;
 use crate::cli::check::{FromShards, SHARD_CHECKS};
 use crate::cli::shard::{self, Shard};
 use crate::files::InputError;
 use crate::results::Table;
 use crate::results::fit_folder::key;
-use clap::Parser;
 use std::collections::HashMap;
 use std::path::Path;
 
@@ -68,26 +69,14 @@ pub(super) fn run(
         &strings(&record["command_line"]),
         &out.display().to_string(),
     );
-    let cli = crate::cli::Cli::try_parse_from(&line).map_err(|e| {
-        format!(
-            "{}: the recorded command line cannot be run again: {e}",
-            shards[0]
-                .dir
-                .join(crate::results::fit_folder::RUN_RECORD)
-                .display()
-        )
-    })?;
     println!(
         "merged {} check shards: {} subjects; pooling their statistics",
         shards.len(),
         checks.len()
     );
-    crate::cli::run_as(
-        cli,
+    run_recorded(
+        &shards[0],
         &line,
-        Some(crate::cli::ShardResults::Check(FromShards {
-            checks,
-            replace,
-        })),
+        ShardResults::Check(FromShards { checks, replace }),
     )
 }

@@ -13,14 +13,14 @@
 //! time (every E-step refits each subject's posterior mode, in parallel on `--threads`).
 
 use super::record::{ShardFolder, check_data, strings};
-use super::{estimates_by_fit, read_all};
+use super::{estimates_by_fit, read_all, run_recorded};
+use crate::cli::ShardResults;
 use crate::cli::fit::FromShards;
 use crate::cli::shard::{self, em_starts_table};
 use crate::fit::{Skipped, SubjectFit};
 use crate::likelihood::DataMismatch;
 use crate::results::Table;
 use crate::results::fit_folder::{self, Scored, key};
-use clap::Parser;
 use serde_json::Value;
 use std::collections::HashMap;
 
@@ -40,25 +40,19 @@ pub(super) fn run(
     let fits = fits_from_tables(summary, parameters, &starts)?;
     let skipped = skipped_from_record(record)?;
     let line = strings(&record["command_line"]);
-    let cli = crate::cli::Cli::try_parse_from(&line).map_err(|e| {
-        format!(
-            "{}: the recorded command line cannot be run again: {e}",
-            shards[0].dir.join(fit_folder::RUN_RECORD).display()
-        )
-    })?;
     println!(
         "merged {} shards: {} per-subject fits; running the EM steps of the group priors",
         shards.len(),
         fits.len()
     );
-    crate::cli::run_as(
-        cli,
+    run_recorded(
+        &shards[0],
         &line,
-        Some(crate::cli::ShardResults::Fit(FromShards {
+        ShardResults::Fit(FromShards {
             fits,
             skipped,
             replace,
-        })),
+        }),
     )
 }
 

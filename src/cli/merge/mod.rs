@@ -82,6 +82,24 @@ pub fn run(dirs: &[PathBuf], out: &Path, replace: bool) -> Result<(), Box<dyn st
     Ok(())
 }
 
+/// Runs `line`, the shards' recorded command line (without `--shard`, with the merge's
+/// `--out`), with `results` in place of the per-subject work; `first` is the first shard, whose
+/// record an unreadable command line is blamed on.
+fn run_recorded(
+    first: &ShardFolder,
+    line: &[String],
+    results: super::ShardResults,
+) -> Result<(), Box<dyn std::error::Error>> {
+    use clap::Parser;
+    let cli = super::Cli::try_parse_from(line).map_err(|e| {
+        format!(
+            "{}: the recorded command line cannot be run again: {e}",
+            first.record_path.display()
+        )
+    })?;
+    super::run_as(cli, line, Some(results))
+}
+
 /// The order of a single run's rows: models as given, subjects in table order.
 struct Order {
     models: Vec<String>,

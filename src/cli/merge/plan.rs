@@ -10,12 +10,13 @@
 //! every study once.
 
 use super::record::{ShardFolder, strings};
+use super::run_recorded;
+use crate::cli::ShardResults;
 use crate::cli::plan::{FromShards, SHARD_STUDIES};
 use crate::cli::shard;
 use crate::plan::stored::{stored_studies_table, studies_from_stored};
 use crate::results::Table;
 use crate::results::fit_folder::key;
-use clap::Parser;
 use std::path::Path;
 
 /// Summarises the plan shards `shards` (sorted and checked to be one run) into `out`.
@@ -41,24 +42,18 @@ pub(super) fn run(
         &out.display().to_string(),
     );
     recorded["command_line"] = serde_json::json!(line);
-    let cli = crate::cli::Cli::try_parse_from(&line).map_err(|e| {
-        format!(
-            "{}: the recorded command line cannot be run again: {e}",
-            shards[0].dir.join(crate::cli::plan::RECORD).display()
-        )
-    })?;
     println!(
         "merged {} plan shards: {} studies; summarising them",
         shards.len(),
         studies.len()
     );
-    crate::cli::run_as(
-        cli,
+    run_recorded(
+        &shards[0],
         &line,
-        Some(crate::cli::ShardResults::Plan(FromShards {
+        ShardResults::Plan(FromShards {
             studies,
             recorded,
             replace,
-        })),
+        }),
     )
 }

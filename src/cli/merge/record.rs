@@ -14,6 +14,8 @@ pub(super) struct ShardFolder {
     pub(super) dir: PathBuf,
     pub(super) shard: Shard,
     pub(super) record: Value,
+    /// Where the record was read (run.json, or a plan's plan.json).
+    pub(super) record_path: PathBuf,
 }
 
 /// Reads the run records of `dirs`, sorted by shard; refuses a folder that is not a shard, shards
@@ -51,6 +53,7 @@ pub(super) fn read_shards(
             dir: dir.clone(),
             shard: Shard { index, count },
             record,
+            record_path: path,
         });
     }
     shards.sort_by_key(|s| s.shard.index);
