@@ -154,8 +154,11 @@ pub enum Command {
     },
     /// Combines the folders of `fit --shard 1/N` … `--shard N/N` into the folder a single run of
     /// the same fit writes, byte for byte (its run.json records the command line without
-    /// --shard, with this command's --out). Refuses folders of different runs (data checksum,
-    /// models, seed, options) and names missing or repeated shards.
+    /// --shard, with this command's --out). With shards of `fit --hierarchical` it then runs the
+    /// EM steps here from the shards' fits; with shards of `check` or `plan` it pools their
+    /// subjects or studies into the folder a single check or plan writes. Refuses folders of
+    /// different runs (data checksum, models, seed, options) and names missing or repeated
+    /// shards.
     #[command(after_help = RESEARCH_CAUTION)]
     Merge {
         /// The shard folders (any order; a shell glob such as fits/shard-* works).
