@@ -94,18 +94,19 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         .map_or(run.input.replace.replace, |f| f.replace);
     let mut outputs = OutputSet::create(out, replace)?;
     let (mut table, model, mut estimates) = run.input.load()?;
+    let mut settings = run.settings.clone();
+    if let Some(column) = &run.by {
+        // Levels in order of first appearance in the whole table, in a shard as in one run.
+        settings.condition = Some(
+            Condition::of(column, &table.subjects)
+                .map_err(|e| format!("--by {column}: {}: {e}", run.input.data.display()))?,
+        );
+    }
     let table_subjects: Vec<String> = table.subjects.iter().map(|s| s.id.clone()).collect();
     if let Some(shard) = run.shard {
         let keep: Vec<bool> = table.subjects.iter().map(|s| shard.holds(&s.id)).collect();
         shard::kept(&mut table.subjects, &keep);
         shard::kept(&mut estimates, &keep);
-    }
-    let mut settings = run.settings.clone();
-    if let Some(column) = &run.by {
-        settings.condition = Some(
-            Condition::of(column, &table.subjects)
-                .map_err(|e| format!("--by {column}: {}: {e}", run.input.data.display()))?,
-        );
     }
     let mut run = CheckRun { settings, ..run };
     let checks = match run.from_shards.take() {

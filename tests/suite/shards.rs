@@ -278,44 +278,79 @@ fn hierarchical_fit_from_merged_shards_equals_a_single_run() {
     assert_same_files(&single, &contents(&out), "3 hierarchical shards");
 }
 
-/// `check` of the fit in `fits` (demo data, the demo's model) with 20 replicates into `out`,
+/// `check` of the fit in `fits` of `data` (with the demo's model) with 20 replicates into `out`,
 /// with `extra` options.
-fn check(fits: &Path, out: &Path, extra: &[&str]) -> Command {
+fn check(fits: &Path, data: &Path, out: &Path, extra: &[&str]) -> Command {
     let mut command = bin();
     command
         .args(["check", "--fits", fits.to_str().unwrap(), "--data"])
-        .arg(demo_file("orchard_trials.csv"))
+        .arg(data)
         .args(["--model", MODEL, "--sims", "20"])
         .args(["--out", out.to_str().unwrap()])
         .args(extra);
     command
 }
 
-/// Checks shards 1..=n of the fit in `fits` into `dir`/shard-<i> with `extra` options.
-fn check_shards(fits: &Path, dir: &Path, n: usize, extra: &[&str]) -> Vec<PathBuf> {
-    run_shards(dir, n, extra, |out, options| check(fits, out, options))
+/// Checks shards 1..=n of the fit in `fits` of `data` into `dir`/shard-<i> with `extra` options.
+fn check_shards(fits: &Path, data: &Path, dir: &Path, n: usize, extra: &[&str]) -> Vec<PathBuf> {
+    run_shards(dir, n, extra, |out, options| {
+        check(fits, data, out, options)
+    })
 }
 
 #[test]
 fn merged_check_shards_equal_a_single_check_byte_for_byte() {
     // Pooled statistics and figures need every subject's replicates: the shards keep them and
-    // merge pools them (common practice: byte-identity with a single run).
+    // merge pools them (common practice: byte-identity with a single run). The demo gets a
+    // column `half` (early/late half of the 240 trials, source: demo-data/README.md) checked
+    // with --by half; sub-01 lists its late trials first, so the levels' order of first
+    // appearance is that of the whole table, not of a shard without sub-01.
     let dir = tempfile::tempdir().unwrap();
+    let demo = std::fs::read_to_string(demo_file("orchard_trials.csv")).unwrap();
+    let mut halves = String::new();
+    for (k, line) in demo.lines().enumerate() {
+        let cells: Vec<&str> = line.split(',').collect();
+        let half = match (k, cells[0], cells[3].parse::<usize>().unwrap_or(0) <= 120) {
+            (0, _, _) => "half",
+            (_, "sub-01", true) | (_, _, false) => "late",
+            _ => "early",
+        };
+        halves.push_str(&format!("{line},{half}\n"));
+    }
+    let data = dir.path().join("halves.csv");
+    std::fs::write(&data, halves).unwrap();
     let fits = dir.path().join("fit");
-    succeed(&mut fit(&fits, &[]));
+    succeed(&mut fit_data(&data, &fits, &[]));
     let out = dir.path().join("check");
-    succeed(&mut check(&fits, &out, &[]));
+    let options = ["--by", "half"];
+    succeed(&mut check(&fits, &data, &out, &options));
     let single = contents(&out);
     assert!(single.contains_key(Path::new("check_choices.svg")));
     assert!(single.contains_key(Path::new("run.json")));
     std::fs::remove_dir_all(&out).unwrap();
     for n in [1, 3] {
-        let mut folders = check_shards(&fits, &dir.path().join(format!("{n}-shards")), n, &[]);
+        let shard_dir = dir.path().join(format!("{n}-shards"));
+        let mut folders = check_shards(&fits, &data, &shard_dir, n, &options);
         folders.reverse();
         merged(&folders, &out);
         assert_same_files(&single, &contents(&out), &format!("{n} check shards"));
         std::fs::remove_dir_all(&out).unwrap();
     }
+    // The trial table changed after the shards ran (one more line) is refused by its checksum.
+    let text = std::fs::read_to_string(&data).unwrap();
+    let last = text.lines().last().unwrap();
+    std::fs::write(&data, format!("{text}{last}\n")).unwrap();
+    let folders = shard_folders(&dir.path().join("3-shards"), 3);
+    refused(
+        &folders,
+        &out,
+        &["halves.csv", "has changed since the shards ran"],
+    );
+}
+
+/// The folders `dir`/shard-1 … shard-`n` of [`run_shards`].
+fn shard_folders(dir: &Path, n: usize) -> Vec<PathBuf> {
+    (1..=n).map(|i| dir.join(format!("shard-{i}"))).collect()
 }
 
 #[test]
@@ -323,8 +358,15 @@ fn merge_refuses_mixed_and_foreign_check_shards_and_names_missing_ones() {
     let dir = tempfile::tempdir().unwrap();
     let fits = dir.path().join("fit");
     succeed(&mut fit(&fits, &[]));
-    let seed_1 = check_shards(&fits, &dir.path().join("seed-1"), 3, &[]);
-    let seed_2 = check_shards(&fits, &dir.path().join("seed-2"), 3, &["--seed", "2"]);
+    let data = demo_file("orchard_trials.csv");
+    let seed_1 = check_shards(&fits, &data, &dir.path().join("seed-1"), 3, &[]);
+    let seed_2 = check_shards(
+        &fits,
+        &data,
+        &dir.path().join("seed-2"),
+        3,
+        &["--seed", "2"],
+    );
     let fit_shards = shards(&dir.path().join("fit-shards"), 3, &[]);
     let out = dir.path().join("merged");
     refuses_other_seed_and_names_missing(&seed_1, &seed_2, &out);
@@ -390,8 +432,6 @@ fn merged_plan_shards_equal_a_single_plan_byte_for_byte() {
     // A plan file changed after the shards ran is refused, and nothing is written.
     let text = std::fs::read_to_string(&file).unwrap();
     std::fs::write(&file, text.replace("target_r = 0.8", "target_r = 0.9")).unwrap();
-    let folders: Vec<PathBuf> = (1..=3)
-        .map(|i| dir.path().join(format!("3-shards/shard-{i}")))
-        .collect();
+    let folders = shard_folders(&dir.path().join("3-shards"), 3);
     refused(&folders, &out, &["have changed since the shards ran"]);
 }
