@@ -218,7 +218,7 @@ pub enum Command {
     ///
     /// Writes OUT/check_choices.csv, check_quantiles.csv, check_misfit.csv (+ Parquet) and
     /// check_choices.svg, check_rt_quantiles.svg, check_options.svg (pooled), and the same
-    /// figures for the three worst-fitting subjects (check_worst1_choices.svg, ...).
+    /// figures for the three worst-fitting subjects (check_worst1_choices.svg, ...), and run.json.
     #[command(after_help = RESEARCH_CAUTION)]
     Check {
         /// The fit folder, trial table, model and output folder.
