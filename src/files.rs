@@ -718,3 +718,15 @@ fn exchange(a: &Path, b: &Path) -> std::io::Result<bool> {
 fn exchange(_a: &Path, _b: &Path) -> std::io::Result<bool> {
     Ok(false)
 }
+
+/// The SHA-256 digest of the file at `path` as lower-case hexadecimal, read in pieces (the file
+/// is never held in memory whole).
+pub fn sha256_of_file(path: &Path) -> Result<String, InputError> {
+    use sha2::{Digest, Sha256};
+    let mut file = std::fs::File::open(path)
+        .map_err(|e| InputError::file(path, format!("cannot be read: {e}")))?;
+    let mut hasher = Sha256::new();
+    std::io::copy(&mut file, &mut hasher)
+        .map_err(|e| InputError::file(path, format!("cannot be read: {e}")))?;
+    Ok(format!("{:x}", hasher.finalize()))
+}

@@ -79,6 +79,7 @@ pub fn run(
             }),
             screen: crate::data::ScreenSettings::default(),
             shard: None,
+            journal: None,
             from_shards: None,
         },
         command_line,
@@ -132,7 +133,7 @@ pub fn run(
     println!(
         "{REFERENCE}, per cohort: median of per-subject estimates / empirical-Bayes group median (median of the generating values)"
     );
-    let groups = super::fit::group_labels(&fitted.table);
+    let groups = fitted.group_labels.clone();
     print!("{:<16}", "parameter");
     for g in &groups {
         print!(" {g:>26}");

@@ -1,6 +1,7 @@
 //! `valuedrift fit`: per-subject fits of one or more models, with tidy outputs and a run record.
 
 use super::input::ColumnsError;
+use super::journal::{self, Journal};
 use super::shard::{self, Shard};
 use crate::data::{ColumnMap, ScreenSettings, TrialTable};
 use crate::files::OutputSet;
@@ -13,7 +14,6 @@ use crate::results::{
     estimates_wide_table, group_correlation_table, group_evidence_table, group_prior_table,
     parameters_table, prior_regression_table, summary_table,
 };
-use sha2::{Digest, Sha256};
 use std::collections::HashMap;
 use std::path::Path;
 
@@ -40,6 +40,8 @@ pub struct FitRun<'a> {
     /// Fit only this shard's subjects (`--shard I/N`; with `--hierarchical` the per-subject
     /// fits only, and each fit's unconstrained optimum for the EM that `merge` runs).
     pub shard: Option<Shard>,
+    /// What to do with the journal of an interrupted run (None: keep no journal).
+    pub journal: Option<journal::Mode>,
     /// The per-subject fits of every shard of this run, gathered by `merge`: used instead of
     /// fitting, so that the EM of `--hierarchical` starts from exactly the shards' fits.
     pub from_shards: Option<FromShards>,
@@ -183,8 +185,8 @@ pub fn load_models(names: &[String]) -> Result<Vec<Model>, Box<dyn std::error::E
 
 /// The outcome of fitting a table.
 pub struct Fitted {
-    /// The table that was fitted.
-    pub table: TrialTable,
+    /// The group labels of the subjects fitted, sorted, each once.
+    pub group_labels: Vec<String>,
     /// The models.
     pub models: Vec<Model>,
     /// Successful fits in (model, subject) order.
@@ -196,49 +198,114 @@ pub struct Fitted {
 }
 
 /// Reads, fits and writes; returns what was fitted for the caller's summary.
+///
+/// Per-subject fits read the trial table a part at a time, twice (the data screen, then the
+/// fits), so memory does not grow with the number of subjects; `--hierarchical` holds the whole
+/// table, since every EM step refits every subject.
 pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn std::error::Error>> {
     let mut outputs = OutputSet::create(run.out, run.replace)?;
-    let mut table = super::input::read_table(run.data, &run.columns)?;
-    if run.hierarchical.as_ref().is_some_and(|h| h.per_group) && !table.has_column("group") {
-        return Err(format!(
-            "{}: --by {}: no such column; the file has no group column to give each group its own prior",
-            run.data.display(),
-            run.columns.file_name("group")
-        )
-        .into());
-    }
-    let scores = match &run.hierarchical {
-        Some(settings) => participant_scores(run.data, &table, &run.columns, settings)?,
-        None => None,
-    };
-    let models = load_models(run.models)?;
-    let mut screened = super::input::screen_before_fit(
-        run.data,
-        &mut table,
-        &run.screen,
-        &models,
-        (run.options.lock, run.options.deadline),
-    )?;
-    let table_subjects: Vec<String> = table.subjects.iter().map(|s| s.id.clone()).collect();
-    if let Some(shard) = run.shard {
-        shard.restrict(&mut table, &mut screened);
-    }
-    let (fits, skipped) = match run.from_shards {
-        Some(done) => (done.fits, done.skipped),
-        None => {
-            let bar = Progress::new("fitting", super::input::screened_jobs(&screened));
-            let fitted = super::input::fit_screened(
+    let window = (run.options.lock, run.options.deadline);
+    let (models, mut screened, mut whole, scores) = match &run.hierarchical {
+        Some(settings) => {
+            let mut table = super::input::read_table(run.data, &run.columns)?;
+            if settings.per_group && !table.has_column("group") {
+                return Err(format!(
+                    "{}: --by {}: no such column; the file has no group column to give each \
+                     group its own prior",
+                    run.data.display(),
+                    run.columns.file_name("group")
+                )
+                .into());
+            }
+            let scores = participant_scores(run.data, &table, &run.columns, settings)?;
+            let models = load_models(run.models)?;
+            let screened = super::input::screen_before_fit(
+                run.data,
+                &mut table,
+                &run.screen,
                 &models,
-                &table,
-                &screened,
-                &run.options,
-                run.threads,
-                &|| bar.inc(),
+                window,
             )?;
-            bar.finish();
-            fitted
+            (models, screened, Some(table), scores)
+        }
+        None => {
+            let tally = super::input::screen_streamed(run.data, &run.columns, &run.screen, window)?;
+            let models = load_models(run.models)?;
+            let screened = tally.judge(run.data, &models)?;
+            (models, screened, None, None)
         }
     };
+    let table_subjects: Vec<String> = screened
+        .subjects
+        .iter()
+        .map(|s| s.subject.clone())
+        .collect();
+    if let Some(shard) = run.shard {
+        match whole.as_mut() {
+            Some(table) => shard.restrict(table, &mut screened),
+            None => shard.restrict_screen(&mut screened),
+        }
+    }
+    let data_sha256 = crate::files::sha256_of_file(run.data)?;
+    let (journal, earlier) = match run.journal {
+        Some(mode) => {
+            let header = journal::Header::new(
+                &data_sha256,
+                &run.columns,
+                &models,
+                &run.options,
+                &run.screen,
+                run.shard,
+            );
+            let (journal, earlier) = Journal::open(run.out, mode, &header)?;
+            (Some(journal), earlier)
+        }
+        None => (None, Vec::new()),
+    };
+    // merge's EM step takes every fit from the shards and fits none here.
+    let jobs = match run.from_shards {
+        Some(_) => 0,
+        None => super::input::screened_jobs(&screened),
+    };
+    if !earlier.is_empty() {
+        eprintln!(
+            "resuming: {} of the {jobs} (model, subject) pairs from the journal; fitting the \
+             other {}",
+            earlier.len(),
+            jobs.saturating_sub(earlier.len())
+        );
+    }
+    let bar = Progress::new("fitting", jobs.saturating_sub(earlier.len()));
+    let finished = |outcome: &crate::fit::Outcome| {
+        if let Some(journal) = &journal {
+            journal.append(outcome);
+        }
+        bar.inc();
+    };
+    let (fits, skipped) = match (run.from_shards, &whole) {
+        (Some(done), _) => (done.fits, done.skipped),
+        (None, Some(table)) => super::input::fit_screened(
+            &models,
+            table,
+            &screened,
+            &run.options,
+            run.threads,
+            earlier,
+            &finished,
+        )?,
+        (None, None) => super::input::fit_streamed(
+            run.data,
+            &run.columns,
+            &models,
+            &screened,
+            &|label| run.shard.is_none_or(|s| s.holds(label)),
+            &run.options,
+            run.threads,
+            earlier,
+            &finished,
+        )?,
+    };
+    bar.finish();
     // A shard may hold no subject, or only subjects that cannot be fitted: `merge` judges the
     // whole run.
     if fits.is_empty() && run.shard.is_none() {
@@ -263,9 +330,12 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             .iter()
             .filter(|m| settings.models.is_empty() || settings.models.contains(&m.name))
             .collect();
+        let table = whole
+            .as_ref()
+            .ok_or("empirical Bayes needs the whole table in memory")?;
         let (fitted, not_fitted) = fit_table_hierarchical(
             &chosen,
-            &table,
+            table,
             &fits,
             &run.options,
             &settings.em,
@@ -298,16 +368,17 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         }
         groups = fitted;
     }
-    let bytes = std::fs::read(run.data)?;
+    // A resumed run records the command line of an uninterrupted one.
+    let command_line = journal::without_flags(command_line);
     let command_line = match run.shard {
-        Some(_) => shard::without_shard(command_line),
-        None => command_line.to_vec(),
+        Some(_) => shard::without_shard(&command_line),
+        None => command_line,
     };
     let mut record = run_record(
         &command_line,
         &run.options,
         run.data,
-        &bytes,
+        &data_sha256,
         &models,
         &fits,
         &skipped,
@@ -363,8 +434,11 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         serde_json::to_writer_pretty(w, &record)
     })?;
     outputs.commit()?;
+    if let Some(journal) = journal {
+        journal.finish();
+    }
     Ok(Fitted {
-        table,
+        group_labels: group_labels(&screened),
         models,
         fits,
         skipped,
@@ -418,7 +492,7 @@ pub fn run_record(
     command_line: &[String],
     options: &FitOptions,
     data: &Path,
-    bytes: &[u8],
+    data_sha256: &str,
     models: &[Model],
     fits: &[SubjectFit],
     skipped: &[Skipped],
@@ -434,7 +508,7 @@ pub fn run_record(
         (key::LOCK): options.lock,
         "data": {
             "path": data.display().to_string(),
-            "sha256": format!("{:x}", Sha256::digest(bytes)),
+            "sha256": data_sha256,
         },
         (key::MODELS): models.iter().map(|m| serde_json::json!({
             (key::NAME): m.name,
@@ -456,7 +530,7 @@ pub fn run_record(
 /// Wins are counted among the models that use response times (their likelihoods are of the same
 /// data); choices-only models are listed apart, since their BIC is not comparable.
 pub fn print_summary(fitted: &Fitted) {
-    let groups = group_labels(&fitted.table);
+    let groups = &fitted.group_labels;
     let comparable = |name: &str| {
         fitted
             .models
@@ -701,9 +775,9 @@ fn p_value_text(p: f64) -> String {
     }
 }
 
-/// The distinct group labels of a table, sorted.
-pub fn group_labels(table: &TrialTable) -> Vec<String> {
-    let mut groups: Vec<String> = table.subjects.iter().map(|s| s.group.clone()).collect();
+/// The distinct group labels of the subjects of a data screen, sorted.
+pub fn group_labels(screened: &super::input::Screened) -> Vec<String> {
+    let mut groups: Vec<String> = screened.subjects.iter().map(|s| s.group.clone()).collect();
     groups.sort();
     groups.dedup();
     groups

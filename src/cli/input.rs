@@ -4,10 +4,10 @@
 
 use crate::data::{
     ColumnMap, ColumnMapError, DEFAULT_FAST_FLOOR, ModelNeeds, ScreenSettings, ScreenSettingsError,
-    SubjectScreen, TRIALS_PER_PARAMETER, TrialTable, read_trials_noted, screen_table,
-    share_slower_than, unmet_needs,
+    SubjectParts, SubjectScreen, TRIALS_PER_PARAMETER, TrialTable, judge_screens,
+    millisecond_medians, read_trials_noted, screen_subjects, trim_response_times, unmet_needs,
 };
-use crate::fit::{FitOptions, Skipped, SubjectFit, fit_table};
+use crate::fit::{FitOptions, Outcome, Skipped, SubjectFit, fit_table_each};
 use crate::likelihood::DataMismatch;
 use crate::model::Model;
 use crate::results::{Column, Table};
@@ -228,72 +228,144 @@ pub fn screen_before_fit(
     table: &mut TrialTable,
     settings: &ScreenSettings,
     models: &[Model],
-    (lock, deadline): (Option<f64>, Option<f64>),
+    window: (Option<f64>, Option<f64>),
 ) -> Result<Screened, ScreenRefusal> {
-    let file = path.display();
-    if let Some(l) = lock {
-        let rts: Vec<f64> = table
-            .subjects
+    let mut tally = ScreenTally::new(*settings, window);
+    tally.add(table);
+    tally.judge(path, models)
+}
+
+/// The data screen of the trial table at `path`, read a part at a time (memory does not grow
+/// with the number of subjects); prints what the reader noted. [`ScreenTally::judge`] then
+/// refuses or passes it exactly as [`screen_before_fit`] would the whole table.
+pub fn screen_streamed(
+    path: &Path,
+    columns: &ColumnMap,
+    settings: &ScreenSettings,
+    window: (Option<f64>, Option<f64>),
+) -> Result<ScreenTally, Box<dyn std::error::Error>> {
+    let mut parts = SubjectParts::open(path, columns)?;
+    let mut tally = ScreenTally::new(*settings, window);
+    while let Some(mut part) = parts.next_part(SUBJECTS_PER_PART)? {
+        tally.add(&mut part);
+    }
+    for line in parts.notes().lines(path) {
+        eprintln!("{line}");
+    }
+    Ok(tally)
+}
+
+/// Subjects read at a time when a table is streamed: enough to keep every thread busy, few
+/// enough that memory stays small (about 0.1 MB per subject of 200 trials).
+pub const SUBJECTS_PER_PART: usize = 256;
+
+/// The data screen gathered over a table, a part at a time.
+pub struct ScreenTally {
+    settings: ScreenSettings,
+    lock: Option<f64>,
+    deadline: Option<f64>,
+    /// Response times seen, and those faster than the lock and slower than the deadline (before
+    /// trimming).
+    responses: usize,
+    faster_than_lock: usize,
+    slower_than_deadline: usize,
+    milliseconds: Vec<(String, f64)>,
+    subjects: Vec<SubjectScreen>,
+}
+
+impl ScreenTally {
+    fn new(settings: ScreenSettings, (lock, deadline): (Option<f64>, Option<f64>)) -> Self {
+        ScreenTally {
+            settings,
+            lock,
+            deadline,
+            responses: 0,
+            faster_than_lock: 0,
+            slower_than_deadline: 0,
+            milliseconds: Vec::new(),
+            subjects: Vec::new(),
+        }
+    }
+
+    /// Counts the response times of `part`, then trims and screens its subjects.
+    fn add(&mut self, part: &mut TrialTable) {
+        for t in part.subjects.iter().flat_map(|s| s.response_times()) {
+            self.responses += 1;
+            self.faster_than_lock += usize::from(self.lock.is_some_and(|l| t < l));
+            self.slower_than_deadline += usize::from(self.deadline.is_some_and(|d| t > d));
+        }
+        self.milliseconds.extend(millisecond_medians(part));
+        self.subjects.extend(screen_subjects(part, &self.settings));
+    }
+
+    /// The refusals and warnings over the whole table, in the order a whole table is judged;
+    /// prints the summary.
+    pub fn judge(self, path: &Path, models: &[Model]) -> Result<Screened, ScreenRefusal> {
+        let file = path.display();
+        let (faster, responses) = (self.faster_than_lock, self.responses);
+        if let Some(l) = self.lock {
+            if responses > 0 && faster as f64 > DEADLINE_SLOWER_LIMIT * responses as f64 {
+                return Err(ScreenRefusal::LockAfterResponses {
+                    lock: l,
+                    faster,
+                    responses,
+                    file: path.to_path_buf(),
+                });
+            }
+            if faster > 0 {
+                eprintln!(
+                    "warning: {faster} of the {responses} response times in {file} are faster \
+                     than --lock {l}; the likelihood conditions on no response before the lock, \
+                     so these are scored as if the lock were their time's jitter (check the \
+                     lock's value)"
+                );
+            }
+        }
+        if let Some(d) = self.deadline
+            && responses > 0
+        {
+            let share = self.slower_than_deadline as f64 / responses as f64;
+            if share > DEADLINE_SLOWER_LIMIT {
+                return Err(ScreenRefusal::DeadlineBeforeResponses {
+                    deadline: d,
+                    share,
+                    file: path.to_path_buf(),
+                });
+            }
+            if share > 0.0 {
+                eprintln!(
+                    "warning: {:.1} % of the response times in {file} are slower than \
+                     --deadline {d}",
+                    100.0 * share
+                );
+            }
+        }
+        let needs: Vec<ModelNeeds> = models.iter().map(model_needs).collect();
+        judge_screens(&self.milliseconds, &self.subjects, &needs).map_err(|error| {
+            ScreenRefusal::Data {
+                file: path.to_path_buf(),
+                error,
+            }
+        })?;
+        let unmet = needs
             .iter()
-            .flat_map(|s| s.response_times())
+            .map(|n| {
+                let per_subject = self
+                    .subjects
+                    .iter()
+                    .map(|s| unmet_needs(s, n, self.settings.responses_per_parameter))
+                    .collect();
+                (n.name.clone(), per_subject)
+            })
             .collect();
-        let faster = rts.iter().filter(|&&t| t < l).count();
-        if !rts.is_empty() && faster as f64 > DEADLINE_SLOWER_LIMIT * rts.len() as f64 {
-            return Err(ScreenRefusal::LockAfterResponses {
-                lock: l,
-                faster,
-                responses: rts.len(),
-                file: path.to_path_buf(),
-            });
-        }
-        if faster > 0 {
-            eprintln!(
-                "warning: {faster} of the {} response times in {file} are faster than --lock \
-                 {l}; the likelihood conditions on no response before the lock, so these are \
-                 scored as if the lock were their time's jitter (check the lock's value)",
-                rts.len()
-            );
-        }
+        let screened = Screened {
+            settings: self.settings,
+            subjects: self.subjects,
+            unmet,
+        };
+        print_screen(&screened);
+        Ok(screened)
     }
-    if let Some(d) = deadline
-        && let Some(share) = share_slower_than(table, d)
-    {
-        if share > DEADLINE_SLOWER_LIMIT {
-            return Err(ScreenRefusal::DeadlineBeforeResponses {
-                deadline: d,
-                share,
-                file: path.to_path_buf(),
-            });
-        }
-        if share > 0.0 {
-            eprintln!(
-                "warning: {:.1} % of the response times in {file} are slower than --deadline {d}",
-                100.0 * share
-            );
-        }
-    }
-    let needs: Vec<ModelNeeds> = models.iter().map(model_needs).collect();
-    let subjects = screen_table(table, settings, &needs).map_err(|error| ScreenRefusal::Data {
-        file: path.to_path_buf(),
-        error,
-    })?;
-    let unmet = needs
-        .iter()
-        .map(|n| {
-            let per_subject = subjects
-                .iter()
-                .map(|s| unmet_needs(s, n, settings.responses_per_parameter))
-                .collect();
-            (n.name.clone(), per_subject)
-        })
-        .collect();
-    let screened = Screened {
-        settings: *settings,
-        subjects,
-        unmet,
-    };
-    print_screen(&screened);
-    Ok(screened)
 }
 
 /// Why the data screen stops a fit before it starts.
@@ -447,65 +519,166 @@ fn limit_text(limit: Option<f64>) -> String {
 }
 
 /// Fits each model to the subjects whose data meet its needs; the others are returned as
-/// skipped with the reason. Fits and skipped pairs are in (model, subject) order, subjects in
-/// table order.
+/// skipped with the reason. Pairs with an outcome in `earlier` (from the journal of an
+/// interrupted run) are not fitted again: their outcomes take their places (outcomes of pairs
+/// this run does not fit are ignored). `finished` sees each new outcome as soon as it is done.
+/// Fits and skipped pairs are in (model, subject) order, subjects in table order, whichever
+/// pairs came from `earlier`.
 pub fn fit_screened(
     models: &[Model],
     table: &TrialTable,
     screened: &Screened,
     options: &FitOptions,
     threads: usize,
-    progress: &(dyn Fn() + Sync),
+    earlier: Vec<Outcome>,
+    finished: &(dyn Fn(&Outcome) + Sync),
 ) -> Result<(Vec<SubjectFit>, Vec<Skipped>), rayon::ThreadPoolBuildError> {
-    let mut fits = Vec::new();
-    let mut skipped = Vec::new();
-    for (model, (_, per_subject)) in models.iter().zip(&screened.unmet) {
-        let mut kept = TrialTable {
-            subjects: Vec::new(),
-            present: table.present.clone(),
-        };
-        for (subject, unmet) in table.subjects.iter().zip(per_subject) {
-            if unmet.is_empty() {
-                kept.subjects.push(subject.clone());
-            } else {
-                skipped.push(Skipped {
-                    model: model.name.clone(),
-                    reason: DataMismatch {
-                        subject: subject.id.clone(),
-                        message: unmet.join("; "),
-                    },
-                });
+    let mut fitted = FitsByModel::new(models.len(), earlier);
+    fitted.add(models, table, screened, 0, options, threads, finished)?;
+    Ok(fitted.finish(models, screened))
+}
+
+/// [`fit_screened`] of the trial table at `path`, read again a part at a time, each part trimmed
+/// as the screen trimmed it and kept to the subjects `keep` accepts (a shard's; `screened` must
+/// hold exactly those subjects, in table order). Memory holds one part and the fits.
+#[allow(clippy::too_many_arguments)]
+pub fn fit_streamed(
+    path: &Path,
+    columns: &ColumnMap,
+    models: &[Model],
+    screened: &Screened,
+    keep: &dyn Fn(&str) -> bool,
+    options: &FitOptions,
+    threads: usize,
+    earlier: Vec<Outcome>,
+    finished: &(dyn Fn(&Outcome) + Sync),
+) -> Result<(Vec<SubjectFit>, Vec<Skipped>), Box<dyn std::error::Error>> {
+    let mut parts = SubjectParts::open(path, columns)?;
+    let mut fitted = FitsByModel::new(models.len(), earlier);
+    let mut first = 0;
+    while let Some(mut part) = parts.next_part(SUBJECTS_PER_PART)? {
+        part.subjects.retain(|s| keep(&s.id));
+        trim_response_times(
+            &mut part,
+            screened.settings.trim_below,
+            screened.settings.trim_above,
+        );
+        fitted.add(models, &part, screened, first, options, threads, finished)?;
+        first += part.subjects.len();
+    }
+    if first != screened.subjects.len() {
+        return Err(format!(
+            "{}: changed while it was being fitted ({} subjects when screened, {first} when \
+             fitted); run the fit again",
+            path.display(),
+            screened.subjects.len()
+        )
+        .into());
+    }
+    Ok(fitted.finish(models, screened))
+}
+
+/// Outcomes gathered over the parts of a table: pairs journalled by an earlier run are taken
+/// from it, the others fitted.
+struct FitsByModel {
+    earlier: std::collections::HashMap<(String, String), Outcome>,
+    outcomes: Vec<Outcome>,
+    skipped: Vec<Skipped>,
+}
+
+impl FitsByModel {
+    fn new(models: usize, earlier: Vec<Outcome>) -> Self {
+        FitsByModel {
+            earlier: earlier.into_iter().map(|o| (outcome_pair(&o), o)).collect(),
+            outcomes: Vec::with_capacity(models),
+            skipped: Vec::new(),
+        }
+    }
+
+    /// Fits every model to the subjects of `part` whose data meet its needs and that no earlier
+    /// run has fitted; the part's subjects are `screened.subjects[first..]`.
+    #[allow(clippy::too_many_arguments)]
+    fn add(
+        &mut self,
+        models: &[Model],
+        part: &TrialTable,
+        screened: &Screened,
+        first: usize,
+        options: &FitOptions,
+        threads: usize,
+        finished: &(dyn Fn(&Outcome) + Sync),
+    ) -> Result<(), rayon::ThreadPoolBuildError> {
+        for (model, (_, per_subject)) in models.iter().zip(&screened.unmet) {
+            let mut kept = TrialTable {
+                subjects: Vec::new(),
+                present: part.present.clone(),
+            };
+            for (subject, unmet) in part.subjects.iter().zip(&per_subject[first..]) {
+                if !unmet.is_empty() {
+                    self.skipped.push(Skipped {
+                        model: model.name.clone(),
+                        reason: DataMismatch {
+                            subject: subject.id.clone(),
+                            message: unmet.join("; "),
+                        },
+                    });
+                } else if let Some(outcome) = self
+                    .earlier
+                    .remove(&(model.name.clone(), subject.id.clone()))
+                {
+                    self.outcomes.push(outcome);
+                } else {
+                    kept.subjects.push(subject.clone());
+                }
+            }
+            if kept.subjects.is_empty() {
+                continue;
+            }
+            self.outcomes.extend(fit_table_each(
+                std::slice::from_ref(model),
+                &kept,
+                options,
+                threads,
+                finished,
+            )?);
+        }
+        Ok(())
+    }
+
+    /// Fits and skipped pairs in (model, subject) order, subjects in table order.
+    fn finish(self, models: &[Model], screened: &Screened) -> (Vec<SubjectFit>, Vec<Skipped>) {
+        let mut fits = Vec::new();
+        let mut skipped = self.skipped;
+        for outcome in self.outcomes {
+            match outcome {
+                Ok(f) => fits.push(f),
+                Err(s) => skipped.push(s),
             }
         }
-        if kept.subjects.is_empty() {
-            continue;
-        }
-        let (f, s) = fit_table(
-            std::slice::from_ref(model),
-            &kept,
-            options,
-            threads,
-            progress,
-        )?;
-        fits.extend(f);
-        skipped.extend(s);
+        // The pairs the screen set aside come first within each model, and journalled pairs
+        // before the new ones; put every model's pairs in table order, the order of an
+        // uninterrupted run and the order `merge` restores from shards.
+        let position: std::collections::HashMap<&str, usize> = screened
+            .subjects
+            .iter()
+            .enumerate()
+            .map(|(k, s)| (s.subject.as_str(), k))
+            .collect();
+        let model_index = |name: &str| models.iter().position(|m| m.name == name);
+        let order =
+            |model: &str, subject: &str| (model_index(model), position.get(subject).copied());
+        fits.sort_by_key(|f| order(&f.model, &f.subject));
+        skipped.sort_by_key(|s| order(&s.model, &s.reason.subject));
+        (fits, skipped)
     }
-    // The pairs the screen set aside come first within each model; put every model's pairs in
-    // table order, the order `merge` restores from shards.
-    let position: std::collections::HashMap<&str, usize> = table
-        .subjects
-        .iter()
-        .enumerate()
-        .map(|(k, s)| (s.id.as_str(), k))
-        .collect();
-    let model_index = |name: &str| models.iter().position(|m| m.name == name);
-    skipped.sort_by_key(|s| {
-        (
-            model_index(&s.model),
-            position.get(s.reason.subject.as_str()).copied(),
-        )
-    });
-    Ok((fits, skipped))
+}
+
+/// The (model, subject) pair of an outcome.
+pub fn outcome_pair(outcome: &Outcome) -> (String, String) {
+    match outcome {
+        Ok(f) => (f.model.clone(), f.subject.clone()),
+        Err(s) => (s.model.clone(), s.reason.subject.clone()),
+    }
 }
 
 /// Number of (model, subject) fits the screen lets through.

@@ -8,6 +8,7 @@ mod density;
 mod export;
 mod fit;
 mod input;
+mod journal;
 mod merge;
 mod models;
 pub mod plan;
@@ -67,7 +68,9 @@ pub enum Command {
     ///
     /// Writes DIR/parameters.csv (one row per subject, model and parameter), DIR/estimates_wide.csv
     /// (one row per subject and model), DIR/fit_summary.csv (with each fit's status),
-    /// DIR/data_screen.csv, their Parquet twins, and DIR/run.json.
+    /// DIR/data_screen.csv, their Parquet twins, and DIR/run.json. Each finished (model,
+    /// subject) pair is journalled beside DIR (.<DIR>.valuedrift-journal) until DIR is written,
+    /// so a stopped run continues with --resume.
     #[command(after_help = RESEARCH_CAUTION)]
     Fit {
         /// Trial table (.csv, .tsv or .parquet); see the README for its columns.
@@ -151,6 +154,9 @@ pub enum Command {
         /// Whether an existing result may be replaced.
         #[command(flatten)]
         replace: ReplaceArg,
+        /// Resuming an interrupted run (--resume) or discarding its journal (--restart).
+        #[command(flatten)]
+        journal: journal::JournalArgs,
     },
     /// Combines the folders of `fit --shard 1/N` … `--shard N/N` into the folder a single run of
     /// the same fit writes, byte for byte (its run.json records the command line without
@@ -640,6 +646,7 @@ fn run_as(
             covariates_as_given,
             shard,
             replace,
+            journal,
             reading,
             screen,
         } => {
@@ -694,6 +701,8 @@ fn run_as(
                 }),
                 screen,
                 shard,
+                // merge's EM step fits nothing, so it keeps no journal.
+                journal: from_shards.is_none().then(|| journal.mode()),
                 from_shards: from_shards.and_then(ShardResults::fit),
             };
             let fitted = fit::run(run, command_line)?;

@@ -54,8 +54,17 @@ impl Shard {
 
     /// Keeps only this shard's subjects in `table` and in the screen of it.
     pub fn restrict(self, table: &mut TrialTable, screened: &mut Screened) {
-        let keep: Vec<bool> = table.subjects.iter().map(|s| self.holds(&s.id)).collect();
-        kept(&mut table.subjects, &keep);
+        table.subjects.retain(|s| self.holds(&s.id));
+        self.restrict_screen(screened);
+    }
+
+    /// Keeps only this shard's subjects in the screen of a table.
+    pub fn restrict_screen(self, screened: &mut Screened) {
+        let keep: Vec<bool> = screened
+            .subjects
+            .iter()
+            .map(|s| self.holds(&s.subject))
+            .collect();
         kept(&mut screened.subjects, &keep);
         for (_, per_subject) in &mut screened.unmet {
             kept(per_subject, &keep);

@@ -38,11 +38,14 @@
 mod read;
 mod screen;
 
-pub use read::{ColumnMap, ColumnMapError, ReadNotes, read_trials, read_trials_noted};
+pub use read::{
+    ColumnMap, ColumnMapError, ReadNotes, SubjectParts, read_trials, read_trials_noted,
+};
 pub use screen::{
     DEFAULT_FAST_FLOOR, MILLISECOND_MEDIAN, ModelNeeds, ScreenError, ScreenSettings,
-    ScreenSettingsError, SubjectScreen, TRIALS_PER_PARAMETER, TrimCounts, screen, screen_table,
-    share_slower_than, trim_response_times, unmet_needs,
+    ScreenSettingsError, SubjectScreen, TRIALS_PER_PARAMETER, TrimCounts, judge_screens,
+    millisecond_medians, screen, screen_subjects, screen_table, share_slower_than,
+    trim_response_times, unmet_needs,
 };
 
 /// Labels of the options offered on a trial, in column order: the per-option columns of a trial

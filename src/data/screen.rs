@@ -330,7 +330,17 @@ pub fn screen_table(
     settings: &ScreenSettings,
     needs: &[ModelNeeds],
 ) -> Result<Vec<SubjectScreen>, ScreenError> {
-    let medians: Vec<(String, f64)> = table
+    let milliseconds = millisecond_medians(table);
+    let screens = screen_subjects(table, settings);
+    judge_screens(&milliseconds, &screens, needs)?;
+    Ok(screens)
+}
+
+/// The subjects of `table` whose median response time is above [`MILLISECOND_MEDIAN`] seconds,
+/// with that median, in table order (a table may be screened a part at a time: gather these
+/// over the parts, then [`judge_screens`]).
+pub fn millisecond_medians(table: &TrialTable) -> Vec<(String, f64)> {
+    table
         .subjects
         .iter()
         .filter_map(|s| {
@@ -338,21 +348,36 @@ pub fn screen_table(
             median(&mut rts).map(|m| (s.id.clone(), m))
         })
         .filter(|(_, m)| *m > MILLISECOND_MEDIAN)
-        .collect();
-    if let Some((example, median)) = medians.first() {
-        return Err(ScreenError::Milliseconds {
-            count: medians.len(),
-            example: example.clone(),
-            median: *median,
-        });
-    }
+        .collect()
+}
+
+/// Trims the response times of `table` with the settings and screens every subject, in table
+/// order.
+pub fn screen_subjects(table: &mut TrialTable, settings: &ScreenSettings) -> Vec<SubjectScreen> {
     let trimmed = trim_response_times(table, settings.trim_below, settings.trim_above);
-    let screens: Vec<SubjectScreen> = table
+    table
         .subjects
         .iter()
         .zip(trimmed)
         .map(|(s, t)| screen(s, settings.fast_floor, t))
-        .collect();
+        .collect()
+}
+
+/// The refusals of the screen over every subject: response times that look like milliseconds
+/// (`milliseconds`, from [`millisecond_medians`]), then, per model, subjects with fewer responses
+/// than its free parameters.
+pub fn judge_screens(
+    milliseconds: &[(String, f64)],
+    screens: &[SubjectScreen],
+    needs: &[ModelNeeds],
+) -> Result<(), ScreenError> {
+    if let Some((example, median)) = milliseconds.first() {
+        return Err(ScreenError::Milliseconds {
+            count: milliseconds.len(),
+            example: example.clone(),
+            median: *median,
+        });
+    }
     for model in needs {
         let short: Vec<&str> = screens
             .iter()
@@ -376,7 +401,7 @@ pub fn screen_table(
             });
         }
     }
-    Ok(screens)
+    Ok(())
 }
 
 /// Share of the table's response times slower than `deadline` (seconds); `None` without any.

@@ -175,6 +175,9 @@ pub struct Skipped {
     pub reason: DataMismatch,
 }
 
+/// The outcome of fitting one model to one subject: the fit, or why the pair could not be fitted.
+pub type Outcome = Result<SubjectFit, Skipped>;
+
 /// Fits every model to every subject, subjects in parallel on `threads` threads (0: all cores).
 /// Results come in (model, subject) order and do not depend on the number of threads: each
 /// subject's starts come from the seed and its label.
@@ -185,27 +188,7 @@ pub fn fit_table(
     threads: usize,
     progress: &(dyn Fn() + Sync),
 ) -> Result<(Vec<SubjectFit>, Vec<Skipped>), rayon::ThreadPoolBuildError> {
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads)
-        .build()?;
-    let jobs: Vec<(&Model, &Subject)> = models
-        .iter()
-        .flat_map(|m| table.subjects.iter().map(move |s| (m, s)))
-        .collect();
-    let outcomes: Vec<Result<SubjectFit, Skipped>> = pool.install(|| {
-        jobs.par_iter()
-            .map(|&(model, subject)| {
-                let outcome = SubjectLikelihood::new(model, subject, options.deadline)
-                    .map(|lik| fit_subject(&lik.with_lock(options.lock), options))
-                    .map_err(|reason| Skipped {
-                        model: model.name.clone(),
-                        reason,
-                    });
-                progress();
-                outcome
-            })
-            .collect()
-    });
+    let outcomes = fit_table_each(models, table, options, threads, &|_| progress())?;
     let mut fits = Vec::new();
     let mut skipped = Vec::new();
     for outcome in outcomes {
@@ -215,6 +198,39 @@ pub fn fit_table(
         }
     }
     Ok((fits, skipped))
+}
+
+/// As [`fit_table`], with every pair's outcome in (model, subject) order; `finished` sees each
+/// outcome as soon as its pair is done (in the order the threads finish them), e.g. to journal
+/// it.
+pub fn fit_table_each(
+    models: &[Model],
+    table: &TrialTable,
+    options: &FitOptions,
+    threads: usize,
+    finished: &(dyn Fn(&Outcome) + Sync),
+) -> Result<Vec<Outcome>, rayon::ThreadPoolBuildError> {
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()?;
+    let jobs: Vec<(&Model, &Subject)> = models
+        .iter()
+        .flat_map(|m| table.subjects.iter().map(move |s| (m, s)))
+        .collect();
+    Ok(pool.install(|| {
+        jobs.par_iter()
+            .map(|&(model, subject)| {
+                let outcome = SubjectLikelihood::new(model, subject, options.deadline)
+                    .map(|lik| fit_subject(&lik.with_lock(options.lock), options))
+                    .map_err(|reason| Skipped {
+                        model: model.name.clone(),
+                        reason,
+                    });
+                finished(&outcome);
+                outcome
+            })
+            .collect()
+    }))
 }
 
 /// Empirical-Bayes fits (see [`fit_group`]) of every model, from the per-subject fits `fits` of

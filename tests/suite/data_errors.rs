@@ -7,7 +7,9 @@
 use std::path::{Path, PathBuf};
 
 use polars::prelude::*;
-use valuedrift::data::{Choice, ColumnMap, TrialTable, read_trials, read_trials_noted};
+use valuedrift::data::{
+    Choice, ColumnMap, SubjectParts, TrialTable, read_trials, read_trials_noted,
+};
 use valuedrift::files::InputError;
 
 const GOOD: &str = "\
@@ -812,5 +814,58 @@ fn trial_numbers_may_restart_in_each_run() {
         Some(3),
         Some("trial"),
         "within run \"r1\" of subject",
+    );
+}
+
+/// Every subject of the table at `path`, read in parts of `subjects` subjects.
+fn read_in_parts(path: &Path, subjects: usize) -> TrialTable {
+    let mut parts = SubjectParts::open(path, &ColumnMap::default()).unwrap();
+    let mut all = Vec::new();
+    while let Some(part) = parts.next_part(subjects).unwrap() {
+        assert!(!part.subjects.is_empty() && part.subjects.len() <= subjects);
+        all.extend(part.subjects);
+    }
+    let present = read(path).present;
+    TrialTable {
+        subjects: all,
+        present,
+    }
+}
+
+#[test]
+fn streamed_parts_equal_the_whole_table_on_published_and_demo_data() {
+    // source: the published effort-offer trials (Mehrhof & Nord 2025, MIT licence; 958
+    // participants) and the demo's table, as CSV and as Parquet: reading a few subjects at a
+    // time must give exactly the table read whole (common practice: streaming changes nothing).
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    let dir = tempfile::tempdir().unwrap();
+    let demo = root.join("demo-data/orchard_trials.csv");
+    let demo_parquet = dir.path().join("orchard.parquet");
+    let mut frame = CsvReadOptions::default()
+        .try_into_reader_with_file_path(Some(demo.clone()))
+        .unwrap()
+        .finish()
+        .unwrap();
+    write_parquet(&demo_parquet, &mut frame);
+    for path in [
+        root.join("tests/data/effort-offers-2025/trials.csv"),
+        demo.clone(),
+        demo_parquet,
+    ] {
+        let whole = read(&path);
+        for subjects in [1, 7, 64, usize::MAX] {
+            assert_eq!(
+                read_in_parts(&path, subjects),
+                whole,
+                "{} in parts of {subjects}",
+                path.display()
+            );
+        }
+    }
+    assert_eq!(
+        read(&root.join("tests/data/effort-offers-2025/trials.csv"))
+            .subjects
+            .len(),
+        958
     );
 }

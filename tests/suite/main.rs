@@ -33,5 +33,6 @@ mod race_reference;
 mod real_data;
 mod report;
 mod response_window;
+mod resume;
 mod shards;
 mod task_shapes;

@@ -60,14 +60,29 @@ pub fn read_trials_noted(
     path: &Path,
     columns: &ColumnMap,
 ) -> Result<(TrialTable, ReadNotes), InputError> {
+    match format_of(path)? {
+        Format::Delimited(sep) => read_delimited(path, columns, sep),
+        Format::Parquet => read_parquet(path, columns),
+    }
+}
+
+/// The formats a trial table can have.
+enum Format {
+    /// CSV or TSV, with this separator.
+    Delimited(u8),
+    Parquet,
+}
+
+/// The format named by the extension of `path`.
+fn format_of(path: &Path) -> Result<Format, InputError> {
     let extension = path
         .extension()
         .and_then(|e| e.to_str())
         .map(str::to_ascii_lowercase);
     match extension.as_deref() {
-        Some("csv") => read_delimited(path, columns, b','),
-        Some("tsv") | Some("txt") => read_delimited(path, columns, b'\t'),
-        Some("parquet") => read_parquet(path, columns),
+        Some("csv") => Ok(Format::Delimited(b',')),
+        Some("tsv") | Some("txt") => Ok(Format::Delimited(b'\t')),
+        Some("parquet") => Ok(Format::Parquet),
         Some(other) => Err(InputError::file(
             path,
             format!(
@@ -80,5 +95,65 @@ pub fn read_trials_noted(
             "has no extension; expected .csv (comma-separated), .tsv or .txt (tab-separated) \
              or .parquet",
         )),
+    }
+}
+
+/// A trial table read a few whole subjects at a time, each part checked exactly as
+/// [`read_trials`] checks the whole table (a subject seen in an earlier part may not appear
+/// again). CSV and TSV files are streamed: only one part is in memory at once, so memory does not
+/// grow with the number of subjects. Parquet files are read whole and handed out in parts.
+pub struct SubjectParts {
+    source: Source,
+}
+
+enum Source {
+    Delimited(Box<delimited::DelimitedStream>),
+    Whole { table: TrialTable, notes: ReadNotes },
+}
+
+impl SubjectParts {
+    /// Opens the trial table at `path` (format by extension, as [`read_trials`]) and reads its
+    /// header (CSV, TSV) or all of it (Parquet).
+    pub fn open(path: &Path, columns: &ColumnMap) -> Result<Self, InputError> {
+        let source = match format_of(path)? {
+            Format::Delimited(sep) => Source::Delimited(Box::new(
+                delimited::DelimitedStream::open(path, columns, sep)?,
+            )),
+            Format::Parquet => {
+                let (mut table, notes) = read_parquet(path, columns)?;
+                table.subjects.reverse();
+                Source::Whole { table, notes }
+            }
+        };
+        Ok(SubjectParts { source })
+    }
+
+    /// The next part, of at most `subjects` whole subjects in file order (at least one);
+    /// `None` after the last. Errors name the file, line (or Parquet row) and column.
+    pub fn next_part(&mut self, subjects: usize) -> Result<Option<TrialTable>, InputError> {
+        match &mut self.source {
+            Source::Delimited(stream) => stream.next_part(subjects),
+            Source::Whole { table, .. } => {
+                if table.subjects.is_empty() {
+                    return Ok(None);
+                }
+                let take = subjects.clamp(1, table.subjects.len());
+                let start = table.subjects.len() - take;
+                let mut part: Vec<_> = table.subjects.drain(start..).collect();
+                part.reverse();
+                Ok(Some(TrialTable {
+                    subjects: part,
+                    present: table.present.clone(),
+                }))
+            }
+        }
+    }
+
+    /// What the reader accepted with a note, over the parts read so far.
+    pub fn notes(&self) -> &ReadNotes {
+        match &self.source {
+            Source::Delimited(stream) => &stream.state.notes,
+            Source::Whole { notes, .. } => notes,
+        }
     }
 }

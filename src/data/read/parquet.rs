@@ -9,7 +9,7 @@ use super::super::TrialTable;
 use super::ReadNotes;
 use super::cells::*;
 use super::columns::*;
-use super::rows::build;
+use super::rows::{ReadState, build, no_trials};
 use crate::files::InputError;
 
 pub(super) fn read_parquet(
@@ -69,12 +69,18 @@ pub(super) fn read_parquet(
             "has no rows; expected one row per trial",
         ));
     }
-    build(
+    let mut state = ReadState::default();
+    let table = build(
         path,
         columns,
         &header,
         &series,
         frame.height(),
         &Positions::Rows,
-    )
+        &mut state,
+    )?;
+    if table.subjects.is_empty() {
+        return Err(no_trials(path));
+    }
+    Ok((table, state.notes))
 }

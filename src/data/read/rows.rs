@@ -14,6 +14,21 @@ use super::cells::*;
 use super::columns::*;
 use crate::files::InputError;
 
+/// What reading one part of a table hands on to the next part, so that a table read in parts
+/// (subjects at a time) is checked exactly as a table read whole.
+#[derive(Debug, Default)]
+pub(super) struct ReadState {
+    /// Subject label → line (or row) of its first row, for every subject started so far.
+    started: HashMap<String, u64>,
+    /// The last subject read.
+    previous: Option<String>,
+    /// What was accepted with a note so far.
+    pub(super) notes: ReadNotes,
+}
+
+/// Checks the rows of `series` (one part of a table, or all of it) and builds their subjects;
+/// subjects already begun in an earlier part (`state`) may not appear again. The table may be
+/// empty when every row is empty; callers decide whether that is an error.
 pub(super) fn build(
     path: &Path,
     columns: &ColumnMap,
@@ -21,7 +36,8 @@ pub(super) fn build(
     series: &[Series],
     height: usize,
     positions: &Positions,
-) -> Result<(TrialTable, ReadNotes), InputError> {
+    state: &mut ReadState,
+) -> Result<TrialTable, InputError> {
     let header_error = |column: &str, message: String| InputError {
         line: positions.header(),
         column: Some(column.to_string()),
@@ -174,13 +190,12 @@ pub(super) fn build(
     let has_options = index[slot("option_a")].is_some();
 
     let mut subjects: Vec<Subject> = Vec::new();
-    // Subject label → line of its first row, for every subject started so far.
-    let mut started: HashMap<String, u64> = HashMap::new();
+    let started = &mut state.started;
     let mut option_index: HashMap<String, usize> = HashMap::new();
     let mut group_line: u64 = 0;
     // Runs of the current subject seen so far (each run's rows must be together).
     let mut runs_seen: HashSet<String> = HashSet::new();
-    let mut notes = ReadNotes::default();
+    let notes = &mut state.notes;
 
     for row in 0..height {
         if CANONICAL
@@ -198,7 +213,11 @@ pub(super) fn build(
         let new_subject = subjects.last().is_none_or(|s| s.id.as_str() != id.as_ref());
         if new_subject {
             if let Some(first) = started.get(id.as_ref()) {
-                let previous = subjects.last().map(|s| s.id.as_str()).unwrap_or_default();
+                let previous = subjects
+                    .last()
+                    .map(|s| s.id.as_str())
+                    .or(state.previous.as_deref())
+                    .unwrap_or_default();
                 return Err(reader.error(
                     row,
                     "subject",
@@ -389,13 +408,18 @@ pub(super) fn build(
         });
     }
 
-    if subjects.is_empty() {
-        return Err(InputError::file(
-            path,
-            "has no trials (every row is empty); expected one row per trial",
-        ));
+    if let Some(last) = subjects.last() {
+        state.previous = Some(last.id.clone());
     }
-    Ok((TrialTable { subjects, present }, notes))
+    Ok(TrialTable { subjects, present })
+}
+
+/// The error for a table in which every row is empty.
+pub(super) fn no_trials(path: &Path) -> InputError {
+    InputError::file(
+        path,
+        "has no trials (every row is empty); expected one row per trial",
+    )
 }
 
 /// Reads typed values from one row, turning problems into positioned errors.
