@@ -2,8 +2,9 @@
 //! parameters, reproduce that subject's choices and response times?
 //!
 //! Each subject is simulated `sims` times with its fitted (natural-scale) parameters, on a
-//! ChaCha8 generator seeded with the run's seed and set to the subject's own stream (its index in
-//! the trial table), so results do not depend on the thread count. Two modes:
+//! ChaCha8 generator seeded with the run's seed and set to the subject's own stream (the first
+//! eight bytes of SHA-256 of its label), so results depend neither on the thread count nor on
+//! the other subjects (a shard of the subjects gives each the replicates of a single run). Two modes:
 //! - **free** ([`Mode::Free`]) where every trial gives what each option would have delivered
 //!   (`outcome_if_a`, `outcome_if_b`): the whole task is simulated, learning from the simulated
 //!   choices ([`crate::simulate::simulate_subject`]);
@@ -45,8 +46,10 @@
 pub mod plots;
 mod replicates;
 mod statistics;
+mod stored;
 mod tables;
 
 pub use replicates::*;
 pub use statistics::*;
+pub use stored::*;
 pub use tables::*;

@@ -3,6 +3,7 @@
 
 use super::statistics::*;
 use crate::data::Subject;
+use crate::fit::starts::subject_stream;
 use crate::likelihood::{DataMismatch, SubjectLikelihood, TrialTrace};
 use crate::model::Model;
 use crate::model::components::SubjectContext;
@@ -77,7 +78,7 @@ pub fn simulate_one_step_ahead(
 }
 
 /// Checks one subject: `natural` holds every model parameter (model order, natural scale);
-/// `stream` selects the subject's generator stream (its index in the table).
+/// `stream` selects the subject's generator stream ([`check_subjects`] uses its label's).
 pub fn check_subject(
     model: &Model,
     natural: &[f64],
@@ -176,9 +177,10 @@ pub fn check_subject(
     })
 }
 
-/// Checks every subject in parallel (`estimates[i]` belongs to `subjects[i]`; subject i uses
-/// generator stream i); `progress` is called once per finished subject. Results do not depend
-/// on the thread count.
+/// Checks every subject in parallel (`estimates[i]` belongs to `subjects[i]`); `progress` is
+/// called once per finished subject. Each subject's generator stream comes from its label
+/// ([`subject_stream`], as for the fit's start points), so its replicates depend on the seed
+/// and its label only: not on the thread count, the other subjects or the shard it is in.
 pub fn check_subjects(
     model: &Model,
     estimates: &[Vec<f64>],
@@ -189,9 +191,9 @@ pub fn check_subjects(
     subjects
         .par_iter()
         .zip(estimates.par_iter())
-        .enumerate()
-        .map(|(i, (subject, natural))| {
-            let result = check_subject(model, natural, subject, settings, i as u64);
+        .map(|(subject, natural)| {
+            let stream = subject_stream(&subject.id);
+            let result = check_subject(model, natural, subject, settings, stream);
             progress();
             result
         })

@@ -1,11 +1,15 @@
 //! `valuedrift check`: predictive checks of a fitted model against the data it was fitted to.
 
+use super::shard::{self, Shard};
 use crate::check::plots::{choice_figure, option_figure, rt_quantile_figure};
 use crate::check::{
     CheckSettings, Condition, FLAG_FRACTION, Mode, POOLED, check_subjects, choices_table, misfit,
     misfit_table, pooled, quantiles_table, ranked_misfits,
 };
+use crate::check::{SubjectCheck, stored_checks_table};
 use crate::files::OutputSet;
+use crate::results::fit_folder::{FolderTable, RUN_RECORD};
+use sha2::{Digest, Sha256};
 
 /// Subjects, worst first by rms z, that get figures of their own.
 const WORST_FIGURES: usize = 3;
@@ -18,7 +22,55 @@ pub struct CheckRun<'a> {
     pub settings: CheckSettings,
     /// A column whose levels get statistics of their own.
     pub by: Option<String>,
+    /// Check only this shard's subjects (`--shard I/N`).
+    pub shard: Option<Shard>,
+    /// The checks of every shard of this run, gathered by `merge`: used instead of simulating.
+    pub from_shards: Option<FromShards>,
+    /// The command line, for run.json.
+    pub command_line: &'a [String],
 }
+
+/// The per-subject checks of all shards of a check, in table order.
+pub struct FromShards {
+    /// One per subject.
+    pub checks: Vec<SubjectCheck>,
+    /// `merge --replace`: replace an existing result (the shards' own option is not used).
+    pub replace: bool,
+}
+
+/// A check shard's table of per-subject statistics and replicates, read by `merge`.
+pub const SHARD_CHECKS: FolderTable = FolderTable::new("shard_checks");
+
+/// The check's run record: the command line (without `--shard`), the model and its definition,
+/// the trial table and its checksum, the fit folder, the estimates and the settings.
+fn run_record(
+    run: &CheckRun<'_>,
+    model: &crate::model::Model,
+) -> Result<serde_json::Value, std::io::Error> {
+    let bytes = std::fs::read(&run.input.data)?;
+    Ok(serde_json::json!({
+        "tool": "valuedrift",
+        "version": env!("CARGO_PKG_VERSION"),
+        "command": COMMAND,
+        "command_line": shard::without_shard(run.command_line),
+        "model": { "name": model.name, "definition": model.text },
+        "data": {
+            "path": run.input.data.display().to_string(),
+            "sha256": format!("{:x}", Sha256::digest(&bytes)),
+        },
+        "fits": run.input.fits.display().to_string(),
+        "estimates": run.input.estimates.estimates.parameters().csv(),
+        "sims": run.settings.sims,
+        "seed": run.settings.seed,
+        "deadline": run.settings.deadline,
+        "lock": run.settings.lock,
+        "by": run.by,
+        "caution": super::RESEARCH_CAUTION,
+    }))
+}
+
+/// The `command` of a check's run.json (a fit's has none).
+pub const COMMAND: &str = "check";
 
 /// Reads, simulates, summarises and writes every output at once (nothing is written on error).
 pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
@@ -36,27 +88,69 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
     {
         return Err(format!("--deadline {d}: expected a number of seconds > 0").into());
     }
-    let mut outputs = OutputSet::create(out, run.input.replace.replace)?;
-    let (table, model, estimates) = run.input.load()?;
+    let replace = run
+        .from_shards
+        .as_ref()
+        .map_or(run.input.replace.replace, |f| f.replace);
+    let mut outputs = OutputSet::create(out, replace)?;
+    let (mut table, model, mut estimates) = run.input.load()?;
     let mut settings = run.settings.clone();
     if let Some(column) = &run.by {
+        // Levels in order of first appearance in the whole table, in a shard as in one run.
         settings.condition = Some(
             Condition::of(column, &table.subjects)
                 .map_err(|e| format!("--by {column}: {}: {e}", run.input.data.display()))?,
         );
     }
-    let run = CheckRun { settings, ..run };
-    let bar = crate::progress::Progress::new(
-        &format!(
-            "simulating {} replicate datasets of each subject",
-            run.settings.sims
-        ),
-        table.subjects.len(),
-    );
-    let checks = check_subjects(&model, &estimates, &table.subjects, &run.settings, &|| {
-        bar.inc()
+    let table_subjects: Vec<String> = table.subjects.iter().map(|s| s.id.clone()).collect();
+    if let Some(shard) = run.shard {
+        let keep: Vec<bool> = table.subjects.iter().map(|s| shard.holds(&s.id)).collect();
+        shard::kept(&mut table.subjects, &keep);
+        shard::kept(&mut estimates, &keep);
+    }
+    let mut run = CheckRun { settings, ..run };
+    let checks = match run.from_shards.take() {
+        Some(done) => done.checks,
+        None => {
+            let bar = crate::progress::Progress::new(
+                &format!(
+                    "simulating {} replicate datasets of each subject",
+                    run.settings.sims
+                ),
+                table.subjects.len(),
+            );
+            let checks =
+                check_subjects(&model, &estimates, &table.subjects, &run.settings, &|| {
+                    bar.inc()
+                })?;
+            bar.finish();
+            checks
+        }
+    };
+    let mut record = run_record(&run, &model)?;
+    if let Some(shard) = run.shard {
+        // The pooled statistics and figures need every subject: merge makes them.
+        record[crate::results::fit_folder::key::SHARD] = shard.record(&table_subjects);
+        outputs.stage(&SHARD_CHECKS.csv_in(out), |w| {
+            stored_checks_table(&checks).write_csv(w)
+        })?;
+        outputs.stage(&out.join(RUN_RECORD), |w| {
+            serde_json::to_writer_pretty(w, &record)
+        })?;
+        outputs.commit()?;
+        println!(
+            "checked shard {} of {}: {} subjects; outputs in {} (merge the shards for the \
+             tables and figures)",
+            shard.index,
+            shard.count,
+            checks.len(),
+            out.display()
+        );
+        return Ok(());
+    }
+    outputs.stage(&out.join(RUN_RECORD), |w| {
+        serde_json::to_writer_pretty(w, &record)
     })?;
-    bar.finish();
     let pooled = pooled(&checks);
     let condition = run.settings.condition.as_ref();
     choices_table(&checks, &pooled, condition).stage_both(&mut outputs, out, "check_choices")?;

@@ -80,6 +80,7 @@ pub fn run(
             screen: crate::data::ScreenSettings::default(),
             shard: None,
             journal: None,
+            from_shards: None,
         },
         command_line,
     )?;
@@ -200,6 +201,9 @@ pub fn run(
             condition: None,
         },
         by: None,
+        shard: None,
+        from_shards: None,
+        command_line,
     })?;
     let report = crate::report::build(
         &crate::report::ReportInputs {

@@ -37,10 +37,24 @@ pub struct FitRun<'a> {
     pub hierarchical: Option<Hierarchical>,
     /// The data screen's settings (fast floor, trimming).
     pub screen: ScreenSettings,
-    /// Fit only this shard's subjects (`--shard I/N`; per-subject fits only).
+    /// Fit only this shard's subjects (`--shard I/N`; with `--hierarchical` the per-subject
+    /// fits only, and each fit's unconstrained optimum for the EM that `merge` runs).
     pub shard: Option<Shard>,
     /// What to do with the journal of an interrupted run (None: keep no journal).
     pub journal: Option<journal::Mode>,
+    /// The per-subject fits of every shard of this run, gathered by `merge`: used instead of
+    /// fitting, so that the EM of `--hierarchical` starts from exactly the shards' fits.
+    pub from_shards: Option<FromShards>,
+}
+
+/// The per-subject fits and pairs not fitted of all shards of a run, in a single run's order.
+pub struct FromShards {
+    /// Successful fits in (model, subject) order.
+    pub fits: Vec<SubjectFit>,
+    /// Pairs that could not be fitted, in (model, subject) order.
+    pub skipped: Vec<Skipped>,
+    /// `merge --replace`: replace an existing result (the shards' own option is not used).
+    pub replace: bool,
 }
 
 /// Settings of the empirical-Bayes fit.
@@ -248,7 +262,11 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         }
         None => (None, Vec::new()),
     };
-    let jobs = super::input::screened_jobs(&screened);
+    // merge's EM step takes every fit from the shards and fits none here.
+    let jobs = match run.from_shards {
+        Some(_) => 0,
+        None => super::input::screened_jobs(&screened),
+    };
     if !earlier.is_empty() {
         eprintln!(
             "resuming: {} of the {jobs} (model, subject) pairs from the journal; fitting the \
@@ -264,8 +282,9 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         }
         bar.inc();
     };
-    let (fits, skipped) = match &whole {
-        Some(table) => super::input::fit_screened(
+    let (fits, skipped) = match (run.from_shards, &whole) {
+        (Some(done), _) => (done.fits, done.skipped),
+        (None, Some(table)) => super::input::fit_screened(
             &models,
             table,
             &screened,
@@ -274,7 +293,7 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             earlier,
             &finished,
         )?,
-        None => super::input::fit_streamed(
+        (None, None) => super::input::fit_streamed(
             run.data,
             &run.columns,
             &models,
@@ -298,7 +317,8 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         return Err(format!("no subject could be fitted ({})", reasons.join("; ")).into());
     }
     let mut groups = Vec::new();
-    if let Some(settings) = &run.hierarchical {
+    // A shard's EM waits for `merge`, which has every subject's fit.
+    if let Some(settings) = run.hierarchical.as_ref().filter(|_| run.shard.is_none()) {
         let spinner = crate::progress::Iterations::new(
             "empirical Bayes: EM iterations of",
             settings.em.max_iterations,
@@ -404,36 +424,10 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
                 "table": fit_folder::EB_PRIOR_REGRESSION.csv(),
             });
         }
-        let shrunken: Vec<SubjectFit> = groups.iter().flat_map(|g| g.subjects.clone()).collect();
-        stage_estimates(
-            &mut outputs,
-            run.out,
-            &shrunken,
-            EstimateSource::EmpiricalBayes,
-        )?;
-        group_prior_table(&groups).stage_both(
-            &mut outputs,
-            run.out,
-            fit_folder::EB_GROUP_PRIORS.stem,
-        )?;
-        group_evidence_table(&groups).stage_both(
-            &mut outputs,
-            run.out,
-            fit_folder::EB_MODEL_EVIDENCE.stem,
-        )?;
-        if !settings.covariates.is_empty() {
-            prior_regression_table(&groups).stage_both(
-                &mut outputs,
-                run.out,
-                fit_folder::EB_PRIOR_REGRESSION.stem,
-            )?;
-        }
-        if settings.em.full_covariance {
-            group_correlation_table(&groups).stage_both(
-                &mut outputs,
-                run.out,
-                fit_folder::EB_GROUP_CORRELATIONS.stem,
-            )?;
+        if run.shard.is_some() {
+            shard::stage_em_starts(&mut outputs, run.out, &fits)?;
+        } else {
+            stage_group_tables(&mut outputs, run.out, settings, &groups)?;
         }
     }
     outputs.stage(&run.out.join(fit_folder::RUN_RECORD), |w| {
@@ -450,6 +444,34 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         skipped,
         groups,
     })
+}
+
+/// Stages the tables of the empirical-Bayes fits `groups` in `dir`.
+fn stage_group_tables(
+    outputs: &mut OutputSet,
+    dir: &Path,
+    settings: &Hierarchical,
+    groups: &[GroupFit],
+) -> Result<(), crate::files::OutputError> {
+    let shrunken: Vec<SubjectFit> = groups.iter().flat_map(|g| g.subjects.clone()).collect();
+    stage_estimates(outputs, dir, &shrunken, EstimateSource::EmpiricalBayes)?;
+    group_prior_table(groups).stage_both(outputs, dir, fit_folder::EB_GROUP_PRIORS.stem)?;
+    group_evidence_table(groups).stage_both(outputs, dir, fit_folder::EB_MODEL_EVIDENCE.stem)?;
+    if !settings.covariates.is_empty() {
+        prior_regression_table(groups).stage_both(
+            outputs,
+            dir,
+            fit_folder::EB_PRIOR_REGRESSION.stem,
+        )?;
+    }
+    if settings.em.full_covariance {
+        group_correlation_table(groups).stage_both(
+            outputs,
+            dir,
+            fit_folder::EB_GROUP_CORRELATIONS.stem,
+        )?;
+    }
+    Ok(())
 }
 
 /// Stages the estimate tables of `fits` in `dir` under the names of `source`: the parameters

@@ -147,7 +147,8 @@ pub enum Command {
         covariates_as_given: bool,
         /// Fit only shard I of N (e.g. --shard 3/8, one job of a cluster array): the subjects
         /// whose label hashes to shard I. `valuedrift merge` combines the N folders into the
-        /// folder a single run writes. Not yet with --hierarchical.
+        /// folder a single run writes. With --hierarchical the shards fit their subjects and
+        /// `merge` runs the EM steps (which need every subject) on one node.
         #[arg(long, value_name = "I/N")]
         shard: Option<String>,
         /// Whether an existing result may be replaced.
@@ -159,8 +160,11 @@ pub enum Command {
     },
     /// Combines the folders of `fit --shard 1/N` … `--shard N/N` into the folder a single run of
     /// the same fit writes, byte for byte (its run.json records the command line without
-    /// --shard, with this command's --out). Refuses folders of different runs (data checksum,
-    /// models, seed, options) and names missing or repeated shards.
+    /// --shard, with this command's --out). With shards of `fit --hierarchical` it then runs the
+    /// EM steps here from the shards' fits; with shards of `check` or `plan` it pools their
+    /// subjects or studies into the folder a single check or plan writes. Refuses folders of
+    /// different runs (data checksum, models, seed, options) and names missing or repeated
+    /// shards.
     #[command(after_help = RESEARCH_CAUTION)]
     Merge {
         /// The shard folders (any order; a shell glob such as fits/shard-* works).
@@ -220,7 +224,7 @@ pub enum Command {
     ///
     /// Writes OUT/check_choices.csv, check_quantiles.csv, check_misfit.csv (+ Parquet) and
     /// check_choices.svg, check_rt_quantiles.svg, check_options.svg (pooled), and the same
-    /// figures for the three worst-fitting subjects (check_worst1_choices.svg, ...).
+    /// figures for the three worst-fitting subjects (check_worst1_choices.svg, ...), and run.json.
     #[command(after_help = RESEARCH_CAUTION)]
     Check {
         /// The fit folder, trial table, model and output folder.
@@ -241,6 +245,12 @@ pub enum Command {
         /// quantiles per level, with a `level` column in the tables.
         #[arg(long)]
         by: Option<String>,
+        /// Check only shard I of N of the subjects (e.g. --shard 3/8, one job of a cluster
+        /// array; the subjects whose label hashes to shard I, as for `fit --shard`). The folder
+        /// holds the shard's replicate statistics (shard_checks.csv) and run.json;
+        /// `valuedrift merge` pools the N folders into the folder a single check writes.
+        #[arg(long, value_name = "I/N")]
+        shard: Option<String>,
     },
     /// Compare one model's fitted parameters between groups of subjects: per free parameter,
     /// Welch's t test (Welch 1947), Mann-Whitney U (normal approximation with tie and continuity
@@ -370,6 +380,12 @@ pub enum Command {
         /// Threads (0: all cores); results do not depend on it.
         #[arg(long, default_value_t = 0)]
         threads: usize,
+        /// Simulate only shard I of N of the studies (e.g. --shard 3/8, one job of a cluster
+        /// array; studies dealt to the shards in turn, in plan order). The folder holds the
+        /// shard's studies (shard_studies.csv) and plan.json; `valuedrift merge` summarises the
+        /// N folders into the folder a single plan writes.
+        #[arg(long, value_name = "I/N")]
+        shard: Option<String>,
         /// Whether an existing result may be replaced.
         #[command(flatten)]
         replace: ReplaceArg,
@@ -624,6 +640,62 @@ pub fn group_column(fits: &std::path::Path, by: &str) -> String {
 /// Runs the parsed command.
 pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
     let command_line: Vec<String> = std::env::args().collect();
+    run_as(cli, &command_line, None)
+}
+
+/// What `merge` gathered from the shards of a run, used by the run's own command in place of
+/// the per-subject work (see [`merge`]).
+enum ShardResults {
+    /// The per-subject fits of `fit --hierarchical --shard`.
+    Fit(fit::FromShards),
+    /// The per-subject checks of `check --shard`.
+    Check(check::FromShards),
+    /// The studies of `plan --shard`.
+    Plan(plan::FromShards),
+}
+
+impl ShardResults {
+    /// The fits, if these are fits.
+    fn fit(self) -> Option<fit::FromShards> {
+        match self {
+            ShardResults::Fit(f) => Some(f),
+            _ => None,
+        }
+    }
+
+    /// The checks, if these are checks.
+    fn check(self) -> Option<check::FromShards> {
+        match self {
+            ShardResults::Check(c) => Some(c),
+            _ => None,
+        }
+    }
+
+    /// The studies, if these are studies.
+    fn plan(self) -> Option<plan::FromShards> {
+        match self {
+            ShardResults::Plan(p) => Some(p),
+            _ => None,
+        }
+    }
+
+    /// `merge --replace`: the merged folder may replace an existing result.
+    fn replace(&self) -> bool {
+        match self {
+            ShardResults::Fit(f) => f.replace,
+            ShardResults::Check(c) => c.replace,
+            ShardResults::Plan(p) => p.replace,
+        }
+    }
+}
+
+/// Runs the command `cli` parsed from `command_line`; with `from_shards` (from `merge`), the
+/// command takes its per-subject results from them instead of computing them.
+fn run_as(
+    cli: Cli,
+    command_line: &[String],
+    from_shards: Option<ShardResults>,
+) -> Result<(), Box<dyn std::error::Error>> {
     match cli.command {
         Command::Demo {
             out,
@@ -633,7 +705,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             &out,
             input::check_threads(threads)?,
             replace.replace,
-            &command_line,
+            command_line,
         ),
         Command::Fit {
             data,
@@ -660,13 +732,6 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             screen,
         } => {
             let shard = shard.as_deref().map(shard::Shard::parse).transpose()?;
-            if shard.is_some() && hierarchical {
-                return Err(
-                    "--shard with --hierarchical is not supported yet: the group priors \
-                            need every subject at once; fit without --shard"
-                        .into(),
-                );
-            }
             let columns = reading.apply(fit::column_map(&columns, by.as_deref())?)?;
             let starts = input::check_at_least("--starts", starts, 1, "start per subject")?;
             let threads = input::check_threads(threads)?;
@@ -689,7 +754,10 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 data: &data,
                 models: &model,
                 out: &out,
-                replace: replace.replace,
+                // merge's own --replace decides for the folder it writes.
+                replace: from_shards
+                    .as_ref()
+                    .map_or(replace.replace, ShardResults::replace),
                 options: crate::fit::FitOptions {
                     starts,
                     seed,
@@ -714,9 +782,11 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 }),
                 screen,
                 shard,
-                journal: Some(journal.mode()),
+                // merge's EM step fits nothing, so it keeps no journal.
+                journal: from_shards.is_none().then(|| journal.mode()),
+                from_shards: from_shards.and_then(ShardResults::fit),
             };
-            let fitted = fit::run(run, &command_line)?;
+            let fitted = fit::run(run, command_line)?;
             fit::print_summary(&fitted);
             fit::print_diagnostics(&fitted.fits, &fitted.models, &out);
             fit::print_group_summary(&fitted.groups);
@@ -748,6 +818,7 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             seed,
             deadline,
             by,
+            shard,
         } => check::run(check::CheckRun {
             input: &input,
             settings: crate::check::CheckSettings {
@@ -758,6 +829,9 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
                 condition: None,
             },
             by,
+            shard: shard.as_deref().map(shard::Shard::parse).transpose()?,
+            from_shards: from_shards.and_then(ShardResults::check),
+            command_line,
         }),
         Command::Contrast {
             fits,
@@ -822,13 +896,18 @@ pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
             plan: file,
             out,
             threads,
+            shard,
             replace,
         } => plan::run(
             &file,
             &out,
             input::check_threads(threads)?,
             replace.replace,
-            &command_line,
+            command_line,
+            (
+                shard.as_deref().map(shard::Shard::parse).transpose()?,
+                from_shards.and_then(ShardResults::plan),
+            ),
         )
         .map(|_| ()),
         Command::Report {

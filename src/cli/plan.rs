@@ -1,10 +1,14 @@
 //! `valuedrift plan`: recovery, model recovery and power of a design, by simulation.
 
+use super::shard::{self, Shard};
 use crate::files::OutputSet;
+use crate::plan::cohort::Study;
 use crate::plan::population::ValuesFile;
 use crate::plan::spec::PlanSpec;
+use crate::plan::stored::stored_studies_table;
 use crate::plan::{Plan, summaries, tables};
 use crate::progress::Progress;
+use crate::results::fit_folder::{FolderTable, key};
 use std::path::{Path, PathBuf};
 
 /// File names of the plan's outputs (each also as .parquet, but the run record).
@@ -21,6 +25,24 @@ pub const TRIALS_NEEDED: &str = "plan_trials_needed";
 pub const ESTIMATES: &str = "plan_estimates";
 /// The run record.
 pub const RECORD: &str = "plan.json";
+/// A plan shard's table of its simulated studies, read by `merge`.
+pub const SHARD_STUDIES: FolderTable = FolderTable::new("shard_studies");
+
+/// The studies of all shards of a plan, gathered by `merge`, in plan order.
+pub struct FromShards {
+    /// Every study.
+    pub studies: Vec<Study>,
+    /// The shards' plan.json without the shard entry: the merged run must record the same.
+    pub recorded: serde_json::Value,
+    /// `merge --replace`: replace an existing result (the shards' own option is not used).
+    pub replace: bool,
+}
+
+/// Whether study `job` (its position in [`Plan::jobs`], from 0) belongs to `shard`: studies are
+/// dealt to the shards in turn, so each shard gets studies of every generating model.
+pub fn holds(shard: Shard, job: usize) -> bool {
+    job % shard.count + 1 == shard.index
+}
 
 /// A path of the plan file, relative to the plan file's folder unless absolute.
 fn beside(plan: &Path, path: &Path) -> PathBuf {
@@ -74,13 +96,19 @@ pub struct PlanResults {
 
 /// Runs `valuedrift plan`: simulates and fits, summarises, writes every table (CSV and Parquet)
 /// and the run record as one set, and prints the main figures.
+///
+/// With `shard`, only the shard's studies are simulated and fitted, and the folder holds them
+/// ([`SHARD_STUDIES`]) and plan.json; with `from_shards` (from `merge`) the shards' studies are
+/// summarised instead of simulating. Returns the results, or None for a shard.
 pub fn run(
     plan_path: &Path,
     out: &Path,
     threads: usize,
     replace: bool,
     command_line: &[String],
-) -> Result<PlanResults, Box<dyn std::error::Error>> {
+    (shard, from_shards): (Option<Shard>, Option<FromShards>),
+) -> Result<Option<PlanResults>, Box<dyn std::error::Error>> {
+    let replace = from_shards.as_ref().map_or(replace, |f| f.replace);
     let mut outputs = OutputSet::create(out, replace)?;
     let plan = load(plan_path)?;
     let started = std::time::Instant::now();
@@ -120,9 +148,74 @@ pub fn run(
             );
         }
     }
-    let progress = Progress::new("planning", plan.total_steps());
-    let studies = plan.run(threads, &|| progress.inc())?;
-    progress.finish();
+    let command_line = shard::without_shard(command_line);
+    let mut record = record(&plan, plan_path, &command_line);
+    let jobs = plan.jobs();
+    let studies = match from_shards {
+        Some(done) => {
+            if done.recorded != record {
+                return Err(format!(
+                    "{}: the plan, its models or their populations differ from those the shards \
+                     recorded in {RECORD}: the files have changed since the shards ran",
+                    plan_path.display()
+                )
+                .into());
+            }
+            let found: Vec<(usize, usize)> = done
+                .studies
+                .iter()
+                .map(|s| (s.generating, s.study))
+                .collect();
+            if found != jobs {
+                return Err(format!(
+                    "the shards hold {} studies; the plan has {} ({} generating model(s) × {} \
+                     studies): a shard's {} does not hold its studies",
+                    found.len(),
+                    jobs.len(),
+                    plan.generating().len(),
+                    plan.spec.studies,
+                    SHARD_STUDIES.csv()
+                )
+                .into());
+            }
+            done.studies
+        }
+        None => {
+            let mine: Vec<(usize, usize)> = jobs
+                .iter()
+                .enumerate()
+                .filter(|&(j, _)| shard.is_none_or(|s| holds(s, j)))
+                .map(|(_, &job)| job)
+                .collect();
+            let steps = plan.total_steps() / jobs.len().max(1) * mine.len();
+            let progress = Progress::new("planning", steps);
+            let studies = plan.run_jobs(&mine, threads, &|| progress.inc())?;
+            progress.finish();
+            studies
+        }
+    };
+    if let Some(shard) = shard {
+        // Recovery, model selection and power need every study: merge makes them.
+        record[key::SHARD] = serde_json::json!({
+            (shard::KEY_INDEX): shard.index,
+            (shard::KEY_COUNT): shard.count,
+        });
+        outputs.stage(&SHARD_STUDIES.csv_in(out), |w| {
+            stored_studies_table(&studies).write_csv(w)
+        })?;
+        stage_record(&mut outputs, out, &record)?;
+        outputs.commit()?;
+        println!(
+            "planned shard {} of {}: {} of {} studies; outputs in {} (merge the shards for the \
+             tables)",
+            shard.index,
+            shard.count,
+            studies.len(),
+            jobs.len(),
+            out.display()
+        );
+        return Ok(None);
+    }
     let results = PlanResults {
         recovery: summaries::recovery(&plan, &studies),
         confusion: summaries::confusion(&plan, &studies),
@@ -148,11 +241,7 @@ pub fn run(
         TRIALS_NEEDED,
     )?;
     tables::estimates_table(&plan, &studies).stage_both(&mut outputs, out, ESTIMATES)?;
-    let record = record(&plan, plan_path, command_line);
-    outputs.stage(&out.join(RECORD), |w| {
-        serde_json::to_writer_pretty(&mut *w, &record)?;
-        writeln!(w).map_err(serde_json::Error::io)
-    })?;
+    stage_record(&mut outputs, out, &record)?;
     outputs.commit()?;
     print_results(&results);
     println!(
@@ -161,7 +250,19 @@ pub fn run(
         out.display()
     );
     println!("{}", super::RESEARCH_CAUTION);
-    Ok(results)
+    Ok(Some(results))
+}
+
+/// Stages plan.json in `out`.
+fn stage_record(
+    outputs: &mut OutputSet,
+    out: &Path,
+    record: &serde_json::Value,
+) -> Result<(), crate::files::OutputError> {
+    outputs.stage(&out.join(RECORD), |w| {
+        serde_json::to_writer_pretty(&mut *w, record)?;
+        writeln!(w).map_err(serde_json::Error::io)
+    })
 }
 
 /// The run record: the plan as read, each generating model's population in words, the models'

@@ -7,7 +7,12 @@
 
 use super::input::{OptionError, Screened};
 use crate::data::TrialTable;
+use crate::files::{OutputError, OutputSet};
+use crate::fit::SubjectFit;
 use crate::fit::starts::subject_stream;
+use crate::results::fit_folder::FolderTable;
+use crate::results::{Column, Table};
+use std::path::Path;
 
 /// Shard `index` of `count` (1 ≤ index ≤ count).
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -78,7 +83,7 @@ impl Shard {
 }
 
 /// Keeps the items of `items` whose flag in `keep` is set.
-fn kept<T>(items: &mut Vec<T>, keep: &[bool]) {
+pub fn kept<T>(items: &mut Vec<T>, keep: &[bool]) {
     let mut flags = keep.iter();
     items.retain(|_| *flags.next().expect("one flag per item"));
 }
@@ -123,6 +128,74 @@ pub fn with_out(command_line: &[String], out: &str) -> Vec<String> {
             }
         })
         .collect()
+}
+
+/// The table of a shard of `fit --hierarchical` that holds each fit's unconstrained optimum θ
+/// and its covariance (when the Hessian is positive definite), the starting point of the EM
+/// that `merge` runs. Not part of a single run's folder.
+pub const EM_STARTS: FolderTable = FolderTable::new("shard_em_starts");
+
+/// The `quantity` of a row of [`EM_STARTS`] holding θ_i (its `j` is 0).
+pub const THETA: &str = "theta";
+/// The `quantity` of a row of [`EM_STARTS`] holding the covariance of θ_i and θ_j.
+pub const COVARIANCE: &str = "covariance";
+
+/// The rows of [`EM_STARTS`] for `fits`: `subject`, `model`, `quantity` ([`THETA`] or
+/// [`COVARIANCE`]), `i` and `j` (positions among the model's free parameters, from 0) and
+/// `value`, written with the shortest digits that read back to the same number.
+pub fn em_starts_table(fits: &[SubjectFit]) -> Table {
+    let mut rows: Vec<(&SubjectFit, &str, usize, usize, f64)> = Vec::new();
+    for f in fits {
+        rows.extend(
+            f.theta
+                .iter()
+                .enumerate()
+                .map(|(i, &t)| (f, THETA, i, 0, t)),
+        );
+        for (i, row) in f.covariance_theta.iter().flatten().enumerate() {
+            rows.extend(
+                row.iter()
+                    .enumerate()
+                    .map(|(j, &c)| (f, COVARIANCE, i, j, c)),
+            );
+        }
+    }
+    Table::default()
+        .with(
+            "subject",
+            Column::Text(rows.iter().map(|r| r.0.subject.clone()).collect()),
+        )
+        .with(
+            "model",
+            Column::Text(rows.iter().map(|r| r.0.model.clone()).collect()),
+        )
+        .with(
+            "quantity",
+            Column::Text(rows.iter().map(|r| r.1.to_string()).collect()),
+        )
+        .with(
+            "i",
+            Column::Integer(rows.iter().map(|r| r.2 as i64).collect()),
+        )
+        .with(
+            "j",
+            Column::Integer(rows.iter().map(|r| r.3 as i64).collect()),
+        )
+        .with(
+            "value",
+            Column::Number(rows.iter().map(|r| Some(r.4)).collect()),
+        )
+}
+
+/// Stages [`EM_STARTS`] of `fits` (CSV only: it is read by `merge`, not by people) in `dir`.
+pub fn stage_em_starts(
+    outputs: &mut OutputSet,
+    dir: &Path,
+    fits: &[SubjectFit],
+) -> Result<(), OutputError> {
+    outputs.stage(&EM_STARTS.csv_in(dir), |w| {
+        em_starts_table(fits).write_csv(w)
+    })
 }
 
 #[cfg(test)]

@@ -24,6 +24,7 @@
 pub mod cohort;
 pub mod population;
 pub mod spec;
+pub mod stored;
 pub mod summaries;
 pub mod tables;
 
@@ -210,6 +211,15 @@ impl Plan {
         studies * (per_study + eb)
     }
 
+    /// The studies of the plan as (generating model among the candidates, study), in plan
+    /// order: every study of the first generating model, then of the next.
+    pub fn jobs(&self) -> Vec<(usize, usize)> {
+        self.generating()
+            .into_iter()
+            .flat_map(|g| (0..self.spec.studies).map(move |s| (g, s)))
+            .collect()
+    }
+
     /// Simulates and fits every study of every generating model on `threads` threads (0: all
     /// cores); `tick` is called after each step of [`Plan::total_steps`]. Studies come in plan
     /// order whatever the threads.
@@ -218,15 +228,22 @@ impl Plan {
         threads: usize,
         tick: &(dyn Fn() + Sync),
     ) -> Result<Vec<cohort::Study>, rayon::ThreadPoolBuildError> {
+        self.run_jobs(&self.jobs(), threads, tick)
+    }
+
+    /// Simulates and fits the studies `jobs` (some of [`Plan::jobs`]) as [`Plan::run`] does,
+    /// in the order given. A study depends on the seed and its labels only, so each is the one
+    /// a run of every study gives.
+    pub fn run_jobs(
+        &self,
+        jobs: &[(usize, usize)],
+        threads: usize,
+        tick: &(dyn Fn() + Sync),
+    ) -> Result<Vec<cohort::Study>, rayon::ThreadPoolBuildError> {
         use rayon::prelude::*;
         let pool = rayon::ThreadPoolBuilder::new()
             .num_threads(threads)
             .build()?;
-        let jobs: Vec<(usize, usize)> = self
-            .generating()
-            .into_iter()
-            .flat_map(|g| (0..self.spec.studies).map(move |s| (g, s)))
-            .collect();
         Ok(pool.install(|| {
             jobs.par_iter()
                 .map(|&(g, s)| self.run_study(g, s, tick))

@@ -169,6 +169,14 @@ impl Table {
         })
     }
 
+    /// The values of whole-number column `name`, if the table has one.
+    pub fn integers(&self, name: &str) -> Option<&[i64]> {
+        self.columns.iter().find_map(|(n, c)| match c {
+            Column::Integer(v) if n == name => Some(v.as_slice()),
+            _ => None,
+        })
+    }
+
     /// The values of flag column `name`, if the table has one.
     pub fn flags(&self, name: &str) -> Option<&[bool]> {
         self.columns.iter().find_map(|(n, c)| match c {

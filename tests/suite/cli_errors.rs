@@ -795,11 +795,6 @@ fn fit_options_out_of_range() {
             vec!["--shard", "x/3"],
             vec!["--shard x/3", "expected I/N"],
         ),
-        (
-            "shard of a hierarchical fit",
-            vec!["--hierarchical", "--shard", "1/2"],
-            vec!["--shard", "--hierarchical", "not supported yet"],
-        ),
     ];
     for (case, extra, needles) in cases {
         fit_option_fails(case, &extra, &needles);

@@ -38,13 +38,24 @@ fn shards(dir: &Path, n: usize, extra: &[&str]) -> Vec<PathBuf> {
 
 /// Fits shards 1..=n of `data` into `dir`/shard-<i> with `extra` options; their folders.
 fn shards_of(data: &Path, dir: &Path, n: usize, extra: &[&str]) -> Vec<PathBuf> {
+    run_shards(dir, n, extra, |out, options| fit_data(data, out, options))
+}
+
+/// Runs `command(out, options)` for shards 1..=n, `out` = `dir`/shard-<i> and the options
+/// `--shard i/n` and `extra`; the folders.
+fn run_shards(
+    dir: &Path,
+    n: usize,
+    extra: &[&str],
+    command: impl Fn(&Path, &[&str]) -> Command,
+) -> Vec<PathBuf> {
     (1..=n)
         .map(|i| {
             let out = dir.join(format!("shard-{i}"));
             let shard = format!("{i}/{n}");
             let mut options = vec!["--shard", shard.as_str()];
             options.extend_from_slice(extra);
-            succeed(&mut fit_data(data, &out, &options));
+            succeed(&mut command(&out, &options));
             out
         })
         .collect()
@@ -59,6 +70,33 @@ fn merge(folders: &[PathBuf], out: &Path) -> std::process::Output {
         .args(["--out", out.to_str().unwrap()])
         .output()
         .unwrap()
+}
+
+/// Asserts that `merge` of `folders` into `out` fails with every one of `needles` in its error
+/// output and writes nothing.
+fn refused(folders: &[PathBuf], out: &Path, needles: &[&str]) {
+    let output = merge(folders, out);
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert!(!output.status.success(), "merged: {folders:?}");
+    for needle in needles {
+        assert!(stderr.contains(needle), "{needle:?} not in: {stderr}");
+    }
+    assert!(!out.exists(), "an output was written for {folders:?}");
+}
+
+/// Asserts that merge refuses shard 2 of 3 of `seed_2` (another seed) among shards 1 and 3 of
+/// `seed_1`, and names shard 2 as missing when it is left out.
+fn refuses_other_seed_and_names_missing(seed_1: &[PathBuf], seed_2: &[PathBuf], out: &Path) {
+    refused(
+        &[seed_1[0].clone(), seed_2[1].clone(), seed_1[2].clone()],
+        out,
+        &["not shards of one run", "seed"],
+    );
+    refused(
+        &[seed_1[0].clone(), seed_1[2].clone()],
+        out,
+        &["shard 2 of 3 is missing"],
+    );
 }
 
 /// Asserts that `merged` has the files of `single`, each with the same bytes.
@@ -176,23 +214,8 @@ fn merge_refuses_shards_of_different_runs_and_names_missing_ones() {
     let seed_1 = shards(&dir.path().join("seed-1"), 3, &[]);
     let seed_2 = shards(&dir.path().join("seed-2"), 3, &["--seed", "2"]);
     let out = dir.path().join("merged");
-    let refused = |folders: &[PathBuf], needles: &[&str]| {
-        let output = merge(folders, &out);
-        let stderr = String::from_utf8_lossy(&output.stderr);
-        assert!(!output.status.success(), "merged: {folders:?}");
-        for needle in needles {
-            assert!(stderr.contains(needle), "{needle:?} not in: {stderr}");
-        }
-        assert!(!out.exists(), "an output was written for {folders:?}");
-    };
-    refused(
-        &[seed_1[0].clone(), seed_2[1].clone(), seed_1[2].clone()],
-        &["not shards of one run", "seed"],
-    );
-    refused(
-        &[seed_1[0].clone(), seed_1[2].clone()],
-        &["shard 2 of 3 is missing"],
-    );
+    refuses_other_seed_and_names_missing(&seed_1, &seed_2, &out);
+    let refused = |folders: &[PathBuf], needles: &[&str]| refused(folders, &out, needles);
     refused(
         &[
             seed_1[0].clone(),
@@ -223,4 +246,192 @@ fn merge_refuses_shards_of_different_runs_and_names_missing_ones() {
         &[seed_1[0].clone(), relabelled, seed_1[2].clone()],
         &["data_screen.csv", "does not hold this shard's fit"],
     );
+}
+
+/// `merge` of `folders` into `out`, asserting that it succeeded.
+fn merged(folders: &[PathBuf], out: &Path) {
+    let output = merge(folders, out);
+    assert!(
+        output.status.success(),
+        "{}",
+        String::from_utf8_lossy(&output.stderr)
+    );
+}
+
+#[test]
+fn hierarchical_fit_from_merged_shards_equals_a_single_run() {
+    // One group prior per group of the demo (two cohorts, source: demo-data/README.md): the
+    // shards fit their subjects, merge runs the EM steps from exactly those fits (common
+    // practice: the EM needs every subject each iteration, so it runs on one node).
+    let dir = tempfile::tempdir().unwrap();
+    let options = ["--hierarchical", "--by", "group"];
+    let out = dir.path().join("fit");
+    succeed(&mut fit(&out, &options));
+    let single = contents(&out);
+    assert!(single.contains_key(Path::new("eb_group_priors.csv")));
+    std::fs::remove_dir_all(&out).unwrap();
+    let folders = shards(&dir.path().join("shards"), 3, &options);
+    // A shard runs no EM: it has no group tables, only its fits and their optima.
+    assert!(!folders[0].join("eb_group_priors.csv").exists());
+    assert!(folders[0].join("shard_em_starts.csv").exists());
+    merged(&folders, &out);
+    assert_same_files(&single, &contents(&out), "3 hierarchical shards");
+}
+
+/// `check` of the fit in `fits` of `data` (with the demo's model) with 20 replicates into `out`,
+/// with `extra` options.
+fn check(fits: &Path, data: &Path, out: &Path, extra: &[&str]) -> Command {
+    let mut command = bin();
+    command
+        .args(["check", "--fits", fits.to_str().unwrap(), "--data"])
+        .arg(data)
+        .args(["--model", MODEL, "--sims", "20"])
+        .args(["--out", out.to_str().unwrap()])
+        .args(extra);
+    command
+}
+
+/// Checks shards 1..=n of the fit in `fits` of `data` into `dir`/shard-<i> with `extra` options.
+fn check_shards(fits: &Path, data: &Path, dir: &Path, n: usize, extra: &[&str]) -> Vec<PathBuf> {
+    run_shards(dir, n, extra, |out, options| {
+        check(fits, data, out, options)
+    })
+}
+
+#[test]
+fn merged_check_shards_equal_a_single_check_byte_for_byte() {
+    // Pooled statistics and figures need every subject's replicates: the shards keep them and
+    // merge pools them (common practice: byte-identity with a single run). The demo gets a
+    // column `half` (early/late half of the 240 trials, source: demo-data/README.md) checked
+    // with --by half; sub-01 lists its late trials first, so the levels' order of first
+    // appearance is that of the whole table, not of a shard without sub-01.
+    let dir = tempfile::tempdir().unwrap();
+    let demo = std::fs::read_to_string(demo_file("orchard_trials.csv")).unwrap();
+    let mut halves = String::new();
+    for (k, line) in demo.lines().enumerate() {
+        let cells: Vec<&str> = line.split(',').collect();
+        let half = match (k, cells[0], cells[3].parse::<usize>().unwrap_or(0) <= 120) {
+            (0, _, _) => "half",
+            (_, "sub-01", true) | (_, _, false) => "late",
+            _ => "early",
+        };
+        halves.push_str(&format!("{line},{half}\n"));
+    }
+    let data = dir.path().join("halves.csv");
+    std::fs::write(&data, halves).unwrap();
+    let fits = dir.path().join("fit");
+    succeed(&mut fit_data(&data, &fits, &[]));
+    let out = dir.path().join("check");
+    let options = ["--by", "half"];
+    succeed(&mut check(&fits, &data, &out, &options));
+    let single = contents(&out);
+    assert!(single.contains_key(Path::new("check_choices.svg")));
+    assert!(single.contains_key(Path::new("run.json")));
+    std::fs::remove_dir_all(&out).unwrap();
+    for n in [1, 3] {
+        let shard_dir = dir.path().join(format!("{n}-shards"));
+        let mut folders = check_shards(&fits, &data, &shard_dir, n, &options);
+        folders.reverse();
+        merged(&folders, &out);
+        assert_same_files(&single, &contents(&out), &format!("{n} check shards"));
+        std::fs::remove_dir_all(&out).unwrap();
+    }
+    // The trial table changed after the shards ran (one more line) is refused by its checksum.
+    let text = std::fs::read_to_string(&data).unwrap();
+    let last = text.lines().last().unwrap();
+    std::fs::write(&data, format!("{text}{last}\n")).unwrap();
+    let folders = shard_folders(&dir.path().join("3-shards"), 3);
+    refused(
+        &folders,
+        &out,
+        &["halves.csv", "has changed since the shards ran"],
+    );
+}
+
+/// The folders `dir`/shard-1 … shard-`n` of [`run_shards`].
+fn shard_folders(dir: &Path, n: usize) -> Vec<PathBuf> {
+    (1..=n).map(|i| dir.join(format!("shard-{i}"))).collect()
+}
+
+#[test]
+fn merge_refuses_mixed_and_foreign_check_shards_and_names_missing_ones() {
+    let dir = tempfile::tempdir().unwrap();
+    let fits = dir.path().join("fit");
+    succeed(&mut fit(&fits, &[]));
+    let data = demo_file("orchard_trials.csv");
+    let seed_1 = check_shards(&fits, &data, &dir.path().join("seed-1"), 3, &[]);
+    let seed_2 = check_shards(
+        &fits,
+        &data,
+        &dir.path().join("seed-2"),
+        3,
+        &["--seed", "2"],
+    );
+    let fit_shards = shards(&dir.path().join("fit-shards"), 3, &[]);
+    let out = dir.path().join("merged");
+    refuses_other_seed_and_names_missing(&seed_1, &seed_2, &out);
+    refused(
+        &[seed_1[0].clone(), fit_shards[1].clone(), seed_1[2].clone()],
+        &out,
+        &["not shards of one run", "command"],
+    );
+}
+
+/// A plan like examples/plan/quick-plan.toml, shrunk (3 and 4 participants per group, 40 and 60
+/// trials, 2 studies), written into `dir` with the demo design; its path.
+fn small_plan(dir: &Path) -> PathBuf {
+    let quick = Path::new(env!("CARGO_MANIFEST_DIR")).join("examples/plan/quick-plan.toml");
+    let text = std::fs::read_to_string(quick)
+        .unwrap()
+        .replace(
+            "\"../../demo-data/orchard_design.csv\"",
+            &format!("{:?}", demo_file("orchard_design.csv").to_str().unwrap()),
+        )
+        .replace("participants = [4, 8]", "participants = [3, 4]")
+        .replace("trials = [60, 120]", "trials = [40, 60]")
+        .replace("studies = 3", "studies = 2");
+    assert!(
+        text.contains("studies = 2"),
+        "the quick plan changed: {text}"
+    );
+    let path = dir.join("plan.toml");
+    std::fs::write(&path, text).unwrap();
+    path
+}
+
+/// `plan` of `plan` into `out` with `extra` options.
+fn plan(plan: &Path, out: &Path, extra: &[&str]) -> Command {
+    let mut command = bin();
+    command
+        .args(["plan", "--plan", plan.to_str().unwrap(), "--threads", "1"])
+        .args(["--out", out.to_str().unwrap()])
+        .args(extra);
+    command
+}
+
+#[test]
+fn merged_plan_shards_equal_a_single_plan_byte_for_byte() {
+    // Studies are independent given the seed and their labels, so shards of the studies merged
+    // give a single run's summaries (common practice: byte-identity with a single run).
+    let dir = tempfile::tempdir().unwrap();
+    let file = small_plan(dir.path());
+    let out = dir.path().join("plan");
+    succeed(&mut plan(&file, &out, &[]));
+    let single = contents(&out);
+    assert!(single.contains_key(Path::new("plan_power.csv")));
+    std::fs::remove_dir_all(&out).unwrap();
+    for n in [1, 3] {
+        let mut folders = run_shards(&dir.path().join(format!("{n}-shards")), n, &[], |out, o| {
+            plan(&file, out, o)
+        });
+        folders.reverse();
+        merged(&folders, &out);
+        assert_same_files(&single, &contents(&out), &format!("{n} plan shards"));
+        std::fs::remove_dir_all(&out).unwrap();
+    }
+    // A plan file changed after the shards ran is refused, and nothing is written.
+    let text = std::fs::read_to_string(&file).unwrap();
+    std::fs::write(&file, text.replace("target_r = 0.8", "target_r = 0.9")).unwrap();
+    let folders = shard_folders(&dir.path().join("3-shards"), 3);
+    refused(&folders, &out, &["have changed since the shards ran"]);
 }

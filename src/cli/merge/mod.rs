@@ -18,17 +18,25 @@ use record::{ShardFolder, merged_record, read_shards, strings};
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 
+mod check;
+mod hierarchical;
+mod plan;
 mod record;
 
 /// Merges the shard folders `dirs` into `out`.
 pub fn run(dirs: &[PathBuf], out: &Path, replace: bool) -> Result<(), Box<dyn std::error::Error>> {
     let shards = read_shards(dirs)?;
     let first = &shards[0];
+    if first.record["command"] == super::check::COMMAND {
+        return check::run(&shards, out, replace);
+    }
+    if first.record.get("plan").is_some() {
+        return plan::run(&shards, out, replace);
+    }
     let order = Order::of(first)?;
     let screen_columns = screen_template(&order.models);
     let screens = read_all(&shards, fit_folder::DATA_SCREEN, &screen_columns)?;
     check_subjects(&shards, &screens, &order)?;
-    let mut outputs = OutputSet::create(out, replace)?;
     let screen = merged(&screen_columns, &screens, |t| order.rows(t, false));
     let template = parameters_table(&[]);
     let parameters = merged(
@@ -45,6 +53,11 @@ pub fn run(dirs: &[PathBuf], out: &Path, replace: bool) -> Result<(), Box<dyn st
     if summary.rows() == 0 {
         return Err("no subject could be fitted in any shard".into());
     }
+    if first.record.get(key::EMPIRICAL_BAYES).is_some() {
+        let record = merged_record(&shards, &order, summary.rows(), out);
+        return hierarchical::run(&shards, &parameters, &summary, &record, replace);
+    }
+    let mut outputs = OutputSet::create(out, replace)?;
     screen.stage_both(&mut outputs, out, fit_folder::DATA_SCREEN.stem)?;
     parameters.stage_both(&mut outputs, out, fit_folder::PARAMETERS.stem)?;
     wide_from_long(&summary, &parameters)?.stage_both(
@@ -67,6 +80,24 @@ pub fn run(dirs: &[PathBuf], out: &Path, replace: bool) -> Result<(), Box<dyn st
     );
     println!("{}", super::RESEARCH_CAUTION);
     Ok(())
+}
+
+/// Runs `line`, the shards' recorded command line (without `--shard`, with the merge's
+/// `--out`), with `results` in place of the per-subject work; `first` is the first shard, whose
+/// record an unreadable command line is blamed on.
+fn run_recorded(
+    first: &ShardFolder,
+    line: &[String],
+    results: super::ShardResults,
+) -> Result<(), Box<dyn std::error::Error>> {
+    use clap::Parser;
+    let cli = super::Cli::try_parse_from(line).map_err(|e| {
+        format!(
+            "{}: the recorded command line cannot be run again: {e}",
+            first.record_path.display()
+        )
+    })?;
+    super::run_as(cli, line, Some(results))
 }
 
 /// The order of a single run's rows: models as given, subjects in table order.
@@ -188,8 +219,11 @@ fn merged(template: &Table, tables: &[Table], rows: impl Fn(&Table) -> Vec<usize
     all.reordered(&rows(&all))
 }
 
-/// The wide estimates of the fits of `summary` from the long estimates table `parameters`.
-fn wide_from_long(summary: &Table, parameters: &Table) -> Result<Table, String> {
+/// The estimates of each (subject, model) fit in the long estimates table `parameters`, in the
+/// table's order.
+fn estimates_by_fit(
+    parameters: &Table,
+) -> Result<HashMap<(&str, &str), Vec<ParameterEstimate>>, String> {
     let column = |name: &str| parameters.texts(name).unwrap_or_default();
     let number = |name: &str| parameters.numbers(name).unwrap_or_default();
     let flag = |name: &str| parameters.flags(name).unwrap_or_default();
@@ -225,6 +259,12 @@ fn wide_from_long(summary: &Table, parameters: &Table) -> Result<Table, String> 
                 fixed: fixed[r],
             });
     }
+    Ok(estimates)
+}
+
+/// The wide estimates of the fits of `summary` from the long estimates table `parameters`.
+fn wide_from_long(summary: &Table, parameters: &Table) -> Result<Table, String> {
+    let estimates = estimates_by_fit(parameters)?;
     let text = |name: &str| summary.texts(name).unwrap_or_default();
     let (subjects, groups, models) = (text("subject"), text("group"), text("model"));
     let rows: Vec<WideRow<'_>> = (0..summary.rows())

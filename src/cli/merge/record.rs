@@ -6,6 +6,7 @@ use crate::cli::shard::{self, Shard};
 use crate::files::InputError;
 use crate::results::fit_folder::{self, key};
 use serde_json::Value;
+use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
 
 /// A shard's folder and its run record.
@@ -13,6 +14,8 @@ pub(super) struct ShardFolder {
     pub(super) dir: PathBuf,
     pub(super) shard: Shard,
     pub(super) record: Value,
+    /// Where the record was read (run.json, or a plan's plan.json).
+    pub(super) record_path: PathBuf,
 }
 
 /// Reads the run records of `dirs`, sorted by shard; refuses a folder that is not a shard, shards
@@ -22,7 +25,13 @@ pub(super) fn read_shards(
 ) -> Result<Vec<ShardFolder>, Box<dyn std::error::Error>> {
     let mut shards = Vec::new();
     for dir in dirs {
-        let path = dir.join(fit_folder::RUN_RECORD);
+        // A plan's record is plan.json; every other command's run.json.
+        let plan_record = dir.join(crate::cli::plan::RECORD);
+        let path = if plan_record.exists() && !dir.join(fit_folder::RUN_RECORD).exists() {
+            plan_record
+        } else {
+            dir.join(fit_folder::RUN_RECORD)
+        };
         let bytes = std::fs::read(&path)
             .map_err(|e| InputError::file(&path, format!("cannot be read: {e}")))?;
         let record: Value = serde_json::from_slice(&bytes)
@@ -36,7 +45,7 @@ pub(super) fn read_shards(
             return Err(InputError::file(
                 &path,
                 "has no shard entry with 1 ≤ index ≤ count: expected the folder of \
-                 `valuedrift fit --shard I/N`",
+                 `valuedrift fit|check|plan --shard I/N`",
             )
             .into());
         };
@@ -44,6 +53,7 @@ pub(super) fn read_shards(
             dir: dir.clone(),
             shard: Shard { index, count },
             record,
+            record_path: path,
         });
     }
     shards.sort_by_key(|s| s.shard.index);
@@ -192,4 +202,25 @@ pub(super) fn merged_record(
         serde_json::json!({ "below": total("below"), "above": total("above") });
     record["data_screen"]["trimmed_per_subject"] = Value::Array(trimmed);
     record
+}
+
+/// Refuses a trial table that is missing at the recorded path or has changed since the shards
+/// read it (its SHA-256 differs from the recorded one).
+pub(super) fn check_data(record: &Value) -> Result<(), String> {
+    let path = record["data"]["path"].as_str().unwrap_or_default();
+    let recorded = record["data"]["sha256"].as_str().unwrap_or_default();
+    let bytes = std::fs::read(path).map_err(|e| {
+        format!(
+            "{path}: the trial table the shards read cannot be read ({e}); merge reads it again \
+             (for the EM steps of --hierarchical, or a check): run merge where the shards' --data path leads to it"
+        )
+    })?;
+    let found = format!("{:x}", Sha256::digest(&bytes));
+    if found != recorded {
+        return Err(format!(
+            "{path}: SHA-256 {found}, but the shards read a file with SHA-256 {recorded}: the \
+             trial table has changed since the shards ran"
+        ));
+    }
+    Ok(())
 }
