@@ -1,0 +1,179 @@
+//! Benchmark of memory against cohort size (a benchmark, not a test).
+//!
+//! Simulates an invented cohort on the orchard design (`gainloss-linear`, generating values
+//! inside the documented ranges, fixed seed) and writes it as one CSV trial table; then runs the
+//! release binary's `fit --model gainloss-linear --starts 2 --threads 2` and `export` on it as
+//! child processes and prints, per command and cohort size, the wall time and the peak resident
+//! memory the kernel reports for the child (`wait4`, `ru_maxrss`). Cohort sizes are the
+//! arguments (default `1000 10000`; 200 trials each):
+//!
+//! `cargo build --release && cargo run --release --example memory_scale -- 1000 10000`
+//!
+//! The last lines read `fit subjects=N peak_mb=M seconds=S` and `export subjects=N peak_mb=M
+//! seconds=S`. Parameters from valuedrift are research measurements, not diagnoses; the cohort
+//! here is invented.
+
+use rand::{RngExt, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+use std::time::Instant;
+use valuedrift::data::TrialTable;
+use valuedrift::model::load_model;
+use valuedrift::results::trials_table;
+use valuedrift::simulate::{SimulationSettings, orchard_design, simulate_subject};
+
+const TRIALS: usize = 200;
+/// Subjects simulated and written at a time (so that this program's own memory stays small).
+const CHUNK: usize = 500;
+
+fn main() {
+    let sizes: Vec<usize> = std::env::args()
+        .skip(1)
+        .map(|a| a.parse().expect("cohort sizes as whole numbers"))
+        .collect();
+    let sizes = if sizes.is_empty() {
+        vec![1000, 10_000]
+    } else {
+        sizes
+    };
+    let binary = release_binary();
+    let dir = tempfile::tempdir().expect("a temporary folder");
+    let mut lines = Vec::new();
+    for &n in &sizes {
+        let data = dir.path().join(format!("cohort_{n}.csv"));
+        write_cohort(&data, n);
+        let megabytes = std::fs::metadata(&data).map_or(0.0, |m| m.len() as f64 / 1e6);
+        println!("cohort of {n} subjects x {TRIALS} trials: {megabytes:.0} MB of CSV");
+        let fits = dir.path().join(format!("fits_{n}"));
+        let (peak, seconds) = measure(
+            Command::new(&binary)
+                .args(["fit", "--model", "gainloss-linear", "--starts", "2"])
+                .args(["--threads", "2", "--data"])
+                .arg(&data)
+                .arg("--out")
+                .arg(&fits),
+        );
+        lines.push(format!(
+            "fit subjects={n} peak_mb={peak:.1} seconds={seconds:.1}"
+        ));
+        let (peak, seconds) = measure(
+            Command::new(&binary)
+                .args(["export", "--model", "gainloss-linear", "--fits"])
+                .arg(&fits)
+                .arg("--data")
+                .arg(&data)
+                .arg("--out")
+                .arg(dir.path().join(format!("export_{n}"))),
+        );
+        lines.push(format!(
+            "export subjects={n} peak_mb={peak:.1} seconds={seconds:.1}"
+        ));
+        println!("{}", lines[lines.len() - 2]);
+        println!("{}", lines[lines.len() - 1]);
+    }
+    println!("--");
+    for line in lines {
+        println!("{line}");
+    }
+}
+
+/// The release binary beside this example (target/release/valuedrift).
+fn release_binary() -> PathBuf {
+    let exe = std::env::current_exe().expect("the example's path");
+    let release = exe
+        .parent()
+        .and_then(Path::parent)
+        .expect("target/release/examples");
+    let binary = release.join("valuedrift");
+    assert!(
+        binary.exists(),
+        "{} is missing: run `cargo build --release` first",
+        binary.display()
+    );
+    binary
+}
+
+/// Simulates `n` subjects of the invented orchard cohort and writes them to `path`.
+fn write_cohort(path: &Path, n: usize) {
+    let model = load_model("gainloss-linear").expect("a built-in model");
+    let mut rng = ChaCha8Rng::seed_from_u64(2026);
+    let mut file = std::io::BufWriter::new(std::fs::File::create(path).expect("a data file"));
+    for first in (0..n).step_by(CHUNK) {
+        let subjects = (first..(first + CHUNK).min(n))
+            .map(|i| {
+                let design = orchard_design(&format!("p{i:05}"), "cohort", TRIALS, &mut rng);
+                let values: Vec<f64> = model
+                    .parameters
+                    .iter()
+                    .map(|p| match p.name.as_str() {
+                        "gain_rate" | "loss_rate" => rng.random_range(0.1..0.7),
+                        "effort_weight" => rng.random_range(0.2..1.5),
+                        "value_scale" => rng.random_range(2.0..8.0),
+                        "boundary" => rng.random_range(1.0..2.5),
+                        "ndt" => rng.random_range(0.2..0.5),
+                        _ => p.fixed.expect("other parameters are fixed"),
+                    })
+                    .collect();
+                simulate_subject(
+                    &model,
+                    &values,
+                    &design,
+                    SimulationSettings::default(),
+                    &mut rng,
+                )
+                .expect("the design suits the model")
+            })
+            .collect();
+        let table = TrialTable {
+            subjects,
+            present: vec!["outcome".into()],
+        };
+        let mut text = Vec::new();
+        trials_table(&table)
+            .write_csv(&mut text)
+            .expect("CSV in memory");
+        // The header once, at the top of the file.
+        let body = if first == 0 {
+            &text[..]
+        } else {
+            let end = text.iter().position(|&b| b == b'\n').map_or(0, |i| i + 1);
+            &text[end..]
+        };
+        file.write_all(body).expect("the data file is written");
+    }
+    file.flush().expect("the data file is written");
+}
+
+/// Runs `command` (its output discarded) and returns the child's peak
+/// resident memory in MB and its wall time in seconds.
+// The child is reaped by wait4 below, which also reports its resource usage.
+#[allow(clippy::zombie_processes)]
+fn measure(command: &mut Command) -> (f64, f64) {
+    let start = Instant::now();
+    let child = command
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::null())
+        .spawn()
+        .expect("the binary starts");
+    let pid = child.id() as libc::pid_t;
+    let mut status = 0;
+    // SAFETY: an all-zero rusage is a valid value for wait4 to fill.
+    let mut usage: libc::rusage = unsafe { std::mem::zeroed() };
+    // SAFETY: `pid` is our own child, not yet waited for; both pointers are to live locals.
+    let waited = unsafe { libc::wait4(pid, &mut status, 0, &mut usage) };
+    let seconds = start.elapsed().as_secs_f64();
+    assert_eq!(
+        waited,
+        pid,
+        "wait4 failed: {}",
+        std::io::Error::last_os_error()
+    );
+    assert!(
+        libc::WIFEXITED(status) && libc::WEXITSTATUS(status) == 0,
+        "the command failed: {command:?}"
+    );
+    // ru_maxrss is in kilobytes on Linux.
+    (usage.ru_maxrss as f64 / 1024.0, seconds)
+}
