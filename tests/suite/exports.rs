@@ -583,7 +583,7 @@ fn export_writes_latents_and_bids_events_files() {
     assert!(with_task("orchard", &tasked).status.success());
     assert!(
         tasked
-            .join("sub-01/func/sub-01_task-choice_run-1_desc-gainlosslinear_events.tsv")
+            .join("sub-01/func/sub-01_task-orchard_run-1_desc-gainlosslinear_events.tsv")
             .is_file()
     );
     let refused = dir.path().join("refused");
