@@ -7,13 +7,13 @@
 //! `cargo run --release --example fit_speed`; another built-in model may be named as the
 //! argument (for example `-- gainloss-wald-race`).
 
-use rand::{RngExt, SeedableRng};
+use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use std::time::Instant;
 use valuedrift::fit::{FitOptions, fit_subject};
 use valuedrift::likelihood::SubjectLikelihood;
 use valuedrift::model::load_model;
-use valuedrift::simulate::{SimulationSettings, orchard_design, simulate_subject};
+use valuedrift::simulate::orchard_participant;
 
 const SUBJECTS: usize = 8;
 const TRIALS: usize = 300;
@@ -26,31 +26,8 @@ fn main() {
     let mut rng = ChaCha8Rng::seed_from_u64(7);
     let subjects: Vec<_> = (0..SUBJECTS)
         .map(|i| {
-            let design = orchard_design(&format!("s{i:02}"), "bench", TRIALS, &mut rng);
-            let values: Vec<f64> = model
-                .parameters
-                .iter()
-                .map(|p| match p.name.as_str() {
-                    "gain_rate" | "loss_rate" => rng.random_range(0.1..0.7),
-                    "effort_weight" => rng.random_range(0.2..1.5),
-                    "value_scale" => rng.random_range(2.0..8.0),
-                    "boundary" => rng.random_range(1.0..2.5),
-                    "ndt" => rng.random_range(0.2..0.5),
-                    "drift_intercept" => rng.random_range(0.5..1.5),
-                    "threshold" => rng.random_range(1.0..2.0),
-                    "start_range" => rng.random_range(0.3..1.0),
-                    "threshold_gap" => rng.random_range(0.2..0.8),
-                    _ => p.fixed.expect("other parameters are fixed"),
-                })
-                .collect();
-            simulate_subject(
-                &model,
-                &values,
-                &design,
-                SimulationSettings::default(),
-                &mut rng,
-            )
-            .expect("the design suits the model")
+            orchard_participant(&model, &format!("s{i:02}"), "bench", TRIALS, &mut rng)
+                .expect("the model runs on the orchard design")
         })
         .collect();
     let options = FitOptions::default();

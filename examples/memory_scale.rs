@@ -13,7 +13,7 @@
 //! seconds=S`. Parameters from valuedrift are research measurements, not diagnoses; the cohort
 //! here is invented.
 
-use rand::{RngExt, SeedableRng};
+use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -22,7 +22,7 @@ use std::time::Instant;
 use valuedrift::data::TrialTable;
 use valuedrift::model::load_model;
 use valuedrift::results::trials_table;
-use valuedrift::simulate::{SimulationSettings, orchard_design, simulate_subject};
+use valuedrift::simulate::orchard_participant;
 
 const TRIALS: usize = 200;
 /// Subjects simulated and written at a time (so that this program's own memory stays small).
@@ -103,27 +103,8 @@ fn write_cohort(path: &Path, n: usize) {
     for first in (0..n).step_by(CHUNK) {
         let subjects = (first..(first + CHUNK).min(n))
             .map(|i| {
-                let design = orchard_design(&format!("p{i:05}"), "cohort", TRIALS, &mut rng);
-                let values: Vec<f64> = model
-                    .parameters
-                    .iter()
-                    .map(|p| match p.name.as_str() {
-                        "gain_rate" | "loss_rate" => rng.random_range(0.1..0.7),
-                        "effort_weight" => rng.random_range(0.2..1.5),
-                        "value_scale" => rng.random_range(2.0..8.0),
-                        "boundary" => rng.random_range(1.0..2.5),
-                        "ndt" => rng.random_range(0.2..0.5),
-                        _ => p.fixed.expect("other parameters are fixed"),
-                    })
-                    .collect();
-                simulate_subject(
-                    &model,
-                    &values,
-                    &design,
-                    SimulationSettings::default(),
-                    &mut rng,
-                )
-                .expect("the design suits the model")
+                orchard_participant(&model, &format!("p{i:05}"), "cohort", TRIALS, &mut rng)
+                    .expect("the model runs on the orchard design")
             })
             .collect();
         let table = TrialTable {

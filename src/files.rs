@@ -80,8 +80,16 @@ fn line_unit(file: &Path) -> &'static str {
 
 /// Opens a CSV file (fields trimmed) and reads its header, with errors naming the file.
 pub fn open_csv(path: &Path) -> Result<(csv::Reader<std::fs::File>, Vec<String>), InputError> {
+    open_csv_trimmed(path, csv::Trim::All)
+}
+
+/// [`open_csv`] with the given trimming of fields.
+pub fn open_csv_trimmed(
+    path: &Path,
+    trim: csv::Trim,
+) -> Result<(csv::Reader<std::fs::File>, Vec<String>), InputError> {
     let mut reader = csv::ReaderBuilder::new()
-        .trim(csv::Trim::All)
+        .trim(trim)
         .from_path(path)
         .map_err(|e| InputError::file(path, format!("cannot be read as CSV: {e}")))?;
     let header: Vec<String> = reader

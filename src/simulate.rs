@@ -103,6 +103,50 @@ pub fn draw_trial(
     }
 }
 
+/// Generating values for an invented participant of the orchard scenario, in the model's
+/// parameter order: each free parameter drawn uniformly from the range the benchmarks use
+/// (learning rates 0.1–0.7, effort weight 0.2–1.5, value scale 2–8, boundary 1–2.5, ndt
+/// 0.2–0.5 s, drift intercept 0.5–1.5, threshold 1–2, start range 0.3–1, threshold gap 0.2–0.8),
+/// fixed parameters at their value; `None` when the model has a free parameter not listed here.
+pub fn orchard_generating_values(model: &Model, rng: &mut dyn Rng) -> Option<Vec<f64>> {
+    use rand::RngExt;
+    model
+        .parameters
+        .iter()
+        .map(|p| {
+            let (lo, hi) = match p.name.as_str() {
+                "gain_rate" | "loss_rate" => (0.1, 0.7),
+                "effort_weight" => (0.2, 1.5),
+                "value_scale" => (2.0, 8.0),
+                "boundary" => (1.0, 2.5),
+                "ndt" => (0.2, 0.5),
+                "drift_intercept" => (0.5, 1.5),
+                "threshold" => (1.0, 2.0),
+                "start_range" => (0.3, 1.0),
+                "threshold_gap" => (0.2, 0.8),
+                _ => return p.fixed,
+            };
+            Some(rng.random_range(lo..hi))
+        })
+        .collect()
+}
+
+/// An invented participant of the orchard scenario: an [`orchard_design`] of `n_trials` trials,
+/// generating values from [`orchard_generating_values`], and the model's choices, response times
+/// and outcomes simulated on it (default settings). `None` when the model has a free parameter
+/// without a generating range there or cannot run on the design.
+pub fn orchard_participant(
+    model: &Model,
+    id: &str,
+    group: &str,
+    n_trials: usize,
+    rng: &mut dyn Rng,
+) -> Option<Subject> {
+    let design = orchard_design(id, group, n_trials, rng);
+    let values = orchard_generating_values(model, rng)?;
+    simulate_subject(model, &values, &design, SimulationSettings::default(), rng).ok()
+}
+
 /// A reward-versus-effort learning design of our own invention (the "orchard" task): four
 /// options (plots) that yield a harvest (outcome 1) with probabilities 0.85, 0.65, 0.35 and
 /// 0.15, else nothing (outcome 0); the probabilities reverse (p → 1 − p) at every quarter of the

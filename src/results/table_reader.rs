@@ -88,14 +88,7 @@ impl Table {
     /// (names, order and kinds) of `template`. Errors name the file, and the line and column of
     /// a cell that is not of its column's kind; a header other than the template's is refused.
     pub fn read_csv_as(path: &Path, template: &Table) -> Result<Table, InputError> {
-        let mut reader = csv::Reader::from_path(path)
-            .map_err(|e| InputError::file(path, format!("cannot be read as CSV: {e}")))?;
-        let header: Vec<String> = reader
-            .headers()
-            .map_err(|e| InputError::file(path, format!("has no readable header: {e}")))?
-            .iter()
-            .map(str::to_string)
-            .collect();
+        let (mut reader, header) = crate::files::open_csv_trimmed(path, csv::Trim::None)?;
         let names: Vec<&str> = template.columns.iter().map(|(n, _)| n.as_str()).collect();
         if header != names {
             return Err(InputError::file(
