@@ -269,7 +269,7 @@ fn blank_lines_and_quoted_newlines_keep_line_numbers() {
 }
 
 #[test]
-fn reads_forty_by_three_hundred_quickly() {
+fn reads_a_study_sized_table_of_forty_by_three_hundred() {
     let dir = tempfile::tempdir().unwrap();
     let mut text = String::from(GOOD.lines().next().unwrap());
     text.push('\n');
