@@ -30,10 +30,13 @@ pub struct CheckRun<'a> {
     pub command_line: &'a [String],
 }
 
-/// The per-subject checks of all shards of a check, in table order.
+/// The next subject's check of a check's shards, in table order; `None` after the last.
+pub type NextCheck = Box<dyn FnMut() -> Result<Option<SubjectCheck>, Box<dyn std::error::Error>>>;
+
+/// The per-subject checks of all shards of a check, read in table order as they are needed.
 pub struct FromShards {
-    /// One per subject.
-    pub checks: Vec<SubjectCheck>,
+    /// The next subject's check.
+    pub next: NextCheck,
     /// `merge --replace`: replace an existing result (the shards' own option is not used).
     pub replace: bool,
 }
@@ -133,7 +136,22 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         )?)),
     };
     match from_shards {
-        Some(done) => sink.add(&mut outputs, done.checks)?,
+        Some(mut done) => {
+            let mut more = true;
+            while more {
+                let mut group = Vec::with_capacity(SUBJECTS_PER_ROW_GROUP);
+                while group.len() < SUBJECTS_PER_ROW_GROUP {
+                    match (done.next)()? {
+                        Some(check) => group.push(check),
+                        None => {
+                            more = false;
+                            break;
+                        }
+                    }
+                }
+                sink.add(&mut outputs, group)?;
+            }
+        }
         None => fitted.for_each_part(&run.input.data, &mut |part| {
             let (indices, subjects): (Vec<usize>, Vec<_>) = part
                 .into_iter()
