@@ -318,6 +318,12 @@ impl<'a> SubjectLikelihood<'a> {
     /// ln L + ln prior and its gradient at θ. The prior is the group prior on θ when one is
     /// set, else the product of the declared priors on the natural scale.
     pub fn evaluate(&self, theta: &[f64]) -> Evaluation {
+        self.evaluate_reference(theta)
+    }
+
+    /// [`SubjectLikelihood::evaluate`] by the general path, which every model can take: dual
+    /// numbers carrying ∂/∂θ through every quantity of every trial.
+    pub fn evaluate_reference(&self, theta: &[f64]) -> Evaluation {
         assert!(theta.len() == self.free.len() && self.free.len() <= MAX_FREE);
         let (p, thetas) = self.duals(theta);
         let ln_l = self.run(&p, &thetas, None);
