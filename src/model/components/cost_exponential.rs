@@ -10,9 +10,10 @@ pub const ENTRY: Entry<dyn CostShape> = Entry {
     parameters: &["effort_weight"],
     defaults: &[],
     equation: "SV = Q·exp(−effort_weight·E)  (Klein-Flügge et al. 2015)",
-    build: |options, slots| {
-        weighted_cost(options, slots, true, |q, effort, k| {
-            q * (-(k * effort)).exp()
-        })
-    },
+    build: |options, slots| weighted_cost(options, slots, true, formula, formula),
 };
+
+/// The formula, on any dual number.
+fn formula<N: DualNum<Primitive = f64> + Copy>(q: N, effort: f64, k: N) -> N {
+    q * (-(k * effort)).exp()
+}

@@ -2,6 +2,7 @@
 //! Cléry-Melin & Dreher 2010; Hartmann et al. 2013).
 
 use super::{CostShape, Entry, weighted_cost};
+use num_dual::DualNum;
 
 /// The table entry.
 pub const ENTRY: Entry<dyn CostShape> = Entry {
@@ -9,7 +10,10 @@ pub const ENTRY: Entry<dyn CostShape> = Entry {
     parameters: &["effort_weight"],
     defaults: &[],
     equation: "SV = Q / (1 + effort_weight·E)  (Prévost et al. 2010)",
-    build: |options, slots| {
-        weighted_cost(options, slots, true, |q, effort, k| q / (k * effort + 1.0))
-    },
+    build: |options, slots| weighted_cost(options, slots, true, formula, formula),
 };
+
+/// The formula, on any dual number.
+fn formula<N: DualNum<Primitive = f64> + Copy>(q: N, effort: f64, k: N) -> N {
+    q / (k * effort + 1.0)
+}

@@ -2,6 +2,7 @@
 //! 2013; Klein-Flügge, Kennerley, Friston & Bestmann 2015).
 
 use super::{CostShape, Entry, weighted_cost};
+use num_dual::DualNum;
 
 /// The table entry.
 pub const ENTRY: Entry<dyn CostShape> = Entry {
@@ -9,9 +10,10 @@ pub const ENTRY: Entry<dyn CostShape> = Entry {
     parameters: &["effort_weight"],
     defaults: &[],
     equation: "SV = Q − effort_weight·E²  (Hartmann et al. 2013)",
-    build: |options, slots| {
-        weighted_cost(options, slots, true, |q, effort, k| {
-            q - k * (effort * effort)
-        })
-    },
+    build: |options, slots| weighted_cost(options, slots, true, formula, formula),
 };
+
+/// The formula, on any dual number.
+fn formula<N: DualNum<Primitive = f64> + Copy>(q: N, effort: f64, k: N) -> N {
+    q - k * (effort * effort)
+}

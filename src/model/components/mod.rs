@@ -23,8 +23,9 @@ mod learning_delta;
 mod learning_gain_loss;
 mod learning_none;
 
-use super::dual::D;
+use super::dual::{D, Local};
 use crate::data::Choice;
+use num_dual::Dual64;
 use rand::Rng;
 
 /// Where a component finds its parameters: the slot of each name in the model's parameter list.
@@ -54,6 +55,12 @@ pub trait LearningRule: Send + Sync {
     /// Value of the chosen option after outcome `r`, from its value `q` before; `p` holds the
     /// natural-scale parameters by slot.
     fn update(&self, q: D, outcome: f64, p: &[D]) -> D;
+    /// [`LearningRule::update`] on plain numbers with its partial derivatives (in `q` and the
+    /// rule's parameters), for the likelihood's fast path; `None` (the default) sends the
+    /// likelihood down the dual-number path.
+    fn update_local(&self, _q: f64, _outcome: f64, _p: &[f64]) -> Option<Local> {
+        None
+    }
     /// False when values are the offered magnitudes (no learning).
     fn learns(&self) -> bool {
         true
@@ -64,6 +71,11 @@ pub trait LearningRule: Send + Sync {
 pub trait CostShape: Send + Sync {
     /// Subjective value of an option with value `q` demanding `effort`.
     fn subjective_value(&self, q: D, effort: f64, p: &[D]) -> D;
+    /// [`CostShape::subjective_value`] on plain numbers with its partial derivatives (in `q` and
+    /// the shape's parameters); `None` (the default) sends the likelihood down the dual path.
+    fn subjective_value_local(&self, _q: f64, _effort: f64, _p: &[f64]) -> Option<Local> {
+        None
+    }
 }
 
 /// Maps subjective values to drift rates: the difference of the two options' values for the
@@ -86,6 +98,17 @@ pub trait DriftMapping: Send + Sync {
     /// The drift rate at x: the weighted value difference (two-bound diffusion) or one option's
     /// weighted value (its accumulator in a race).
     fn drift(&self, x: D, p: &[D]) -> D;
+    /// [`DriftMapping::weighted`] on plain numbers with its partial derivatives (in the
+    /// subjective value and the mapping's parameters); `None` (the default) sends the likelihood
+    /// down the dual path.
+    fn weighted_local(&self, _subjective_value: f64, _attribute: f64, _p: &[f64]) -> Option<Local> {
+        None
+    }
+    /// [`DriftMapping::drift`] on plain numbers with its partial derivatives (in x and the
+    /// mapping's parameters); `None` (the default) sends the likelihood down the dual path.
+    fn drift_local(&self, _x: f64, _p: &[f64]) -> Option<Local> {
+        None
+    }
 }
 
 /// What a choice stage reads of a trial's subjective values.
@@ -142,6 +165,19 @@ pub trait PreparedChoice {
     /// ln P(observation | signal), with its gradient; `None` for an observation that carries no
     /// information (no response and no deadline).
     fn ln_likelihood(&self, signal: &[D], observation: &Observation) -> Option<D>;
+    /// [`PreparedChoice::ln_likelihood`] on plain numbers for the likelihood's fast path: the
+    /// value, with ∂/∂signal_k written to `d_signal[k]` and ∂/∂p[slot] added to
+    /// `d_parameters[slot]` for the stage's parameters. `Err(NoLocalForm)` (the default) sends
+    /// the likelihood down the dual-number path.
+    fn ln_likelihood_local(
+        &self,
+        _signal: &[f64],
+        _observation: &Observation,
+        _d_signal: &mut [f64],
+        _d_parameters: &mut [f64],
+    ) -> Result<Option<f64>, NoLocalForm> {
+        Err(NoLocalForm)
+    }
     /// P(choose each offered option | signal).
     fn probabilities(&self, signal: &[f64]) -> Vec<f64>;
     /// Expected decision time and expected response time given the signal, where the stage
@@ -150,6 +186,11 @@ pub trait PreparedChoice {
     /// Draws a choice and a response time (None where the stage models no time).
     fn simulate(&self, signal: &[f64], rng: &mut dyn Rng) -> (Choice, Option<f64>);
 }
+
+/// A component without the plain-number form of the likelihood's fast path (the likelihood then
+/// takes the dual-number path, which every component has).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct NoLocalForm;
 
 /// Learning rules by name.
 pub const LEARNING_RULES: &[Entry<dyn LearningRule>] = &[
@@ -199,10 +240,12 @@ pub fn only_options(options: &Options, known: &[&str]) -> Result<(), String> {
     }
 }
 
-/// A cost shape given by a formula SV = f(Q, E, k) in the single parameter `effort_weight` k.
+/// A cost shape given by a formula SV = f(Q, E, k) in the single parameter `effort_weight` k,
+/// written once on any dual number (`formula` and `local` are the same generic function).
 struct WeightedCost {
     weight: Option<usize>,
     formula: fn(D, f64, D) -> D,
+    local: fn(Dual64, f64, Dual64) -> Dual64,
 }
 
 impl CostShape for WeightedCost {
@@ -210,18 +253,33 @@ impl CostShape for WeightedCost {
         let k = self.weight.map_or(D::from_re(0.0), |slot| p[slot]);
         (self.formula)(q, effort, k)
     }
+
+    fn subjective_value_local(&self, q: f64, effort: f64, p: &[f64]) -> Option<Local> {
+        let k = self.weight.map_or(0.0, |slot| p[slot]);
+        // Two passes of one-direction duals: ∂/∂Q, then ∂/∂k (the value is the same in both).
+        let by_q = (self.local)(Dual64::from(q).derivative(), effort, Dual64::from(k));
+        let d_k = self.weight.map_or((0, 0.0), |slot| {
+            let by_k = (self.local)(Dual64::from(q), effort, Dual64::from(k).derivative());
+            (slot, by_k.eps)
+        });
+        Some(Local::new(by_q.re, by_q.eps, [d_k, (0, 0.0)]))
+    }
 }
 
-/// Builds a cost shape from its formula; `uses_weight` is false for the shape without cost.
+/// Builds a cost shape from its formula, given twice as the same generic function (on the
+/// likelihood's dual numbers and on one-direction duals); `uses_weight` is false for the shape
+/// without cost.
 fn weighted_cost(
     options: &Options,
     slots: Slots<'_>,
     uses_weight: bool,
     formula: fn(D, f64, D) -> D,
+    local: fn(Dual64, f64, Dual64) -> Dual64,
 ) -> Result<Box<dyn CostShape>, String> {
     only_options(options, &[])?;
     Ok(Box::new(WeightedCost {
         weight: uses_weight.then(|| slots("effort_weight")),
         formula,
+        local,
     }))
 }
