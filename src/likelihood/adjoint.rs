@@ -33,12 +33,17 @@ struct Taped {
     learned: Option<(usize, Local)>,
 }
 
+/// Most parameter partial derivatives an option's subjective value carries (two per cost
+/// attribute and for the mapping's weighting); more send the likelihood down the dual path.
+const APPRAISAL_PARTIALS: usize = 8;
+
 /// ∂SV/∂Q and (slot, ∂SV/∂p) of one option's subjective value through its cost attributes.
 #[derive(Default)]
 struct Appraised {
     value: f64,
     d_value: f64,
-    d_parameters: Vec<(usize, f64)>,
+    d_parameters: [(usize, f64); APPRAISAL_PARTIALS],
+    len: usize,
 }
 
 impl Appraised {
@@ -46,17 +51,28 @@ impl Appraised {
     fn start(&mut self, q: f64) {
         self.value = q;
         self.d_value = 1.0;
-        self.d_parameters.clear();
+        self.len = 0;
     }
 
-    /// Passes the value through one more function of it.
-    fn then(&mut self, step: Local) {
-        for (_, d) in &mut self.d_parameters {
+    /// Passes the value through one more function of it; `None` when there are too many
+    /// parameters to carry.
+    fn then(&mut self, step: Local) -> Option<()> {
+        for (_, d) in &mut self.d_parameters[..self.len] {
             *d *= step.d_input;
         }
-        self.d_parameters.extend_from_slice(&step.d_parameters);
+        let end = self.len + step.d_parameters.len();
+        self.d_parameters
+            .get_mut(self.len..end)?
+            .copy_from_slice(&step.d_parameters);
+        self.len = end;
         self.d_value *= step.d_input;
         self.value = step.value;
+        Some(())
+    }
+
+    /// The (slot, ∂SV/∂p) carried.
+    fn partials(&self) -> &[(usize, f64)] {
+        &self.d_parameters[..self.len]
     }
 }
 
@@ -104,12 +120,12 @@ impl SubjectLikelihood<'_> {
                     let step = cost
                         .shape
                         .subjective_value_local(appraised[k].value, amount, p)?;
-                    appraised[k].then(step);
+                    appraised[k].then(step)?;
                 }
             }
             let own = others.next();
             for (k, one) in appraised.iter_mut().enumerate() {
-                one.then(mapping.weighted_local(one.value, own.map_or(0.0, |x| x[k]), p)?);
+                one.then(mapping.weighted_local(one.value, own.map_or(0.0, |x| x[k]), p)?)?;
             }
             let drift = mapping.drift_local(appraised[0].value - appraised[1].value, p)?;
             let observation = Observation {
@@ -132,7 +148,7 @@ impl SubjectLikelihood<'_> {
                 let d_difference = d_drift * drift.d_input;
                 for (k, one) in appraised.iter().enumerate() {
                     let d_x = if k == 0 { d_difference } else { -d_difference };
-                    add(&mut d_p, d_x, &one.d_parameters);
+                    add(&mut d_p, d_x, one.partials());
                     scored[k].1 = d_x * one.d_value;
                 }
             }

@@ -338,6 +338,31 @@ impl Prepared<'_> {
     }
 }
 
+/// The engine's partial derivatives in the order of a [`Local8`].
+fn local_partials(g: DensityGradient) -> [f64; 8] {
+    [
+        g.drift,
+        g.boundary,
+        g.start,
+        g.ndt,
+        g.drift_sd,
+        g.start_range,
+        g.ndt_range,
+        0.0,
+    ]
+}
+
+impl Prepared<'_> {
+    /// Writes ∂/∂drift of a [`Local8`]'s partial derivatives to `d_signal` and adds the
+    /// stage parameters' to their slots of `d_parameters`.
+    fn add_partials(&self, partials: &[f64; 8], d_signal: &mut [f64], d_parameters: &mut [f64]) {
+        d_signal[0] = partials[0];
+        for (slot, d) in self.stage.slots().into_iter().zip(&partials[1..]) {
+            d_parameters[slot] += d;
+        }
+    }
+}
+
 impl PreparedChoice for Prepared<'_> {
     fn ln_likelihood(&self, signal: &[D], observation: &Observation) -> Option<D> {
         let signal = signal[0];
@@ -363,31 +388,28 @@ impl PreparedChoice for Prepared<'_> {
             d_signal[0] = 0.0;
             return Ok(Some(f64::NEG_INFINITY));
         };
+        let params = base.with_drift(signal[0]);
+        if let (None, Some(choice), Some(rt)) =
+            (self.local_lapse_terms, observation.choice, observation.rt)
+            && self.active_lock(&params).is_none()
+        {
+            // The common case, where the score is the log-density itself.
+            let (ln_f, g) = ln_density_with_gradient(rt, bound_of(choice), &params);
+            self.add_partials(&local_partials(g), d_signal, d_parameters);
+            return Ok(Some(ln_f));
+        }
         let numbers = Numbers {
-            chain: |value, g: DensityGradient| {
-                let partials = [
-                    g.drift,
-                    g.boundary,
-                    g.start,
-                    g.ndt,
-                    g.drift_sd,
-                    g.start_range,
-                    g.ndt_range,
-                    0.0,
-                ];
-                Local8::new(value, Derivative::some(SVector::from(partials)))
+            chain: |value, g| {
+                Local8::new(value, Derivative::some(SVector::from(local_partials(g))))
             },
             lapse_rate: self.local_lapse,
             lapse: self.local_lapse_terms,
         };
-        let Some(score) = self.score(&base.with_drift(signal[0]), observation, &numbers) else {
+        let Some(score) = self.score(&params, observation, &numbers) else {
             return Ok(None);
         };
-        let partials = score.eps.unwrap_generic(Const::<8>, U1);
-        d_signal[0] = partials[0];
-        for (slot, d) in self.stage.slots().into_iter().zip(partials.iter().skip(1)) {
-            d_parameters[slot] += d;
-        }
+        let partials: [f64; 8] = score.eps.unwrap_generic(Const::<8>, U1).into();
+        self.add_partials(&partials, d_signal, d_parameters);
         Ok(Some(score.re))
     }
 
