@@ -46,12 +46,15 @@ fn ns_per_trial(mut work: impl FnMut() -> f64) -> f64 {
     best
 }
 
+/// The benchmark's random stream (the seed of `fit_speed`).
+fn seeded() -> ChaCha8Rng {
+    ChaCha8Rng::seed_from_u64(7)
+}
+
 fn main() {
-    let name = std::env::args()
-        .nth(1)
-        .unwrap_or_else(|| "gainloss-linear".into());
-    let model = load_model(&name).expect("a built-in model");
-    let mut rng = ChaCha8Rng::seed_from_u64(7);
+    let argument = std::env::args().nth(1);
+    let name = argument.as_deref().unwrap_or("gainloss-linear");
+    let (model, mut rng) = (load_model(name).expect("a built-in model"), seeded());
     let design = orchard_design("s00", "bench", TRIALS, &mut rng);
     // Fixed parameters keep their fixed value (orchard_generating_values draws a value for every
     // parameter it has a range for, fixed or not).
@@ -61,14 +64,9 @@ fn main() {
         .zip(&model.parameters)
         .map(|(&x, p)| p.fixed.unwrap_or(x))
         .collect();
-    let subject = simulate_subject(
-        &model,
-        &values,
-        &design,
-        SimulationSettings::default(),
-        &mut rng,
-    )
-    .expect("the model runs on the orchard design");
+    let settings = SimulationSettings::default();
+    let subject = simulate_subject(&model, &values, &design, settings, &mut rng)
+        .expect("the model runs on the orchard design");
     let lik = SubjectLikelihood::new(&model, &subject, None).expect("binds");
     let free: Vec<f64> = model
         .free_slots()

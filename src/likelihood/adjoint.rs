@@ -17,12 +17,15 @@
 //! parts, so ln L is the same number; the gradient is the same up to the order of its sums
 //! (tests/suite/likelihood.rs compares both on every built-in model).
 //!
-//! It covers models whose parameters are the same on every trial, with a two-bound choice
-//! stage (one drift from the value difference) and components that give their plain-number
-//! form; the others return `None` and the likelihood takes the dual path.
+//! Parameters that vary by condition or covariate are handled stretch by stretch (trials with
+//! the same component parameters), their partial derivatives passed back to the level
+//! intercepts and slopes they come from. It covers models with a two-bound choice stage (one
+//! drift from the value difference) and components that give their plain-number form; the
+//! others return `None` and the likelihood takes the dual path.
 
 use super::SubjectLikelihood;
-use crate::model::components::{Observation, Signal};
+use super::design::{Origin, origin_linear};
+use crate::model::components::{Observation, PreparedChoice, Signal};
 use crate::model::dual::{Local, constant};
 
 /// What the backward pass needs of one trial.
@@ -76,130 +79,258 @@ impl Appraised {
     }
 }
 
+/// ln L with its partial derivatives: `d_natural` by model slot with respect to natural values,
+/// `d_theta` by model slot with respect to θ directly (level intercepts and slopes of
+/// parameters that vary with a covariate).
+pub(super) struct Adjoint {
+    pub ln_likelihood: f64,
+    pub d_natural: Vec<f64>,
+    pub d_theta: Vec<f64>,
+}
+
+/// The forward pass's state: learned values and what the backward pass needs.
+struct Forward {
+    q: Vec<f64>,
+    tape: Vec<Taped>,
+    /// Per learned trial with forgetting: initial − Q of every option before the update.
+    forgotten: Vec<f64>,
+    appraised: [Appraised; 2],
+    total: f64,
+}
+
 impl SubjectLikelihood<'_> {
-    /// ln L and ∂ln L/∂p[slot] for every parameter slot at the natural values `p` (all
-    /// parameters by slot), or `None` when the model is outside the fast path.
-    pub(super) fn run_adjoint(&self, p: &[f64]) -> Option<(f64, Vec<f64>)> {
+    /// ln L and its partial derivatives at the natural values `natural` and unconstrained
+    /// values `theta` of every model parameter by slot, or `None` when the model is outside the
+    /// fast path.
+    pub(super) fn run_adjoint(&self, natural: &[f64], theta: &[f64]) -> Option<Adjoint> {
         let model = self.model;
-        if model.varies() || model.choice.signal() != Signal::DriftDifference {
+        if model.choice.signal() != Signal::DriftDifference {
             return None;
         }
-        let mapping = model.drift.as_ref()?;
-        let p_dual: Vec<_> = p.iter().map(|&x| constant(x)).collect();
-        let prepared = model.choice.prepare(&p_dual, self.context);
-        let n_options = self.subject.options.len().max(2);
-        let initial = model.initial_slot.map_or(0.0, |s| p[s]);
-        let mut q = vec![initial; n_options];
-        let mut d_p = vec![0.0; p.len()];
-        let mut tape: Vec<Taped> = Vec::with_capacity(self.subject.trials.len());
-        // Per learned trial with forgetting: initial − Q of every option before the update.
-        let mut forgotten: Vec<f64> = Vec::new();
-        let mut appraised = [Appraised::default(), Appraised::default()];
-        let mut total = 0.0;
-        let mut d_signal = [0.0];
-        for (index, trial) in self.subject.trials.iter().enumerate() {
-            let [a, b] = trial.offers.as_slice() else {
-                return None;
+        // Stretches of trials with the same component parameters (one without variation).
+        let n = self.subject.trials.len();
+        let mut stretches: Vec<(usize, usize, Vec<f64>)> = Vec::new();
+        let mut from = 0;
+        while from < n {
+            let until = if model.varies() {
+                self.design.same_parameters_until(from)
+            } else {
+                n
             };
-            let mut others = self.design.attribute_values(index).chunks_exact(2);
-            for (k, offer) in [a, b].into_iter().enumerate() {
-                appraised[k].start(if model.learns() {
-                    q[offer.option]
-                } else {
-                    offer.reward.unwrap_or(f64::NAN)
-                });
-            }
-            for cost in &model.costs {
-                let extra = if cost.is_effort() {
-                    None
-                } else {
-                    Some(others.next()?)
-                };
-                for (k, offer) in [a, b].into_iter().enumerate() {
-                    let amount = extra.map_or(offer.effort, |e| e[k]);
-                    let step = cost
-                        .shape
-                        .subjective_value_local(appraised[k].value, amount, p)?;
-                    appraised[k].then(step)?;
-                }
-            }
-            let own = others.next();
-            for (k, one) in appraised.iter_mut().enumerate() {
-                one.then(mapping.weighted_local(one.value, own.map_or(0.0, |x| x[k]), p)?)?;
-            }
-            let drift = mapping.drift_local(appraised[0].value - appraised[1].value, p)?;
-            let observation = Observation {
-                choice: trial.choice,
-                rt: trial.rt,
-            };
-            let d_drift = match prepared
-                .ln_likelihood_local(&[drift.value], &observation, &mut d_signal, &mut d_p)
-                .ok()?
-            {
-                Some(ln_trial) => {
-                    total += ln_trial;
-                    d_signal[0]
-                }
-                None => 0.0,
-            };
-            let mut scored = [(a.option, 0.0), (b.option, 0.0)];
-            if d_drift != 0.0 {
-                add(&mut d_p, d_drift, &drift.d_parameters);
-                let d_difference = d_drift * drift.d_input;
-                for (k, one) in appraised.iter().enumerate() {
-                    let d_x = if k == 0 { d_difference } else { -d_difference };
-                    add(&mut d_p, d_x, one.partials());
-                    scored[k].1 = d_x * one.d_value;
-                }
-            }
-            let learned = match (trial.choice, trial.outcome) {
-                (Some(choice), Some(r)) if model.learns() => {
-                    let chosen = trial.offers[choice.index()].option;
-                    let update = model.learning.update_local(q[chosen], r, p)?;
-                    q[chosen] = update.value;
-                    if let Some(slot) = model.forget_slot {
-                        for (k, v) in q.iter_mut().enumerate() {
-                            forgotten.push(initial - *v);
-                            if k != chosen {
-                                *v += p[slot] * (initial - *v);
-                            }
-                        }
-                    }
-                    Some((chosen, update))
-                }
-                _ => None,
-            };
-            tape.push(Taped { scored, learned });
+            stretches.push((from, until, self.component_values(from, natural, theta)));
+            from = until;
         }
-        // Backward through the recursion.
+        let initial = match (model.initial_slot, stretches.first()) {
+            (Some(slot), Some((_, _, p))) => p[slot],
+            _ => 0.0,
+        };
+        let n_options = self.subject.options.len().max(2);
+        let mut state = Forward {
+            q: vec![initial; n_options],
+            tape: Vec::with_capacity(n),
+            forgotten: Vec::new(),
+            appraised: [Appraised::default(), Appraised::default()],
+            total: 0.0,
+        };
+        let mut out = Adjoint {
+            ln_likelihood: 0.0,
+            d_natural: vec![0.0; natural.len()],
+            d_theta: vec![0.0; natural.len()],
+        };
+        let mut d_c = Vec::new();
+        for (from, until, p) in &stretches {
+            let p_dual: Vec<_> = p.iter().map(|&x| constant(x)).collect();
+            let prepared = model.choice.prepare(&p_dual, self.context);
+            d_c.clear();
+            d_c.resize(p.len(), 0.0);
+            for index in *from..*until {
+                self.forward(index, p, initial, prepared.as_ref(), &mut state, &mut d_c)?;
+            }
+            self.flush(*from, &d_c, theta, &mut out);
+        }
+        // Backward through the recursion, stretch by stretch.
         let mut lambda = vec![0.0; n_options];
-        let mut forgotten = forgotten.chunks_exact(n_options).rev();
-        for taped in tape.iter().rev() {
-            if let Some((chosen, update)) = taped.learned {
-                if let Some(slot) = model.forget_slot {
-                    let before = forgotten.next().expect("one row per learned trial");
-                    let rate = p[slot];
-                    for (k, l) in lambda.iter_mut().enumerate() {
-                        if k != chosen {
-                            d_p[slot] += *l * before[k];
-                            if let Some(initial_slot) = model.initial_slot {
-                                d_p[initial_slot] += *l * rate;
+        let mut d_initial = 0.0;
+        let mut forgotten = state.forgotten.chunks_exact(n_options).rev();
+        for (from, until, p) in stretches.iter().rev() {
+            d_c.clear();
+            d_c.resize(p.len(), 0.0);
+            for taped in state.tape[*from..*until].iter().rev() {
+                if let Some((chosen, update)) = taped.learned {
+                    if let Some(slot) = model.forget_slot {
+                        let before = forgotten.next().expect("one row per learned trial");
+                        let rate = p[slot];
+                        for (k, l) in lambda.iter_mut().enumerate() {
+                            if k != chosen {
+                                d_c[slot] += *l * before[k];
+                                d_initial += *l * rate;
+                                *l *= 1.0 - rate;
                             }
-                            *l *= 1.0 - rate;
                         }
                     }
+                    add(&mut d_c, lambda[chosen], &update.d_parameters);
+                    lambda[chosen] *= update.d_input;
                 }
-                add(&mut d_p, lambda[chosen], &update.d_parameters);
-                lambda[chosen] *= update.d_input;
+                for &(option, d) in &taped.scored {
+                    lambda[option] += d;
+                }
             }
-            for &(option, d) in &taped.scored {
-                lambda[option] += d;
-            }
+            self.flush(*from, &d_c, theta, &mut out);
         }
         if let (Some(slot), true) = (model.initial_slot, model.learns()) {
-            d_p[slot] += lambda.iter().sum::<f64>();
+            d_initial += lambda.iter().sum::<f64>();
+            d_c.clear();
+            d_c.resize(stretches[0].2.len(), 0.0);
+            d_c[slot] = d_initial;
+            self.flush(0, &d_c, theta, &mut out);
         }
-        Some((total, d_p))
+        out.ln_likelihood = state.total;
+        Some(out)
+    }
+
+    /// The component parameters on trial `t` (all model parameters by slot when nothing varies).
+    fn component_values(&self, t: usize, natural: &[f64], theta: &[f64]) -> Vec<f64> {
+        if !self.model.varies() {
+            return natural.to_vec();
+        }
+        let mut values = Vec::with_capacity(self.model.sources.len());
+        self.design.origins(self.model, t, |origin| {
+            values.push(match origin {
+                Origin::Natural(slot) => natural[slot],
+                Origin::Linear {
+                    level,
+                    slopes,
+                    covariates,
+                } => self.slot_transforms[level].natural(origin_linear(
+                    theta[level],
+                    slopes,
+                    covariates,
+                    theta,
+                )),
+            })
+        });
+        values
+    }
+
+    /// Adds ∂ln L/∂(component parameters on trial `t`) to the model parameters they come from.
+    fn flush(&self, t: usize, d_c: &[f64], theta: &[f64], out: &mut Adjoint) {
+        if !self.model.varies() {
+            for (d, c) in out.d_natural.iter_mut().zip(d_c) {
+                *d += c;
+            }
+            return;
+        }
+        let mut k = 0;
+        self.design.origins(self.model, t, |origin| {
+            let d = d_c[k];
+            k += 1;
+            match origin {
+                Origin::Natural(slot) => out.d_natural[slot] += d,
+                Origin::Linear {
+                    level,
+                    slopes,
+                    covariates,
+                } => {
+                    let linear = origin_linear(theta[level], slopes, covariates, theta);
+                    let d_linear = d * self.slot_transforms[level].slope(linear);
+                    out.d_theta[level] += d_linear;
+                    for ((_, slope), x) in slopes.iter().zip(covariates) {
+                        out.d_theta[*slope] += d_linear * x;
+                    }
+                }
+            }
+        });
+    }
+
+    /// Scores trial `index` with component parameters `p` and learns from its outcome: adds
+    /// its direct partial derivatives to `d_c` (by component parameter) and tapes the rest.
+    fn forward(
+        &self,
+        index: usize,
+        p: &[f64],
+        initial: f64,
+        prepared: &dyn PreparedChoice,
+        state: &mut Forward,
+        d_c: &mut [f64],
+    ) -> Option<()> {
+        let model = self.model;
+        let mapping = model.drift.as_ref()?;
+        let trial = &self.subject.trials[index];
+        let [a, b] = trial.offers.as_slice() else {
+            return None;
+        };
+        let appraised = &mut state.appraised;
+        let mut others = self.design.attribute_values(index).chunks_exact(2);
+        for (k, offer) in [a, b].into_iter().enumerate() {
+            appraised[k].start(if model.learns() {
+                state.q[offer.option]
+            } else {
+                offer.reward.unwrap_or(f64::NAN)
+            });
+        }
+        for cost in &model.costs {
+            let extra = if cost.is_effort() {
+                None
+            } else {
+                Some(others.next()?)
+            };
+            for (k, offer) in [a, b].into_iter().enumerate() {
+                let amount = extra.map_or(offer.effort, |e| e[k]);
+                let step = cost
+                    .shape
+                    .subjective_value_local(appraised[k].value, amount, p)?;
+                appraised[k].then(step)?;
+            }
+        }
+        let own = others.next();
+        for (k, one) in appraised.iter_mut().enumerate() {
+            one.then(mapping.weighted_local(one.value, own.map_or(0.0, |x| x[k]), p)?)?;
+        }
+        let drift = mapping.drift_local(appraised[0].value - appraised[1].value, p)?;
+        let observation = Observation {
+            choice: trial.choice,
+            rt: trial.rt,
+        };
+        let mut d_signal = [0.0];
+        let d_drift = match prepared
+            .ln_likelihood_local(&[drift.value], &observation, &mut d_signal, d_c)
+            .ok()?
+        {
+            Some(ln_trial) => {
+                state.total += ln_trial;
+                d_signal[0]
+            }
+            None => 0.0,
+        };
+        let mut scored = [(a.option, 0.0), (b.option, 0.0)];
+        if d_drift != 0.0 {
+            add(d_c, d_drift, &drift.d_parameters);
+            let d_difference = d_drift * drift.d_input;
+            for (k, one) in appraised.iter().enumerate() {
+                let d_x = if k == 0 { d_difference } else { -d_difference };
+                add(d_c, d_x, one.partials());
+                scored[k].1 = d_x * one.d_value;
+            }
+        }
+        let learned = match (trial.choice, trial.outcome) {
+            (Some(choice), Some(r)) if model.learns() => {
+                let chosen = trial.offers[choice.index()].option;
+                let update = model.learning.update_local(state.q[chosen], r, p)?;
+                state.q[chosen] = update.value;
+                if let Some(slot) = model.forget_slot {
+                    for (k, v) in state.q.iter_mut().enumerate() {
+                        state.forgotten.push(initial - *v);
+                        if k != chosen {
+                            *v += p[slot] * (initial - *v);
+                        }
+                    }
+                }
+                Some((chosen, update))
+            }
+            _ => None,
+        };
+        state.tape.push(Taped { scored, learned });
+        Some(())
     }
 }
 

@@ -326,8 +326,8 @@ impl<'a> SubjectLikelihood<'a> {
     /// that dual-number path.
     pub fn evaluate(&self, theta: &[f64]) -> Evaluation {
         assert!(theta.len() == self.free.len());
-        let natural = self.natural_values(theta);
-        let Some((ln_l, d_natural)) = self.run_adjoint(&natural) else {
+        let (natural, thetas) = self.plain_values(theta);
+        let Some(adjoint) = self.run_adjoint(&natural, &thetas) else {
             return self.evaluate_reference(theta);
         };
         let slopes: Vec<f64> = self
@@ -340,30 +340,33 @@ impl<'a> SubjectLikelihood<'a> {
             .free
             .iter()
             .zip(&slopes)
-            .map(|(&slot, slope)| d_natural[slot] * slope)
+            .map(|(&slot, slope)| adjoint.d_natural[slot] * slope + adjoint.d_theta[slot])
             .collect();
-        self.with_prior(theta, ln_l, gradient, &natural, &slopes)
+        self.with_prior(theta, adjoint.ln_likelihood, gradient, &natural, &slopes)
     }
 
     /// True when [`SubjectLikelihood::evaluate`] takes the fast (adjoint) path for this model and
     /// subject at θ, false when it takes the dual-number path.
     pub fn takes_fast_path(&self, theta: &[f64]) -> bool {
-        self.run_adjoint(&self.natural_values(theta)).is_some()
+        let (natural, thetas) = self.plain_values(theta);
+        self.run_adjoint(&natural, &thetas).is_some()
     }
 
-    /// Natural values of every parameter by slot for θ, on plain numbers (the real parts of
-    /// [`SubjectLikelihood::natural`]).
-    fn natural_values(&self, theta: &[f64]) -> Vec<f64> {
+    /// Natural values and θ of every parameter by slot on plain numbers (the real parts of
+    /// [`SubjectLikelihood::duals`]).
+    fn plain_values(&self, theta: &[f64]) -> (Vec<f64>, Vec<f64>) {
         let mut natural: Vec<f64> = self
             .model
             .parameters
             .iter()
             .map(|p| p.fixed.unwrap_or(f64::NAN))
             .collect();
+        let mut thetas = vec![f64::NAN; natural.len()];
         for ((&slot, transform), &t) in self.free.iter().zip(&self.transforms).zip(theta) {
             natural[slot] = transform.natural(t);
+            thetas[slot] = t;
         }
-        natural
+        (natural, thetas)
     }
 
     /// [`SubjectLikelihood::evaluate`] by the general path, which every model can take: dual

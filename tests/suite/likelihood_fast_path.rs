@@ -105,50 +105,18 @@ shape = "COST"
 mapping = "MAPPING"
 [choice]
 stage = "diffusion"
-[parameters.gain_rate]
-lower = 0.0
-upper = 1.0
-start = [0.1, 0.9]
-[parameters.loss_rate]
-lower = 0.0
-upper = 1.0
-start = [0.1, 0.9]
-[parameters.forget_rate]
-lower = 0.0
-upper = 1.0
-start = [0.05, 0.5]
-[parameters.initial_value]
-lower = -1.0
-upper = 1.0
-start = [0.0, 0.5]
-[parameters.effort_weight]
-lower = 0.0
-upper = 5.0
-start = [0.1, 3.0]
-[parameters.value_scale]
-lower = 0.0
-upper = 20.0
-start = [0.5, 10.0]
-[parameters.boundary]
-lower = 0.3
-upper = 5.0
-start = [0.5, 4.0]
-[parameters.ndt]
-lower = 0.0
-upper = 0.3
-start = [0.05, 0.25]
-[parameters.start]
-lower = 0.2
-upper = 0.8
-start = [0.3, 0.7]
-[parameters.lapse]
-lower = 0.0
-upper = 0.2
-start = [0.01, 0.1]
-[parameters.drift_sd]
-lower = 0.0
-upper = 2.0
-start = [0.1, 1.0]
+[parameters]
+gain_rate = { lower = 0.0, upper = 1.0, start = [0.1, 0.9] }
+loss_rate = { lower = 0.0, upper = 1.0, start = [0.1, 0.9] }
+forget_rate = { lower = 0.0, upper = 1.0, start = [0.05, 0.5] }
+initial_value = { lower = -1.0, upper = 1.0, start = [0.0, 0.5] }
+effort_weight = { lower = 0.0, upper = 5.0, start = [0.1, 3.0] }
+value_scale = { lower = 0.0, upper = 20.0, start = [0.5, 10.0] }
+boundary = { lower = 0.3, upper = 5.0, start = [0.5, 4.0] }
+ndt = { lower = 0.0, upper = 0.3, start = [0.05, 0.25] }
+start = { lower = 0.2, upper = 0.8, start = [0.3, 0.7] }
+lapse = { lower = 0.0, upper = 0.2, start = [0.01, 0.1] }
+drift_sd = { lower = 0.0, upper = 2.0, start = [0.1, 1.0] }
 "#;
 
 /// The rich model with a cost shape and a drift mapping (extra parameter lines appended).
@@ -170,9 +138,14 @@ fn windowed(mut subject: Subject) -> Subject {
             _ => {}
         }
         let share = 0.2 + 0.6 * ((i % 5) as f64 / 4.0);
-        trial.covariates = vec![Some(format!("{share}")), Some(format!("{}", 1.0 - share))];
+        let x = (i % 9) as f64 / 4.0 - 1.0;
+        trial.covariates = vec![
+            Some(format!("{share}")),
+            Some(format!("{}", 1.0 - share)),
+            Some(format!("{x}")),
+        ];
     }
-    subject.covariates = std::sync::Arc::from(["gaze_a".to_string(), "gaze_b".to_string()]);
+    subject.covariates = std::sync::Arc::from(["gaze_a", "gaze_b", "x"].map(String::from));
     subject
 }
 
@@ -181,14 +154,34 @@ fn fast_path_equals_the_dual_path_with_forgetting_lapses_windows_and_every_shape
     let mut rng = ChaCha8Rng::seed_from_u64(41);
     let reference = valuedrift::model::load_model("gainloss-linear").unwrap();
     let subject = windowed(participant(&reference, &mut rng));
-    let gaze = "[parameters.gaze_discount]\nlower = 0.0\nupper = 1.0\nstart = [0.1, 0.9]\n";
-    let bounded = "[parameters.drift_max]\nlower = 0.5\nupper = 10.0\nstart = [1.0, 5.0]\n";
+    let gaze = "gaze_discount = { lower = 0.0, upper = 1.0, start = [0.1, 0.9] }\n";
+    let bounded = "drift_max = { lower = 0.5, upper = 10.0, start = [1.0, 5.0] }\n";
     let mut models = Vec::new();
     for cost in ["linear", "quadratic", "hyperbolic", "exponential"] {
         models.push(rich(cost, "linear", ""));
     }
     models.push(rich("exponential", "gaze-weighted", gaze));
     models.push(rich("hyperbolic", "bounded", bounded));
+    // A boundary by run and a value scale with a slope on the covariate x.
+    let text = RICH
+        .replace("COST", "quadratic")
+        .replace("MAPPING", "linear")
+        .replace(
+            "boundary = { lower = 0.3, upper = 5.0, start = [0.5, 4.0] }",
+            "boundary = { lower = 0.3, upper = 5.0, start = [0.5, 4.0], by = \"run\", levels = [\"1\", \"2\"] }",
+        )
+        .replace(
+            "value_scale = { lower = 0.0, upper = 20.0, start = [0.5, 10.0] }",
+            "value_scale = { lower = 0.0, upper = 20.0, start = [0.5, 10.0], slopes = { x = [-1.0, 1.0] } }",
+        );
+    // At most 12 free parameters: the lapse rate fixed.
+    let text = text.replace(
+        "lapse = { lower = 0.0, upper = 0.2, start = [0.01, 0.1] }",
+        "lapse = { fixed = 0.02 }",
+    );
+    let varying = parse_model(&text, "varying.toml").unwrap();
+    assert!(varying.varies());
+    models.push(varying);
     for model in &models {
         for (deadline, lock) in [(None, None), (Some(4.0), None), (Some(4.0), Some(0.35))] {
             let lik = SubjectLikelihood::new(model, &subject, deadline)

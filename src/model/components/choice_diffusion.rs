@@ -340,16 +340,9 @@ impl Prepared<'_> {
 
 /// The engine's partial derivatives in the order of a [`Local8`].
 fn local_partials(g: DensityGradient) -> [f64; 8] {
-    [
-        g.drift,
-        g.boundary,
-        g.start,
-        g.ndt,
-        g.drift_sd,
-        g.start_range,
-        g.ndt_range,
-        0.0,
-    ]
+    let mut partials = [0.0; 8];
+    partials[..7].copy_from_slice(&g.to_array());
+    partials
 }
 
 impl Prepared<'_> {
