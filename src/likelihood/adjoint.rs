@@ -63,11 +63,13 @@ impl Appraised {
         for (_, d) in &mut self.d_parameters[..self.len] {
             *d *= step.d_input;
         }
-        let end = self.len + step.d_parameters.len();
-        self.d_parameters
-            .get_mut(self.len..end)?
-            .copy_from_slice(&step.d_parameters);
-        self.len = end;
+        // Zero partials (a component's unused entries) are left out: they add nothing.
+        for &(slot, d) in &step.d_parameters {
+            if d != 0.0 {
+                *self.d_parameters.get_mut(self.len)? = (slot, d);
+                self.len += 1;
+            }
+        }
         self.d_value *= step.d_input;
         self.value = step.value;
         Some(())
@@ -334,10 +336,13 @@ impl SubjectLikelihood<'_> {
     }
 }
 
-/// d_p[slot] += weight·∂/∂p[slot] for each (slot, ∂) of `partials`.
+/// d_p[slot] += weight·∂/∂p[slot] for each (slot, ∂) of `partials` with ∂ ≠ 0 (a component's
+/// unused entries add nothing, and skipping them spares a chain of updates of one slot).
 #[inline]
 fn add(d_p: &mut [f64], weight: f64, partials: &[(usize, f64)]) {
     for &(slot, d) in partials {
-        d_p[slot] += weight * d;
+        if d != 0.0 {
+            d_p[slot] += weight * d;
+        }
     }
 }
