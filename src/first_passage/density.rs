@@ -29,14 +29,15 @@ impl DensityGradient {
     /// The partial derivatives in the order drift, boundary, start, ndt, drift_sd, start_range,
     /// ndt_range.
     pub fn to_array(self) -> [f64; 7] {
+        let g = self;
         [
-            self.drift,
-            self.boundary,
-            self.start,
-            self.ndt,
-            self.drift_sd,
-            self.start_range,
-            self.ndt_range,
+            g.drift,
+            g.boundary,
+            g.start,
+            g.ndt,
+            g.drift_sd,
+            g.start_range,
+            g.ndt_range,
         ]
     }
 }

@@ -161,14 +161,15 @@ impl Diffusion {
     /// The slots of the stage's parameters, in the order of a [`Local8`]'s partial derivatives
     /// after the drift.
     fn slots(&self) -> [usize; 7] {
+        let d = self;
         [
-            self.boundary,
-            self.start,
-            self.ndt,
-            self.drift_sd,
-            self.start_range,
-            self.ndt_range,
-            self.lapse,
+            d.boundary,
+            d.start,
+            d.ndt,
+            d.drift_sd,
+            d.start_range,
+            d.ndt_range,
+            d.lapse,
         ]
     }
 }
