@@ -4,14 +4,15 @@
 //! (reverse-mode differentiation; Griewank & Walther 2008, ch. 3).
 //!
 //! Forward, per trial i with values Q⁽ⁱ⁾ before its outcome: SV_k = cost(Q_k, E_k), x_k =
-//! weighted(SV_k), v = drift(x_a − x_b), ln ℓᵢ = stage(v); the direct partial derivatives
-//! ∂ln ℓᵢ/∂p (through costs, mapping and stage) are summed at once, and ∂ln ℓᵢ/∂Q_k of each
-//! offered option is kept. Then Q⁽ⁱ⁺¹⁾ = learn(Q⁽ⁱ⁾), whose partial derivatives are kept.
-//! Backward, with λ⁽ⁱ⁾ = ∂(Σ_{j≥i} ln ℓⱼ)/∂Q⁽ⁱ⁾ and λ⁽ⁿ⁾ = 0:
-//! λ⁽ⁱ⁾_o = ∂ln ℓᵢ/∂Q_o + Σ_o′ λ⁽ⁱ⁺¹⁾_o′ ∂Q⁽ⁱ⁺¹⁾_o′/∂Q⁽ⁱ⁾_o, and ∂ln L/∂p gains
-//! Σ_o′ λ⁽ⁱ⁺¹⁾_o′ ∂Q⁽ⁱ⁺¹⁾_o′/∂p; finally the initial value's slot gains Σ_o λ⁽⁰⁾_o. The cost is
-//! a few operations per trial whatever the number of free parameters, where the dual-number
-//! path carries a gradient as wide as the free parameters through every quantity.
+//! weighted(SV_k), v = drift(x_a − x_b), with the partial derivatives on the way; then
+//! Q⁽ⁱ⁺¹⁾ = learn(Q⁽ⁱ⁾) with its partial derivatives. The values do not depend on the choice
+//! stage, so the stage then scores every trial in one loop: ln ℓᵢ = stage(vᵢ) with ∂ln ℓᵢ/∂vᵢ
+//! and its own parameters' partial derivatives. Backward, with λ⁽ⁱ⁾ = ∂(Σ_{j≥i} ln ℓⱼ)/∂Q⁽ⁱ⁾
+//! and λ⁽ⁿ⁾ = 0: λ⁽ⁱ⁾_o = ∂ln ℓᵢ/∂Q_o + Σ_o′ λ⁽ⁱ⁺¹⁾_o′ ∂Q⁽ⁱ⁺¹⁾_o′/∂Q⁽ⁱ⁾_o, and ∂ln L/∂p gains
+//! Σ_o′ λ⁽ⁱ⁺¹⁾_o′ ∂Q⁽ⁱ⁺¹⁾_o′/∂p and ∂ln ℓᵢ/∂p through costs and mapping; finally the initial
+//! value's slot gains Σ_o λ⁽⁰⁾_o. The cost is a few operations per trial whatever the number
+//! of free parameters, where the dual-number path carries a gradient as wide as the free
+//! parameters through every quantity.
 //!
 //! The values are computed by the same formulas in the same order as the dual path's real
 //! parts, so ln L is the same number; the gradient is the same up to the order of its sums
@@ -25,13 +26,21 @@
 
 use super::SubjectLikelihood;
 use super::design::{Origin, origin_linear};
-use crate::model::components::{Observation, PreparedChoice, Signal};
+use crate::model::components::{Observation, Signal};
 use crate::model::dual::{Local, constant};
 
 /// What the backward pass needs of one trial.
 struct Taped {
-    /// ∂ln ℓᵢ/∂Q of each offered option (option index, partial derivative).
-    scored: [(usize, f64); 2],
+    /// The offered options.
+    options: [usize; 2],
+    /// The drift with its partial derivatives in the weighted value difference and parameters.
+    drift: Local,
+    /// ∂ln ℓᵢ/∂drift, from the choice stage.
+    d_drift: f64,
+    /// ∂x_k/∂Q_k of each offered option's weighted value.
+    d_value: [f64; 2],
+    /// Where each option's (slot, ∂x_k/∂p) lie in [`Forward::partials`]: (start, end).
+    partials: [(usize, usize); 2],
     /// The chosen option's update: option, ∂Q′/∂Q and its parameters' partial derivatives.
     learned: Option<(usize, Local)>,
 }
@@ -97,7 +106,8 @@ struct Forward {
     /// Per learned trial with forgetting: initial − Q of every option before the update.
     forgotten: Vec<f64>,
     appraised: [Appraised; 2],
-    total: f64,
+    /// The options' parameter partial derivatives of every trial, one after another.
+    partials: Vec<(usize, f64)>,
 }
 
 impl SubjectLikelihood<'_> {
@@ -132,21 +142,47 @@ impl SubjectLikelihood<'_> {
             tape: Vec::with_capacity(n),
             forgotten: Vec::new(),
             appraised: [Appraised::default(), Appraised::default()],
-            total: 0.0,
+            partials: Vec::with_capacity(2 * n),
         };
         let mut out = Adjoint {
             ln_likelihood: 0.0,
             d_natural: vec![0.0; natural.len()],
             d_theta: vec![0.0; natural.len()],
         };
+        // The learning recursion and every trial's drift: the values do not depend on the
+        // choice stage, so the stage then scores all trials in one loop.
+        for (from, until, p) in &stretches {
+            for index in *from..*until {
+                self.forward(index, p, initial, &mut state)?;
+            }
+        }
         let mut d_c = Vec::new();
         for (from, until, p) in &stretches {
             let p_dual: Vec<_> = p.iter().map(|&x| constant(x)).collect();
             let prepared = model.choice.prepare(&p_dual, self.context);
             d_c.clear();
             d_c.resize(p.len(), 0.0);
-            for index in *from..*until {
-                self.forward(index, p, initial, prepared.as_ref(), &mut state, &mut d_c)?;
+            let mut d_signal = [0.0];
+            for (taped, trial) in state.tape[*from..*until]
+                .iter_mut()
+                .zip(&self.subject.trials[*from..*until])
+            {
+                let observation = Observation {
+                    choice: trial.choice,
+                    rt: trial.rt,
+                };
+                let scored = prepared
+                    .ln_likelihood_local(
+                        &[taped.drift.value],
+                        &observation,
+                        &mut d_signal,
+                        &mut d_c,
+                    )
+                    .ok()?;
+                if let Some(ln_trial) = scored {
+                    out.ln_likelihood += ln_trial;
+                    taped.d_drift = d_signal[0];
+                }
             }
             self.flush(*from, &d_c, theta, &mut out);
         }
@@ -173,8 +209,15 @@ impl SubjectLikelihood<'_> {
                     add(&mut d_c, lambda[chosen], &update.d_parameters);
                     lambda[chosen] *= update.d_input;
                 }
-                for &(option, d) in &taped.scored {
-                    lambda[option] += d;
+                if taped.d_drift != 0.0 {
+                    add(&mut d_c, taped.d_drift, &taped.drift.d_parameters);
+                    let d_difference = taped.d_drift * taped.drift.d_input;
+                    for k in 0..2 {
+                        let d_x = if k == 0 { d_difference } else { -d_difference };
+                        let (start, end) = taped.partials[k];
+                        add(&mut d_c, d_x, &state.partials[start..end]);
+                        lambda[taped.options[k]] += d_x * taped.d_value[k];
+                    }
                 }
             }
             self.flush(*from, &d_c, theta, &mut out);
@@ -186,7 +229,6 @@ impl SubjectLikelihood<'_> {
             d_c[slot] = d_initial;
             self.flush(0, &d_c, theta, &mut out);
         }
-        out.ln_likelihood = state.total;
         Some(out)
     }
 
@@ -244,17 +286,9 @@ impl SubjectLikelihood<'_> {
         });
     }
 
-    /// Scores trial `index` with component parameters `p` and learns from its outcome: adds
-    /// its direct partial derivatives to `d_c` (by component parameter) and tapes the rest.
-    fn forward(
-        &self,
-        index: usize,
-        p: &[f64],
-        initial: f64,
-        prepared: &dyn PreparedChoice,
-        state: &mut Forward,
-        d_c: &mut [f64],
-    ) -> Option<()> {
+    /// Appraises trial `index` with component parameters `p` (its drift and the partial
+    /// derivatives on the way) and learns from its outcome, onto the tape.
+    fn forward(&self, index: usize, p: &[f64], initial: f64, state: &mut Forward) -> Option<()> {
         let model = self.model;
         let mapping = model.drift.as_ref()?;
         let trial = &self.subject.trials[index];
@@ -289,30 +323,11 @@ impl SubjectLikelihood<'_> {
             one.then(mapping.weighted_local(one.value, own.map_or(0.0, |x| x[k]), p)?)?;
         }
         let drift = mapping.drift_local(appraised[0].value - appraised[1].value, p)?;
-        let observation = Observation {
-            choice: trial.choice,
-            rt: trial.rt,
-        };
-        let mut d_signal = [0.0];
-        let d_drift = match prepared
-            .ln_likelihood_local(&[drift.value], &observation, &mut d_signal, d_c)
-            .ok()?
-        {
-            Some(ln_trial) => {
-                state.total += ln_trial;
-                d_signal[0]
-            }
-            None => 0.0,
-        };
-        let mut scored = [(a.option, 0.0), (b.option, 0.0)];
-        if d_drift != 0.0 {
-            add(d_c, d_drift, &drift.d_parameters);
-            let d_difference = d_drift * drift.d_input;
-            for (k, one) in appraised.iter().enumerate() {
-                let d_x = if k == 0 { d_difference } else { -d_difference };
-                add(d_c, d_x, one.partials());
-                scored[k].1 = d_x * one.d_value;
-            }
+        let mut partials = [(0, 0); 2];
+        for (range, one) in partials.iter_mut().zip(appraised.iter()) {
+            let start = state.partials.len();
+            state.partials.extend_from_slice(one.partials());
+            *range = (start, state.partials.len());
         }
         let learned = match (trial.choice, trial.outcome) {
             (Some(choice), Some(r)) if model.learns() => {
@@ -331,7 +346,14 @@ impl SubjectLikelihood<'_> {
             }
             _ => None,
         };
-        state.tape.push(Taped { scored, learned });
+        state.tape.push(Taped {
+            options: [a.option, b.option],
+            drift,
+            d_drift: 0.0,
+            d_value: [state.appraised[0].d_value, state.appraised[1].d_value],
+            partials,
+            learned,
+        });
         Some(())
     }
 }
