@@ -1,14 +1,16 @@
-//! The fast path of [`SubjectLikelihood::evaluate`]: one forward pass on plain numbers, with each
+//! The fast path of [`SubjectLikelihood::evaluate`]: passes on plain numbers, with each
 //! component's partial derivatives in its own input and parameters (the `*_local` methods of
 //! the component traits), then one backward (adjoint) pass through the learning recursion
 //! (reverse-mode differentiation; Griewank & Walther 2008, ch. 3).
 //!
-//! Forward, per trial i with values Q⁽ⁱ⁾ before its outcome: SV_k = cost(Q_k, E_k), x_k =
-//! weighted(SV_k), v = drift(x_a − x_b), with the partial derivatives on the way; then
-//! Q⁽ⁱ⁺¹⁾ = learn(Q⁽ⁱ⁾) with its partial derivatives. The values do not depend on the choice
-//! stage, so the stage then scores every trial in one loop: ln ℓᵢ = stage(vᵢ) with ∂ln ℓᵢ/∂vᵢ
-//! and its own parameters' partial derivatives. Backward, with λ⁽ⁱ⁾ = ∂(Σ_{j≥i} ln ℓⱼ)/∂Q⁽ⁱ⁾
-//! and λ⁽ⁿ⁾ = 0: λ⁽ⁱ⁾_o = ∂ln ℓᵢ/∂Q_o + Σ_o′ λ⁽ⁱ⁺¹⁾_o′ ∂Q⁽ⁱ⁺¹⁾_o′/∂Q⁽ⁱ⁾_o, and ∂ln L/∂p gains
+//! Forward: the learning recursion alone gives the values Q⁽ⁱ⁾ of every trial before its
+//! outcome, Q⁽ⁱ⁺¹⁾ = learn(Q⁽ⁱ⁾), with the update's partial derivatives. The rest does not feed
+//! back into the values, so it runs component by component over all trials of a stretch (one
+//! call of each component, which inlines its per-value form): SV = cost(Q, E) for each cost
+//! attribute, x = weighted(SV), v = drift(x_a − x_b), each with its partial derivatives; then
+//! the choice stage scores every trial, ln ℓᵢ = stage(vᵢ), with ∂ln ℓᵢ/∂vᵢ and its own
+//! parameters' partial derivatives. Backward, with λ⁽ⁱ⁾ = ∂(Σ_{j≥i} ln ℓⱼ)/∂Q⁽ⁱ⁾ and λ⁽ⁿ⁾ = 0:
+//! λ⁽ⁱ⁾_o = ∂ln ℓᵢ/∂Q_o + Σ_o′ λ⁽ⁱ⁺¹⁾_o′ ∂Q⁽ⁱ⁺¹⁾_o′/∂Q⁽ⁱ⁾_o, and ∂ln L/∂p gains
 //! Σ_o′ λ⁽ⁱ⁺¹⁾_o′ ∂Q⁽ⁱ⁺¹⁾_o′/∂p and ∂ln ℓᵢ/∂p through costs and mapping; finally the initial
 //! value's slot gains Σ_o λ⁽⁰⁾_o. The cost is a few operations per trial whatever the number
 //! of free parameters, where the dual-number path carries a gradient as wide as the free
@@ -16,7 +18,7 @@
 //!
 //! The values are computed by the same formulas in the same order as the dual path's real
 //! parts, so ln L is the same number; the gradient is the same up to the order of its sums
-//! (tests/suite/likelihood.rs compares both on every built-in model).
+//! (tests/suite/likelihood_fast_path.rs compares both).
 //!
 //! Parameters that vary by condition or covariate are handled stretch by stretch (trials with
 //! the same component parameters), their partial derivatives passed back to the level
@@ -29,65 +31,12 @@ use super::design::{Origin, origin_linear};
 use crate::model::components::{Observation, Signal};
 use crate::model::dual::{Local, constant};
 
-/// What the backward pass needs of one trial.
-struct Taped {
-    /// The offered options.
-    options: [usize; 2],
-    /// The drift with its partial derivatives in the weighted value difference and parameters.
-    drift: Local,
-    /// ∂ln ℓᵢ/∂drift, from the choice stage.
-    d_drift: f64,
-    /// ∂x_k/∂Q_k of each offered option's weighted value.
-    d_value: [f64; 2],
-    /// Where each option's (slot, ∂x_k/∂p) lie in [`Forward::partials`]: (start, end).
-    partials: [(usize, usize); 2],
-    /// The chosen option's update: option, ∂Q′/∂Q and its parameters' partial derivatives.
-    learned: Option<(usize, Local)>,
-}
-
-/// Most parameter partial derivatives an option's subjective value carries (two per cost
-/// attribute and for the mapping's weighting); more send the likelihood down the dual path.
-const APPRAISAL_PARTIALS: usize = 8;
-
-/// ∂SV/∂Q and (slot, ∂SV/∂p) of one option's subjective value through its cost attributes.
-#[derive(Default)]
-struct Appraised {
-    value: f64,
-    d_value: f64,
-    d_parameters: [(usize, f64); APPRAISAL_PARTIALS],
-    len: usize,
-}
-
-impl Appraised {
-    /// Starts at a value Q (∂/∂Q = 1).
-    fn start(&mut self, q: f64) {
-        self.value = q;
-        self.d_value = 1.0;
-        self.len = 0;
-    }
-
-    /// Passes the value through one more function of it; `None` when there are too many
-    /// parameters to carry.
-    fn then(&mut self, step: Local) -> Option<()> {
-        for (_, d) in &mut self.d_parameters[..self.len] {
-            *d *= step.d_input;
-        }
-        // Zero partials (a component's unused entries) are left out: they add nothing.
-        for &(slot, d) in &step.d_parameters {
-            if d != 0.0 {
-                *self.d_parameters.get_mut(self.len)? = (slot, d);
-                self.len += 1;
-            }
-        }
-        self.d_value *= step.d_input;
-        self.value = step.value;
-        Some(())
-    }
-
-    /// The (slot, ∂SV/∂p) carried.
-    fn partials(&self) -> &[(usize, f64)] {
-        &self.d_parameters[..self.len]
-    }
+/// The learning step of one trial, for the backward pass.
+struct Learned {
+    /// The chosen option.
+    chosen: usize,
+    /// ∂Q′/∂Q and the update's parameter partial derivatives.
+    update: Local,
 }
 
 /// ln L with its partial derivatives: `d_natural` by model slot with respect to natural values,
@@ -99,15 +48,22 @@ pub(super) struct Adjoint {
     pub d_theta: Vec<f64>,
 }
 
-/// The forward pass's state: learned values and what the backward pass needs.
-struct Forward {
-    q: Vec<f64>,
-    tape: Vec<Taped>,
+/// What the forward passes leave for the backward pass, per trial (`drifts`, `d_drifts`,
+/// `learned`) or per offered option of each trial (2·trial + k, a then b).
+struct Tape {
+    /// The offered options.
+    options: Vec<usize>,
+    /// Per option, one row per appraisal step (each cost attribute, then the weighting):
+    /// the step's output with its partial derivatives; step m of option e at m·2n + e.
+    steps: Vec<Local>,
+    /// The drift with its partial derivatives, per trial.
+    drifts: Vec<Local>,
+    /// ∂ln ℓᵢ/∂drift, from the choice stage (zero for a trial that carries no information).
+    d_drifts: Vec<f64>,
+    /// The learning step of each trial that learned.
+    learned: Vec<Option<Learned>>,
     /// Per learned trial with forgetting: initial − Q of every option before the update.
     forgotten: Vec<f64>,
-    appraised: [Appraised; 2],
-    /// The options' parameter partial derivatives of every trial, one after another.
-    partials: Vec<(usize, f64)>,
 }
 
 impl SubjectLikelihood<'_> {
@@ -116,11 +72,16 @@ impl SubjectLikelihood<'_> {
     /// fast path.
     pub(super) fn run_adjoint(&self, natural: &[f64], theta: &[f64]) -> Option<Adjoint> {
         let model = self.model;
+        let mapping = model.drift.as_ref()?;
         if model.choice.signal() != Signal::DriftDifference {
             return None;
         }
+        let trials = &self.subject.trials;
+        let n = trials.len();
+        if trials.iter().any(|t| t.offers.len() != 2) {
+            return None;
+        }
         // Stretches of trials with the same component parameters (one without variation).
-        let n = self.subject.trials.len();
         let mut stretches: Vec<(usize, usize, Vec<f64>)> = Vec::new();
         let mut from = 0;
         while from < n {
@@ -137,51 +98,132 @@ impl SubjectLikelihood<'_> {
             _ => 0.0,
         };
         let n_options = self.subject.options.len().max(2);
-        let mut state = Forward {
-            q: vec![initial; n_options],
-            tape: Vec::with_capacity(n),
+        let n_steps = model.costs.len() + 1;
+        let blank = Local::new(0.0, 0.0, [(0, 0.0); 2]);
+        let mut tape = Tape {
+            options: trials
+                .iter()
+                .flat_map(|t| [t.offers[0].option, t.offers[1].option])
+                .collect(),
+            steps: vec![blank; n_steps * 2 * n],
+            drifts: vec![blank; n],
+            d_drifts: vec![0.0; n],
+            learned: Vec::with_capacity(n),
             forgotten: Vec::new(),
-            appraised: [Appraised::default(), Appraised::default()],
-            partials: Vec::with_capacity(2 * n),
         };
+        // The values before each trial's outcome: the learning recursion alone.
+        let mut values = Vec::with_capacity(2 * n);
+        let learns = model.learns();
+        let mut q = vec![initial; n_options];
+        for (from, until, p) in &stretches {
+            for trial in &trials[*from..*until] {
+                for offer in &trial.offers {
+                    values.push(if learns {
+                        q[offer.option]
+                    } else {
+                        offer.reward.unwrap_or(f64::NAN)
+                    });
+                }
+                let learned = match (trial.choice, trial.outcome) {
+                    (Some(choice), Some(r)) if learns => {
+                        let chosen = trial.offers[choice.index()].option;
+                        let update = model.learning.update_local(q[chosen], r, p)?;
+                        q[chosen] = update.value;
+                        if let Some(slot) = model.forget_slot {
+                            for (k, v) in q.iter_mut().enumerate() {
+                                tape.forgotten.push(initial - *v);
+                                if k != chosen {
+                                    *v += p[slot] * (initial - *v);
+                                }
+                            }
+                        }
+                        Some(Learned { chosen, update })
+                    }
+                    _ => None,
+                };
+                tape.learned.push(learned);
+            }
+        }
         let mut out = Adjoint {
             ln_likelihood: 0.0,
             d_natural: vec![0.0; natural.len()],
             d_theta: vec![0.0; natural.len()],
         };
-        // The learning recursion and every trial's drift: the values do not depend on the
-        // choice stage, so the stage then scores all trials in one loop.
-        for (from, until, p) in &stretches {
-            for index in *from..*until {
-                self.forward(index, p, initial, &mut state)?;
-            }
-        }
+        // Appraisal, drift and choice stage, component by component over each stretch.
+        let mut amounts = Vec::new();
+        let mut differences = Vec::new();
         let mut d_c = Vec::new();
         for (from, until, p) in &stretches {
+            let (e0, e1) = (2 * from, 2 * until);
+            let mut input = values[e0..e1].to_vec();
+            let mut extra = 0;
+            for (m, cost) in model.costs.iter().enumerate() {
+                amounts.clear();
+                for (index, trial) in trials.iter().enumerate().take(*until).skip(*from) {
+                    if cost.is_effort() {
+                        amounts.extend(trial.offers.iter().map(|o| o.effort));
+                    } else {
+                        let chunk = self
+                            .design
+                            .attribute_values(index)
+                            .chunks_exact(2)
+                            .nth(extra)?;
+                        amounts.extend_from_slice(chunk);
+                    }
+                }
+                extra += usize::from(!cost.is_effort());
+                let row = &mut tape.steps[m * 2 * n + e0..m * 2 * n + e1];
+                if !cost.shape.subjective_values_local(&input, &amounts, p, row) {
+                    return None;
+                }
+                input
+                    .iter_mut()
+                    .zip(row.iter())
+                    .for_each(|(x, step)| *x = step.value);
+            }
+            // The mapping's own attribute follows the cost attributes.
+            amounts.clear();
+            for index in *from..*until {
+                match self
+                    .design
+                    .attribute_values(index)
+                    .chunks_exact(2)
+                    .nth(extra)
+                {
+                    Some(own) => amounts.extend_from_slice(own),
+                    None => amounts.extend([0.0, 0.0]),
+                }
+            }
+            let m = n_steps - 1;
+            let row = &mut tape.steps[m * 2 * n + e0..m * 2 * n + e1];
+            if !mapping.weighted_values_local(&input, &amounts, p, row) {
+                return None;
+            }
+            differences.clear();
+            differences.extend(row.chunks_exact(2).map(|x| x[0].value - x[1].value));
+            if !mapping.drifts_local(&differences, p, &mut tape.drifts[*from..*until]) {
+                return None;
+            }
             let p_dual: Vec<_> = p.iter().map(|&x| constant(x)).collect();
             let prepared = model.choice.prepare(&p_dual, self.context);
             d_c.clear();
             d_c.resize(p.len(), 0.0);
             let mut d_signal = [0.0];
-            for (taped, trial) in state.tape[*from..*until]
-                .iter_mut()
-                .zip(&self.subject.trials[*from..*until])
-            {
+            let stretch = trials[*from..*until]
+                .iter()
+                .zip(&tape.drifts[*from..*until])
+                .zip(&mut tape.d_drifts[*from..*until]);
+            for ((trial, drift), d_drift) in stretch {
                 let observation = Observation {
                     choice: trial.choice,
                     rt: trial.rt,
                 };
                 let scored = prepared
-                    .ln_likelihood_local(
-                        &[taped.drift.value],
-                        &observation,
-                        &mut d_signal,
-                        &mut d_c,
-                    )
+                    .ln_likelihood_local(&[drift.value], &observation, &mut d_signal, &mut d_c)
                     .ok()?;
                 if let Some(ln_trial) = scored {
                     out.ln_likelihood += ln_trial;
-                    taped.d_drift = d_signal[0];
+                    *d_drift = d_signal[0];
                 }
             }
             self.flush(*from, &d_c, theta, &mut out);
@@ -189,12 +231,13 @@ impl SubjectLikelihood<'_> {
         // Backward through the recursion, stretch by stretch.
         let mut lambda = vec![0.0; n_options];
         let mut d_initial = 0.0;
-        let mut forgotten = state.forgotten.chunks_exact(n_options).rev();
+        let mut forgotten = tape.forgotten.chunks_exact(n_options).rev();
         for (from, until, p) in stretches.iter().rev() {
             d_c.clear();
             d_c.resize(p.len(), 0.0);
-            for taped in state.tape[*from..*until].iter().rev() {
-                if let Some((chosen, update)) = taped.learned {
+            for index in (*from..*until).rev() {
+                if let Some(Learned { chosen, update }) = &tape.learned[index] {
+                    let chosen = *chosen;
                     if let Some(slot) = model.forget_slot {
                         let before = forgotten.next().expect("one row per learned trial");
                         let rate = p[slot];
@@ -209,20 +252,26 @@ impl SubjectLikelihood<'_> {
                     add(&mut d_c, lambda[chosen], &update.d_parameters);
                     lambda[chosen] *= update.d_input;
                 }
-                if taped.d_drift != 0.0 {
-                    add(&mut d_c, taped.d_drift, &taped.drift.d_parameters);
-                    let d_difference = taped.d_drift * taped.drift.d_input;
-                    for k in 0..2 {
-                        let d_x = if k == 0 { d_difference } else { -d_difference };
-                        let (start, end) = taped.partials[k];
-                        add(&mut d_c, d_x, &state.partials[start..end]);
-                        lambda[taped.options[k]] += d_x * taped.d_value[k];
+                let d_drift = tape.d_drifts[index];
+                if d_drift != 0.0 {
+                    let drift = &tape.drifts[index];
+                    add(&mut d_c, d_drift, &drift.d_parameters);
+                    let d_difference = d_drift * drift.d_input;
+                    for (k, sign) in [(0, 1.0), (1, -1.0)] {
+                        let e = 2 * index + k;
+                        let mut d_x = sign * d_difference;
+                        for m in (0..n_steps).rev() {
+                            let step = &tape.steps[m * 2 * n + e];
+                            add(&mut d_c, d_x, &step.d_parameters);
+                            d_x *= step.d_input;
+                        }
+                        lambda[tape.options[e]] += d_x;
                     }
                 }
             }
             self.flush(*from, &d_c, theta, &mut out);
         }
-        if let (Some(slot), true) = (model.initial_slot, model.learns()) {
+        if let (Some(slot), true) = (model.initial_slot, learns) {
             d_initial += lambda.iter().sum::<f64>();
             d_c.clear();
             d_c.resize(stretches[0].2.len(), 0.0);
@@ -284,77 +333,6 @@ impl SubjectLikelihood<'_> {
                 }
             }
         });
-    }
-
-    /// Appraises trial `index` with component parameters `p` (its drift and the partial
-    /// derivatives on the way) and learns from its outcome, onto the tape.
-    fn forward(&self, index: usize, p: &[f64], initial: f64, state: &mut Forward) -> Option<()> {
-        let model = self.model;
-        let mapping = model.drift.as_ref()?;
-        let trial = &self.subject.trials[index];
-        let [a, b] = trial.offers.as_slice() else {
-            return None;
-        };
-        let appraised = &mut state.appraised;
-        let mut others = self.design.attribute_values(index).chunks_exact(2);
-        for (k, offer) in [a, b].into_iter().enumerate() {
-            appraised[k].start(if model.learns() {
-                state.q[offer.option]
-            } else {
-                offer.reward.unwrap_or(f64::NAN)
-            });
-        }
-        for cost in &model.costs {
-            let extra = if cost.is_effort() {
-                None
-            } else {
-                Some(others.next()?)
-            };
-            for (k, offer) in [a, b].into_iter().enumerate() {
-                let amount = extra.map_or(offer.effort, |e| e[k]);
-                let step = cost
-                    .shape
-                    .subjective_value_local(appraised[k].value, amount, p)?;
-                appraised[k].then(step)?;
-            }
-        }
-        let own = others.next();
-        for (k, one) in appraised.iter_mut().enumerate() {
-            one.then(mapping.weighted_local(one.value, own.map_or(0.0, |x| x[k]), p)?)?;
-        }
-        let drift = mapping.drift_local(appraised[0].value - appraised[1].value, p)?;
-        let mut partials = [(0, 0); 2];
-        for (range, one) in partials.iter_mut().zip(appraised.iter()) {
-            let start = state.partials.len();
-            state.partials.extend_from_slice(one.partials());
-            *range = (start, state.partials.len());
-        }
-        let learned = match (trial.choice, trial.outcome) {
-            (Some(choice), Some(r)) if model.learns() => {
-                let chosen = trial.offers[choice.index()].option;
-                let update = model.learning.update_local(state.q[chosen], r, p)?;
-                state.q[chosen] = update.value;
-                if let Some(slot) = model.forget_slot {
-                    for (k, v) in state.q.iter_mut().enumerate() {
-                        state.forgotten.push(initial - *v);
-                        if k != chosen {
-                            *v += p[slot] * (initial - *v);
-                        }
-                    }
-                }
-                Some((chosen, update))
-            }
-            _ => None,
-        };
-        state.tape.push(Taped {
-            options: [a.option, b.option],
-            drift,
-            d_drift: 0.0,
-            d_value: [state.appraised[0].d_value, state.appraised[1].d_value],
-            partials,
-            learned,
-        });
-        Some(())
     }
 }
 

@@ -25,8 +25,9 @@ mod learning_none;
 
 use super::dual::{D, Local};
 use crate::data::Choice;
-use num_dual::Dual64;
+use num_dual::{Dual64, DualNum};
 use rand::Rng;
+use std::marker::PhantomData;
 
 /// Where a component finds its parameters: the slot of each name in the model's parameter list.
 pub type Slots<'a> = &'a dyn Fn(&str) -> usize;
@@ -76,6 +77,20 @@ pub trait CostShape: Send + Sync {
     fn subjective_value_local(&self, _q: f64, _effort: f64, _p: &[f64]) -> Option<Local> {
         None
     }
+    /// [`CostShape::subjective_value_local`] of many values at once (`out[i]` for `q[i]` and
+    /// `amounts[i]`; one call per stretch of trials, in which the per-value form is inlined);
+    /// false when the shape has no plain-number form.
+    fn subjective_values_local(
+        &self,
+        q: &[f64],
+        amounts: &[f64],
+        p: &[f64],
+        out: &mut [Local],
+    ) -> bool {
+        each_local(q.iter().zip(amounts), out, |(&q, &amount)| {
+            self.subjective_value_local(q, amount, p)
+        })
+    }
 }
 
 /// Maps subjective values to drift rates: the difference of the two options' values for the
@@ -109,6 +124,40 @@ pub trait DriftMapping: Send + Sync {
     fn drift_local(&self, _x: f64, _p: &[f64]) -> Option<Local> {
         None
     }
+    /// [`DriftMapping::weighted_local`] of many values at once (`out[i]` for `values[i]` and
+    /// `attributes[i]`); false when the mapping has no plain-number form.
+    fn weighted_values_local(
+        &self,
+        values: &[f64],
+        attributes: &[f64],
+        p: &[f64],
+        out: &mut [Local],
+    ) -> bool {
+        each_local(values.iter().zip(attributes), out, |(&v, &a)| {
+            self.weighted_local(v, a, p)
+        })
+    }
+    /// [`DriftMapping::drift_local`] of many values at once (`out[i]` for `x[i]`); false when
+    /// the mapping has no plain-number form.
+    fn drifts_local(&self, x: &[f64], p: &[f64], out: &mut [Local]) -> bool {
+        each_local(x.iter(), out, |&x| self.drift_local(x, p))
+    }
+}
+
+/// Fills `out` with `local` of each input in turn; false at the first input without an answer.
+#[inline]
+fn each_local<I>(
+    inputs: impl Iterator<Item = I>,
+    out: &mut [Local],
+    local: impl Fn(I) -> Option<Local>,
+) -> bool {
+    for (slot, input) in out.iter_mut().zip(inputs) {
+        match local(input) {
+            Some(answer) => *slot = answer,
+            None => return false,
+        }
+    }
+    true
 }
 
 /// What a choice stage reads of a trial's subjective values.
@@ -240,46 +289,48 @@ pub fn only_options(options: &Options, known: &[&str]) -> Result<(), String> {
     }
 }
 
-/// A cost shape given by a formula SV = f(Q, E, k) in the single parameter `effort_weight` k,
-/// written once on any dual number (`formula` and `local` are the same generic function).
-struct WeightedCost {
-    weight: Option<usize>,
-    formula: fn(D, f64, D) -> D,
-    local: fn(Dual64, f64, Dual64) -> Dual64,
+/// A cost shape's formula SV = f(Q, E, k) in the single parameter `effort_weight` k, written
+/// once on any dual number: the likelihood's (`D`) for the reference path, one-direction duals
+/// for the fast path's partial derivatives.
+pub(super) trait Formula: Send + Sync + 'static {
+    /// SV = f(Q, E, k).
+    fn formula<N: DualNum<Primitive = f64> + Copy>(q: N, effort: f64, k: N) -> N;
 }
 
-impl CostShape for WeightedCost {
+/// A cost shape given by its [`Formula`].
+struct WeightedCost<F> {
+    weight: Option<usize>,
+    formula: PhantomData<F>,
+}
+
+impl<F: Formula> CostShape for WeightedCost<F> {
     fn subjective_value(&self, q: D, effort: f64, p: &[D]) -> D {
         let k = self.weight.map_or(D::from_re(0.0), |slot| p[slot]);
-        (self.formula)(q, effort, k)
+        F::formula(q, effort, k)
     }
 
+    #[inline]
     fn subjective_value_local(&self, q: f64, effort: f64, p: &[f64]) -> Option<Local> {
         let k = self.weight.map_or(0.0, |slot| p[slot]);
         // Two passes of one-direction duals: ∂/∂Q, then ∂/∂k (the value is the same in both).
-        let by_q = (self.local)(Dual64::from(q).derivative(), effort, Dual64::from(k));
+        let by_q = F::formula(Dual64::from(q).derivative(), effort, Dual64::from(k));
         let d_k = self.weight.map_or((0, 0.0), |slot| {
-            let by_k = (self.local)(Dual64::from(q), effort, Dual64::from(k).derivative());
+            let by_k = F::formula(Dual64::from(q), effort, Dual64::from(k).derivative());
             (slot, by_k.eps)
         });
         Some(Local::new(by_q.re, by_q.eps, [d_k, (0, 0.0)]))
     }
 }
 
-/// Builds a cost shape from its formula, given twice as the same generic function (on the
-/// likelihood's dual numbers and on one-direction duals); `uses_weight` is false for the shape
-/// without cost.
-fn weighted_cost(
+/// Builds the cost shape of formula `F`; `uses_weight` is false for the shape without cost.
+fn weighted_cost<F: Formula>(
     options: &Options,
     slots: Slots<'_>,
     uses_weight: bool,
-    formula: fn(D, f64, D) -> D,
-    local: fn(Dual64, f64, Dual64) -> Dual64,
 ) -> Result<Box<dyn CostShape>, String> {
     only_options(options, &[])?;
-    Ok(Box::new(WeightedCost {
+    Ok(Box::new(WeightedCost::<F> {
         weight: uses_weight.then(|| slots("effort_weight")),
-        formula,
-        local,
+        formula: PhantomData,
     }))
 }
