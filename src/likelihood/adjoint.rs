@@ -31,14 +31,6 @@ use super::design::{Origin, origin_linear};
 use crate::model::components::{Observation, Signal};
 use crate::model::dual::{Local, constant};
 
-/// The learning step of one trial, for the backward pass.
-struct Learned {
-    /// The chosen option.
-    chosen: usize,
-    /// ∂Q′/∂Q and the update's parameter partial derivatives.
-    update: Local,
-}
-
 /// ln L with its partial derivatives: `d_natural` by model slot with respect to natural values,
 /// `d_theta` by model slot with respect to θ directly (level intercepts and slopes of
 /// parameters that vary with a covariate).
@@ -60,8 +52,11 @@ struct Tape {
     drifts: Vec<Local>,
     /// ∂ln ℓᵢ/∂drift, from the choice stage (zero for a trial that carries no information).
     d_drifts: Vec<f64>,
-    /// The learning step of each trial that learned.
-    learned: Vec<Option<Learned>>,
+    /// The option chosen on each trial that learned.
+    learned: Vec<Option<usize>>,
+    /// The learning step of each trial that learned: ∂Q′/∂Q and the update's parameter
+    /// partial derivatives.
+    updates: Vec<Local>,
     /// Per learned trial with forgetting: initial − Q of every option before the update.
     forgotten: Vec<f64>,
 }
@@ -109,6 +104,7 @@ impl SubjectLikelihood<'_> {
             drifts: vec![blank; n],
             d_drifts: vec![0.0; n],
             learned: Vec::with_capacity(n),
+            updates: vec![blank; n],
             forgotten: Vec::new(),
         };
         // The values before each trial's outcome: the learning recursion alone.
@@ -116,7 +112,7 @@ impl SubjectLikelihood<'_> {
         let learns = model.learns();
         let mut q = vec![initial; n_options];
         for (from, until, p) in &stretches {
-            for trial in &trials[*from..*until] {
+            for (index, trial) in trials.iter().enumerate().take(*until).skip(*from) {
                 for offer in &trial.offers {
                     values.push(if learns {
                         q[offer.option]
@@ -127,7 +123,10 @@ impl SubjectLikelihood<'_> {
                 let learned = match (trial.choice, trial.outcome) {
                     (Some(choice), Some(r)) if learns => {
                         let chosen = trial.offers[choice.index()].option;
-                        let update = model.learning.update_local(q[chosen], r, p)?;
+                        let update = &mut tape.updates[index];
+                        if !model.learning.update_local(q[chosen], r, p, update) {
+                            return None;
+                        }
                         q[chosen] = update.value;
                         if let Some(slot) = model.forget_slot {
                             for (k, v) in q.iter_mut().enumerate() {
@@ -137,7 +136,7 @@ impl SubjectLikelihood<'_> {
                                 }
                             }
                         }
-                        Some(Learned { chosen, update })
+                        Some(chosen)
                     }
                     _ => None,
                 };
@@ -236,8 +235,8 @@ impl SubjectLikelihood<'_> {
             d_c.clear();
             d_c.resize(p.len(), 0.0);
             for index in (*from..*until).rev() {
-                if let Some(Learned { chosen, update }) = &tape.learned[index] {
-                    let chosen = *chosen;
+                if let Some(chosen) = tape.learned[index] {
+                    let update = &tape.updates[index];
                     if let Some(slot) = model.forget_slot {
                         let before = forgotten.next().expect("one row per learned trial");
                         let rate = p[slot];

@@ -28,12 +28,9 @@ impl LearningRule for Delta {
         q + p[self.rate] * (-q + outcome)
     }
 
-    fn update_local(&self, q: f64, outcome: f64, p: &[f64]) -> Option<Local> {
+    fn update_local(&self, q: f64, outcome: f64, p: &[f64], out: &mut Local) -> bool {
         let (rate, error) = (p[self.rate], -q + outcome);
-        Some(Local::new(
-            q + rate * error,
-            1.0 - rate,
-            [(self.rate, error), (0, 0.0)],
-        ))
+        *out = Local::new(q + rate * error, 1.0 - rate, [(self.rate, error), (0, 0.0)]);
+        true
     }
 }

@@ -60,14 +60,11 @@ impl LearningRule for GainLoss {
         q + rate * error
     }
 
-    fn update_local(&self, q: f64, outcome: f64, p: &[f64]) -> Option<Local> {
+    fn update_local(&self, q: f64, outcome: f64, p: &[f64], out: &mut Local) -> bool {
         let error = -q + outcome;
         let slot = self.rate_slot(error, outcome);
         let rate = p[slot];
-        Some(Local::new(
-            q + rate * error,
-            1.0 - rate,
-            [(slot, error), (0, 0.0)],
-        ))
+        *out = Local::new(q + rate * error, 1.0 - rate, [(slot, error), (0, 0.0)]);
+        true
     }
 }

@@ -57,10 +57,11 @@ pub trait LearningRule: Send + Sync {
     /// natural-scale parameters by slot.
     fn update(&self, q: D, outcome: f64, p: &[D]) -> D;
     /// [`LearningRule::update`] on plain numbers with its partial derivatives (in `q` and the
-    /// rule's parameters), for the likelihood's fast path; `None` (the default) sends the
-    /// likelihood down the dual-number path.
-    fn update_local(&self, _q: f64, _outcome: f64, _p: &[f64]) -> Option<Local> {
-        None
+    /// rule's parameters), for the likelihood's fast path, written to `out` (where the
+    /// likelihood keeps it for its backward pass, reading the new value at once); false (the
+    /// default) sends the likelihood down the dual-number path.
+    fn update_local(&self, _q: f64, _outcome: f64, _p: &[f64], _out: &mut Local) -> bool {
+        false
     }
     /// False when values are the offered magnitudes (no learning).
     fn learns(&self) -> bool {
