@@ -25,6 +25,23 @@ pub struct DensityGradient {
     pub ndt_range: f64,
 }
 
+impl DensityGradient {
+    /// The partial derivatives in the order drift, boundary, start, ndt, drift_sd, start_range,
+    /// ndt_range.
+    pub fn to_array(self) -> [f64; 7] {
+        let g = self;
+        [
+            g.drift,
+            g.boundary,
+            g.start,
+            g.ndt,
+            g.drift_sd,
+            g.start_range,
+            g.ndt_range,
+        ]
+    }
+}
+
 /// Positions in a gradient of the mirrored process: drift v, boundary a, start w, time or
 /// non-decision time, drift_sd η, start_range, ndt_range.
 pub(crate) const V: usize = 0;

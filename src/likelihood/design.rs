@@ -157,6 +157,39 @@ impl TrialColumns {
         &self.level_slots[t * self.n_varying..(t + 1) * self.n_varying]
     }
 
+    /// Where each component parameter's value on trial `t` comes from (in the order of
+    /// [`Model::component_parameters`]): `visit` sees each [`Origin`].
+    pub(crate) fn origins<'s>(
+        &'s self,
+        model: &'s Model,
+        t: usize,
+        mut visit: impl FnMut(Origin<'s>),
+    ) {
+        let levels = self.levels_of(t);
+        let xs = &self.covariates[t * self.n_slopes..(t + 1) * self.n_slopes];
+        let (mut v, mut k) = (0, 0);
+        for source in &model.sources {
+            match source {
+                Source::Constant(slot) => visit(Origin::Natural(*slot)),
+                Source::Varying(variation) => {
+                    let slot = levels[v];
+                    v += 1;
+                    let n = variation.slopes.len();
+                    visit(if n == 0 {
+                        Origin::Natural(slot)
+                    } else {
+                        Origin::Linear {
+                            level: slot,
+                            slopes: &variation.slopes,
+                            covariates: &xs[k..k + n],
+                        }
+                    });
+                    k += n;
+                }
+            }
+        }
+    }
+
     /// The component parameters on trial `t` (in the order of
     /// [`Model::component_parameters`]), written into `out`: a constant parameter's value from
     /// `natural`; a varying one as g(θ_level + Σ β_j·c_j) with g the transform of its level's
@@ -171,28 +204,21 @@ impl TrialColumns {
         out: &mut Vec<D>,
     ) {
         out.clear();
-        let levels = self.levels_of(t);
-        let xs = &self.covariates[t * self.n_slopes..(t + 1) * self.n_slopes];
-        let (mut v, mut k) = (0, 0);
-        for source in &model.sources {
-            match source {
-                Source::Constant(slot) => out.push(natural[*slot]),
-                Source::Varying(variation) => {
-                    let slot = levels[v];
-                    v += 1;
-                    if variation.slopes.is_empty() {
-                        out.push(natural[slot]);
-                    } else {
-                        let mut linear = theta[slot];
-                        for (_, slope) in &variation.slopes {
-                            linear += theta[*slope] * xs[k];
-                            k += 1;
-                        }
-                        out.push(transforms[slot].to_natural(linear));
-                    }
-                }
-            }
-        }
+        self.origins(model, t, |origin| {
+            out.push(match origin {
+                Origin::Natural(slot) => natural[slot],
+                Origin::Linear {
+                    level,
+                    slopes,
+                    covariates,
+                } => transforms[level].to_natural(origin_linear(
+                    theta[level],
+                    slopes,
+                    covariates,
+                    theta,
+                )),
+            })
+        });
     }
 
     /// The component parameters on trial `t` from natural values of every model parameter
@@ -209,6 +235,33 @@ impl TrialColumns {
         self.values_into(model, t, &duals, &theta, &transforms, &mut out);
         out
     }
+}
+
+/// Where a component parameter's value on a trial comes from.
+pub(crate) enum Origin<'s> {
+    /// The natural value of the model parameter in this slot.
+    Natural(usize),
+    /// g(θ_level + Σ β_j·c_j), g the transform of the level's slot: the level's slot, each
+    /// slope's (column, slot) and the trial's covariate values.
+    Linear {
+        level: usize,
+        slopes: &'s [(String, usize)],
+        covariates: &'s [f64],
+    },
+}
+
+/// θ_level + Σ β_j·c_j, summed in the order of the slopes (`theta` by model slot).
+pub(crate) fn origin_linear<N: Copy + std::ops::AddAssign + std::ops::Mul<f64, Output = N>>(
+    level: N,
+    slopes: &[(String, usize)],
+    covariates: &[f64],
+    theta: &[N],
+) -> N {
+    let mut linear = level;
+    for ((_, slope), &x) in slopes.iter().zip(covariates) {
+        linear += theta[*slope] * x;
+    }
+    linear
 }
 
 /// Reads every trial's values of the model's per-option attributes: the cost attributes other

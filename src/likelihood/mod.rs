@@ -11,6 +11,7 @@
 //! feedback r, Q(chosen) ← rule(Q(chosen), r) and, with forgetting, every other option
 //! Q ← Q + forget_rate·(initial_value − Q).
 
+mod adjoint;
 mod design;
 mod group_prior;
 
@@ -19,7 +20,7 @@ pub use group_prior::GroupPrior;
 
 use crate::data::{Choice, Subject, Trial};
 use crate::model::components::{Observation, Signal, SubjectContext};
-use crate::model::dual::{D, MAX_FREE, chain, constant, gradient};
+use crate::model::dual::{D, MAX_FREE, constant, gradient};
 use crate::model::{Model, Transform};
 
 /// The data do not suit the model.
@@ -317,37 +318,106 @@ impl<'a> SubjectLikelihood<'a> {
 
     /// ln L + ln prior and its gradient at θ. The prior is the group prior on θ when one is
     /// set, else the product of the declared priors on the natural scale.
+    ///
+    /// Models with parameters that are the same on every trial, a two-bound choice stage and
+    /// built-in components (or components that give their plain-number form) take the fast path
+    /// of the `adjoint` module: the same ln L, and the gradient of
+    /// [`SubjectLikelihood::evaluate_reference`] up to the order of its sums. The others take
+    /// that dual-number path.
     pub fn evaluate(&self, theta: &[f64]) -> Evaluation {
+        assert!(theta.len() == self.free.len());
+        let (natural, thetas) = self.plain_values(theta);
+        let Some(adjoint) = self.run_adjoint(&natural, &thetas) else {
+            return self.evaluate_reference(theta);
+        };
+        let slopes: Vec<f64> = self
+            .transforms
+            .iter()
+            .zip(theta)
+            .map(|(transform, &t)| transform.slope(t))
+            .collect();
+        let gradient = self
+            .free
+            .iter()
+            .zip(&slopes)
+            .map(|(&slot, slope)| adjoint.d_natural[slot] * slope + adjoint.d_theta[slot])
+            .collect();
+        self.with_prior(theta, adjoint.ln_likelihood, gradient, &natural, &slopes)
+    }
+
+    /// True when [`SubjectLikelihood::evaluate`] takes the fast (adjoint) path for this model and
+    /// subject at θ, false when it takes the dual-number path.
+    pub fn takes_fast_path(&self, theta: &[f64]) -> bool {
+        let (natural, thetas) = self.plain_values(theta);
+        self.run_adjoint(&natural, &thetas).is_some()
+    }
+
+    /// Natural values and θ of every parameter by slot on plain numbers (the real parts of
+    /// [`SubjectLikelihood::duals`]).
+    fn plain_values(&self, theta: &[f64]) -> (Vec<f64>, Vec<f64>) {
+        let mut natural: Vec<f64> = self
+            .model
+            .parameters
+            .iter()
+            .map(|p| p.fixed.unwrap_or(f64::NAN))
+            .collect();
+        let mut thetas = vec![f64::NAN; natural.len()];
+        for ((&slot, transform), &t) in self.free.iter().zip(&self.transforms).zip(theta) {
+            natural[slot] = transform.natural(t);
+            thetas[slot] = t;
+        }
+        (natural, thetas)
+    }
+
+    /// [`SubjectLikelihood::evaluate`] by the general path, which every model can take: dual
+    /// numbers carrying ∂/∂θ through every quantity of every trial.
+    pub fn evaluate_reference(&self, theta: &[f64]) -> Evaluation {
         assert!(theta.len() == self.free.len() && self.free.len() <= MAX_FREE);
         let (p, thetas) = self.duals(theta);
         let ln_l = self.run(&p, &thetas, None);
-        if let Some(prior) = &self.group_prior {
-            let (ln_prior, slope) = prior.ln_density_with_gradient(theta);
-            return Evaluation {
-                ln_likelihood: ln_l.re,
-                ln_prior,
-                gradient: gradient(&ln_l)
-                    .iter()
-                    .zip(&slope)
-                    .map(|(g, s)| g + s)
-                    .collect(),
-            };
-        }
+        let n = self.free.len();
+        let natural: Vec<f64> = p.iter().map(|x| x.re).collect();
+        let slopes: Vec<f64> = self
+            .free
+            .iter()
+            .enumerate()
+            .map(|(j, &slot)| gradient(&p[slot])[j])
+            .collect();
+        let gradient = gradient(&ln_l).iter().take(n).copied().collect();
+        self.with_prior(theta, ln_l.re, gradient, &natural, &slopes)
+    }
+
+    /// The evaluation from ln L and its gradient in θ: adds the prior (the group prior on θ,
+    /// else the declared priors at the natural values, chained by the slopes dx/dθ of the free
+    /// parameters).
+    fn with_prior(
+        &self,
+        theta: &[f64],
+        ln_likelihood: f64,
+        mut gradient: Vec<f64>,
+        natural: &[f64],
+        slopes: &[f64],
+    ) -> Evaluation {
         let mut ln_prior = 0.0;
-        let mut prior_terms: Vec<(f64, &D)> = Vec::new();
-        for &slot in &self.free {
-            if let Some(prior) = &self.model.parameters[slot].prior {
-                let (value, slope) = prior.ln_density_with_slope(p[slot].re);
-                ln_prior += value;
-                prior_terms.push((slope, &p[slot]));
+        if let Some(prior) = &self.group_prior {
+            let (value, slope) = prior.ln_density_with_gradient(theta);
+            ln_prior = value;
+            for (g, s) in gradient.iter_mut().zip(&slope) {
+                *g += s;
+            }
+        } else {
+            for ((&slot, g), dx) in self.free.iter().zip(&mut gradient).zip(slopes) {
+                if let Some(prior) = &self.model.parameters[slot].prior {
+                    let (value, slope) = prior.ln_density_with_slope(natural[slot]);
+                    ln_prior += value;
+                    *g += dx * slope;
+                }
             }
         }
-        let prior_dual = chain(ln_prior, &prior_terms);
-        let total = gradient(&ln_l) + gradient(&prior_dual);
         Evaluation {
-            ln_likelihood: ln_l.re,
+            ln_likelihood,
             ln_prior,
-            gradient: total.iter().take(self.free.len()).copied().collect(),
+            gradient,
         }
     }
 

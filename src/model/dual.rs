@@ -38,3 +38,29 @@ pub fn chain(re: f64, parts: &[(f64, &D)]) -> D {
     }
     D::new(re, eps)
 }
+
+/// A component's output as a plain number with its partial derivatives with respect to its
+/// input and to the (at most two) model parameters it reads: what the likelihood's adjoint pass
+/// needs of a learning rule, cost shape or drift mapping (see `likelihood::adjoint`). Unused
+/// parameter entries have weight zero.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Local {
+    /// The output.
+    pub value: f64,
+    /// ∂output/∂input (the value, subjective value or value difference it transforms).
+    pub d_input: f64,
+    /// (slot, ∂output/∂p[slot]) of the parameters it reads.
+    pub d_parameters: [(usize, f64); 2],
+}
+
+impl Local {
+    /// An output with its slope in the input and in up to two parameters.
+    #[inline]
+    pub fn new(value: f64, d_input: f64, d_parameters: [(usize, f64); 2]) -> Local {
+        Local {
+            value,
+            d_input,
+            d_parameters,
+        }
+    }
+}

@@ -93,15 +93,7 @@ fn make(x: Point) -> DiffusionParams {
 }
 
 fn partials(g: &DensityGradient) -> Point {
-    [
-        g.drift,
-        g.boundary,
-        g.start,
-        g.ndt,
-        g.drift_sd,
-        g.start_range,
-        g.ndt_range,
-    ]
+    g.to_array()
 }
 
 /// Parameter sets with a start range, a non-decision range or both, with and without drift

@@ -21,6 +21,7 @@ mod haemodynamic_response;
 mod hierarchical;
 mod honest_output;
 mod likelihood;
+mod likelihood_fast_path;
 mod model_selection;
 mod output_formats;
 mod output_safety;

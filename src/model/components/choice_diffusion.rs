@@ -31,16 +31,17 @@
 //! process (tests/suite/response_window.rs compares the two).
 
 use super::{
-    ChoiceStage, Entry, Observation, Options, PreparedChoice, Signal, Slots, SubjectContext,
-    only_options,
+    ChoiceStage, Entry, NoLocalForm, Observation, Options, PreparedChoice, Signal, Slots,
+    SubjectContext, only_options,
 };
 use crate::data::Choice;
 use crate::first_passage::{
-    Bound, DiffusionParams, ln_bound_probability_with_gradient, ln_density_with_gradient,
-    ln_survival, ln_survival_with_gradient, mean_decision_time, sample,
+    Bound, DensityGradient, DiffusionParams, ln_bound_probability_with_gradient,
+    ln_density_with_gradient, ln_survival, ln_survival_with_gradient, mean_decision_time, sample,
 };
 use crate::model::dual::{D, chain};
-use num_dual::DualNum;
+use nalgebra::{Const, SVector, U1};
+use num_dual::{Derivative, DualNum, DualSVec64};
 use rand::{Rng, RngExt};
 use std::cell::RefCell;
 
@@ -126,11 +127,15 @@ impl ChoiceStage for Diffusion {
         .ok();
         let lapse = p[self.lapse];
         let guess_density = 0.5 / (context.rt_max - context.rt_min).max(1e-3);
+        // The lapse rate as a stage number: the last of its local partial derivatives.
+        let local_lapse = Local8::from_re(lapse.re).derivative(LAPSE);
         Box::new(Prepared {
             stage: self,
             p,
             base,
-            lapse: (lapse.re > 0.0).then(|| ((-lapse).ln_1p(), lapse.ln() + guess_density.ln())),
+            lapse: lapse_terms(lapse, guess_density),
+            local_lapse,
+            local_lapse_terms: lapse_terms(local_lapse, guess_density),
             context,
             survivals: RefCell::new(Vec::new()),
         })
@@ -140,12 +145,52 @@ impl ChoiceStage for Diffusion {
 /// Most survival integrals kept per prepared stage (a subject's distinct offers).
 const SURVIVAL_CACHE: usize = 64;
 
+/// A stage quantity with its partial derivatives with respect to the trial's drift and the
+/// stage's seven parameters (in the order of [`Diffusion::slots`]), for the likelihood's fast path.
+type Local8 = DualSVec64<8>;
+
+/// Position of the lapse rate among a [`Local8`]'s partial derivatives.
+const LAPSE: usize = 7;
+
+/// (ln(1 − lapse), ln(lapse·guess density)) when the lapse rate is above zero.
+fn lapse_terms<N: DualNum<Primitive = f64> + Copy>(lapse: N, guess_density: f64) -> Option<(N, N)> {
+    (lapse.re() > 0.0).then(|| ((-lapse).ln_1p(), lapse.ln() + guess_density.ln()))
+}
+
+impl Diffusion {
+    /// The slots of the stage's parameters, in the order of a [`Local8`]'s partial derivatives
+    /// after the drift.
+    fn slots(&self) -> [usize; 7] {
+        let d = self;
+        [
+            d.boundary,
+            d.start,
+            d.ndt,
+            d.drift_sd,
+            d.start_range,
+            d.ndt_range,
+            d.lapse,
+        ]
+    }
+}
+
+/// How one trial's stage numbers are made: the engine's partial derivatives chained into a
+/// number, and the lapse rate with its terms.
+struct Numbers<N, F> {
+    chain: F,
+    lapse_rate: N,
+    lapse: Option<(N, N)>,
+}
+
 struct Prepared<'a> {
     stage: &'a Diffusion,
     p: &'a [D],
     base: Option<DiffusionParams>,
     /// (ln(1 − lapse), ln(lapse·guess density)) when the lapse rate is above zero.
     lapse: Option<(D, D)>,
+    /// The lapse rate and its terms as stage numbers.
+    local_lapse: Local8,
+    local_lapse_terms: Option<(Local8, Local8)>,
     context: SubjectContext,
     /// Survival integrals already computed in this evaluation, by (time, drift, bound): trials
     /// with the same offer share them (the other parameters are fixed while prepared). Each
@@ -157,8 +202,8 @@ struct Prepared<'a> {
 type SurvivalKey = (u64, u64, bool, (f64, crate::first_passage::DensityGradient));
 
 /// ln(e^x + e^y) on dual numbers.
-fn ln_add_exp(x: D, y: D) -> D {
-    let (hi, lo) = if x.re >= y.re { (x, y) } else { (y, x) };
+fn ln_add_exp<N: DualNum<Primitive = f64> + Copy>(x: N, y: N) -> N {
+    let (hi, lo) = if x.re() >= y.re() { (x, y) } else { (y, x) };
     hi + (lo - hi).exp().ln_1p()
 }
 
@@ -181,8 +226,14 @@ impl Prepared<'_> {
 }
 
 impl Prepared<'_> {
-    /// ln S_c(t) for a bound, with its gradient.
-    fn ln_survival(&self, t: f64, bound: Bound, params: &DiffusionParams, signal: &D) -> D {
+    /// ln S_c(t) for a bound, with its gradient (`chain` makes it a number).
+    fn ln_survival<N>(
+        &self,
+        t: f64,
+        bound: Bound,
+        params: &DiffusionParams,
+        chain: &impl Fn(f64, DensityGradient) -> N,
+    ) -> N {
         let key = (t.to_bits(), params.drift().to_bits(), bound == Bound::Upper);
         let cached = self
             .survivals
@@ -201,14 +252,19 @@ impl Prepared<'_> {
                 fresh
             }
         };
-        self.chained(ln_s, g, signal)
+        chain(ln_s, g)
     }
 
     /// ln S(t) = ln(S_a(t) + S_b(t)), the probability that no bound is reached by time t.
-    fn ln_undecided_by(&self, t: f64, params: &DiffusionParams, signal: &D) -> D {
+    fn ln_undecided_by<N: DualNum<Primitive = f64> + Copy>(
+        &self,
+        t: f64,
+        params: &DiffusionParams,
+        chain: &impl Fn(f64, DensityGradient) -> N,
+    ) -> N {
         ln_add_exp(
-            self.ln_survival(t, Bound::Upper, params, signal),
-            self.ln_survival(t, Bound::Lower, params, signal),
+            self.ln_survival(t, Bound::Upper, params, chain),
+            self.ln_survival(t, Bound::Lower, params, chain),
         )
     }
 
@@ -220,35 +276,43 @@ impl Prepared<'_> {
     }
 }
 
-impl PreparedChoice for Prepared<'_> {
-    fn ln_likelihood(&self, signal: &[D], observation: &Observation) -> Option<D> {
-        let signal = signal[0];
-        let Some(base) = self.base else {
-            return Some(D::from_re(f64::NEG_INFINITY));
-        };
-        let params = base.with_drift(signal.re);
+impl Prepared<'_> {
+    /// ln P(observation) at `params` (the trial's drift set) in the number type of `numbers`:
+    /// dual numbers in θ for the reference path, [`Local8`] for the fast path. One formula, so
+    /// both give the same value.
+    fn score<N, F>(
+        &self,
+        params: &DiffusionParams,
+        observation: &Observation,
+        numbers: &Numbers<N, F>,
+    ) -> Option<N>
+    where
+        N: DualNum<Primitive = f64> + Copy,
+        F: Fn(f64, DensityGradient) -> N,
+    {
+        let chain = &numbers.chain;
         // ln S(lock): what every observation is conditioned on.
         let ln_window = self
-            .active_lock(&params)
-            .map(|lock| self.ln_undecided_by(lock, &params, &signal));
-        let conditioned = |x: D| match ln_window {
+            .active_lock(params)
+            .map(|lock| self.ln_undecided_by(lock, params, chain));
+        let conditioned = |x: N| match ln_window {
             Some(w) => x - w,
             None => x,
         };
         match (observation.choice, observation.rt) {
             (Some(choice), Some(rt)) => {
                 let bound = bound_of(choice);
-                let (ln_f, g) = ln_density_with_gradient(rt, bound, &params);
-                let ln_f = conditioned(self.chained(ln_f, g, &signal));
-                Some(match self.lapse {
+                let (ln_f, g) = ln_density_with_gradient(rt, bound, params);
+                let ln_f = conditioned(chain(ln_f, g));
+                Some(match numbers.lapse {
                     Some((ln_keep, ln_guess)) => ln_add_exp(ln_keep + ln_f, ln_guess),
                     None => ln_f,
                 })
             }
             (None, _) => {
                 let deadline = self.context.deadline?;
-                let total = conditioned(self.ln_undecided_by(deadline, &params, &signal));
-                Some(match self.lapse {
+                let total = conditioned(self.ln_undecided_by(deadline, params, chain));
+                Some(match numbers.lapse {
                     Some((ln_keep, _)) => ln_keep + total,
                     None => total,
                 })
@@ -257,21 +321,90 @@ impl PreparedChoice for Prepared<'_> {
                 // A choice without a usable time (trimmed): ln P(bound), the absorption
                 // probability (Feller 1968); with lapses (1 − lapse)·P + lapse·½.
                 let bound = bound_of(choice);
-                let ln_p = match self.active_lock(&params) {
-                    Some(lock) => conditioned(self.ln_survival(lock, bound, &params, &signal)),
+                let ln_p = match self.active_lock(params) {
+                    Some(lock) => conditioned(self.ln_survival(lock, bound, params, chain)),
                     None => {
-                        let (ln_p, g) = ln_bound_probability_with_gradient(bound, &params);
-                        self.chained(ln_p, g, &signal)
+                        let (ln_p, g) = ln_bound_probability_with_gradient(bound, params);
+                        chain(ln_p, g)
                     }
                 };
-                Some(match self.lapse {
+                Some(match numbers.lapse {
                     Some((ln_keep, _)) => {
-                        ln_add_exp(ln_keep + ln_p, self.p[self.stage.lapse].ln() + 0.5f64.ln())
+                        ln_add_exp(ln_keep + ln_p, numbers.lapse_rate.ln() + 0.5f64.ln())
                     }
                     None => ln_p,
                 })
             }
         }
+    }
+}
+
+/// The engine's partial derivatives in the order of a [`Local8`].
+fn local_partials(g: DensityGradient) -> [f64; 8] {
+    let mut partials = [0.0; 8];
+    partials[..7].copy_from_slice(&g.to_array());
+    partials
+}
+
+impl Prepared<'_> {
+    /// Writes ∂/∂drift of a [`Local8`]'s partial derivatives to `d_signal` and adds the
+    /// stage parameters' to their slots of `d_parameters`.
+    fn add_partials(&self, partials: &[f64; 8], d_signal: &mut [f64], d_parameters: &mut [f64]) {
+        d_signal[0] = partials[0];
+        for (slot, d) in self.stage.slots().into_iter().zip(&partials[1..]) {
+            d_parameters[slot] += d;
+        }
+    }
+}
+
+impl PreparedChoice for Prepared<'_> {
+    fn ln_likelihood(&self, signal: &[D], observation: &Observation) -> Option<D> {
+        let signal = signal[0];
+        let Some(base) = self.base else {
+            return Some(D::from_re(f64::NEG_INFINITY));
+        };
+        let numbers = Numbers {
+            chain: |value, g| self.chained(value, g, &signal),
+            lapse_rate: self.p[self.stage.lapse],
+            lapse: self.lapse,
+        };
+        self.score(&base.with_drift(signal.re), observation, &numbers)
+    }
+
+    fn ln_likelihood_local(
+        &self,
+        signal: &[f64],
+        observation: &Observation,
+        d_signal: &mut [f64],
+        d_parameters: &mut [f64],
+    ) -> Result<Option<f64>, NoLocalForm> {
+        let Some(base) = self.base else {
+            d_signal[0] = 0.0;
+            return Ok(Some(f64::NEG_INFINITY));
+        };
+        let params = base.with_drift(signal[0]);
+        if let (None, Some(choice), Some(rt)) =
+            (self.local_lapse_terms, observation.choice, observation.rt)
+            && self.active_lock(&params).is_none()
+        {
+            // The common case, where the score is the log-density itself.
+            let (ln_f, g) = ln_density_with_gradient(rt, bound_of(choice), &params);
+            self.add_partials(&local_partials(g), d_signal, d_parameters);
+            return Ok(Some(ln_f));
+        }
+        let numbers = Numbers {
+            chain: |value, g| {
+                Local8::new(value, Derivative::some(SVector::from(local_partials(g))))
+            },
+            lapse_rate: self.local_lapse,
+            lapse: self.local_lapse_terms,
+        };
+        let Some(score) = self.score(&params, observation, &numbers) else {
+            return Ok(None);
+        };
+        let partials: [f64; 8] = score.eps.unwrap_generic(Const::<8>, U1).into();
+        self.add_partials(&partials, d_signal, d_parameters);
+        Ok(Some(score.re))
     }
 
     fn probabilities(&self, signal: &[f64]) -> Vec<f64> {

@@ -1,7 +1,8 @@
 //! Linear effort discounting, SV = Q − k·E (e.g. Hartmann, Hager, Tobler & Kaiser 2013;
 //! Klein-Flügge, Kennerley, Friston & Bestmann 2015).
 
-use super::{CostShape, Entry, weighted_cost};
+use super::{CostShape, Entry, Formula, weighted_cost};
+use num_dual::DualNum;
 
 /// The table entry.
 pub const ENTRY: Entry<dyn CostShape> = Entry {
@@ -9,5 +10,14 @@ pub const ENTRY: Entry<dyn CostShape> = Entry {
     parameters: &["effort_weight"],
     defaults: &[],
     equation: "SV = Q − effort_weight·E  (Hartmann et al. 2013)",
-    build: |options, slots| weighted_cost(options, slots, true, |q, effort, k| q - k * effort),
+    build: |options, slots| weighted_cost::<Linear>(options, slots, true),
 };
+
+/// The formula.
+struct Linear;
+
+impl Formula for Linear {
+    fn formula<N: DualNum<Primitive = f64> + Copy>(q: N, effort: f64, k: N) -> N {
+        q - k * effort
+    }
+}

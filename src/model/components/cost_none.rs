@@ -1,6 +1,7 @@
 //! No effort cost: SV = Q.
 
-use super::{CostShape, Entry, weighted_cost};
+use super::{CostShape, Entry, Formula, weighted_cost};
+use num_dual::DualNum;
 
 /// The table entry.
 pub const ENTRY: Entry<dyn CostShape> = Entry {
@@ -8,5 +9,14 @@ pub const ENTRY: Entry<dyn CostShape> = Entry {
     parameters: &[],
     defaults: &[],
     equation: "SV = Q",
-    build: |options, slots| weighted_cost(options, slots, false, |q, _effort, _k| q),
+    build: |options, slots| weighted_cost::<NoCost>(options, slots, false),
 };
+
+/// The formula.
+struct NoCost;
+
+impl Formula for NoCost {
+    fn formula<N: DualNum<Primitive = f64> + Copy>(q: N, _effort: f64, _k: N) -> N {
+        q
+    }
+}

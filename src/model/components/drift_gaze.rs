@@ -13,7 +13,7 @@
 //! (option `column`, default `gaze`), each from 0 to 1.
 
 use super::{DriftMapping, Entry, Options, Slots, only_options};
-use crate::model::dual::D;
+use crate::model::dual::{D, Local};
 
 /// The table entry.
 pub const ENTRY: Entry<dyn DriftMapping> = Entry {
@@ -68,5 +68,21 @@ impl DriftMapping for GazeWeighted {
 
     fn drift(&self, x: D, p: &[D]) -> D {
         p[self.intercept] + p[self.scale] * x
+    }
+
+    fn weighted_local(&self, subjective_value: f64, gaze_share: f64, p: &[f64]) -> Option<Local> {
+        let weight = p[self.discount] * (1.0 - gaze_share) + gaze_share;
+        Some(Local::new(
+            subjective_value * weight,
+            weight,
+            [
+                (self.discount, subjective_value * (1.0 - gaze_share)),
+                (0, 0.0),
+            ],
+        ))
+    }
+
+    fn drift_local(&self, x: f64, p: &[f64]) -> Option<Local> {
+        super::drift_linear::linear_drift(self.intercept, self.scale, x, p)
     }
 }

@@ -5,7 +5,7 @@
 //! drift_intercept + value_scale·SV_k (the intercept then acts as an urgency common to all).
 
 use super::{DriftMapping, Entry, Options, Slots, only_options};
-use crate::model::dual::D;
+use crate::model::dual::{D, Local};
 
 /// The table entry.
 pub const ENTRY: Entry<dyn DriftMapping> = Entry {
@@ -30,8 +30,25 @@ fn build(options: &Options, slots: Slots<'_>) -> Result<Box<dyn DriftMapping>, S
     }))
 }
 
+/// drift_intercept + value_scale·x with its partial derivatives (shared with the gaze mapping).
+pub(super) fn linear_drift(intercept: usize, scale: usize, x: f64, p: &[f64]) -> Option<Local> {
+    Some(Local::new(
+        p[intercept] + p[scale] * x,
+        p[scale],
+        [(intercept, 1.0), (scale, x)],
+    ))
+}
+
 impl DriftMapping for Linear {
     fn drift(&self, value_difference: D, p: &[D]) -> D {
         p[self.intercept] + p[self.scale] * value_difference
+    }
+
+    fn weighted_local(&self, subjective_value: f64, _attribute: f64, _p: &[f64]) -> Option<Local> {
+        Some(Local::new(subjective_value, 1.0, [(0, 0.0), (0, 0.0)]))
+    }
+
+    fn drift_local(&self, x: f64, p: &[f64]) -> Option<Local> {
+        linear_drift(self.intercept, self.scale, x, p)
     }
 }

@@ -1,7 +1,7 @@
 //! One learning rate: Q ← Q + α·(r − Q) (Rescorla & Wagner 1972; Sutton & Barto 1998, §2.4).
 
 use super::{Entry, LearningRule, Options, Slots, only_options};
-use crate::model::dual::D;
+use crate::model::dual::{D, Local};
 
 /// The table entry.
 pub const ENTRY: Entry<dyn LearningRule> = Entry {
@@ -26,5 +26,11 @@ fn build(options: &Options, slots: Slots<'_>) -> Result<Box<dyn LearningRule>, S
 impl LearningRule for Delta {
     fn update(&self, q: D, outcome: f64, p: &[D]) -> D {
         q + p[self.rate] * (-q + outcome)
+    }
+
+    fn update_local(&self, q: f64, outcome: f64, p: &[f64], out: &mut Local) -> bool {
+        let (rate, error) = (p[self.rate], -q + outcome);
+        *out = Local::new(q + rate * error, 1.0 - rate, [(self.rate, error), (0, 0.0)]);
+        true
     }
 }

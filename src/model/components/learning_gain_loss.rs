@@ -3,7 +3,7 @@
 //! (default) or, with `split = "outcome"`, when the outcome is positive; loss_rate otherwise.
 
 use super::{Entry, LearningRule, Options, Slots, only_options};
-use crate::model::dual::D;
+use crate::model::dual::{D, Local};
 
 /// The table entry.
 pub const ENTRY: Entry<dyn LearningRule> = Entry {
@@ -42,14 +42,29 @@ fn build(options: &Options, slots: Slots<'_>) -> Result<Box<dyn LearningRule>, S
     }))
 }
 
+impl GainLoss {
+    /// The slot of the rate that applies to prediction error `error` of outcome `outcome`.
+    fn rate_slot(&self, error: f64, outcome: f64) -> usize {
+        let positive = match self.split {
+            Split::PredictionError => error > 0.0,
+            Split::Outcome => outcome > 0.0,
+        };
+        if positive { self.gain } else { self.loss }
+    }
+}
+
 impl LearningRule for GainLoss {
     fn update(&self, q: D, outcome: f64, p: &[D]) -> D {
         let error = -q + outcome;
-        let positive = match self.split {
-            Split::PredictionError => error.re > 0.0,
-            Split::Outcome => outcome > 0.0,
-        };
-        let rate = if positive { p[self.gain] } else { p[self.loss] };
+        let rate = p[self.rate_slot(error.re, outcome)];
         q + rate * error
+    }
+
+    fn update_local(&self, q: f64, outcome: f64, p: &[f64], out: &mut Local) -> bool {
+        let error = -q + outcome;
+        let slot = self.rate_slot(error, outcome);
+        let rate = p[slot];
+        *out = Local::new(q + rate * error, 1.0 - rate, [(slot, error), (0, 0.0)]);
+        true
     }
 }

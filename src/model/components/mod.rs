@@ -23,9 +23,11 @@ mod learning_delta;
 mod learning_gain_loss;
 mod learning_none;
 
-use super::dual::D;
+use super::dual::{D, Local};
 use crate::data::Choice;
+use num_dual::{Dual64, DualNum};
 use rand::Rng;
+use std::marker::PhantomData;
 
 /// Where a component finds its parameters: the slot of each name in the model's parameter list.
 pub type Slots<'a> = &'a dyn Fn(&str) -> usize;
@@ -54,6 +56,13 @@ pub trait LearningRule: Send + Sync {
     /// Value of the chosen option after outcome `r`, from its value `q` before; `p` holds the
     /// natural-scale parameters by slot.
     fn update(&self, q: D, outcome: f64, p: &[D]) -> D;
+    /// [`LearningRule::update`] on plain numbers with its partial derivatives (in `q` and the
+    /// rule's parameters), for the likelihood's fast path, written to `out` (where the
+    /// likelihood keeps it for its backward pass, reading the new value at once); false (the
+    /// default) sends the likelihood down the dual-number path.
+    fn update_local(&self, _q: f64, _outcome: f64, _p: &[f64], _out: &mut Local) -> bool {
+        false
+    }
     /// False when values are the offered magnitudes (no learning).
     fn learns(&self) -> bool {
         true
@@ -64,6 +73,25 @@ pub trait LearningRule: Send + Sync {
 pub trait CostShape: Send + Sync {
     /// Subjective value of an option with value `q` demanding `effort`.
     fn subjective_value(&self, q: D, effort: f64, p: &[D]) -> D;
+    /// [`CostShape::subjective_value`] on plain numbers with its partial derivatives (in `q` and
+    /// the shape's parameters); `None` (the default) sends the likelihood down the dual path.
+    fn subjective_value_local(&self, _q: f64, _effort: f64, _p: &[f64]) -> Option<Local> {
+        None
+    }
+    /// [`CostShape::subjective_value_local`] of many values at once (`out[i]` for `q[i]` and
+    /// `amounts[i]`; one call per stretch of trials, in which the per-value form is inlined);
+    /// false when the shape has no plain-number form.
+    fn subjective_values_local(
+        &self,
+        q: &[f64],
+        amounts: &[f64],
+        p: &[f64],
+        out: &mut [Local],
+    ) -> bool {
+        each_local(q.iter().zip(amounts), out, |(&q, &amount)| {
+            self.subjective_value_local(q, amount, p)
+        })
+    }
 }
 
 /// Maps subjective values to drift rates: the difference of the two options' values for the
@@ -86,6 +114,51 @@ pub trait DriftMapping: Send + Sync {
     /// The drift rate at x: the weighted value difference (two-bound diffusion) or one option's
     /// weighted value (its accumulator in a race).
     fn drift(&self, x: D, p: &[D]) -> D;
+    /// [`DriftMapping::weighted`] on plain numbers with its partial derivatives (in the
+    /// subjective value and the mapping's parameters); `None` (the default) sends the likelihood
+    /// down the dual path.
+    fn weighted_local(&self, _subjective_value: f64, _attribute: f64, _p: &[f64]) -> Option<Local> {
+        None
+    }
+    /// [`DriftMapping::drift`] on plain numbers with its partial derivatives (in x and the
+    /// mapping's parameters); `None` (the default) sends the likelihood down the dual path.
+    fn drift_local(&self, _x: f64, _p: &[f64]) -> Option<Local> {
+        None
+    }
+    /// [`DriftMapping::weighted_local`] of many values at once (`out[i]` for `values[i]` and
+    /// `attributes[i]`); false when the mapping has no plain-number form.
+    fn weighted_values_local(
+        &self,
+        values: &[f64],
+        attributes: &[f64],
+        p: &[f64],
+        out: &mut [Local],
+    ) -> bool {
+        each_local(values.iter().zip(attributes), out, |(&v, &a)| {
+            self.weighted_local(v, a, p)
+        })
+    }
+    /// [`DriftMapping::drift_local`] of many values at once (`out[i]` for `x[i]`); false when
+    /// the mapping has no plain-number form.
+    fn drifts_local(&self, x: &[f64], p: &[f64], out: &mut [Local]) -> bool {
+        each_local(x.iter(), out, |&x| self.drift_local(x, p))
+    }
+}
+
+/// Fills `out` with `local` of each input in turn; false at the first input without an answer.
+#[inline]
+fn each_local<I>(
+    inputs: impl Iterator<Item = I>,
+    out: &mut [Local],
+    local: impl Fn(I) -> Option<Local>,
+) -> bool {
+    for (slot, input) in out.iter_mut().zip(inputs) {
+        match local(input) {
+            Some(answer) => *slot = answer,
+            None => return false,
+        }
+    }
+    true
 }
 
 /// What a choice stage reads of a trial's subjective values.
@@ -142,6 +215,19 @@ pub trait PreparedChoice {
     /// ln P(observation | signal), with its gradient; `None` for an observation that carries no
     /// information (no response and no deadline).
     fn ln_likelihood(&self, signal: &[D], observation: &Observation) -> Option<D>;
+    /// [`PreparedChoice::ln_likelihood`] on plain numbers for the likelihood's fast path: the
+    /// value, with ∂/∂signal_k written to `d_signal[k]` and ∂/∂p[slot] added to
+    /// `d_parameters[slot]` for the stage's parameters. `Err(NoLocalForm)` (the default) sends
+    /// the likelihood down the dual-number path.
+    fn ln_likelihood_local(
+        &self,
+        _signal: &[f64],
+        _observation: &Observation,
+        _d_signal: &mut [f64],
+        _d_parameters: &mut [f64],
+    ) -> Result<Option<f64>, NoLocalForm> {
+        Err(NoLocalForm)
+    }
     /// P(choose each offered option | signal).
     fn probabilities(&self, signal: &[f64]) -> Vec<f64>;
     /// Expected decision time and expected response time given the signal, where the stage
@@ -150,6 +236,11 @@ pub trait PreparedChoice {
     /// Draws a choice and a response time (None where the stage models no time).
     fn simulate(&self, signal: &[f64], rng: &mut dyn Rng) -> (Choice, Option<f64>);
 }
+
+/// A component without the plain-number form of the likelihood's fast path (the likelihood then
+/// takes the dual-number path, which every component has).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct NoLocalForm;
 
 /// Learning rules by name.
 pub const LEARNING_RULES: &[Entry<dyn LearningRule>] = &[
@@ -199,29 +290,48 @@ pub fn only_options(options: &Options, known: &[&str]) -> Result<(), String> {
     }
 }
 
-/// A cost shape given by a formula SV = f(Q, E, k) in the single parameter `effort_weight` k.
-struct WeightedCost {
-    weight: Option<usize>,
-    formula: fn(D, f64, D) -> D,
+/// A cost shape's formula SV = f(Q, E, k) in the single parameter `effort_weight` k, written
+/// once on any dual number: the likelihood's (`D`) for the reference path, one-direction duals
+/// for the fast path's partial derivatives.
+pub(super) trait Formula: Send + Sync + 'static {
+    /// SV = f(Q, E, k).
+    fn formula<N: DualNum<Primitive = f64> + Copy>(q: N, effort: f64, k: N) -> N;
 }
 
-impl CostShape for WeightedCost {
+/// A cost shape given by its [`Formula`].
+struct WeightedCost<F> {
+    weight: Option<usize>,
+    formula: PhantomData<F>,
+}
+
+impl<F: Formula> CostShape for WeightedCost<F> {
     fn subjective_value(&self, q: D, effort: f64, p: &[D]) -> D {
         let k = self.weight.map_or(D::from_re(0.0), |slot| p[slot]);
-        (self.formula)(q, effort, k)
+        F::formula(q, effort, k)
+    }
+
+    #[inline]
+    fn subjective_value_local(&self, q: f64, effort: f64, p: &[f64]) -> Option<Local> {
+        let k = self.weight.map_or(0.0, |slot| p[slot]);
+        // Two passes of one-direction duals: ∂/∂Q, then ∂/∂k (the value is the same in both).
+        let by_q = F::formula(Dual64::from(q).derivative(), effort, Dual64::from(k));
+        let d_k = self.weight.map_or((0, 0.0), |slot| {
+            let by_k = F::formula(Dual64::from(q), effort, Dual64::from(k).derivative());
+            (slot, by_k.eps)
+        });
+        Some(Local::new(by_q.re, by_q.eps, [d_k, (0, 0.0)]))
     }
 }
 
-/// Builds a cost shape from its formula; `uses_weight` is false for the shape without cost.
-fn weighted_cost(
+/// Builds the cost shape of formula `F`; `uses_weight` is false for the shape without cost.
+fn weighted_cost<F: Formula>(
     options: &Options,
     slots: Slots<'_>,
     uses_weight: bool,
-    formula: fn(D, f64, D) -> D,
 ) -> Result<Box<dyn CostShape>, String> {
     only_options(options, &[])?;
-    Ok(Box::new(WeightedCost {
+    Ok(Box::new(WeightedCost::<F> {
         weight: uses_weight.then(|| slots("effort_weight")),
-        formula,
+        formula: PhantomData,
     }))
 }
