@@ -1,22 +1,56 @@
-//! Benchmark of per-subject fitting (a benchmark, not a test).
+//! Benchmark of per-subject fitting and of the whole `fit` process (a benchmark, not a test).
 //!
 //! Simulates subjects on the orchard design (300 trials, model `gainloss-linear`, generating
-//! values inside the documented ranges), fits each with 10 starts on one thread, and prints as
-//! its last line `seconds_per_subject=X likelihoods_per_second=Y` (Y counts likelihood-with-
-//! gradient evaluations of one subject's 300 trials). Run with
-//! `cargo run --release --example fit_speed`; another built-in model may be named as the
-//! argument (for example `-- gainloss-wald-race`).
+//! values inside the documented ranges, fixed seed) and:
+//! 1. fits the first 8 with 10 starts on one thread in this process, printing per subject ln L
+//!    beside the value the fitter of commit f3593c4 reached on the same subject, and the
+//!    likelihood-with-gradient evaluations of each stage of the fit (screen, each start's
+//!    L-BFGS run, restarts, searches from the interior, face probes, fresh starts, examinations
+//!    of the best point, standard errors);
+//! 2. writes 10 subjects as a CSV trial table and runs the release binary's
+//!    `fit --model gainloss-linear --threads 1` on it several times, printing the whole process's
+//!    wall time per subject beside the time of fitting the same 10 subjects in this process and
+//!    the start-up of the binary (`--version`); the rest is reading, the data screen, writing
+//!    the tables and run.json.
+//!
+//! Run with `cargo build --release && cargo run --release --example fit_speed`; another
+//! built-in model may be named as the argument (for example `-- gainloss-wald-race`; the
+//! process part and the comparison with f3593c4 are then for that model too, without the
+//! earlier values). The last lines read `seconds_per_subject=X likelihoods_per_second=Y` (Y
+//! counts likelihood-with-gradient evaluations of one subject's 300 trials) and
+//! `process_seconds_per_subject=… (min–max of N runs) fitting_seconds_per_subject=…
+//! startup_seconds=…`.
 
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
+use std::process::{Command, Stdio};
 use std::time::Instant;
-use valuedrift::fit::{FitOptions, fit_subject};
+use valuedrift::data::Subject;
+use valuedrift::fit::{FitOptions, fit_subject, fit_subject_with_work};
 use valuedrift::likelihood::SubjectLikelihood;
-use valuedrift::model::load_model;
+use valuedrift::model::{Model, load_model};
 use valuedrift::simulate::orchard_participant;
 
+#[path = "common/mod.rs"]
+mod common;
+
 const SUBJECTS: usize = 8;
+const PROCESS_SUBJECTS: usize = 10;
+const PROCESS_RUNS: usize = 5;
 const TRIALS: usize = 300;
+
+/// ln L of `gainloss-linear` on s00…s07 as fitted by commit f3593c4 (before the early stops),
+/// printed by this program then: the reference the fits must equal or beat.
+const EARLIER_LN_L: [f64; SUBJECTS] = [
+    110.586552048922,
+    -112.8176866103752,
+    -154.4203315334059,
+    -15.94042278611232,
+    31.17664904913944,
+    35.60326000115443,
+    -164.77132559400388,
+    28.503675127751492,
+];
 
 fn main() {
     let name = std::env::args()
@@ -24,7 +58,7 @@ fn main() {
         .unwrap_or_else(|| "gainloss-linear".into());
     let model = load_model(&name).expect("a built-in model");
     let mut rng = ChaCha8Rng::seed_from_u64(7);
-    let subjects: Vec<_> = (0..SUBJECTS)
+    let subjects: Vec<_> = (0..PROCESS_SUBJECTS)
         .map(|i| {
             orchard_participant(&model, &format!("s{i:02}"), "bench", TRIALS, &mut rng)
                 .expect("the model runs on the orchard design")
@@ -44,20 +78,111 @@ fn main() {
     }
     let per_second = evaluations as f64 / start.elapsed().as_secs_f64();
     let start = Instant::now();
-    for subject in &subjects {
+    let mut fits = Vec::new();
+    for subject in &subjects[..SUBJECTS] {
         let lik = SubjectLikelihood::new(&model, subject, None).unwrap();
-        let fit = fit_subject(&lik, &options);
-        sink += fit.log_likelihood;
-        println!(
-            "{}: ln L = {:.2}, starts at best {}/{}, converged {}",
-            fit.subject, fit.log_likelihood, fit.starts_at_best, fit.starts, fit.converged
-        );
+        fits.push(fit_subject_with_work(&lik, &options));
     }
     let per_subject = start.elapsed().as_secs_f64() / SUBJECTS as f64;
+    println!(
+        "subject: ln L (f3593c4; new - f3593c4), starts at best/runs, converged | evaluations: \
+         screen, [each start], restarts, interior, faces, fresh, examine, standard errors, total"
+    );
+    let mut total = 0;
+    for (i, (fit, work)) in fits.iter().enumerate() {
+        sink += fit.log_likelihood;
+        total += work.total();
+        let earlier = if name == "gainloss-linear" {
+            format!(
+                "{}; {:+.1e}",
+                EARLIER_LN_L[i],
+                fit.log_likelihood - EARLIER_LN_L[i]
+            )
+        } else {
+            "-".to_string()
+        };
+        println!(
+            "{}: ln L = {} ({earlier}), {}/{}, {} | {} {:?} {} {} {} {} {} {} {}",
+            fit.subject,
+            fit.log_likelihood,
+            fit.starts_at_best,
+            fit.starts,
+            fit.converged,
+            work.screen,
+            work.starts,
+            work.restarts,
+            work.interior,
+            work.faces,
+            work.fresh,
+            work.examine,
+            work.standard_errors,
+            work.total()
+        );
+    }
+    println!(
+        "evaluations_per_subject={:.0}",
+        total as f64 / SUBJECTS as f64
+    );
     assert!(sink.is_finite());
+    let process = whole_process(&model, &subjects, &options);
     println!(
         "{SUBJECTS} subjects x {TRIALS} trials of model {name}, {} starts, 1 thread",
         options.starts
     );
-    println!("seconds_per_subject={per_subject:.3} likelihoods_per_second={per_second:.0}");
+    println!("seconds_per_subject={per_subject:.4} likelihoods_per_second={per_second:.0}");
+    println!("{process}");
+}
+
+/// Times the release binary's `fit` on `subjects` written as CSV, the binary's start-up and
+/// fitting the same subjects here; returns the summary line.
+fn whole_process(model: &Model, subjects: &[Subject], options: &FitOptions) -> String {
+    let binary = common::release_binary();
+    let dir = tempfile::tempdir().expect("a temporary folder");
+    let data = dir.path().join("subjects.csv");
+    let mut file = std::fs::File::create(&data).expect("a data file");
+    common::write_subjects(&mut file, subjects.to_vec(), true);
+    let n = subjects.len() as f64;
+    let start = Instant::now();
+    for subject in subjects {
+        let lik = SubjectLikelihood::new(model, subject, None).unwrap();
+        assert!(fit_subject(&lik, options).log_likelihood.is_finite());
+    }
+    let fitting = start.elapsed().as_secs_f64() / n;
+    let wall = |command: &mut Command| {
+        let start = Instant::now();
+        let status = command
+            .stdout(Stdio::null())
+            .stderr(Stdio::null())
+            .status()
+            .expect("the binary starts");
+        assert!(status.success(), "the command failed: {command:?}");
+        start.elapsed().as_secs_f64()
+    };
+    let startup = (0..PROCESS_RUNS)
+        .map(|_| wall(Command::new(&binary).arg("--version")))
+        .fold(f64::INFINITY, f64::min);
+    let runs: Vec<f64> = (0..PROCESS_RUNS)
+        .map(|k| {
+            wall(
+                Command::new(&binary)
+                    .args(["fit", "--model", &model.name, "--threads", "1", "--data"])
+                    .arg(&data)
+                    .arg("--out")
+                    .arg(dir.path().join(format!("fit{k}"))),
+            ) / n
+        })
+        .collect();
+    let (lo, hi) = runs.iter().fold((f64::INFINITY, 0.0_f64), |(lo, hi), &s| {
+        (lo.min(s), hi.max(s))
+    });
+    let mut sorted = runs.clone();
+    sorted.sort_by(f64::total_cmp);
+    format!(
+        "{} subjects, whole `fit` process, 1 thread: process_seconds_per_subject={:.4} \
+         ({lo:.4}-{hi:.4} in {PROCESS_RUNS} runs) fitting_seconds_per_subject={fitting:.4} \
+         startup_seconds={startup:.4} rest_per_subject={:.4}",
+        subjects.len(),
+        sorted[PROCESS_RUNS / 2],
+        sorted[PROCESS_RUNS / 2] - fitting - startup / n
+    )
 }

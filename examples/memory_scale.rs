@@ -16,13 +16,14 @@
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::Command;
 use std::time::Instant;
-use valuedrift::data::TrialTable;
 use valuedrift::model::load_model;
-use valuedrift::results::trials_table;
 use valuedrift::simulate::orchard_participant;
+
+#[path = "common/mod.rs"]
+mod common;
 
 const TRIALS: usize = 200;
 /// Subjects simulated and written at a time (so that this program's own memory stays small).
@@ -38,7 +39,7 @@ fn main() {
     } else {
         sizes
     };
-    let binary = release_binary();
+    let binary = common::release_binary();
     let dir = tempfile::tempdir().expect("a temporary folder");
     let mut lines = Vec::new();
     for &n in &sizes {
@@ -79,22 +80,6 @@ fn main() {
     }
 }
 
-/// The release binary beside this example (target/release/valuedrift).
-fn release_binary() -> PathBuf {
-    let exe = std::env::current_exe().expect("the example's path");
-    let release = exe
-        .parent()
-        .and_then(Path::parent)
-        .expect("target/release/examples");
-    let binary = release.join("valuedrift");
-    assert!(
-        binary.exists(),
-        "{} is missing: run `cargo build --release` first",
-        binary.display()
-    );
-    binary
-}
-
 /// Simulates `n` subjects of the invented orchard cohort and writes them to `path`.
 fn write_cohort(path: &Path, n: usize) {
     let model = load_model("gainloss-linear").expect("a built-in model");
@@ -107,22 +92,7 @@ fn write_cohort(path: &Path, n: usize) {
                     .expect("the model runs on the orchard design")
             })
             .collect();
-        let table = TrialTable {
-            subjects,
-            present: vec!["outcome".into()],
-        };
-        let mut text = Vec::new();
-        trials_table(&table)
-            .write_csv(&mut text)
-            .expect("CSV in memory");
-        // The header once, at the top of the file.
-        let body = if first == 0 {
-            &text[..]
-        } else {
-            let end = text.iter().position(|&b| b == b'\n').map_or(0, |i| i + 1);
-            &text[end..]
-        };
-        file.write_all(body).expect("the data file is written");
+        common::write_subjects(&mut file, subjects, first == 0);
     }
     file.flush().expect("the data file is written");
 }

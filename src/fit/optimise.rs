@@ -1,12 +1,15 @@
-//! One L-BFGS run from one start, through argmin, optionally with some parameters held fixed.
+//! One L-BFGS run from one start, through argmin, optionally with some parameters held fixed,
+//! and the two rules that end a run before its tolerance test when finishing it cannot change
+//! the fit ([`EarlyStop`]).
 
 use crate::likelihood::SubjectLikelihood;
 use argmin::core::{
-    CostFunction, Error, Executor, Gradient, State, TerminationReason, TerminationStatus,
+    CostFunction, Error, Executor, Gradient, IterState, KV, Problem as ArgminProblem, Solver,
+    State, TerminationReason, TerminationStatus,
 };
 use argmin::solver::linesearch::MoreThuenteLineSearch;
 use argmin::solver::quasinewton::LBFGS;
-use std::cell::RefCell;
+use std::cell::{Cell, RefCell};
 
 /// Cost returned for a point where the log-posterior is not finite, so that the line search
 /// steps back instead of stopping.
@@ -24,6 +27,11 @@ pub enum Stop {
     IterationLimit,
     /// The start itself could not be evaluated or the solver could not be set up.
     Failed,
+    /// The run came within [`JOIN_GAP`] below and [`JOIN_DISTANCE`] of an optimum an earlier
+    /// run had reached ([`EarlyStop::Join`]).
+    Joined,
+    /// A held probe stalled too far below the best point to matter ([`EarlyStop::Stall`]).
+    Stalled,
 }
 
 impl Stop {
@@ -34,6 +42,8 @@ impl Stop {
             Stop::NoImprovingStep => "no improving step along the search direction",
             Stop::IterationLimit => "iteration limit reached",
             Stop::Failed => "could not start",
+            Stop::Joined => "joined an optimum found by an earlier run",
+            Stop::Stalled => "stalled below the best point",
         }
     }
 }
@@ -47,6 +57,129 @@ pub struct StartResult {
     pub objective: f64,
     /// Why the run stopped.
     pub stop: Stop,
+    /// Likelihood-with-gradient evaluations the run made (its start included).
+    pub evaluations: usize,
+}
+
+/// Largest shortfall of ln L + ln prior below a known optimum at which a run joins it: the
+/// tolerance that already counts two runs as having reached the same optimum.
+pub const JOIN_GAP: f64 = super::SAME_OPTIMUM;
+
+/// Largest distance (maximum norm, unconstrained scale) from a known optimum at which a run
+/// joins it.
+pub const JOIN_DISTANCE: f64 = 0.05;
+
+/// Largest per-iteration rise of ln L + ln prior at which a held probe counts as stalled.
+pub const STALL_CHANGE: f64 = 1e-3;
+
+/// A rule that ends a run before its tolerance test, checked after every iteration.
+///
+/// L-BFGS with the Moré–Thuente line search never lowers the objective from one iterate to the
+/// next (the sufficient-decrease condition; Moré & Thuente 1994), so a run stays inside the
+/// region above its current value.
+#[derive(Clone, Copy, Debug)]
+pub enum EarlyStop<'k> {
+    /// Run to the tolerance test or the iteration limit.
+    Never,
+    /// Stop at an iterate whose objective is at most [`JOIN_GAP`] below, and not above, that of
+    /// one of these earlier end points (θ, objective) and within [`JOIN_DISTANCE`] of it: the
+    /// run has entered the optimum's immediate neighbourhood from below, where it can only
+    /// converge to that optimum unless the optimum is a saddle shallower than [`JOIN_GAP`]; had
+    /// it run on, it would have counted as reaching the same optimum (within
+    /// [`super::SAME_OPTIMUM`]) anyway. Only for runs that hold nothing.
+    Join(&'k [(Vec<f64>, f64)]),
+    /// For a probe that is only released when it comes within `margin` of `best` (the
+    /// objective of the best point): stop when the last two iterations each raised the
+    /// objective by less than [`STALL_CHANGE`] and the probe is still further below
+    /// `best − margin` than its remaining iterations could climb at that rate. While the rises
+    /// keep shrinking, finishing the probe would not have released it either.
+    Stall {
+        /// Objective of the best point.
+        best: f64,
+        /// The release margin.
+        margin: f64,
+    },
+}
+
+/// A solver with an [`EarlyStop`] checked after its own termination tests.
+struct Watched<'k, S> {
+    inner: S,
+    rule: EarlyStop<'k>,
+    /// Iteration limit of the run (for the stall rule's remaining iterations).
+    max_iterations: u64,
+    /// Rise of the objective in the previous iteration.
+    last_rise: f64,
+    /// Why the rule stopped the run.
+    stopped: &'k Cell<Option<Stop>>,
+}
+
+type LbfgsState = IterState<Vec<f64>, Vec<f64>, (), (), (), f64>;
+
+impl<O, S: Solver<O, LbfgsState>> Solver<O, LbfgsState> for Watched<'_, S> {
+    fn name(&self) -> &str {
+        self.inner.name()
+    }
+
+    fn init(
+        &mut self,
+        problem: &mut ArgminProblem<O>,
+        state: LbfgsState,
+    ) -> Result<(LbfgsState, Option<KV>), Error> {
+        self.inner.init(problem, state)
+    }
+
+    fn next_iter(
+        &mut self,
+        problem: &mut ArgminProblem<O>,
+        state: LbfgsState,
+    ) -> Result<(LbfgsState, Option<KV>), Error> {
+        self.inner.next_iter(problem, state)
+    }
+
+    fn terminate(&mut self, state: &LbfgsState) -> TerminationStatus {
+        let own = self.inner.terminate(state);
+        if own.terminated() {
+            return own;
+        }
+        let objective = -state.get_cost();
+        let rise = state.get_prev_cost() - state.get_cost();
+        let stop = match self.rule {
+            EarlyStop::Never => None,
+            EarlyStop::Join(known) => {
+                let theta = state.get_param();
+                known
+                    .iter()
+                    .any(|(at, value)| {
+                        objective <= *value
+                            && value - objective <= JOIN_GAP
+                            && theta.is_some_and(|t| {
+                                t.iter()
+                                    .zip(at)
+                                    .all(|(a, b)| (a - b).abs() <= JOIN_DISTANCE)
+                            })
+                    })
+                    .then_some(Stop::Joined)
+            }
+            EarlyStop::Stall { best, margin } => {
+                let remaining = self.max_iterations.saturating_sub(state.get_iter()) as f64;
+                let stalled = state.get_iter() >= 2
+                    && rise < STALL_CHANGE
+                    && self.last_rise < STALL_CHANGE
+                    && best - objective > margin + remaining * STALL_CHANGE;
+                stalled.then_some(Stop::Stalled)
+            }
+        };
+        self.last_rise = rise;
+        match stop {
+            Some(s) => {
+                self.stopped.set(Some(s));
+                TerminationStatus::Terminated(TerminationReason::SolverExit(
+                    s.describe().to_string(),
+                ))
+            }
+            None => TerminationStatus::NotTerminated,
+        }
+    }
 }
 
 /// The last evaluation: (θ, cost, gradient).
@@ -62,6 +195,8 @@ struct Problem<'a, 'b> {
     /// Indices of the free parameters being optimised.
     active: Vec<usize>,
     cache: RefCell<Option<Cached>>,
+    /// Evaluations of the likelihood made (cache hits not counted).
+    evaluations: &'a Cell<usize>,
 }
 
 impl Problem<'_, '_> {
@@ -83,6 +218,7 @@ impl Problem<'_, '_> {
         {
             return (*cost, grad.clone());
         }
+        self.evaluations.set(self.evaluations.get() + 1);
         let e = self.likelihood.evaluate(&self.full(reduced));
         let objective = e.ln_likelihood + e.ln_prior;
         let (cost, grad) = if objective.is_finite() && e.gradient.iter().all(|g| g.is_finite()) {
@@ -125,12 +261,27 @@ pub fn run_start(
     max_iterations: u64,
     held: &[usize],
 ) -> StartResult {
+    run_start_until(likelihood, start, max_iterations, held, EarlyStop::Never)
+}
+
+/// As [`run_start`], ended early by `rule` where it applies.
+pub fn run_start_until(
+    likelihood: &SubjectLikelihood<'_>,
+    start: Vec<f64>,
+    max_iterations: u64,
+    held: &[usize],
+    rule: EarlyStop<'_>,
+) -> StartResult {
+    debug_assert!(held.is_empty() || !matches!(rule, EarlyStop::Join(_)));
     let active: Vec<usize> = (0..start.len()).filter(|j| !held.contains(j)).collect();
+    let evaluations = Cell::new(0);
+    let stopped = Cell::new(None);
     let problem = Problem {
         likelihood,
         base: start.clone(),
         active,
         cache: RefCell::new(None),
+        evaluations: &evaluations,
     };
     let reduced_start = problem.reduce(&start);
     let start_cost = problem.evaluate(&reduced_start).0;
@@ -142,15 +293,23 @@ pub fn run_start(
             -start_cost
         },
         stop,
+        evaluations: evaluations.get(),
     };
     if problem.active.is_empty() || start_cost >= INVALID_COST {
         return failed(Stop::Failed);
     }
-    let Ok(solver) = LBFGS::new(MoreThuenteLineSearch::new(), 7)
+    let Ok(lbfgs) = LBFGS::new(MoreThuenteLineSearch::new(), 7)
         .with_tolerance_grad(1e-6)
         .and_then(|s| s.with_tolerance_cost(1e-12))
     else {
         return failed(Stop::Failed);
+    };
+    let solver = Watched {
+        inner: lbfgs,
+        rule,
+        max_iterations,
+        last_rise: f64::INFINITY,
+        stopped: &stopped,
     };
     let base = problem.base.clone();
     let active = problem.active.clone();
@@ -169,11 +328,12 @@ pub fn run_start(
                 theta[j] = x;
             }
             let cost = state.get_best_cost();
-            let stop = match state.get_termination_status() {
-                TerminationStatus::Terminated(TerminationReason::SolverConverged) => {
+            let stop = match (stopped.get(), state.get_termination_status()) {
+                (Some(early), _) => early,
+                (_, TerminationStatus::Terminated(TerminationReason::SolverConverged)) => {
                     Stop::Tolerance
                 }
-                TerminationStatus::Terminated(TerminationReason::MaxItersReached) => {
+                (_, TerminationStatus::Terminated(TerminationReason::MaxItersReached)) => {
                     Stop::IterationLimit
                 }
                 _ => Stop::NoImprovingStep,
@@ -186,6 +346,7 @@ pub fn run_start(
                     -cost
                 },
                 stop,
+                evaluations: evaluations.get(),
             }
         }
         // A line search that cannot proceed from the start ends this run there; other starts
