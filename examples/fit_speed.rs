@@ -9,21 +9,22 @@
 //!    of the best point, standard errors);
 //! 2. writes 10 subjects as a CSV trial table and runs the release binary's
 //!    `fit --model gainloss-linear --threads 1` on it several times, printing the whole process's
-//!    wall time per subject beside the time of fitting the same 10 subjects in this process and
-//!    the start-up of the binary (`--version`); the rest is reading, the data screen, writing
-//!    the tables and run.json.
+//!    wall and processor time per subject beside the time of fitting the same 10 subjects in
+//!    this process and the start-up of the binary (`--version`); the rest of the processor
+//!    time is start-up, reading, the data screen, writing the tables and run.json. On a machine
+//!    shared with other work, the processor time is the steadier figure.
 //!
 //! Run with `cargo build --release && cargo run --release --example fit_speed`; another
 //! built-in model may be named as the argument (for example `-- gainloss-wald-race`; the
 //! process part and the comparison with f3593c4 are then for that model too, without the
 //! earlier values). The last lines read `seconds_per_subject=X likelihoods_per_second=Y` (Y
 //! counts likelihood-with-gradient evaluations of one subject's 300 trials) and
-//! `process_seconds_per_subject=… (min–max of N runs) fitting_seconds_per_subject=…
-//! startup_seconds=…`.
+//! `process_seconds_per_subject=… (min–max) process_cpu_seconds_per_subject=… (min–max)
+//! fitting_seconds_per_subject=… startup_seconds=… rest_cpu_per_subject=…`.
 
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
-use std::process::{Command, Stdio};
+use std::process::Command;
 use std::time::Instant;
 use valuedrift::data::Subject;
 use valuedrift::fit::{FitOptions, fit_subject, fit_subject_with_work};
@@ -148,41 +149,49 @@ fn whole_process(model: &Model, subjects: &[Subject], options: &FitOptions) -> S
         assert!(fit_subject(&lik, options).log_likelihood.is_finite());
     }
     let fitting = start.elapsed().as_secs_f64() / n;
-    let wall = |command: &mut Command| {
-        let start = Instant::now();
-        let status = command
-            .stdout(Stdio::null())
-            .stderr(Stdio::null())
-            .status()
-            .expect("the binary starts");
-        assert!(status.success(), "the command failed: {command:?}");
-        start.elapsed().as_secs_f64()
-    };
-    let startup = (0..PROCESS_RUNS)
-        .map(|_| wall(Command::new(&binary).arg("--version")))
-        .fold(f64::INFINITY, f64::min);
-    let runs: Vec<f64> = (0..PROCESS_RUNS)
+    // (wall, processor) seconds of each run.
+    let startup: Vec<(f64, f64)> = (0..PROCESS_RUNS)
+        .map(|_| {
+            let (_, wall, cpu) = common::measure(Command::new(&binary).arg("--version"));
+            (wall, cpu)
+        })
+        .collect();
+    let runs: Vec<(f64, f64)> = (0..PROCESS_RUNS)
         .map(|k| {
-            wall(
+            let (_, wall, cpu) = common::measure(
                 Command::new(&binary)
                     .args(["fit", "--model", &model.name, "--threads", "1", "--data"])
                     .arg(&data)
                     .arg("--out")
                     .arg(dir.path().join(format!("fit{k}"))),
-            ) / n
+            );
+            (wall / n, cpu / n)
         })
         .collect();
-    let (lo, hi) = runs.iter().fold((f64::INFINITY, 0.0_f64), |(lo, hi), &s| {
-        (lo.min(s), hi.max(s))
-    });
-    let mut sorted = runs.clone();
-    sorted.sort_by(f64::total_cmp);
+    let wall = spread(runs.iter().map(|r| r.0));
+    let cpu = spread(runs.iter().map(|r| r.1));
+    let startup_wall = spread(startup.iter().map(|r| r.0));
     format!(
-        "{} subjects, whole `fit` process, 1 thread: process_seconds_per_subject={:.4} \
-         ({lo:.4}-{hi:.4} in {PROCESS_RUNS} runs) fitting_seconds_per_subject={fitting:.4} \
-         startup_seconds={startup:.4} rest_per_subject={:.4}",
+        "{} subjects, whole `fit` process, 1 thread, median (min-max) of {PROCESS_RUNS} runs:\n\
+         process_seconds_per_subject={:.4} ({:.4}-{:.4}) \
+         process_cpu_seconds_per_subject={:.4} ({:.4}-{:.4}) \
+         fitting_seconds_per_subject={fitting:.4} startup_seconds={:.4} \
+         rest_cpu_per_subject={:.4}",
         subjects.len(),
-        sorted[PROCESS_RUNS / 2],
-        sorted[PROCESS_RUNS / 2] - fitting - startup / n
+        wall.0,
+        wall.1,
+        wall.2,
+        cpu.0,
+        cpu.1,
+        cpu.2,
+        startup_wall.0,
+        cpu.0 - fitting
     )
+}
+
+/// (median, minimum, maximum) of `values`.
+fn spread(values: impl Iterator<Item = f64>) -> (f64, f64, f64) {
+    let mut v: Vec<f64> = values.collect();
+    v.sort_by(f64::total_cmp);
+    (v[v.len() / 2], v[0], v[v.len() - 1])
 }

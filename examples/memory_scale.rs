@@ -18,7 +18,6 @@ use rand_chacha::ChaCha8Rng;
 use std::io::Write;
 use std::path::Path;
 use std::process::Command;
-use std::time::Instant;
 use valuedrift::model::load_model;
 use valuedrift::simulate::orchard_participant;
 
@@ -48,7 +47,7 @@ fn main() {
         let megabytes = std::fs::metadata(&data).map_or(0.0, |m| m.len() as f64 / 1e6);
         println!("cohort of {n} subjects x {TRIALS} trials: {megabytes:.0} MB of CSV");
         let fits = dir.path().join(format!("fits_{n}"));
-        let (peak, seconds) = measure(
+        let (peak, seconds, _) = common::measure(
             Command::new(&binary)
                 .args(["fit", "--model", "gainloss-linear", "--starts", "2"])
                 .args(["--threads", "2", "--data"])
@@ -59,7 +58,7 @@ fn main() {
         lines.push(format!(
             "fit subjects={n} peak_mb={peak:.1} seconds={seconds:.1}"
         ));
-        let (peak, seconds) = measure(
+        let (peak, seconds, _) = common::measure(
             Command::new(&binary)
                 .args(["export", "--model", "gainloss-linear", "--fits"])
                 .arg(&fits)
@@ -95,36 +94,4 @@ fn write_cohort(path: &Path, n: usize) {
         common::write_subjects(&mut file, subjects, first == 0);
     }
     file.flush().expect("the data file is written");
-}
-
-/// Runs `command` (its output discarded) and returns the child's peak
-/// resident memory in MB and its wall time in seconds.
-// The child is reaped by wait4 below, which also reports its resource usage.
-#[allow(clippy::zombie_processes)]
-fn measure(command: &mut Command) -> (f64, f64) {
-    let start = Instant::now();
-    let child = command
-        .stdout(std::process::Stdio::null())
-        .stderr(std::process::Stdio::null())
-        .spawn()
-        .expect("the binary starts");
-    let pid = child.id() as libc::pid_t;
-    let mut status = 0;
-    // SAFETY: an all-zero rusage is a valid value for wait4 to fill.
-    let mut usage: libc::rusage = unsafe { std::mem::zeroed() };
-    // SAFETY: `pid` is our own child, not yet waited for; both pointers are to live locals.
-    let waited = unsafe { libc::wait4(pid, &mut status, 0, &mut usage) };
-    let seconds = start.elapsed().as_secs_f64();
-    assert_eq!(
-        waited,
-        pid,
-        "wait4 failed: {}",
-        std::io::Error::last_os_error()
-    );
-    assert!(
-        libc::WIFEXITED(status) && libc::WEXITSTATUS(status) == 0,
-        "the command failed: {command:?}"
-    );
-    // ru_maxrss is in kilobytes on Linux.
-    (usage.ru_maxrss as f64 / 1024.0, seconds)
 }
