@@ -69,8 +69,11 @@ pub const JOIN_GAP: f64 = super::SAME_OPTIMUM;
 /// joins it.
 pub const JOIN_DISTANCE: f64 = 0.05;
 
-/// Largest per-iteration rise of ln L + ln prior at which a held probe counts as stalled.
+/// Smallest per-iteration rise of ln L + ln prior a stalling probe is assumed to keep.
 pub const STALL_CHANGE: f64 = 1e-3;
+
+/// Safety factor on the climb a stalling probe is assumed to keep up.
+pub const STALL_FACTOR: f64 = 2.0;
 
 /// A rule that ends a run before its tolerance test, checked after every iteration.
 ///
@@ -89,10 +92,11 @@ pub enum EarlyStop<'k> {
     /// [`super::SAME_OPTIMUM`]) anyway. Only for runs that hold nothing.
     Join(&'k [(Vec<f64>, f64)]),
     /// For a probe that is only released when it comes within `margin` of `best` (the
-    /// objective of the best point): stop when the last two iterations each raised the
-    /// objective by less than [`STALL_CHANGE`] and the probe is still further below
-    /// `best − margin` than its remaining iterations could climb at that rate. While the rises
-    /// keep shrinking, finishing the probe would not have released it either.
+    /// objective of the best point): stop, from the second iteration on, when the probe is
+    /// further below `best − margin` than its remaining iterations could climb at
+    /// [`STALL_FACTOR`] times the larger of its last two rises (at least [`STALL_CHANGE`]).
+    /// While the rises do not grow again by more than that factor, finishing the probe would
+    /// not have released it either.
     Stall {
         /// Objective of the best point.
         best: f64,
@@ -162,10 +166,9 @@ impl<O, S: Solver<O, LbfgsState>> Solver<O, LbfgsState> for Watched<'_, S> {
             }
             EarlyStop::Stall { best, margin } => {
                 let remaining = self.max_iterations.saturating_sub(state.get_iter()) as f64;
+                let rate = rise.max(self.last_rise).max(STALL_CHANGE);
                 let stalled = state.get_iter() >= 2
-                    && rise < STALL_CHANGE
-                    && self.last_rise < STALL_CHANGE
-                    && best - objective > margin + remaining * STALL_CHANGE;
+                    && best - objective > margin + STALL_FACTOR * remaining * rate;
                 stalled.then_some(Stop::Stalled)
             }
         };
