@@ -105,7 +105,8 @@ pub enum EarlyStop<'k> {
     },
 }
 
-/// A solver with an [`EarlyStop`] checked after its own termination tests.
+/// A solver with an [`EarlyStop`] checked after its own termination tests. Its `init` is the
+/// trait's default (nothing), so the run's initial state must carry the start's cost and gradient.
 struct Watched<'k, S> {
     inner: S,
     rule: EarlyStop<'k>,
@@ -122,14 +123,6 @@ type LbfgsState = IterState<Vec<f64>, Vec<f64>, (), (), (), f64>;
 impl<O, S: Solver<O, LbfgsState>> Solver<O, LbfgsState> for Watched<'_, S> {
     fn name(&self) -> &str {
         self.inner.name()
-    }
-
-    fn init(
-        &mut self,
-        problem: &mut ArgminProblem<O>,
-        state: LbfgsState,
-    ) -> Result<(LbfgsState, Option<KV>), Error> {
-        self.inner.init(problem, state)
     }
 
     fn next_iter(
@@ -287,7 +280,7 @@ pub fn run_start_until(
         evaluations: &evaluations,
     };
     let reduced_start = problem.reduce(&start);
-    let start_cost = problem.evaluate(&reduced_start).0;
+    let (start_cost, start_gradient) = problem.evaluate(&reduced_start);
     let failed = |stop| StartResult {
         theta: start.clone(),
         objective: if start_cost >= INVALID_COST {
@@ -317,7 +310,15 @@ pub fn run_start_until(
     let base = problem.base.clone();
     let active = problem.active.clone();
     let outcome = Executor::new(problem, solver)
-        .configure(|state| state.param(reduced_start.clone()).max_iters(max_iterations))
+        .configure(|state| {
+            // With cost and gradient given, L-BFGS's own initialisation evaluates nothing, so
+            // the wrapper need not pass it on.
+            state
+                .param(reduced_start.clone())
+                .cost(start_cost)
+                .gradient(start_gradient)
+                .max_iters(max_iterations)
+        })
         .run();
     match outcome {
         Ok(result) => {
