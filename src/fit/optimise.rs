@@ -1,6 +1,6 @@
 //! One L-BFGS run from one start, through argmin, optionally with some parameters held fixed,
-//! and the two rules that end a run before its tolerance test when finishing it cannot change
-//! the fit ([`EarlyStop`]).
+//! and the rule that ends a run before its tolerance test when it has reached an optimum an
+//! earlier run found ([`EarlyStop`]).
 
 use crate::likelihood::SubjectLikelihood;
 use argmin::core::{
@@ -30,8 +30,6 @@ pub enum Stop {
     /// The run came within [`JOIN_GAP`] below and [`JOIN_DISTANCE`] of an optimum an earlier
     /// run had reached ([`EarlyStop::Join`]).
     Joined,
-    /// A held probe stalled too far below the best point to matter ([`EarlyStop::Stall`]).
-    Stalled,
 }
 
 impl Stop {
@@ -43,7 +41,6 @@ impl Stop {
             Stop::IterationLimit => "iteration limit reached",
             Stop::Failed => "could not start",
             Stop::Joined => "joined an optimum found by an earlier run",
-            Stop::Stalled => "stalled below the best point",
         }
     }
 }
@@ -69,12 +66,6 @@ pub const JOIN_GAP: f64 = super::SAME_OPTIMUM;
 /// joins it.
 pub const JOIN_DISTANCE: f64 = 0.05;
 
-/// Smallest per-iteration rise of ln L + ln prior a stalling probe is assumed to keep.
-pub const STALL_CHANGE: f64 = 1e-3;
-
-/// Safety factor on the climb a stalling probe is assumed to keep up.
-pub const STALL_FACTOR: f64 = 2.0;
-
 /// A rule that ends a run before its tolerance test, checked after every iteration.
 ///
 /// L-BFGS with the Moré–Thuente line search never lowers the objective from one iterate to the
@@ -91,18 +82,6 @@ pub enum EarlyStop<'k> {
     /// it run on, it would have counted as reaching the same optimum (within
     /// [`super::SAME_OPTIMUM`]) anyway. Only for runs that hold nothing.
     Join(&'k [(Vec<f64>, f64)]),
-    /// For a probe that is only released when it comes within `margin` of `best` (the
-    /// objective of the best point): stop, from the second iteration on, when the probe is
-    /// further below `best − margin` than its remaining iterations could climb at
-    /// [`STALL_FACTOR`] times the larger of its last two rises (at least [`STALL_CHANGE`]).
-    /// While the rises do not grow again by more than that factor, finishing the probe would
-    /// not have released it either.
-    Stall {
-        /// Objective of the best point.
-        best: f64,
-        /// The release margin.
-        margin: f64,
-    },
 }
 
 /// A solver with an [`EarlyStop`] checked after its own termination tests. Its `init` is the
@@ -110,10 +89,6 @@ pub enum EarlyStop<'k> {
 struct Watched<'k, S> {
     inner: S,
     rule: EarlyStop<'k>,
-    /// Iteration limit of the run (for the stall rule's remaining iterations).
-    max_iterations: u64,
-    /// Rise of the objective in the previous iteration.
-    last_rise: f64,
     /// Why the rule stopped the run.
     stopped: &'k Cell<Option<Stop>>,
 }
@@ -138,11 +113,10 @@ impl<O, S: Solver<O, LbfgsState>> Solver<O, LbfgsState> for Watched<'_, S> {
         if own.terminated() {
             return own;
         }
-        let objective = -state.get_cost();
-        let rise = state.get_prev_cost() - state.get_cost();
         let stop = match self.rule {
             EarlyStop::Never => None,
             EarlyStop::Join(known) => {
+                let objective = -state.get_cost();
                 let theta = state.get_param();
                 known
                     .iter()
@@ -157,15 +131,7 @@ impl<O, S: Solver<O, LbfgsState>> Solver<O, LbfgsState> for Watched<'_, S> {
                     })
                     .then_some(Stop::Joined)
             }
-            EarlyStop::Stall { best, margin } => {
-                let remaining = self.max_iterations.saturating_sub(state.get_iter()) as f64;
-                let rate = rise.max(self.last_rise).max(STALL_CHANGE);
-                let stalled = state.get_iter() >= 2
-                    && best - objective > margin + STALL_FACTOR * remaining * rate;
-                stalled.then_some(Stop::Stalled)
-            }
         };
-        self.last_rise = rise;
         match stop {
             Some(s) => {
                 self.stopped.set(Some(s));
@@ -303,8 +269,6 @@ pub fn run_start_until(
     let solver = Watched {
         inner: lbfgs,
         rule,
-        max_iterations,
-        last_rise: f64::INFINITY,
         stopped: &stopped,
     };
     let base = problem.base.clone();

@@ -266,11 +266,7 @@ pub fn search(
                 }
                 let mut start = theta.clone();
                 start[j] = face;
-                let stall = EarlyStop::Stall {
-                    best: runs[best].objective,
-                    margin: FACE_MARGIN,
-                };
-                let held = run_start_until(likelihood, start, FACE_ITERATIONS, &[j], stall);
+                let held = run_start(likelihood, start, FACE_ITERATIONS, &[j]);
                 work.faces += held.evaluations;
                 if held.objective > runs[best].objective - FACE_MARGIN {
                     work.faces += joining(&mut runs, held.theta.clone(), &mut known);
