@@ -2,15 +2,15 @@
 //!
 //! Simulates an invented cohort on the orchard design (`gainloss-linear`, generating values
 //! inside the documented ranges, fixed seed) and writes it as one CSV trial table; then runs the
-//! release binary's `fit --model gainloss-linear --starts 2 --threads 2` and `export` on it as
-//! child processes and prints, per command and cohort size, the wall time and the peak resident
-//! memory the kernel reports for the child (`wait4`, `ru_maxrss`). Cohort sizes are the
+//! release binary's `fit --model gainloss-linear --starts 2 --threads 2`, `export` and
+//! `check --sims 20` on it as child processes and prints, per command and cohort size, the wall
+//! time and the peak resident memory the kernel reports for the child (`wait4`, `ru_maxrss`). Cohort sizes are the
 //! arguments (default `1000 10000`; 200 trials each):
 //!
 //! `cargo build --release && cargo run --release --example memory_scale -- 1000 10000`
 //!
-//! The last lines read `fit subjects=N peak_mb=M seconds=S` and `export subjects=N peak_mb=M
-//! seconds=S`. Parameters from valuedrift are research measurements, not diagnoses; the cohort
+//! The last lines read `fit subjects=N peak_mb=M seconds=S`, and the same for `export` and
+//! `check`. Parameters from valuedrift are research measurements, not diagnoses; the cohort
 //! here is invented.
 
 use rand::SeedableRng;
@@ -70,8 +70,28 @@ fn main() {
         lines.push(format!(
             "export subjects={n} peak_mb={peak:.1} seconds={seconds:.1}"
         ));
-        println!("{}", lines[lines.len() - 2]);
-        println!("{}", lines[lines.len() - 1]);
+        let (peak, seconds) = measure(
+            Command::new(&binary)
+                .args([
+                    "check",
+                    "--model",
+                    "gainloss-linear",
+                    "--sims",
+                    "20",
+                    "--fits",
+                ])
+                .arg(&fits)
+                .arg("--data")
+                .arg(&data)
+                .arg("--out")
+                .arg(dir.path().join(format!("check_{n}"))),
+        );
+        lines.push(format!(
+            "check subjects={n} peak_mb={peak:.1} seconds={seconds:.1}"
+        ));
+        for line in &lines[lines.len() - 3..] {
+            println!("{line}");
+        }
     }
     println!("--");
     for line in lines {

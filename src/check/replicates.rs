@@ -205,56 +205,108 @@ pub fn check_subjects(
 /// those subjects of their replicate-r values (those that exist); the bin's range is the
 /// smallest and largest value any subject had in that bin.
 pub fn pooled(checks: &[SubjectCheck]) -> Vec<Statistic> {
-    let mut keys: Vec<Key> = Vec::new();
-    for check in checks {
-        for s in &check.statistics {
-            if !keys.contains(&s.key) {
-                keys.push(s.key);
+    let mut pool = Pool::default();
+    pool.add(checks);
+    pool.finish()
+}
+
+/// [`pooled`] gathered a part of the subjects at a time: sums in subject order, so the result
+/// equals [`pooled`] of all the parts' checks to the last bit, while only one sum per
+/// statistic and replicate is kept.
+#[derive(Debug, Default)]
+pub struct Pool {
+    /// Keys in order of first appearance, each with its sums.
+    cells: Vec<(Key, PoolCell)>,
+    /// Replicates per statistic (the largest seen).
+    sims: usize,
+}
+
+/// The running sums of one pooled statistic.
+#[derive(Debug)]
+struct PoolCell {
+    observed_sum: f64,
+    observed_count: usize,
+    n_observed: usize,
+    replicate_sums: Vec<f64>,
+    replicate_counts: Vec<usize>,
+    bin_range: Option<(f64, f64)>,
+}
+
+impl PoolCell {
+    fn new() -> Self {
+        // −0.0, the start of Rust's sum of f64, so that running sums equal those of `sum`.
+        PoolCell {
+            observed_sum: -0.0,
+            observed_count: 0,
+            n_observed: 0,
+            replicate_sums: Vec::new(),
+            replicate_counts: Vec::new(),
+            bin_range: None,
+        }
+    }
+}
+
+impl Pool {
+    /// Adds the statistics of `checks` (subjects in table order, after those added before).
+    pub fn add(&mut self, checks: &[SubjectCheck]) {
+        for check in checks {
+            if let Some(first) = check.statistics.first() {
+                self.sims = self.sims.max(first.replicates.len());
+            }
+            for (k, s) in check.statistics.iter().enumerate() {
+                // The first statistic of its key in this subject counts (as `find` would).
+                if check.statistics[..k].iter().any(|t| t.key == s.key) {
+                    continue;
+                }
+                let at = match self.cells.iter().position(|(key, _)| *key == s.key) {
+                    Some(at) => at,
+                    None => {
+                        self.cells.push((s.key, PoolCell::new()));
+                        self.cells.len() - 1
+                    }
+                };
+                let cell = &mut self.cells[at].1;
+                if let Some((a, b)) = s.bin_range {
+                    let (lo, hi) = cell.bin_range.unwrap_or((f64::INFINITY, f64::NEG_INFINITY));
+                    cell.bin_range = Some((lo.min(a), hi.max(b)));
+                }
+                let Some(observed) = s.observed else { continue };
+                cell.observed_sum += observed;
+                cell.observed_count += 1;
+                cell.n_observed += s.n_observed;
+                if cell.replicate_sums.len() < s.replicates.len() {
+                    cell.replicate_sums.resize(s.replicates.len(), -0.0);
+                    cell.replicate_counts.resize(s.replicates.len(), 0);
+                }
+                for (r, value) in s.replicates.iter().enumerate() {
+                    if let Some(v) = value {
+                        cell.replicate_sums[r] += v;
+                        cell.replicate_counts[r] += 1;
+                    }
+                }
             }
         }
     }
-    let sims = checks
-        .iter()
-        .flat_map(|c| c.statistics.first())
-        .map(|s| s.replicates.len())
-        .max()
-        .unwrap_or(0);
-    let mean = |v: &[f64]| (!v.is_empty()).then(|| v.iter().sum::<f64>() / v.len() as f64);
-    keys.into_iter()
-        .map(|key| {
-            let members: Vec<&Statistic> = checks
-                .iter()
-                .flat_map(|c| c.statistics.iter().find(|s| s.key == key))
-                .filter(|s| s.observed.is_some())
-                .collect();
-            let observed: Vec<f64> = members.iter().flat_map(|s| s.observed).collect();
-            let replicates = (0..sims)
-                .map(|r| {
-                    let values: Vec<f64> = members
-                        .iter()
-                        .flat_map(|s| s.replicates.get(r).copied().flatten())
-                        .collect();
-                    mean(&values)
-                })
-                .collect();
-            let ranges = || {
-                checks
-                    .iter()
-                    .flat_map(|c| c.statistics.iter().find(|s| s.key == key))
-                    .filter_map(|s| s.bin_range)
-            };
-            let bin_range = ranges().next().map(|_| {
-                ranges().fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), (a, b)| {
-                    (lo.min(a), hi.max(b))
-                })
-            });
-            Statistic {
+
+    /// The pooled statistics, in order of first appearance of their keys.
+    pub fn finish(self) -> Vec<Statistic> {
+        let mean = |sum: f64, count: usize| (count > 0).then(|| sum / count as f64);
+        self.cells
+            .into_iter()
+            .map(|(key, cell)| Statistic {
                 key,
-                bin_range,
-                n_observed: members.iter().map(|s| s.n_observed).sum(),
-                observed: mean(&observed),
-                replicates,
-            }
-        })
-        .collect()
+                bin_range: cell.bin_range,
+                n_observed: cell.n_observed,
+                observed: mean(cell.observed_sum, cell.observed_count),
+                replicates: (0..self.sims)
+                    .map(|r| {
+                        mean(
+                            cell.replicate_sums.get(r).copied().unwrap_or(-0.0),
+                            cell.replicate_counts.get(r).copied().unwrap_or(0),
+                        )
+                    })
+                    .collect(),
+            })
+            .collect()
+    }
 }

@@ -299,26 +299,33 @@ impl Condition {
     /// The levels of `column` over `subjects`, in order of first appearance; an error names a
     /// column the table does not have.
     pub fn of(column: &str, subjects: &[Subject]) -> Result<Condition, NoSuchColumn> {
-        let mut levels: Vec<String> = Vec::new();
+        let mut condition = Condition {
+            column: column.to_string(),
+            levels: Vec::new(),
+        };
+        condition.add_levels(subjects)?;
+        Ok(condition)
+    }
+
+    /// Adds the levels of `subjects` not seen before, in order of first appearance (a table read
+    /// a part at a time gives the levels of [`Condition::of`] over the whole table).
+    pub fn add_levels(&mut self, subjects: &[Subject]) -> Result<(), NoSuchColumn> {
         for subject in subjects {
-            let Some(at) = subject.covariate_column(column) else {
+            let Some(at) = subject.covariate_column(&self.column) else {
                 return Err(NoSuchColumn {
-                    column: column.to_string(),
+                    column: self.column.clone(),
                     others: subject.covariates.to_vec(),
                 });
             };
             for trial in &subject.trials {
                 if let Some(level) = trial.covariate(at)
-                    && !levels.iter().any(|l| l == level.as_ref())
+                    && !self.levels.iter().any(|l| l == level.as_ref())
                 {
-                    levels.push(level.into_owned());
+                    self.levels.push(level.into_owned());
                 }
             }
         }
-        Ok(Condition {
-            column: column.to_string(),
-            levels,
-        })
+        Ok(())
     }
 
     /// Index of the trial's level (None when its cell is empty).

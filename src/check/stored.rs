@@ -70,6 +70,16 @@ pub fn stored_checks_table(checks: &[SubjectCheck]) -> Table {
 /// The checks of a table written by [`stored_checks_table`] (read back with it as template),
 /// subjects in the table's order; `source` names the file in errors, with the row (from 1).
 pub fn checks_from_stored(table: &Table, source: &str) -> Result<Vec<SubjectCheck>, String> {
+    checks_from_stored_rows(table, source, 0)
+}
+
+/// [`checks_from_stored`] of rows that come after `rows_before` rows of the file (for the row
+/// numbers of errors).
+fn checks_from_stored_rows(
+    table: &Table,
+    source: &str,
+    rows_before: usize,
+) -> Result<Vec<SubjectCheck>, String> {
     let text = |name: &str| table.texts(name).unwrap_or_default();
     let number = |name: &str| table.numbers(name).unwrap_or_default();
     let integer = |name: &str| table.integers(name).unwrap_or_default();
@@ -78,7 +88,7 @@ pub fn checks_from_stored(table: &Table, source: &str) -> Result<Vec<SubjectChec
         let bad = |what: &str, value: &str| {
             format!(
                 "{source}, row {}: {what} {value:?} is not one a check writes",
-                r + 1
+                rows_before + r + 1
             )
         };
         let factor = [
@@ -135,4 +145,53 @@ pub fn checks_from_stored(table: &Table, source: &str) -> Result<Vec<SubjectChec
         }
     }
     Ok(checks)
+}
+
+/// The checks of a table written by [`stored_checks_table`], read a chunk of rows at a time, one
+/// subject after another: only a chunk and one subject's statistics are in memory at once.
+pub struct StoredChecks {
+    chunks: crate::results::TableChunks,
+    source: String,
+    /// Rows read before the current chunk (for the row numbers of errors).
+    rows_before: usize,
+    /// Subjects read but not handed out; the last may continue in the next chunk.
+    pending: std::collections::VecDeque<SubjectCheck>,
+    done: bool,
+}
+
+/// Rows read at a time by [`StoredChecks`].
+const STORED_ROWS_PER_CHUNK: usize = 4096;
+
+impl StoredChecks {
+    /// Opens the table at `path` (its header checked against [`stored_checks_table`]'s).
+    pub fn open(path: &std::path::Path) -> Result<Self, crate::files::InputError> {
+        Ok(StoredChecks {
+            chunks: crate::results::TableChunks::open(path, &stored_checks_table(&[]))?,
+            source: path.display().to_string(),
+            rows_before: 0,
+            pending: std::collections::VecDeque::new(),
+            done: false,
+        })
+    }
+
+    /// The next subject's check, in the table's order; `None` after the last.
+    pub fn next_check(&mut self) -> Result<Option<SubjectCheck>, Box<dyn std::error::Error>> {
+        // The last pending subject is whole only once a later subject or the end is seen.
+        while !self.done && self.pending.len() < 2 {
+            let Some(chunk) = self.chunks.next_rows(STORED_ROWS_PER_CHUNK)? else {
+                self.done = true;
+                break;
+            };
+            let mut checks = checks_from_stored_rows(&chunk, &self.source, self.rows_before)?;
+            self.rows_before += chunk.rows();
+            if let (Some(last), Some(first)) = (self.pending.back_mut(), checks.first())
+                && last.subject == first.subject
+            {
+                let first = checks.remove(0);
+                last.statistics.extend(first.statistics);
+            }
+            self.pending.extend(checks);
+        }
+        Ok(self.pending.pop_front())
+    }
 }

@@ -152,39 +152,96 @@ pub fn quantiles_table(
     )
 }
 
-/// Subjects ordered worst first by rms_z (missing last), with their misfit.
-pub fn ranked_misfits(checks: &[SubjectCheck]) -> Vec<(&SubjectCheck, Misfit)> {
-    let mut ranked: Vec<(&SubjectCheck, Misfit)> =
-        checks.iter().map(|c| (c, misfit(&c.statistics))).collect();
-    ranked.sort_by(|a, b| {
-        let key = |m: &Misfit| m.rms_z.unwrap_or(f64::NEG_INFINITY);
-        key(&b.1).total_cmp(&key(&a.1))
-    });
-    ranked
+/// A subject's misfit summary, for the ranked table.
+#[derive(Clone, Debug, PartialEq)]
+pub struct RankedMisfit {
+    /// Subject label.
+    pub subject: String,
+    /// Group label.
+    pub group: String,
+    /// How it was simulated.
+    pub mode: Mode,
+    /// Its misfit.
+    pub misfit: Misfit,
 }
 
-/// One row per subject, worst first: misfit, rank and the flag (fraction outside above
-/// [`FLAG_FRACTION`]).
-pub fn misfit_table(checks: &[SubjectCheck]) -> Table {
-    let ranked = ranked_misfits(checks);
-    let number =
-        |f: fn(&Misfit) -> Option<f64>| Column::Number(ranked.iter().map(|r| f(&r.1)).collect());
+/// The order of misfits: worst first by rms_z (missing last).
+fn worse_first(a: &Misfit, b: &Misfit) -> std::cmp::Ordering {
+    let key = |m: &Misfit| m.rms_z.unwrap_or(f64::NEG_INFINITY);
+    key(b).total_cmp(&key(a))
+}
+
+/// Subjects ranked worst first by rms_z (missing last; ties in table order), gathered a part of
+/// the subjects at a time: every subject's misfit summary, and the statistics of only the
+/// `keep` worst so far (for their figures).
+#[derive(Debug)]
+pub struct Ranking {
+    all: Vec<RankedMisfit>,
+    worst: Vec<(SubjectCheck, Misfit)>,
+    keep: usize,
+}
+
+impl Ranking {
+    /// A ranking keeping the statistics of the `keep` worst subjects.
+    pub fn new(keep: usize) -> Self {
+        Ranking {
+            all: Vec::new(),
+            worst: Vec::new(),
+            keep,
+        }
+    }
+
+    /// Adds `checks` (subjects in table order, after those added before).
+    pub fn add(&mut self, checks: Vec<SubjectCheck>) {
+        for check in checks {
+            let m = misfit(&check.statistics);
+            self.all.push(RankedMisfit {
+                subject: check.subject.clone(),
+                group: check.group.clone(),
+                mode: check.mode,
+                misfit: m,
+            });
+            // A stable sort keeps earlier subjects first among ties, as the whole ranking does.
+            self.worst.push((check, m));
+            self.worst.sort_by(|a, b| worse_first(&a.1, &b.1));
+            self.worst.truncate(self.keep);
+        }
+    }
+
+    /// Every subject's summary, ranked, and the `keep` worst subjects with their statistics.
+    pub fn finish(mut self) -> (Vec<RankedMisfit>, Vec<(SubjectCheck, Misfit)>) {
+        self.all.sort_by(|a, b| worse_first(&a.misfit, &b.misfit));
+        (self.all, self.worst)
+    }
+}
+
+/// One row per subject, worst first (`ranked`, from [`Ranking::finish`]): misfit, rank and the
+/// flag (fraction outside above [`FLAG_FRACTION`]).
+pub fn misfit_table(ranked: &[RankedMisfit]) -> Table {
+    let number = |f: fn(&Misfit) -> Option<f64>| {
+        Column::Number(ranked.iter().map(|r| f(&r.misfit)).collect())
+    };
     Table::default()
         .with(
             "subject",
-            Column::Text(ranked.iter().map(|r| r.0.subject.clone()).collect()),
+            Column::Text(ranked.iter().map(|r| r.subject.clone()).collect()),
         )
         .with(
             "group",
-            Column::Text(ranked.iter().map(|r| r.0.group.clone()).collect()),
+            Column::Text(ranked.iter().map(|r| r.group.clone()).collect()),
         )
         .with(
             "mode",
-            Column::Text(ranked.iter().map(|r| r.0.mode.as_str().into()).collect()),
+            Column::Text(ranked.iter().map(|r| r.mode.as_str().into()).collect()),
         )
         .with(
             "n_statistics",
-            Column::Integer(ranked.iter().map(|r| r.1.n_statistics as i64).collect()),
+            Column::Integer(
+                ranked
+                    .iter()
+                    .map(|r| r.misfit.n_statistics as i64)
+                    .collect(),
+            ),
         )
         .with("fraction_outside", number(|m| m.fraction_outside))
         .with("rms_z", number(|m| m.rms_z))
@@ -194,7 +251,7 @@ pub fn misfit_table(checks: &[SubjectCheck]) -> Table {
             Column::Flag(
                 ranked
                     .iter()
-                    .map(|r| r.1.fraction_outside.is_some_and(|f| f > FLAG_FRACTION))
+                    .map(|r| r.misfit.fraction_outside.is_some_and(|f| f > FLAG_FRACTION))
                     .collect(),
             ),
         )

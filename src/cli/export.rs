@@ -2,8 +2,6 @@
 //! events files with parametric modulators and, given the scan timing, design matrices of the
 //! events convolved with the haemodynamic response, for imaging analyses.
 
-use super::input::SUBJECTS_PER_PART;
-use crate::data::SubjectParts;
 use crate::exports::hrf::{DesignFile, DoubleGamma, Timing, design_file};
 use crate::exports::{
     BIDS_IGNORE, Scale, bids_label, bids_labels, dataset_description, dataset_readme, events_files,
@@ -89,26 +87,15 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
         "exporting: latents, events and design files of subjects",
         fitted.subjects.len(),
     );
-    let mut parts = SubjectParts::open(&run.input.data, &fitted.columns)?;
-    let mut next = 0;
-    while let Some(part) = parts.next_part(SUBJECTS_PER_PART)? {
+    fitted.for_each_part(&run.input.data, &mut |part| {
         let mut rows = Vec::new();
-        for subject in part.subjects.iter().filter(|s| fitted.keeps(&s.id)) {
-            if fitted.subjects.get(next).map(|s| s.id.as_str()) != Some(subject.id.as_str()) {
-                return Err(format!(
-                    "{}: changed while it was being exported (subject {:?} was not read before); \
-                     run the export again",
-                    run.input.data.display(),
-                    subject.id
-                )
-                .into());
-            }
-            let subject_rows = latents(model, subject, &fitted.estimates[next])?;
+        for (k, subject) in &part {
+            let subject_rows = latents(model, subject, &fitted.estimates[*k])?;
             if has_onsets {
                 let events = events_files(
                     model,
                     subject,
-                    &labels[next],
+                    &labels[*k],
                     run.task,
                     &subject_rows,
                     run.scale,
@@ -127,24 +114,15 @@ pub fn run(run: ExportRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
                 written.events += events.len();
             }
             rows.extend(subject_rows);
-            next += 1;
             progress.inc();
         }
         if !rows.is_empty() {
             written.trials += rows.len();
             latents_file.write(&latents_table(&rows, &varying))?;
         }
-    }
+        Ok(())
+    })?;
     progress.finish();
-    if next != fitted.subjects.len() {
-        return Err(format!(
-            "{}: changed while it was being exported ({} subjects fitted, {next} read); run the \
-             export again",
-            run.input.data.display(),
-            fitted.subjects.len()
-        )
-        .into());
-    }
     latents_file.finish()?;
     if written.events > 0 {
         // The files a BIDS derivative dataset has at its root besides the subjects' folders.

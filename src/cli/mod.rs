@@ -491,10 +491,54 @@ pub struct FittedSubjects {
     skipped: std::collections::HashSet<String>,
 }
 
+/// The fitted subjects of one part of a trial table, each with its index into
+/// [`FittedSubjects::subjects`] and [`FittedSubjects::estimates`].
+pub type FittedPart = Vec<(usize, crate::data::Subject)>;
+
 impl FittedSubjects {
     /// Whether the subject `id` of the table was fitted with the model.
     pub fn keeps(&self, id: &str) -> bool {
         !self.skipped.contains(id)
+    }
+
+    /// Reads the trial table at `data` again a part at a time and hands `each` the fitted
+    /// subjects of every part, each with its index into [`FittedSubjects::subjects`] and
+    /// [`FittedSubjects::estimates`], in table order; refuses a table that changed since
+    /// [`FittedRun::load_labels`] read it.
+    pub fn for_each_part(
+        &self,
+        data: &std::path::Path,
+        each: &mut dyn FnMut(FittedPart) -> Result<(), Box<dyn std::error::Error>>,
+    ) -> Result<(), Box<dyn std::error::Error>> {
+        let changed = |what: String| {
+            format!(
+                "{}: changed while it was being read ({what}); run the command again",
+                data.display()
+            )
+        };
+        let mut parts = crate::data::SubjectParts::open(data, &self.columns)?;
+        let mut next = 0;
+        while let Some(part) = parts.next_part(input::SUBJECTS_PER_PART)? {
+            let mut fitted = Vec::with_capacity(part.subjects.len());
+            for subject in part.subjects.into_iter().filter(|s| self.keeps(&s.id)) {
+                if self.subjects.get(next).map(|s| s.id.as_str()) != Some(subject.id.as_str()) {
+                    return Err(
+                        changed(format!("subject {:?} was not read before", subject.id)).into(),
+                    );
+                }
+                fitted.push((next, subject));
+                next += 1;
+            }
+            each(fitted)?;
+        }
+        if next != self.subjects.len() {
+            return Err(changed(format!(
+                "{} subjects before, {next} now",
+                self.subjects.len()
+            ))
+            .into());
+        }
+        Ok(())
     }
 }
 

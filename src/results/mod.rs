@@ -3,6 +3,7 @@
 pub mod fit_folder;
 pub mod parameters_file;
 mod table_reader;
+pub use table_reader::TableChunks;
 mod table_writer;
 
 pub use table_writer::TableParts;

@@ -88,34 +88,8 @@ impl Table {
     /// (names, order and kinds) of `template`. Errors name the file, and the line and column of
     /// a cell that is not of its column's kind; a header other than the template's is refused.
     pub fn read_csv_as(path: &Path, template: &Table) -> Result<Table, InputError> {
-        let (mut reader, header) = crate::files::open_csv_trimmed(path, csv::Trim::None)?;
-        let names: Vec<&str> = template.columns.iter().map(|(n, _)| n.as_str()).collect();
-        if header != names {
-            return Err(InputError::file(
-                path,
-                format!(
-                    "has columns {}; expected {}",
-                    header.join(","),
-                    names.join(",")
-                ),
-            ));
-        }
-        let mut table = Table {
-            columns: template
-                .columns
-                .iter()
-                .map(|(n, c)| (n.clone(), c.empty_like()))
-                .collect(),
-        };
-        for row in crate::files::csv_rows(path, &mut reader) {
-            let (line, record) = row?;
-            for ((name, column), text) in table.columns.iter_mut().zip(record.iter()) {
-                column
-                    .push_text(text)
-                    .map_err(|message| InputError::at(path, line, name, message))?;
-            }
-        }
-        Ok(table)
+        let mut chunks = TableChunks::open(path, template)?;
+        Ok(chunks.next_rows(usize::MAX)?.unwrap_or(chunks.empty()))
     }
 
     /// The rows of `tables` (tables with the columns of `template`) one after the other.
@@ -176,5 +150,86 @@ impl Table {
             Column::Flag(v) if n == name => Some(v.as_slice()),
             _ => None,
         })
+    }
+}
+
+/// A table the crate wrote read back a chunk of rows at a time, as [`Table::read_csv_as`] reads
+/// it whole: for tables too large to hold at once.
+pub struct TableChunks {
+    path: std::path::PathBuf,
+    reader: csv::Reader<std::fs::File>,
+    /// The template's columns, empty.
+    template: Table,
+    /// Line of the next record (the header is line 1).
+    line: u64,
+}
+
+impl TableChunks {
+    /// Opens `path` and checks its header against the columns of `template`.
+    pub fn open(path: &Path, template: &Table) -> Result<Self, InputError> {
+        let (reader, header) = crate::files::open_csv_trimmed(path, csv::Trim::None)?;
+        let names: Vec<&str> = template.columns.iter().map(|(n, _)| n.as_str()).collect();
+        if header != names {
+            return Err(InputError::file(
+                path,
+                format!(
+                    "has columns {}; expected {}",
+                    header.join(","),
+                    names.join(",")
+                ),
+            ));
+        }
+        Ok(TableChunks {
+            path: path.to_path_buf(),
+            reader,
+            template: Table {
+                columns: template
+                    .columns
+                    .iter()
+                    .map(|(n, c)| (n.clone(), c.empty_like()))
+                    .collect(),
+            },
+            line: 2,
+        })
+    }
+
+    /// A table of the template's columns and no rows.
+    fn empty(&self) -> Table {
+        Table {
+            columns: self
+                .template
+                .columns
+                .iter()
+                .map(|(n, c)| (n.clone(), c.empty_like()))
+                .collect(),
+        }
+    }
+
+    /// The next at most `rows` rows (at least one); `None` after the last. Errors name the
+    /// file, and the line and column of a cell that is not of its column's kind.
+    pub fn next_rows(&mut self, rows: usize) -> Result<Option<Table>, InputError> {
+        let mut table = self.empty();
+        let mut record = csv::StringRecord::new();
+        let mut read = 0;
+        while read < rows.max(1) {
+            let more = self
+                .reader
+                .read_record(&mut record)
+                .map_err(|e| InputError {
+                    line: e.position().map(|p| p.line()).or(Some(self.line)),
+                    ..InputError::file(&self.path, format!("malformed CSV row: {e}"))
+                })?;
+            if !more {
+                break;
+            }
+            for ((name, column), text) in table.columns.iter_mut().zip(record.iter()) {
+                column
+                    .push_text(text)
+                    .map_err(|message| InputError::at(&self.path, self.line, name, message))?;
+            }
+            self.line += 1;
+            read += 1;
+        }
+        Ok((read > 0).then_some(table))
     }
 }

@@ -269,7 +269,7 @@ fn blank_lines_and_quoted_newlines_keep_line_numbers() {
 }
 
 #[test]
-fn reads_forty_by_three_hundred_quickly() {
+fn reads_a_study_sized_table_of_forty_by_three_hundred() {
     let dir = tempfile::tempdir().unwrap();
     let mut text = String::from(GOOD.lines().next().unwrap());
     text.push('\n');
@@ -868,4 +868,33 @@ fn streamed_parts_equal_the_whole_table_on_published_and_demo_data() {
             .len(),
         958
     );
+    // A bad response time in a later part is reported at its own data row, in parts as whole.
+    let rts: Vec<Option<f64>> = frame
+        .column("rt")
+        .unwrap()
+        .cast(&DataType::Float64)
+        .unwrap()
+        .f64()
+        .unwrap()
+        .iter()
+        .enumerate()
+        .map(|(k, t)| if k == 5000 { Some(-1.0) } else { t })
+        .collect();
+    frame
+        .replace("rt", Series::new("rt".into(), rts).into())
+        .unwrap();
+    let bad = dir.path().join("bad.parquet");
+    write_parquet(&bad, &mut frame);
+    let whole = read_err(&bad, &ColumnMap::default());
+    // source: row 5001 (1-based data row) holds the negative time written above.
+    assert_at(&whole, &bad, Some(5001), Some("rt"), "");
+    let mut parts = SubjectParts::open(&bad, &ColumnMap::default()).unwrap();
+    let in_parts = loop {
+        match parts.next_part(3) {
+            Ok(Some(_)) => continue,
+            Ok(None) => panic!("the bad row was not reported"),
+            Err(e) => break e,
+        }
+    };
+    assert_eq!(in_parts.to_string(), whole.to_string());
 }

@@ -12,17 +12,18 @@
 
 use super::record::{ShardFolder, check_data, strings};
 use super::run_recorded;
-use crate::check::{checks_from_stored, stored_checks_table};
+use crate::check::{StoredChecks, SubjectCheck};
 use crate::cli::ShardResults;
 use crate::cli::check::{FromShards, SHARD_CHECKS};
 use crate::cli::shard::{self, Shard};
 use crate::files::InputError;
-use crate::results::Table;
 use crate::results::fit_folder::key;
-use std::collections::HashMap;
 use std::path::Path;
 
-/// Pools the check shards `shards` (sorted and checked to be one run) into `out`.
+/// Pools the check shards `shards` (sorted and checked to be one run) into `out`. The shards'
+/// tables are read together, one subject at a time in table order (each subject from its
+/// shard's table, which lists its subjects in table order), so memory holds one subject per
+/// shard and not every replicate of every subject.
 pub(super) fn run(
     shards: &[ShardFolder],
     out: &Path,
@@ -31,52 +32,70 @@ pub(super) fn run(
     let record = &shards[0].record;
     check_data(record)?;
     let subjects = strings(&record[key::SHARD][shard::KEY_SUBJECTS]);
-    let template = stored_checks_table(&[]);
-    let mut checks = Vec::new();
+    let count = shards[0].shard.count;
+    let mut readers = Vec::with_capacity(shards.len());
     for s in shards {
         let path = SHARD_CHECKS.csv_in(&s.dir);
-        let table = Table::read_csv_as(&path, &template)?;
-        let these = checks_from_stored(&table, &path.display().to_string())?;
-        let listed: Vec<&str> = these.iter().map(|c| c.subject.as_str()).collect();
-        let held: Vec<&str> = subjects
-            .iter()
-            .filter(|label| Shard::of(label, s.shard.count) == s.shard.index)
-            .map(String::as_str)
-            .collect();
-        if listed != held {
-            return Err(InputError::file(
-                &path,
-                format!(
-                    "lists {} subjects, but shard {} of {} of the recorded subjects holds {}: \
-                     the folder does not hold this shard's check",
-                    listed.len(),
-                    s.shard.index,
-                    s.shard.count,
-                    held.len()
-                ),
-            )
-            .into());
-        }
-        checks.extend(these);
+        readers.push((s.shard, StoredChecks::open(&path)?, path));
     }
-    let position: HashMap<&str, usize> = subjects
-        .iter()
-        .enumerate()
-        .map(|(k, s)| (s.as_str(), k))
-        .collect();
-    checks.sort_by_key(|c| position.get(c.subject.as_str()).copied());
     let line = shard::with_out(
         &strings(&record["command_line"]),
         &out.display().to_string(),
     );
     println!(
-        "merged {} check shards: {} subjects; pooling their statistics",
+        "merging {} check shards: {} subjects; pooling their statistics",
         shards.len(),
-        checks.len()
+        subjects.len()
     );
+    let not_this_shard = |path: &Path, shard: Shard, what: String| -> Box<dyn std::error::Error> {
+        InputError::file(
+            path,
+            format!(
+                "{what}, against shard {} of {} of the recorded subjects: the folder does not \
+                 hold this shard's check",
+                shard.index, shard.count
+            ),
+        )
+        .into()
+    };
+    let mut next_subject = 0;
+    let next = move || -> Result<Option<SubjectCheck>, Box<dyn std::error::Error>> {
+        let Some(label) = subjects.get(next_subject) else {
+            // Every recorded subject handed out: no shard may list more.
+            for (shard, reader, path) in &mut readers {
+                if let Some(extra) = reader.next_check()? {
+                    let what = format!("lists subject {:?} after its last subject", extra.subject);
+                    return Err(not_this_shard(path, *shard, what));
+                }
+            }
+            return Ok(None);
+        };
+        next_subject += 1;
+        let index = Shard::of(label, count);
+        let Some((shard, reader, path)) = readers.iter_mut().find(|(s, ..)| s.index == index)
+        else {
+            return Err(format!("no shard {index} of {count} among the folders given").into());
+        };
+        match reader.next_check()? {
+            Some(check) if check.subject == *label => Ok(Some(check)),
+            found => {
+                let what = format!(
+                    "lists {} where subject {label:?} comes next",
+                    found.map_or("no further subject".to_string(), |c| format!(
+                        "subject {:?}",
+                        c.subject
+                    ))
+                );
+                Err(not_this_shard(path, *shard, what))
+            }
+        }
+    };
     run_recorded(
         &shards[0],
         &line,
-        ShardResults::Check(FromShards { checks, replace }),
+        ShardResults::Check(FromShards {
+            next: Box::new(next),
+            replace,
+        }),
     )
 }

@@ -94,29 +94,29 @@ impl<'a> Cell<'a> {
 pub(super) enum Positions {
     /// CSV/TSV: the file line each data row starts on, and the header's line.
     Lines { rows: Vec<u64>, header: u64 },
-    /// Parquet: data rows are numbered from 1.
-    Rows,
+    /// Parquet: data rows are numbered from 1; these rows begin after row `first`.
+    Rows { first: u64 },
 }
 
 impl Positions {
     pub(super) fn of(&self, row: usize) -> u64 {
         match self {
             Positions::Lines { rows, .. } => rows[row],
-            Positions::Rows => row as u64 + 1,
+            Positions::Rows { first } => first + row as u64 + 1,
         }
     }
 
     pub(super) fn unit(&self) -> &'static str {
         match self {
             Positions::Lines { .. } => "line",
-            Positions::Rows => "row",
+            Positions::Rows { .. } => "row",
         }
     }
 
     pub(super) fn header(&self) -> Option<u64> {
         match self {
             Positions::Lines { header, .. } => Some(*header),
-            Positions::Rows => None,
+            Positions::Rows { .. } => None,
         }
     }
 }

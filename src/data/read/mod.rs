@@ -100,29 +100,27 @@ fn format_of(path: &Path) -> Result<Format, InputError> {
 
 /// A trial table read a few whole subjects at a time, each part checked exactly as
 /// [`read_trials`] checks the whole table (a subject seen in an earlier part may not appear
-/// again). CSV and TSV files are streamed: only one part is in memory at once, so memory does not
-/// grow with the number of subjects. Parquet files are read whole and handed out in parts.
+/// again). Only one part is in memory at once (and, for Parquet, where each subject begins), so
+/// memory does not grow with the number of subjects.
 pub struct SubjectParts {
     source: Source,
 }
 
 enum Source {
     Delimited(Box<delimited::DelimitedStream>),
-    Whole { table: TrialTable, notes: ReadNotes },
+    Parquet(Box<parquet::ParquetStream>),
 }
 
 impl SubjectParts {
     /// Opens the trial table at `path` (format by extension, as [`read_trials`]) and reads its
-    /// header (CSV, TSV) or all of it (Parquet).
+    /// header (CSV, TSV) or where each subject begins (Parquet).
     pub fn open(path: &Path, columns: &ColumnMap) -> Result<Self, InputError> {
         let source = match format_of(path)? {
             Format::Delimited(sep) => Source::Delimited(Box::new(
                 delimited::DelimitedStream::open(path, columns, sep)?,
             )),
             Format::Parquet => {
-                let (mut table, notes) = read_parquet(path, columns)?;
-                table.subjects.reverse();
-                Source::Whole { table, notes }
+                Source::Parquet(Box::new(parquet::ParquetStream::open(path, columns)?))
             }
         };
         Ok(SubjectParts { source })
@@ -133,19 +131,7 @@ impl SubjectParts {
     pub fn next_part(&mut self, subjects: usize) -> Result<Option<TrialTable>, InputError> {
         match &mut self.source {
             Source::Delimited(stream) => stream.next_part(subjects),
-            Source::Whole { table, .. } => {
-                if table.subjects.is_empty() {
-                    return Ok(None);
-                }
-                let take = subjects.clamp(1, table.subjects.len());
-                let start = table.subjects.len() - take;
-                let mut part: Vec<_> = table.subjects.drain(start..).collect();
-                part.reverse();
-                Ok(Some(TrialTable {
-                    subjects: part,
-                    present: table.present.clone(),
-                }))
-            }
+            Source::Parquet(stream) => stream.next_part(subjects),
         }
     }
 
@@ -153,7 +139,7 @@ impl SubjectParts {
     pub fn notes(&self) -> &ReadNotes {
         match &self.source {
             Source::Delimited(stream) => &stream.state.notes,
-            Source::Whole { notes, .. } => notes,
+            Source::Parquet(stream) => &stream.state.notes,
         }
     }
 }

@@ -1,7 +1,8 @@
 //! Parquet: columns of numbers or text converted to the reader's types; problems reported by
-//! 1-based data row.
+//! 1-based data row. Read a part (some whole subjects) at a time, as CSV is; reading the whole
+//! table is one part.
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 use polars::prelude::*;
 
@@ -12,15 +13,143 @@ use super::columns::*;
 use super::rows::{ReadState, build, no_trials};
 use crate::files::InputError;
 
+/// Reads the whole Parquet file at `path`, checking every row.
 pub(super) fn read_parquet(
     path: &Path,
     columns: &ColumnMap,
 ) -> Result<(TrialTable, ReadNotes), InputError> {
-    let file = std::fs::File::open(path)
-        .map_err(|e| InputError::file(path, format!("cannot be read: {e}")))?;
-    let frame = ParquetReader::new(file)
-        .finish()
-        .map_err(|e| InputError::file(path, format!("cannot be read as Parquet: {e}")))?;
+    let mut stream = ParquetStream::open(path, columns)?;
+    let mut table: Option<TrialTable> = None;
+    while let Some(part) = stream.next_part(usize::MAX)? {
+        match table.as_mut() {
+            Some(t) => t.subjects.extend(part.subjects),
+            None => table = Some(part),
+        }
+    }
+    let table = table.ok_or_else(|| no_trials(path))?;
+    Ok((table, stream.state.notes))
+}
+
+/// A Parquet trial table read a part (some whole subjects) at a time: the subject column is
+/// read first to find where each subject's rows begin, then each part's rows are read as a
+/// slice of the file.
+pub(super) struct ParquetStream {
+    path: PathBuf,
+    columns: ColumnMap,
+    /// Row at which each subject's rows begin (a subject's empty rows before the first subject
+    /// belong to it), and the number of rows.
+    starts: Vec<usize>,
+    height: usize,
+    /// The next subject to hand out, and subjects handed out so far.
+    next: usize,
+    subjects_seen: usize,
+    /// What the row checks carry from part to part.
+    pub(super) state: ReadState,
+}
+
+impl ParquetStream {
+    /// Opens `path` and reads its subject column.
+    pub(super) fn open(path: &Path, columns: &ColumnMap) -> Result<Self, InputError> {
+        let mut reader = ParquetReader::new(open(path)?);
+        let height = reader
+            .num_rows()
+            .map_err(|e| InputError::file(path, format!("cannot be read as Parquet: {e}")))?;
+        if height == 0 {
+            return Err(InputError::file(
+                path,
+                "has no rows; expected one row per trial",
+            ));
+        }
+        let schema = reader
+            .schema()
+            .map_err(|e| InputError::file(path, format!("cannot be read as Parquet: {e}")))?;
+        let subject = columns.file_name("subject");
+        let at = schema.iter_names().position(|n| n.trim() == subject);
+        // Without a subject column the whole file is one part, whose checks name the problem.
+        let mut starts = vec![0];
+        if let Some(at) = at {
+            let frame = ParquetReader::new(open(path)?)
+                .with_projection(Some(vec![at]))
+                .finish()
+                .map_err(|e| InputError::file(path, format!("cannot be read as Parquet: {e}")))?;
+            let (_, series) = converted(path, columns, &frame)?;
+            let labels = values_of(&series[0]);
+            let mut current: Option<String> = None;
+            for row in 0..height {
+                let cell = labels.cell(row);
+                if columns.reads_as_missing(cell) {
+                    continue;
+                }
+                let Some(key) = cell.text() else { continue };
+                if current.as_deref() != Some(key.as_ref()) {
+                    if current.is_some() {
+                        starts.push(row);
+                    }
+                    current = Some(key.into_owned());
+                }
+            }
+        }
+        Ok(ParquetStream {
+            path: path.to_path_buf(),
+            columns: columns.clone(),
+            starts,
+            height,
+            next: 0,
+            subjects_seen: 0,
+            state: ReadState::default(),
+        })
+    }
+
+    /// The next part: the rows of at most `subjects` whole subjects, checked; `None` after the
+    /// last. A table whose rows are all empty is refused.
+    pub(super) fn next_part(&mut self, subjects: usize) -> Result<Option<TrialTable>, InputError> {
+        while self.next < self.starts.len() {
+            let first = self.starts[self.next];
+            let end_subject = self.next.saturating_add(subjects.max(1));
+            let end = self.starts.get(end_subject).copied().unwrap_or(self.height);
+            self.next = end_subject.min(self.starts.len());
+            let frame = ParquetReader::new(open(&self.path)?)
+                .with_slice(Some((first, end - first)))
+                .finish()
+                .map_err(|e| {
+                    InputError::file(&self.path, format!("cannot be read as Parquet: {e}"))
+                })?;
+            let (header, series) = converted(&self.path, &self.columns, &frame)?;
+            let table = build(
+                &self.path,
+                &self.columns,
+                &header,
+                &series,
+                frame.height(),
+                &Positions::Rows {
+                    first: first as u64,
+                },
+                &mut self.state,
+            )?;
+            if !table.subjects.is_empty() {
+                self.subjects_seen += table.subjects.len();
+                return Ok(Some(table));
+            }
+        }
+        if self.subjects_seen == 0 {
+            return Err(no_trials(&self.path));
+        }
+        Ok(None)
+    }
+}
+
+fn open(path: &Path) -> Result<std::fs::File, InputError> {
+    std::fs::File::open(path).map_err(|e| InputError::file(path, format!("cannot be read: {e}")))
+}
+
+/// The header (names trimmed) and the columns of `frame` converted to the reader's types:
+/// whole numbers as 64-bit integers, real numbers as doubles, text and flags as text; other
+/// columns the reader does not use left out (all missing).
+fn converted(
+    path: &Path,
+    columns: &ColumnMap,
+    frame: &DataFrame,
+) -> Result<(Vec<String>, Vec<Series>), InputError> {
     let header: Vec<String> = frame
         .columns()
         .iter()
@@ -63,24 +192,5 @@ pub(super) fn read_parquet(
         })?;
         series.push(converted);
     }
-    if frame.height() == 0 {
-        return Err(InputError::file(
-            path,
-            "has no rows; expected one row per trial",
-        ));
-    }
-    let mut state = ReadState::default();
-    let table = build(
-        path,
-        columns,
-        &header,
-        &series,
-        frame.height(),
-        &Positions::Rows,
-        &mut state,
-    )?;
-    if table.subjects.is_empty() {
-        return Err(no_trials(path));
-    }
-    Ok((table, state.notes))
+    Ok((header, series))
 }
