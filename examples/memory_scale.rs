@@ -70,7 +70,7 @@ fn main() {
         lines.push(format!(
             "export subjects={n} peak_mb={peak:.1} seconds={seconds:.1}"
         ));
-        let (peak, seconds) = measure(
+        let (peak, seconds, _) = common::measure(
             Command::new(&binary)
                 .args([
                     "check",
