@@ -1,22 +1,57 @@
-//! Benchmark of per-subject fitting (a benchmark, not a test).
+//! Benchmark of per-subject fitting and of the whole `fit` process (a benchmark, not a test).
 //!
 //! Simulates subjects on the orchard design (300 trials, model `gainloss-linear`, generating
-//! values inside the documented ranges), fits each with 10 starts on one thread, and prints as
-//! its last line `seconds_per_subject=X likelihoods_per_second=Y` (Y counts likelihood-with-
-//! gradient evaluations of one subject's 300 trials). Run with
-//! `cargo run --release --example fit_speed`; another built-in model may be named as the
-//! argument (for example `-- gainloss-wald-race`).
+//! values inside the documented ranges, fixed seed) and:
+//! 1. fits the first 8 with 10 starts on one thread in this process, printing per subject ln L
+//!    beside the value the fitter of commit f3593c4 reached on the same subject, and the
+//!    likelihood-with-gradient evaluations of each stage of the fit (screen, each start's
+//!    L-BFGS run, restarts, searches from the interior, face probes, fresh starts, examinations
+//!    of the best point, standard errors);
+//! 2. writes 10 subjects as a CSV trial table and runs the release binary's
+//!    `fit --model gainloss-linear --threads 1` on it several times, printing the whole process's
+//!    wall and processor time per subject beside the processor time of fitting the same 10
+//!    subjects in this process and the start-up of the binary (`--version`); the rest of the
+//!    processor time is start-up, reading, the data screen, writing the tables and run.json. On a machine
+//!    shared with other work, the processor time is the steadier figure.
+//!
+//! Run with `cargo build --release && cargo run --release --example fit_speed`; another
+//! built-in model may be named as the argument (for example `-- gainloss-wald-race`; the
+//! process part and the comparison with f3593c4 are then for that model too, without the
+//! earlier values). The last lines read `seconds_per_subject=X likelihoods_per_second=Y` (Y
+//! counts likelihood-with-gradient evaluations of one subject's 300 trials) and
+//! `process_seconds_per_subject=… (min–max) process_cpu_seconds_per_subject=… (min–max)
+//! fitting_cpu_seconds_per_subject=… startup_seconds=… rest_cpu_per_subject=…`.
 
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
+use std::process::Command;
 use std::time::Instant;
-use valuedrift::fit::{FitOptions, fit_subject};
+use valuedrift::data::Subject;
+use valuedrift::fit::{FitOptions, fit_subject, fit_subject_with_work};
 use valuedrift::likelihood::SubjectLikelihood;
-use valuedrift::model::load_model;
+use valuedrift::model::{Model, load_model};
 use valuedrift::simulate::orchard_participant;
 
+#[path = "common/mod.rs"]
+mod common;
+
 const SUBJECTS: usize = 8;
+const PROCESS_SUBJECTS: usize = 10;
+const PROCESS_RUNS: usize = 5;
 const TRIALS: usize = 300;
+
+/// ln L of `gainloss-linear` on s00…s07 as fitted by commit f3593c4 (before the early stops),
+/// printed by this program then: the reference the fits must equal or beat.
+const EARLIER_LN_L: [f64; SUBJECTS] = [
+    110.586552048922,
+    -112.8176866103752,
+    -154.4203315334059,
+    -15.94042278611232,
+    31.17664904913944,
+    35.60326000115443,
+    -164.77132559400388,
+    28.503675127751492,
+];
 
 fn main() {
     let name = std::env::args()
@@ -24,7 +59,7 @@ fn main() {
         .unwrap_or_else(|| "gainloss-linear".into());
     let model = load_model(&name).expect("a built-in model");
     let mut rng = ChaCha8Rng::seed_from_u64(7);
-    let subjects: Vec<_> = (0..SUBJECTS)
+    let subjects: Vec<_> = (0..PROCESS_SUBJECTS)
         .map(|i| {
             orchard_participant(&model, &format!("s{i:02}"), "bench", TRIALS, &mut rng)
                 .expect("the model runs on the orchard design")
@@ -44,20 +79,131 @@ fn main() {
     }
     let per_second = evaluations as f64 / start.elapsed().as_secs_f64();
     let start = Instant::now();
-    for subject in &subjects {
+    let mut fits = Vec::new();
+    for subject in &subjects[..SUBJECTS] {
         let lik = SubjectLikelihood::new(&model, subject, None).unwrap();
-        let fit = fit_subject(&lik, &options);
-        sink += fit.log_likelihood;
-        println!(
-            "{}: ln L = {:.2}, starts at best {}/{}, converged {}",
-            fit.subject, fit.log_likelihood, fit.starts_at_best, fit.starts, fit.converged
-        );
+        fits.push(fit_subject_with_work(&lik, &options));
     }
     let per_subject = start.elapsed().as_secs_f64() / SUBJECTS as f64;
+    println!(
+        "subject: ln L (f3593c4; new - f3593c4), starts at best/runs, converged | evaluations: \
+         screen, [each start], restarts, interior, faces, fresh, examine, standard errors, total"
+    );
+    let mut total = 0;
+    for (i, (fit, work)) in fits.iter().enumerate() {
+        sink += fit.log_likelihood;
+        total += work.total();
+        let earlier = if name == "gainloss-linear" {
+            format!(
+                "{}; {:+.1e}",
+                EARLIER_LN_L[i],
+                fit.log_likelihood - EARLIER_LN_L[i]
+            )
+        } else {
+            "-".to_string()
+        };
+        println!(
+            "{}: ln L = {} ({earlier}), {}/{}, {} | {} {:?} {} {} {} {} {} {} {}",
+            fit.subject,
+            fit.log_likelihood,
+            fit.starts_at_best,
+            fit.starts,
+            fit.converged,
+            work.screen,
+            work.starts,
+            work.restarts,
+            work.interior,
+            work.faces,
+            work.fresh,
+            work.examine,
+            work.standard_errors,
+            work.total()
+        );
+    }
+    println!(
+        "evaluations_per_subject={:.0}",
+        total as f64 / SUBJECTS as f64
+    );
     assert!(sink.is_finite());
+    let process = whole_process(&model, &subjects, &options);
     println!(
         "{SUBJECTS} subjects x {TRIALS} trials of model {name}, {} starts, 1 thread",
         options.starts
     );
-    println!("seconds_per_subject={per_subject:.3} likelihoods_per_second={per_second:.0}");
+    println!("seconds_per_subject={per_subject:.4} likelihoods_per_second={per_second:.0}");
+    println!("{process}");
+}
+
+/// Times the release binary's `fit` on `subjects` written as CSV, the binary's start-up and
+/// fitting the same subjects here; returns the summary line.
+fn whole_process(model: &Model, subjects: &[Subject], options: &FitOptions) -> String {
+    let binary = common::release_binary();
+    let dir = tempfile::tempdir().expect("a temporary folder");
+    let data = dir.path().join("subjects.csv");
+    let mut file = std::fs::File::create(&data).expect("a data file");
+    common::write_subjects(&mut file, subjects.to_vec(), true);
+    let n = subjects.len() as f64;
+    let start = processor_seconds();
+    for subject in subjects {
+        let lik = SubjectLikelihood::new(model, subject, None).unwrap();
+        assert!(fit_subject(&lik, options).log_likelihood.is_finite());
+    }
+    let fitting = (processor_seconds() - start) / n;
+    // (wall, processor) seconds of each run.
+    let startup: Vec<(f64, f64)> = (0..PROCESS_RUNS)
+        .map(|_| {
+            let (_, wall, cpu) = common::measure(Command::new(&binary).arg("--version"));
+            (wall, cpu)
+        })
+        .collect();
+    let runs: Vec<(f64, f64)> = (0..PROCESS_RUNS)
+        .map(|k| {
+            let (_, wall, cpu) = common::measure(
+                Command::new(&binary)
+                    .args(["fit", "--model", &model.name, "--threads", "1", "--data"])
+                    .arg(&data)
+                    .arg("--out")
+                    .arg(dir.path().join(format!("fit{k}"))),
+            );
+            (wall / n, cpu / n)
+        })
+        .collect();
+    let wall = spread(runs.iter().map(|r| r.0));
+    let cpu = spread(runs.iter().map(|r| r.1));
+    let startup_wall = spread(startup.iter().map(|r| r.0));
+    format!(
+        "{} subjects, whole `fit` process, 1 thread, median (min-max) of {PROCESS_RUNS} runs:\n\
+         process_seconds_per_subject={:.4} ({:.4}-{:.4}) \
+         process_cpu_seconds_per_subject={:.4} ({:.4}-{:.4}) \
+         fitting_cpu_seconds_per_subject={fitting:.4} startup_seconds={:.4} \
+         rest_cpu_per_subject={:.4}",
+        subjects.len(),
+        wall.0,
+        wall.1,
+        wall.2,
+        cpu.0,
+        cpu.1,
+        cpu.2,
+        startup_wall.0,
+        cpu.0 - fitting
+    )
+}
+
+/// Processor time of this process so far, in seconds.
+fn processor_seconds() -> f64 {
+    let mut t = libc::timespec {
+        tv_sec: 0,
+        tv_nsec: 0,
+    };
+    // SAFETY: `t` is a live local that clock_gettime fills.
+    let status = unsafe { libc::clock_gettime(libc::CLOCK_PROCESS_CPUTIME_ID, &mut t) };
+    assert_eq!(status, 0, "clock_gettime failed");
+    t.tv_sec as f64 + t.tv_nsec as f64 * 1e-9
+}
+
+/// (median, minimum, maximum) of `values`.
+fn spread(values: impl Iterator<Item = f64>) -> (f64, f64, f64) {
+    let mut v: Vec<f64> = values.collect();
+    v.sort_by(f64::total_cmp);
+    (v[v.len() / 2], v[0], v[v.len() - 1])
 }

@@ -16,13 +16,13 @@
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::Command;
-use std::time::Instant;
-use valuedrift::data::TrialTable;
 use valuedrift::model::load_model;
-use valuedrift::results::trials_table;
 use valuedrift::simulate::orchard_participant;
+
+#[path = "common/mod.rs"]
+mod common;
 
 const TRIALS: usize = 200;
 /// Subjects simulated and written at a time (so that this program's own memory stays small).
@@ -38,7 +38,7 @@ fn main() {
     } else {
         sizes
     };
-    let binary = release_binary();
+    let binary = common::release_binary();
     let dir = tempfile::tempdir().expect("a temporary folder");
     let mut lines = Vec::new();
     for &n in &sizes {
@@ -47,7 +47,7 @@ fn main() {
         let megabytes = std::fs::metadata(&data).map_or(0.0, |m| m.len() as f64 / 1e6);
         println!("cohort of {n} subjects x {TRIALS} trials: {megabytes:.0} MB of CSV");
         let fits = dir.path().join(format!("fits_{n}"));
-        let (peak, seconds) = measure(
+        let (peak, seconds, _) = common::measure(
             Command::new(&binary)
                 .args(["fit", "--model", "gainloss-linear", "--starts", "2"])
                 .args(["--threads", "2", "--data"])
@@ -58,7 +58,7 @@ fn main() {
         lines.push(format!(
             "fit subjects={n} peak_mb={peak:.1} seconds={seconds:.1}"
         ));
-        let (peak, seconds) = measure(
+        let (peak, seconds, _) = common::measure(
             Command::new(&binary)
                 .args(["export", "--model", "gainloss-linear", "--fits"])
                 .arg(&fits)
@@ -70,7 +70,7 @@ fn main() {
         lines.push(format!(
             "export subjects={n} peak_mb={peak:.1} seconds={seconds:.1}"
         ));
-        let (peak, seconds) = measure(
+        let (peak, seconds, _) = common::measure(
             Command::new(&binary)
                 .args([
                     "check",
@@ -99,22 +99,6 @@ fn main() {
     }
 }
 
-/// The release binary beside this example (target/release/valuedrift).
-fn release_binary() -> PathBuf {
-    let exe = std::env::current_exe().expect("the example's path");
-    let release = exe
-        .parent()
-        .and_then(Path::parent)
-        .expect("target/release/examples");
-    let binary = release.join("valuedrift");
-    assert!(
-        binary.exists(),
-        "{} is missing: run `cargo build --release` first",
-        binary.display()
-    );
-    binary
-}
-
 /// Simulates `n` subjects of the invented orchard cohort and writes them to `path`.
 fn write_cohort(path: &Path, n: usize) {
     let model = load_model("gainloss-linear").expect("a built-in model");
@@ -127,54 +111,7 @@ fn write_cohort(path: &Path, n: usize) {
                     .expect("the model runs on the orchard design")
             })
             .collect();
-        let table = TrialTable {
-            subjects,
-            present: vec!["outcome".into()],
-        };
-        let mut text = Vec::new();
-        trials_table(&table)
-            .write_csv(&mut text)
-            .expect("CSV in memory");
-        // The header once, at the top of the file.
-        let body = if first == 0 {
-            &text[..]
-        } else {
-            let end = text.iter().position(|&b| b == b'\n').map_or(0, |i| i + 1);
-            &text[end..]
-        };
-        file.write_all(body).expect("the data file is written");
+        common::write_subjects(&mut file, subjects, first == 0);
     }
     file.flush().expect("the data file is written");
-}
-
-/// Runs `command` (its output discarded) and returns the child's peak
-/// resident memory in MB and its wall time in seconds.
-// The child is reaped by wait4 below, which also reports its resource usage.
-#[allow(clippy::zombie_processes)]
-fn measure(command: &mut Command) -> (f64, f64) {
-    let start = Instant::now();
-    let child = command
-        .stdout(std::process::Stdio::null())
-        .stderr(std::process::Stdio::null())
-        .spawn()
-        .expect("the binary starts");
-    let pid = child.id() as libc::pid_t;
-    let mut status = 0;
-    // SAFETY: an all-zero rusage is a valid value for wait4 to fill.
-    let mut usage: libc::rusage = unsafe { std::mem::zeroed() };
-    // SAFETY: `pid` is our own child, not yet waited for; both pointers are to live locals.
-    let waited = unsafe { libc::wait4(pid, &mut status, 0, &mut usage) };
-    let seconds = start.elapsed().as_secs_f64();
-    assert_eq!(
-        waited,
-        pid,
-        "wait4 failed: {}",
-        std::io::Error::last_os_error()
-    );
-    assert!(
-        libc::WIFEXITED(status) && libc::WEXITSTATUS(status) == 0,
-        "the command failed: {command:?}"
-    );
-    // ru_maxrss is in kilobytes on Linux.
-    (usage.ru_maxrss as f64 / 1024.0, seconds)
 }

@@ -135,6 +135,14 @@ pub const SAME_OPTIMUM: f64 = 0.01;
 /// examination and escape search of [`search`], then standard errors at the best point. The
 /// starts depend on the seed and the subject's label only.
 pub fn fit_subject(likelihood: &SubjectLikelihood<'_>, options: &FitOptions) -> SubjectFit {
+    fit_subject_with_work(likelihood, options).0
+}
+
+/// As [`fit_subject`], with the likelihood evaluations each stage made (for benchmarks).
+pub fn fit_subject_with_work(
+    likelihood: &SubjectLikelihood<'_>,
+    options: &FitOptions,
+) -> (SubjectFit, search::Work) {
     let plan = StartPlan::new(likelihood, options.seed);
     let searched = search::search(
         likelihood,
@@ -142,7 +150,10 @@ pub fn fit_subject(likelihood: &SubjectLikelihood<'_>, options: &FitOptions) -> 
         options.starts.max(1),
         options.max_iterations,
     );
-    summarise_best(likelihood, &searched.runs, searched.best, searched.verdict)
+    let mut work = searched.work;
+    work.standard_errors = uncertainty::evaluations(likelihood.n_free());
+    let fit = summarise_best(likelihood, &searched.runs, searched.best, searched.verdict);
+    (fit, work)
 }
 
 /// The fit record of run `best` of several, counting the runs that reached it.

@@ -1,12 +1,15 @@
-//! One L-BFGS run from one start, through argmin, optionally with some parameters held fixed.
+//! One L-BFGS run from one start, through argmin, optionally with some parameters held fixed,
+//! and the rule that ends a run before its tolerance test when it has reached an optimum an
+//! earlier run found ([`EarlyStop`]).
 
 use crate::likelihood::SubjectLikelihood;
 use argmin::core::{
-    CostFunction, Error, Executor, Gradient, State, TerminationReason, TerminationStatus,
+    CostFunction, Error, Executor, Gradient, IterState, KV, Problem as ArgminProblem, Solver,
+    State, TerminationReason, TerminationStatus,
 };
 use argmin::solver::linesearch::MoreThuenteLineSearch;
 use argmin::solver::quasinewton::LBFGS;
-use std::cell::RefCell;
+use std::cell::{Cell, RefCell};
 
 /// Cost returned for a point where the log-posterior is not finite, so that the line search
 /// steps back instead of stopping.
@@ -24,6 +27,9 @@ pub enum Stop {
     IterationLimit,
     /// The start itself could not be evaluated or the solver could not be set up.
     Failed,
+    /// The run came within [`JOIN_GAP`] below and [`JOIN_DISTANCE`] of an optimum an earlier
+    /// run had reached ([`EarlyStop::Join`]).
+    Joined,
 }
 
 impl Stop {
@@ -34,6 +40,7 @@ impl Stop {
             Stop::NoImprovingStep => "no improving step along the search direction",
             Stop::IterationLimit => "iteration limit reached",
             Stop::Failed => "could not start",
+            Stop::Joined => "joined an optimum found by an earlier run",
         }
     }
 }
@@ -47,6 +54,94 @@ pub struct StartResult {
     pub objective: f64,
     /// Why the run stopped.
     pub stop: Stop,
+    /// Likelihood-with-gradient evaluations the run made (its start included).
+    pub evaluations: usize,
+}
+
+/// Largest shortfall of ln L + ln prior below a known optimum at which a run joins it: the
+/// tolerance that already counts two runs as having reached the same optimum.
+pub const JOIN_GAP: f64 = super::SAME_OPTIMUM;
+
+/// Largest distance (maximum norm, unconstrained scale) from a known optimum at which a run
+/// joins it.
+pub const JOIN_DISTANCE: f64 = 0.05;
+
+/// A rule that ends a run before its tolerance test, checked after every iteration.
+///
+/// L-BFGS with the Moré–Thuente line search never lowers the objective from one iterate to the
+/// next (the sufficient-decrease condition; Moré & Thuente 1994), so a run stays inside the
+/// region above its current value.
+#[derive(Clone, Copy, Debug)]
+pub enum EarlyStop<'k> {
+    /// Run to the tolerance test or the iteration limit.
+    Never,
+    /// Stop at an iterate whose objective is at most [`JOIN_GAP`] below, and not above, that of
+    /// one of these earlier end points (θ, objective) and within [`JOIN_DISTANCE`] of it: the
+    /// run has entered the optimum's immediate neighbourhood from below, where it can only
+    /// converge to that optimum unless the optimum is a saddle shallower than [`JOIN_GAP`]; had
+    /// it run on, it would have counted as reaching the same optimum (within
+    /// [`super::SAME_OPTIMUM`]) anyway. Only for runs that hold nothing.
+    Join(&'k [(Vec<f64>, f64)]),
+}
+
+/// A solver with an [`EarlyStop`] checked after its own termination tests. Its `init` is the
+/// trait's default (nothing), so the run's initial state must carry the start's cost and gradient.
+struct Watched<'k, S> {
+    inner: S,
+    rule: EarlyStop<'k>,
+    /// Why the rule stopped the run.
+    stopped: &'k Cell<Option<Stop>>,
+}
+
+type LbfgsState = IterState<Vec<f64>, Vec<f64>, (), (), (), f64>;
+
+impl<O, S: Solver<O, LbfgsState>> Solver<O, LbfgsState> for Watched<'_, S> {
+    fn name(&self) -> &str {
+        self.inner.name()
+    }
+
+    fn next_iter(
+        &mut self,
+        problem: &mut ArgminProblem<O>,
+        state: LbfgsState,
+    ) -> Result<(LbfgsState, Option<KV>), Error> {
+        self.inner.next_iter(problem, state)
+    }
+
+    fn terminate(&mut self, state: &LbfgsState) -> TerminationStatus {
+        let own = self.inner.terminate(state);
+        if own.terminated() {
+            return own;
+        }
+        let stop = match self.rule {
+            EarlyStop::Never => None,
+            EarlyStop::Join(known) => {
+                let objective = -state.get_cost();
+                let theta = state.get_param();
+                known
+                    .iter()
+                    .any(|(at, value)| {
+                        objective <= *value
+                            && value - objective <= JOIN_GAP
+                            && theta.is_some_and(|t| {
+                                t.iter()
+                                    .zip(at)
+                                    .all(|(a, b)| (a - b).abs() <= JOIN_DISTANCE)
+                            })
+                    })
+                    .then_some(Stop::Joined)
+            }
+        };
+        match stop {
+            Some(s) => {
+                self.stopped.set(Some(s));
+                TerminationStatus::Terminated(TerminationReason::SolverExit(
+                    s.describe().to_string(),
+                ))
+            }
+            None => TerminationStatus::NotTerminated,
+        }
+    }
 }
 
 /// The last evaluation: (θ, cost, gradient).
@@ -62,6 +157,8 @@ struct Problem<'a, 'b> {
     /// Indices of the free parameters being optimised.
     active: Vec<usize>,
     cache: RefCell<Option<Cached>>,
+    /// Evaluations of the likelihood made (cache hits not counted).
+    evaluations: &'a Cell<usize>,
 }
 
 impl Problem<'_, '_> {
@@ -83,6 +180,7 @@ impl Problem<'_, '_> {
         {
             return (*cost, grad.clone());
         }
+        self.evaluations.set(self.evaluations.get() + 1);
         let e = self.likelihood.evaluate(&self.full(reduced));
         let objective = e.ln_likelihood + e.ln_prior;
         let (cost, grad) = if objective.is_finite() && e.gradient.iter().all(|g| g.is_finite()) {
@@ -125,15 +223,30 @@ pub fn run_start(
     max_iterations: u64,
     held: &[usize],
 ) -> StartResult {
+    run_start_until(likelihood, start, max_iterations, held, EarlyStop::Never)
+}
+
+/// As [`run_start`], ended early by `rule` where it applies.
+pub fn run_start_until(
+    likelihood: &SubjectLikelihood<'_>,
+    start: Vec<f64>,
+    max_iterations: u64,
+    held: &[usize],
+    rule: EarlyStop<'_>,
+) -> StartResult {
+    debug_assert!(held.is_empty() || !matches!(rule, EarlyStop::Join(_)));
     let active: Vec<usize> = (0..start.len()).filter(|j| !held.contains(j)).collect();
+    let evaluations = Cell::new(0);
+    let stopped = Cell::new(None);
     let problem = Problem {
         likelihood,
         base: start.clone(),
         active,
         cache: RefCell::new(None),
+        evaluations: &evaluations,
     };
     let reduced_start = problem.reduce(&start);
-    let start_cost = problem.evaluate(&reduced_start).0;
+    let (start_cost, start_gradient) = problem.evaluate(&reduced_start);
     let failed = |stop| StartResult {
         theta: start.clone(),
         objective: if start_cost >= INVALID_COST {
@@ -142,20 +255,34 @@ pub fn run_start(
             -start_cost
         },
         stop,
+        evaluations: evaluations.get(),
     };
     if problem.active.is_empty() || start_cost >= INVALID_COST {
         return failed(Stop::Failed);
     }
-    let Ok(solver) = LBFGS::new(MoreThuenteLineSearch::new(), 7)
+    let Ok(lbfgs) = LBFGS::new(MoreThuenteLineSearch::new(), 7)
         .with_tolerance_grad(1e-6)
         .and_then(|s| s.with_tolerance_cost(1e-12))
     else {
         return failed(Stop::Failed);
     };
+    let solver = Watched {
+        inner: lbfgs,
+        rule,
+        stopped: &stopped,
+    };
     let base = problem.base.clone();
     let active = problem.active.clone();
     let outcome = Executor::new(problem, solver)
-        .configure(|state| state.param(reduced_start.clone()).max_iters(max_iterations))
+        .configure(|state| {
+            // With cost and gradient given, L-BFGS's own initialisation evaluates nothing, so
+            // the wrapper need not pass it on.
+            state
+                .param(reduced_start.clone())
+                .cost(start_cost)
+                .gradient(start_gradient)
+                .max_iters(max_iterations)
+        })
         .run();
     match outcome {
         Ok(result) => {
@@ -169,11 +296,12 @@ pub fn run_start(
                 theta[j] = x;
             }
             let cost = state.get_best_cost();
-            let stop = match state.get_termination_status() {
-                TerminationStatus::Terminated(TerminationReason::SolverConverged) => {
+            let stop = match (stopped.get(), state.get_termination_status()) {
+                (Some(early), _) => early,
+                (_, TerminationStatus::Terminated(TerminationReason::SolverConverged)) => {
                     Stop::Tolerance
                 }
-                TerminationStatus::Terminated(TerminationReason::MaxItersReached) => {
+                (_, TerminationStatus::Terminated(TerminationReason::MaxItersReached)) => {
                     Stop::IterationLimit
                 }
                 _ => Stop::NoImprovingStep,
@@ -186,6 +314,7 @@ pub fn run_start(
                     -cost
                 },
                 stop,
+                evaluations: evaluations.get(),
             }
         }
         // A line search that cannot proceed from the start ends this run there; other starts

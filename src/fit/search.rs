@@ -31,7 +31,7 @@
 //! interior. Otherwise the status says, in words, what is wrong.
 
 use super::SAME_OPTIMUM;
-use super::optimise::{StartResult, Stop, run_start};
+use super::optimise::{EarlyStop, StartResult, Stop, run_start, run_start_until};
 use super::starts::StartPlan;
 use crate::likelihood::SubjectLikelihood;
 use crate::model::Transform;
@@ -102,6 +102,9 @@ struct Findings {
     below_baseline: bool,
     /// Largest |gradient| (unconstrained scale) of the parameters not at a bound.
     interior_gradient: f64,
+    /// Likelihood evaluations the examination made (the trace of choice probabilities counts
+    /// as one).
+    evaluations: usize,
 }
 
 impl Findings {
@@ -139,6 +142,44 @@ pub struct Searched {
     pub best: usize,
     /// The verdict.
     pub verdict: Verdict,
+    /// Likelihood evaluations by stage.
+    pub work: Work,
+}
+
+/// Likelihood evaluations (with gradient) of one subject's fit, by stage: what a benchmark
+/// prints to show where a fit's time goes.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Work {
+    /// Scoring the candidate starts.
+    pub screen: usize,
+    /// Each screened start's L-BFGS run, in order.
+    pub starts: Vec<usize>,
+    /// L-BFGS restarted at a best point whose interior gradient was not small.
+    pub restarts: usize,
+    /// Searches from the interior for suspect parameters (held stage and release).
+    pub interior: usize,
+    /// Probes of the faces of the parameter box (held stage and release).
+    pub faces: usize,
+    /// Fresh starts after a flat or value-blind optimum.
+    pub fresh: usize,
+    /// Examinations of the best point (gradient, flatness, choice probabilities).
+    pub examine: usize,
+    /// Standard errors (observed information) at the best point.
+    pub standard_errors: usize,
+}
+
+impl Work {
+    /// Every evaluation counted.
+    pub fn total(&self) -> usize {
+        self.screen
+            + self.starts.iter().sum::<usize>()
+            + self.restarts
+            + self.interior
+            + self.faces
+            + self.fresh
+            + self.examine
+            + self.standard_errors
+    }
 }
 
 /// Index of the run with the highest objective (the earliest among equals).
@@ -158,14 +199,37 @@ pub fn search(
     starts: usize,
     max_iterations: u64,
 ) -> Searched {
-    let mut runs: Vec<StartResult> = plan
-        .screened(likelihood, starts)
-        .into_iter()
-        .map(|theta| run_start(likelihood, theta, max_iterations, &[]))
-        .collect();
+    // End points of runs that passed their tolerance test: a later run that reaches one of
+    // them from below stops there (EarlyStop::Join).
+    let mut known: Vec<(Vec<f64>, f64)> = Vec::new();
+    let joining = |runs: &mut Vec<StartResult>, start: Vec<f64>, known: &mut Vec<_>| {
+        let run = run_start_until(
+            likelihood,
+            start,
+            max_iterations,
+            &[],
+            EarlyStop::Join(known),
+        );
+        if run.stop == Stop::Tolerance {
+            known.push((run.theta.clone(), run.objective));
+        }
+        let evaluations = run.evaluations;
+        runs.push(run);
+        evaluations
+    };
+    let mut runs: Vec<StartResult> = Vec::new();
+    let mut work = Work {
+        screen: starts * super::starts::SCREEN_FACTOR,
+        ..Work::default()
+    };
+    for theta in plan.screened(likelihood, starts) {
+        let evaluations = joining(&mut runs, theta, &mut known);
+        work.starts.push(evaluations);
+    }
     let mut best = best_of(&runs);
     let mut next_fresh = starts * super::starts::SCREEN_FACTOR;
     let mut findings = examine(likelihood, plan, &runs[best].theta);
+    work.examine += findings.evaluations;
     let mut verified = false;
     for _ in 0..ESCAPE_ROUNDS {
         let before = runs[best].objective;
@@ -173,6 +237,7 @@ pub fn search(
         if findings.interior_gradient >= GRADIENT_CONVERGED {
             // L-BFGS stopped short of a stationary point: restart it there with a fresh memory.
             runs.push(run_start(likelihood, theta.clone(), max_iterations, &[]));
+            work.restarts += runs[runs.len() - 1].evaluations;
         }
         let suspects = findings.suspects();
         for &j in &suspects {
@@ -183,7 +248,8 @@ pub fn search(
                 }
                 start[j] = plan.level(j, q);
                 let held = run_start(likelihood, start, PROBE_ITERATIONS, &[j]);
-                runs.push(run_start(likelihood, held.theta, max_iterations, &[]));
+                work.interior += held.evaluations;
+                work.interior += joining(&mut runs, held.theta, &mut known);
             }
         }
         // Faces of the box: optima with one parameter at a bound (a learning rate or an effort
@@ -201,20 +267,16 @@ pub fn search(
                 let mut start = theta.clone();
                 start[j] = face;
                 let held = run_start(likelihood, start, FACE_ITERATIONS, &[j]);
+                work.faces += held.evaluations;
                 if held.objective > runs[best].objective - FACE_MARGIN {
-                    runs.push(run_start(
-                        likelihood,
-                        held.theta.clone(),
-                        max_iterations,
-                        &[],
-                    ));
+                    work.faces += joining(&mut runs, held.theta.clone(), &mut known);
                 }
                 runs.push(held);
             }
         }
         if findings.degenerate() {
             for start in plan.fresh(next_fresh, starts) {
-                runs.push(run_start(likelihood, start, max_iterations, &[]));
+                work.fresh += joining(&mut runs, start, &mut known);
             }
             next_fresh += starts;
         }
@@ -225,6 +287,7 @@ pub fn search(
             break;
         }
         findings = examine(likelihood, plan, &runs[best].theta);
+        work.examine += findings.evaluations;
         verified = false;
     }
     let verdict = judge(likelihood, &runs[best], &findings, verified, runs.len());
@@ -232,6 +295,7 @@ pub fn search(
         runs,
         best,
         verdict,
+        work,
     }
 }
 
@@ -327,6 +391,7 @@ fn judge(
 /// Examines the point θ: bounds, flat parameters, value-blindness, baseline.
 fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) -> Findings {
     let evaluation = likelihood.evaluate(theta);
+    let evaluations = std::cell::Cell::new(2); // this one and the trace below
     let natural = likelihood.natural(theta);
     let model = likelihood.model();
     let free = model.free_slots();
@@ -343,6 +408,7 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
             [0.0, 1.0].iter().all(|&q| {
                 let mut moved = theta.to_vec();
                 moved[j] = plan.level(j, q);
+                evaluations.set(evaluations.get() + 1);
                 let l = likelihood.evaluate(&moved).ln_likelihood;
                 l.is_finite() && (l - evaluation.ln_likelihood).abs() < FLAT
             })
@@ -371,6 +437,7 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
         value_blind,
         below_baseline,
         interior_gradient,
+        evaluations: evaluations.get(),
     }
 }
 

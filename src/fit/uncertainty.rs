@@ -29,6 +29,12 @@ fn hessian(likelihood: &SubjectLikelihood<'_>, theta: &[f64]) -> DMatrix<f64> {
     (&h + h.transpose()) * 0.5
 }
 
+/// Likelihood evaluations [`summarise`] makes for `n_free` free parameters: the point itself
+/// and two gradients per parameter for the Hessian.
+pub(crate) fn evaluations(n_free: usize) -> usize {
+    1 + 2 * n_free
+}
+
 /// Builds the fit record from the best start.
 pub fn summarise(
     likelihood: &SubjectLikelihood<'_>,
