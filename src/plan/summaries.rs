@@ -265,12 +265,12 @@ pub fn model_recovery(plan: &Plan, studies: &[Study]) -> Vec<ModelRecovery> {
                     continue;
                 };
                 ran += 1;
-                let pxp = &bms.protected_exceedance;
-                let top = (0..pxp.len())
-                    .max_by(|&a, &b| pxp[a].total_cmp(&pxp[b]))
+                let protected_exceedance = &bms.protected_exceedance;
+                let top = (0..protected_exceedance.len())
+                    .max_by(|&a, &b| protected_exceedance[a].total_cmp(&protected_exceedance[b]))
                     .unwrap_or(0);
                 won += usize::from(top == g);
-                pxp_sum += pxp[g];
+                pxp_sum += protected_exceedance[g];
             }
             rows.push(ModelRecovery {
                 trials,

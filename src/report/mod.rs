@@ -311,7 +311,8 @@ fn model_selection(selection: &Tidy) -> Result<Section, ReportError> {
          (all participants, then each group).</p>",
     );
     for scope in &scopes {
-        let (mut models, mut frequency, mut pxp) = (Vec::new(), Vec::new(), Vec::new());
+        let (mut models, mut frequency, mut protected_exceedance) =
+            (Vec::new(), Vec::new(), Vec::new());
         let mut risk = String::new();
         for (i, r) in selection.rows.iter().enumerate() {
             if selection.text(r, "scope") != scope {
@@ -319,7 +320,7 @@ fn model_selection(selection: &Tidy) -> Result<Section, ReportError> {
             }
             models.push(selection.text(r, "model").to_string());
             frequency.push(selection.number(i, "expected_frequency")?.unwrap_or(0.0));
-            pxp.push(
+            protected_exceedance.push(
                 selection
                     .number(i, "protected_exceedance_probability")?
                     .unwrap_or(0.0),
@@ -332,7 +333,10 @@ fn model_selection(selection: &Tidy) -> Result<Section, ReportError> {
             &models,
             &[
                 ("expected frequency".to_string(), frequency),
-                ("protected exceedance probability".to_string(), pxp),
+                (
+                    "protected exceedance probability".to_string(),
+                    protected_exceedance,
+                ),
             ],
         )?;
         body.push_str(&figure(
