@@ -56,14 +56,7 @@ fn main() {
     let name = argument.as_deref().unwrap_or("gainloss-linear");
     let (model, mut rng) = (load_model(name).expect("a built-in model"), seeded());
     let design = orchard_design("s00", "bench", TRIALS, &mut rng);
-    // Fixed parameters keep their fixed value (orchard_generating_values draws a value for every
-    // parameter it has a range for, fixed or not).
-    let values: Vec<f64> = orchard_generating_values(&model, &mut rng)
-        .expect("orchard ranges")
-        .iter()
-        .zip(&model.parameters)
-        .map(|(&x, p)| p.fixed.unwrap_or(x))
-        .collect();
+    let values: Vec<f64> = orchard_generating_values(&model, &mut rng).expect("orchard ranges");
     let settings = SimulationSettings::default();
     let subject = simulate_subject(&model, &values, &design, settings, &mut rng)
         .expect("the model runs on the orchard design");

@@ -126,7 +126,10 @@ pub fn orchard_generating_values(model: &Model, rng: &mut dyn Rng) -> Option<Vec
                 "threshold_gap" => (0.2, 0.8),
                 _ => return p.fixed,
             };
-            Some(rng.random_range(lo..hi))
+            // Drawn even for a fixed parameter, so the random stream does not depend on which
+            // parameters a model fixes.
+            let drawn = rng.random_range(lo..hi);
+            Some(p.fixed.unwrap_or(drawn))
         })
         .collect()
 }

@@ -60,18 +60,13 @@ fn participant(model: &Model, rng: &mut ChaCha8Rng) -> Subject {
         trial.offers[0].reward = Some(0.1 * (i % 7) as f64);
         trial.offers[1].reward = Some(0.4);
     }
-    let values: Vec<f64> = orchard_generating_values(model, rng)
-        .unwrap_or_else(|| {
-            model
-                .parameters
-                .iter()
-                .map(|p| p.fixed.unwrap_or(0.5))
-                .collect()
-        })
-        .iter()
-        .zip(&model.parameters)
-        .map(|(&x, p)| p.fixed.unwrap_or(x))
-        .collect();
+    let values: Vec<f64> = orchard_generating_values(model, rng).unwrap_or_else(|| {
+        model
+            .parameters
+            .iter()
+            .map(|p| p.fixed.unwrap_or(0.5))
+            .collect()
+    });
     simulate_subject(model, &values, &design, SimulationSettings::default(), rng).unwrap()
 }
 
