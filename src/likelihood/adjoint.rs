@@ -28,6 +28,9 @@
 
 use super::SubjectLikelihood;
 use super::design::{Origin, origin_linear};
+use super::design::TrialColumns;
+use crate::data::Subject;
+use crate::model::Model;
 use crate::model::components::{Observation, Signal};
 use crate::model::dual::{Local, constant};
 
@@ -40,11 +43,93 @@ pub(super) struct Adjoint {
     pub d_theta: Vec<f64>,
 }
 
-/// What the forward passes leave for the backward pass, per trial (`drifts`, `d_drifts`,
-/// `learned`) or per offered option of each trial (2·trial + k, a then b).
-struct Tape {
-    /// The offered options.
+/// The trial columns the fast path reads, laid out once per subject ([`FastColumns::bind`]):
+/// per offered option (2·trial + k, a then b) the option's identity, its offered reward, each
+/// cost attribute's amount and the drift mapping's own attribute; per trial the observation
+/// and what learning reads of it.
+#[derive(Clone)]
+pub(super) struct FastColumns {
+    /// False when some trial does not offer exactly two options (the fast path is not taken).
+    two_options: bool,
     options: Vec<usize>,
+    /// Offered rewards (NaN where missing), the values of models that do not learn.
+    rewards: Vec<f64>,
+    /// Per cost attribute in the model's order, its amounts, or `None` when the design lacks
+    /// them (the fast path is not taken).
+    amounts: Vec<Option<Vec<f64>>>,
+    /// The mapping's own attribute (zero where the design has none).
+    own: Vec<f64>,
+    observations: Vec<Observation>,
+    /// (option chosen, outcome) of each trial with both, the trials that learn.
+    outcomes: Vec<Option<(usize, f64)>>,
+}
+
+impl FastColumns {
+    /// The columns of `subject` for `model`, from its trials and the bound design.
+    pub(super) fn bind(model: &Model, subject: &Subject, design: &TrialColumns) -> FastColumns {
+        let trials = &subject.trials;
+        let two_options = trials.iter().all(|t| t.offers.len() == 2);
+        let per_option = |f: &dyn Fn(&crate::data::Offer) -> f64| -> Vec<f64> {
+            trials.iter().flat_map(|t| t.offers.iter().map(f)).collect()
+        };
+        // The k-th pair of a trial's attribute values (cost attributes other than effort, then
+        // the mapping's own).
+        let attribute = |extra: usize| -> Option<Vec<f64>> {
+            let mut out = Vec::with_capacity(2 * trials.len());
+            for index in 0..trials.len() {
+                out.extend_from_slice(design.attribute_values(index).chunks_exact(2).nth(extra)?);
+            }
+            Some(out)
+        };
+        let mut extra = 0;
+        let amounts = model
+            .costs
+            .iter()
+            .map(|cost| {
+                if cost.is_effort() {
+                    Some(per_option(&|o| o.effort))
+                } else {
+                    extra += 1;
+                    attribute(extra - 1)
+                }
+            })
+            .collect();
+        let own = attribute(extra).unwrap_or_else(|| vec![0.0; 2 * trials.len()]);
+        FastColumns {
+            two_options,
+            options: trials
+                .iter()
+                .flat_map(|t| t.offers.iter().map(|o| o.option))
+                .collect(),
+            rewards: per_option(&|o| o.reward.unwrap_or(f64::NAN)),
+            amounts,
+            own,
+            observations: trials
+                .iter()
+                .map(|t| Observation {
+                    choice: t.choice,
+                    rt: t.rt,
+                })
+                .collect(),
+            outcomes: trials
+                .iter()
+                .map(|t| match (t.choice, t.outcome) {
+                    (Some(choice), Some(r)) => Some((t.offers.get(choice.index())?.option, r)),
+                    _ => None,
+                })
+                .collect(),
+        }
+    }
+}
+
+/// What the forward passes leave for the backward pass, per trial (`drifts`, `d_drifts`,
+/// `learned`) or per offered option of each trial (2·trial + k, a then b), with the working
+/// buffers of one evaluation. One tape per thread is kept between evaluations ([`TAPE`]), so an
+/// evaluation allocates nothing once the tape has grown to the subject's size; every entry read
+/// is written earlier in the same evaluation (each component fills its whole row, the learning
+/// step its trial's entry before `learned` marks it).
+#[derive(Default)]
+struct Tape {
     /// Per option, one row per appraisal step (each cost attribute, then the weighting):
     /// the step's output with its partial derivatives; step m of option e at m·2n + e.
     steps: Vec<Local>,
@@ -59,6 +144,36 @@ struct Tape {
     updates: Vec<Local>,
     /// Per learned trial with forgetting: initial − Q of every option before the update.
     forgotten: Vec<f64>,
+    /// The values before each trial's outcome, per offered option.
+    values: Vec<f64>,
+    /// Working buffers: an appraisal step's input, the value differences, a stretch's partial
+    /// derivatives and the adjoint of the values.
+    input: Vec<f64>,
+    differences: Vec<f64>,
+    d_c: Vec<f64>,
+    lambda: Vec<f64>,
+}
+
+impl Tape {
+    /// Sizes the tape for n trials with `n_steps` appraisal steps; entries that the evaluation
+    /// writes before reading keep whatever they held.
+    fn prepare(&mut self, n: usize, n_steps: usize) {
+        let blank = Local::new(0.0, 0.0, [(0, 0.0); 2]);
+        self.steps.resize(n_steps * 2 * n, blank);
+        self.drifts.resize(n, blank);
+        self.updates.resize(n, blank);
+        self.d_drifts.clear();
+        self.d_drifts.resize(n, 0.0);
+        self.learned.clear();
+        self.forgotten.clear();
+        self.values.clear();
+    }
+}
+
+thread_local! {
+    /// This thread's tape, lent to one evaluation at a time (an evaluation that finds it lent
+    /// starts a fresh one).
+    static TAPE: std::cell::Cell<Option<Box<Tape>>> = const { std::cell::Cell::new(None) };
 }
 
 impl SubjectLikelihood<'_> {
@@ -66,14 +181,22 @@ impl SubjectLikelihood<'_> {
     /// values `theta` of every model parameter by slot, or `None` when the model is outside the
     /// fast path.
     pub(super) fn run_adjoint(&self, natural: &[f64], theta: &[f64]) -> Option<Adjoint> {
+        let mut tape = TAPE.with(|t| t.take()).unwrap_or_default();
+        let result = self.run_adjoint_on(natural, theta, &mut tape);
+        TAPE.with(|t| t.set(Some(tape)));
+        result
+    }
+
+    /// [`SubjectLikelihood::run_adjoint`] on a lent tape.
+    fn run_adjoint_on(&self, natural: &[f64], theta: &[f64], tape: &mut Tape) -> Option<Adjoint> {
         let model = self.model;
         let mapping = model.drift.as_ref()?;
         if model.choice.signal() != Signal::DriftDifference {
             return None;
         }
-        let trials = &self.subject.trials;
-        let n = trials.len();
-        if trials.iter().any(|t| t.offers.len() != 2) {
+        let columns = &self.fast_columns;
+        let n = self.subject.trials.len();
+        if !columns.two_options {
             return None;
         }
         // Stretches of trials with the same component parameters (one without variation).
@@ -94,35 +217,21 @@ impl SubjectLikelihood<'_> {
         };
         let n_options = self.subject.options.len().max(2);
         let n_steps = model.costs.len() + 1;
-        let blank = Local::new(0.0, 0.0, [(0, 0.0); 2]);
-        let mut tape = Tape {
-            options: trials
-                .iter()
-                .flat_map(|t| [t.offers[0].option, t.offers[1].option])
-                .collect(),
-            steps: vec![blank; n_steps * 2 * n],
-            drifts: vec![blank; n],
-            d_drifts: vec![0.0; n],
-            learned: Vec::with_capacity(n),
-            updates: vec![blank; n],
-            forgotten: Vec::new(),
-        };
+        tape.prepare(n, n_steps);
         // The values before each trial's outcome: the learning recursion alone.
-        let mut values = Vec::with_capacity(2 * n);
         let learns = model.learns();
         let mut q = vec![initial; n_options];
         for (from, until, p) in &stretches {
-            for (index, trial) in trials.iter().enumerate().take(*until).skip(*from) {
-                for offer in &trial.offers {
-                    values.push(if learns {
-                        q[offer.option]
-                    } else {
-                        offer.reward.unwrap_or(f64::NAN)
-                    });
+            for index in *from..*until {
+                let (e0, e1) = (2 * index, 2 * index + 2);
+                if learns {
+                    tape.values
+                        .extend(columns.options[e0..e1].iter().map(|&option| q[option]));
+                } else {
+                    tape.values.extend_from_slice(&columns.rewards[e0..e1]);
                 }
-                let learned = match (trial.choice, trial.outcome) {
-                    (Some(choice), Some(r)) if learns => {
-                        let chosen = trial.offers[choice.index()].option;
+                let learned = match columns.outcomes[index] {
+                    Some((chosen, r)) if learns => {
                         let update = &mut tape.updates[index];
                         if !model.learning.update_local(q[chosen], r, p, update) {
                             return None;
@@ -149,30 +258,27 @@ impl SubjectLikelihood<'_> {
             d_theta: vec![0.0; natural.len()],
         };
         // Appraisal, drift and choice stage, component by component over each stretch.
-        let mut amounts = Vec::new();
-        let mut differences = Vec::new();
-        let mut d_c = Vec::new();
+        let Tape {
+            steps,
+            drifts,
+            d_drifts,
+            learned,
+            updates,
+            forgotten,
+            values,
+            input,
+            differences,
+            d_c,
+            lambda,
+        } = tape;
         for (from, until, p) in &stretches {
             let (e0, e1) = (2 * from, 2 * until);
-            let mut input = values[e0..e1].to_vec();
-            let mut extra = 0;
-            for (m, cost) in model.costs.iter().enumerate() {
-                amounts.clear();
-                for (index, trial) in trials.iter().enumerate().take(*until).skip(*from) {
-                    if cost.is_effort() {
-                        amounts.extend(trial.offers.iter().map(|o| o.effort));
-                    } else {
-                        let chunk = self
-                            .design
-                            .attribute_values(index)
-                            .chunks_exact(2)
-                            .nth(extra)?;
-                        amounts.extend_from_slice(chunk);
-                    }
-                }
-                extra += usize::from(!cost.is_effort());
-                let row = &mut tape.steps[m * 2 * n + e0..m * 2 * n + e1];
-                if !cost.shape.subjective_values_local(&input, &amounts, p, row) {
+            input.clear();
+            input.extend_from_slice(&values[e0..e1]);
+            for (m, amounts) in columns.amounts.iter().enumerate() {
+                let amounts = &amounts.as_ref()?[e0..e1];
+                let row = &mut steps[m * 2 * n + e0..m * 2 * n + e1];
+                if !model.costs[m].shape.subjective_values_local(input, amounts, p, row) {
                     return None;
                 }
                 input
@@ -181,62 +287,42 @@ impl SubjectLikelihood<'_> {
                     .for_each(|(x, step)| *x = step.value);
             }
             // The mapping's own attribute follows the cost attributes.
-            amounts.clear();
-            for index in *from..*until {
-                match self
-                    .design
-                    .attribute_values(index)
-                    .chunks_exact(2)
-                    .nth(extra)
-                {
-                    Some(own) => amounts.extend_from_slice(own),
-                    None => amounts.extend([0.0, 0.0]),
-                }
-            }
             let m = n_steps - 1;
-            let row = &mut tape.steps[m * 2 * n + e0..m * 2 * n + e1];
-            if !mapping.weighted_values_local(&input, &amounts, p, row) {
+            let row = &mut steps[m * 2 * n + e0..m * 2 * n + e1];
+            if !mapping.weighted_values_local(input, &columns.own[e0..e1], p, row) {
                 return None;
             }
             differences.clear();
             differences.extend(row.chunks_exact(2).map(|x| x[0].value - x[1].value));
-            if !mapping.drifts_local(&differences, p, &mut tape.drifts[*from..*until]) {
+            if !mapping.drifts_local(differences, p, &mut drifts[*from..*until]) {
                 return None;
             }
             let p_dual: Vec<_> = p.iter().map(|&x| constant(x)).collect();
             let prepared = model.choice.prepare(&p_dual, self.context);
             d_c.clear();
             d_c.resize(p.len(), 0.0);
-            let mut d_signal = [0.0];
-            let stretch = trials[*from..*until]
-                .iter()
-                .zip(&tape.drifts[*from..*until])
-                .zip(&mut tape.d_drifts[*from..*until]);
-            for ((trial, drift), d_drift) in stretch {
-                let observation = Observation {
-                    choice: trial.choice,
-                    rt: trial.rt,
-                };
-                let scored = prepared
-                    .ln_likelihood_local(&[drift.value], &observation, &mut d_signal, &mut d_c)
-                    .ok()?;
-                if let Some(ln_trial) = scored {
-                    out.ln_likelihood += ln_trial;
-                    *d_drift = d_signal[0];
-                }
-            }
-            self.flush(*from, &d_c, theta, &mut out);
+            prepared
+                .ln_likelihood_local_batch(
+                    &drifts[*from..*until],
+                    &columns.observations[*from..*until],
+                    &mut d_drifts[*from..*until],
+                    d_c,
+                    &mut out.ln_likelihood,
+                )
+                .ok()?;
+            self.flush(*from, d_c, theta, &mut out);
         }
         // Backward through the recursion, stretch by stretch.
-        let mut lambda = vec![0.0; n_options];
+        lambda.clear();
+        lambda.resize(n_options, 0.0);
         let mut d_initial = 0.0;
-        let mut forgotten = tape.forgotten.chunks_exact(n_options).rev();
+        let mut forgotten = forgotten.chunks_exact(n_options).rev();
         for (from, until, p) in stretches.iter().rev() {
             d_c.clear();
             d_c.resize(p.len(), 0.0);
             for index in (*from..*until).rev() {
-                if let Some(chosen) = tape.learned[index] {
-                    let update = &tape.updates[index];
+                if let Some(chosen) = learned[index] {
+                    let update = &updates[index];
                     if let Some(slot) = model.forget_slot {
                         let before = forgotten.next().expect("one row per learned trial");
                         let rate = p[slot];
@@ -248,34 +334,34 @@ impl SubjectLikelihood<'_> {
                             }
                         }
                     }
-                    add(&mut d_c, lambda[chosen], &update.d_parameters);
+                    add(d_c, lambda[chosen], &update.d_parameters);
                     lambda[chosen] *= update.d_input;
                 }
-                let d_drift = tape.d_drifts[index];
+                let d_drift = d_drifts[index];
                 if d_drift != 0.0 {
-                    let drift = &tape.drifts[index];
-                    add(&mut d_c, d_drift, &drift.d_parameters);
+                    let drift = &drifts[index];
+                    add(d_c, d_drift, &drift.d_parameters);
                     let d_difference = d_drift * drift.d_input;
                     for (k, sign) in [(0, 1.0), (1, -1.0)] {
                         let e = 2 * index + k;
                         let mut d_x = sign * d_difference;
                         for m in (0..n_steps).rev() {
-                            let step = &tape.steps[m * 2 * n + e];
-                            add(&mut d_c, d_x, &step.d_parameters);
+                            let step = &steps[m * 2 * n + e];
+                            add(d_c, d_x, &step.d_parameters);
                             d_x *= step.d_input;
                         }
-                        lambda[tape.options[e]] += d_x;
+                        lambda[columns.options[e]] += d_x;
                     }
                 }
             }
-            self.flush(*from, &d_c, theta, &mut out);
+            self.flush(*from, d_c, theta, &mut out);
         }
         if let (Some(slot), true) = (model.initial_slot, learns) {
             d_initial += lambda.iter().sum::<f64>();
             d_c.clear();
             d_c.resize(stretches[0].2.len(), 0.0);
             d_c[slot] = d_initial;
-            self.flush(0, &d_c, theta, &mut out);
+            self.flush(0, d_c, theta, &mut out);
         }
         Some(out)
     }

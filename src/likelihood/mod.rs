@@ -94,6 +94,8 @@ pub struct SubjectLikelihood<'a> {
     design: TrialColumns,
     /// Transform of every model parameter by slot (free ones as in `transforms`).
     slot_transforms: Vec<Transform>,
+    /// The trial columns of the fast path, laid out once.
+    fast_columns: adjoint::FastColumns,
 }
 
 /// Upper limit of the earliest possible response, ndt − ndt_range/2, relative to the fastest
@@ -196,6 +198,7 @@ impl<'a> SubjectLikelihood<'a> {
             slot_transforms[slot] = transform;
             transforms.push(transform);
         }
+        let fast_columns = adjoint::FastColumns::bind(model, subject, &design);
         Ok(SubjectLikelihood {
             model,
             subject,
@@ -205,6 +208,7 @@ impl<'a> SubjectLikelihood<'a> {
             group_prior: None,
             design,
             slot_transforms,
+            fast_columns,
         })
     }
 

@@ -32,14 +32,14 @@
 
 use super::{
     ChoiceStage, Entry, NoLocalForm, Observation, Options, PreparedChoice, Signal, Slots,
-    SubjectContext, only_options,
+    SubjectContext, local_trial_by_trial, only_options,
 };
 use crate::data::Choice;
 use crate::first_passage::{
     Bound, DensityGradient, DiffusionParams, ln_bound_probability_with_gradient,
     ln_density_with_gradient, ln_survival, ln_survival_with_gradient, mean_decision_time, sample,
 };
-use crate::model::dual::{D, chain};
+use crate::model::dual::{D, Local, chain};
 use nalgebra::{Const, SVector, U1};
 use num_dual::{Derivative, DualNum, DualSVec64};
 use rand::{Rng, RngExt};
@@ -405,6 +405,49 @@ impl PreparedChoice for Prepared<'_> {
         let partials: [f64; 8] = score.eps.unwrap_generic(Const::<8>, U1).into();
         self.add_partials(&partials, d_signal, d_parameters);
         Ok(Some(score.re))
+    }
+
+    /// Trials whose score is the log-density itself (a response with its time, no lapse, no
+    /// active lock) go straight to the engine, the stage parameters' partial derivatives summed
+    /// over the stretch before they are added to their slots; the others take
+    /// [`PreparedChoice::ln_likelihood_local`].
+    fn ln_likelihood_local_batch(
+        &self,
+        drifts: &[Local],
+        observations: &[Observation],
+        d_drifts: &mut [f64],
+        d_parameters: &mut [f64],
+        total: &mut f64,
+    ) -> Result<(), NoLocalForm> {
+        let (Some(base), None) = (self.base, self.local_lapse_terms) else {
+            return local_trial_by_trial(self, drifts, observations, d_drifts, d_parameters, total);
+        };
+        let mut stage = [0.0; 7];
+        let mut d_signal = [0.0];
+        for ((drift, observation), d_drift) in drifts.iter().zip(observations).zip(d_drifts) {
+            let params = base.with_drift(drift.value);
+            if let (Some(choice), Some(rt)) = (observation.choice, observation.rt)
+                && self.active_lock(&params).is_none()
+            {
+                let (ln_f, g) = ln_density_with_gradient(rt, bound_of(choice), &params);
+                let partials = local_partials(g);
+                *total += ln_f;
+                *d_drift = partials[0];
+                stage
+                    .iter_mut()
+                    .zip(&partials[1..])
+                    .for_each(|(sum, d)| *sum += d);
+            } else if let Some(ln_trial) =
+                self.ln_likelihood_local(&[drift.value], observation, &mut d_signal, d_parameters)?
+            {
+                *total += ln_trial;
+                *d_drift = d_signal[0];
+            }
+        }
+        for (slot, d) in self.stage.slots().into_iter().zip(stage) {
+            d_parameters[slot] += d;
+        }
+        Ok(())
     }
 
     fn probabilities(&self, signal: &[f64]) -> Vec<f64> {

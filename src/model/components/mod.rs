@@ -228,6 +228,22 @@ pub trait PreparedChoice {
     ) -> Result<Option<f64>, NoLocalForm> {
         Err(NoLocalForm)
     }
+    /// [`PreparedChoice::ln_likelihood_local`] over the trials of a stretch, for stages read by
+    /// one drift (trial i's is `drifts[i].value`): adds each scored trial's ln ℓᵢ to `total` in
+    /// trial order, writes ∂ln ℓᵢ/∂driftᵢ to `d_drifts[i]` (untouched for a trial not scored)
+    /// and adds the stage parameters' partial derivatives to `d_parameters`. The default scores
+    /// trial by trial ([`local_trial_by_trial`]); a stage may override it to keep its own
+    /// parameters' sums in registers.
+    fn ln_likelihood_local_batch(
+        &self,
+        drifts: &[Local],
+        observations: &[Observation],
+        d_drifts: &mut [f64],
+        d_parameters: &mut [f64],
+        total: &mut f64,
+    ) -> Result<(), NoLocalForm> {
+        local_trial_by_trial(self, drifts, observations, d_drifts, d_parameters, total)
+    }
     /// P(choose each offered option | signal).
     fn probabilities(&self, signal: &[f64]) -> Vec<f64>;
     /// Expected decision time and expected response time given the signal, where the stage
@@ -269,6 +285,28 @@ pub const CHOICE_STAGES: &[Entry<dyn ChoiceStage>] = &[
     choice_race::WALD_ENTRY,
     choice_race::BALLISTIC_ENTRY,
 ];
+
+/// [`PreparedChoice::ln_likelihood_local_batch`] by one call of
+/// [`PreparedChoice::ln_likelihood_local`] per trial.
+pub fn local_trial_by_trial<P: PreparedChoice + ?Sized>(
+    stage: &P,
+    drifts: &[Local],
+    observations: &[Observation],
+    d_drifts: &mut [f64],
+    d_parameters: &mut [f64],
+    total: &mut f64,
+) -> Result<(), NoLocalForm> {
+    let mut d_signal = [0.0];
+    for ((drift, observation), d_drift) in drifts.iter().zip(observations).zip(d_drifts) {
+        if let Some(ln_trial) =
+            stage.ln_likelihood_local(&[drift.value], observation, &mut d_signal, d_parameters)?
+        {
+            *total += ln_trial;
+            *d_drift = d_signal[0];
+        }
+    }
+    Ok(())
+}
 
 /// Looks a component up by name in its table.
 pub fn find<'t, T: ?Sized>(table: &'t [Entry<T>], name: &str) -> Option<&'t Entry<T>> {
