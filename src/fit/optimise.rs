@@ -30,6 +30,9 @@ pub enum Stop {
     /// The run came within [`JOIN_GAP`] below and [`JOIN_DISTANCE`] of an optimum an earlier
     /// run had reached ([`EarlyStop::Join`]).
     Joined,
+    /// The run could not reach its target within its iterations at twice its recent rate of
+    /// improvement ([`EarlyStop::OutOfReach`]).
+    OutOfReach,
 }
 
 impl Stop {
@@ -41,6 +44,7 @@ impl Stop {
             Stop::IterationLimit => "iteration limit reached",
             Stop::Failed => "could not start",
             Stop::Joined => "joined an optimum found by an earlier run",
+            Stop::OutOfReach => "target out of reach at the recent rate of improvement",
         }
     }
 }
@@ -82,7 +86,23 @@ pub enum EarlyStop<'k> {
     /// it run on, it would have counted as reaching the same optimum (within
     /// [`super::SAME_OPTIMUM`]) anyway. Only for runs that hold nothing.
     Join(&'k [(Vec<f64>, f64)]),
+    /// Stop once the objective cannot reach `target` within the run's remaining iterations at
+    /// [`REACH_FACTOR`] times its mean improvement per iteration over the last
+    /// [`REACH_WINDOW`] iterations (checked from iteration [`REACH_WINDOW`] on). For a probe
+    /// whose only use is whether it gets within reach of a target: L-BFGS gains per iteration
+    /// shrink as it converges, so a run whose gains do not grow more than
+    /// [`REACH_FACTOR`]-fold would have ended below the target at its iteration limit anyway.
+    OutOfReach {
+        /// The objective (ln L + ln prior) the run must reach to matter.
+        target: f64,
+    },
 }
+
+/// Iterations over which [`EarlyStop::OutOfReach`] measures the recent rate of improvement.
+pub const REACH_WINDOW: usize = 5;
+
+/// Growth of the recent rate of improvement that [`EarlyStop::OutOfReach`] allows for.
+pub const REACH_FACTOR: f64 = 2.0;
 
 /// A solver with an [`EarlyStop`] checked after its own termination tests. Its `init` is the
 /// trait's default (nothing), so the run's initial state must carry the start's cost and gradient.
@@ -91,6 +111,8 @@ struct Watched<'k, S> {
     rule: EarlyStop<'k>,
     /// Why the rule stopped the run.
     stopped: &'k Cell<Option<Stop>>,
+    /// The objective after each iteration so far (for [`EarlyStop::OutOfReach`]).
+    history: Vec<f64>,
 }
 
 type LbfgsState = IterState<Vec<f64>, Vec<f64>, (), (), (), f64>;
@@ -130,6 +152,17 @@ impl<O, S: Solver<O, LbfgsState>> Solver<O, LbfgsState> for Watched<'_, S> {
                             })
                     })
                     .then_some(Stop::Joined)
+            }
+            EarlyStop::OutOfReach { target } => {
+                let objective = -state.get_cost();
+                self.history.push(objective);
+                let k = self.history.len();
+                let remaining = state.get_max_iters().saturating_sub(state.get_iter()) as f64;
+                (k > REACH_WINDOW && {
+                    let rate = (objective - self.history[k - 1 - REACH_WINDOW]) / REACH_WINDOW as f64;
+                    objective + REACH_FACTOR * rate.max(0.0) * remaining < target
+                })
+                .then_some(Stop::OutOfReach)
             }
         };
         match stop {
@@ -270,6 +303,7 @@ pub fn run_start_until(
         inner: lbfgs,
         rule,
         stopped: &stopped,
+        history: Vec::new(),
     };
     let base = problem.base.clone();
     let active = problem.active.clone();

@@ -266,7 +266,15 @@ pub fn search(
                 }
                 let mut start = theta.clone();
                 start[j] = face;
-                let held = run_start(likelihood, start, FACE_ITERATIONS, &[j]);
+                let held = run_start_until(
+                    likelihood,
+                    start,
+                    FACE_ITERATIONS,
+                    &[j],
+                    EarlyStop::OutOfReach {
+                        target: runs[best].objective - FACE_MARGIN,
+                    },
+                );
                 work.faces += held.evaluations;
                 if held.objective > runs[best].objective - FACE_MARGIN {
                     work.faces += joining(&mut runs, held.theta.clone(), &mut known);
