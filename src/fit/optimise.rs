@@ -159,7 +159,8 @@ impl<O, S: Solver<O, LbfgsState>> Solver<O, LbfgsState> for Watched<'_, S> {
                 let k = self.history.len();
                 let remaining = state.get_max_iters().saturating_sub(state.get_iter()) as f64;
                 (k > REACH_WINDOW && {
-                    let rate = (objective - self.history[k - 1 - REACH_WINDOW]) / REACH_WINDOW as f64;
+                    let rate =
+                        (objective - self.history[k - 1 - REACH_WINDOW]) / REACH_WINDOW as f64;
                     objective + REACH_FACTOR * rate.max(0.0) * remaining < target
                 })
                 .then_some(Stop::OutOfReach)

@@ -27,8 +27,8 @@
 //! others return `None` and the likelihood takes the dual path.
 
 use super::SubjectLikelihood;
-use super::design::{Origin, origin_linear};
 use super::design::TrialColumns;
+use super::design::{Origin, origin_linear};
 use crate::data::Subject;
 use crate::model::Model;
 use crate::model::components::{Observation, Signal};
@@ -278,7 +278,10 @@ impl SubjectLikelihood<'_> {
             for (m, amounts) in columns.amounts.iter().enumerate() {
                 let amounts = &amounts.as_ref()?[e0..e1];
                 let row = &mut steps[m * 2 * n + e0..m * 2 * n + e1];
-                if !model.costs[m].shape.subjective_values_local(input, amounts, p, row) {
+                if !model.costs[m]
+                    .shape
+                    .subjective_values_local(input, amounts, p, row)
+                {
                     return None;
                 }
                 input
