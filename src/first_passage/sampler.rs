@@ -1,7 +1,7 @@
 //! Exact sampling of (bound, response time).
 
 use super::params::{Bound, DiffusionParams, StartTerms};
-use super::series::{ln_prob_upper, std_cdf, std_density};
+use super::series::{ln_prob_upper, std_cdf_given, std_density};
 use rand::Rng;
 use rand::RngExt;
 use rand::distr::Open01;
@@ -9,6 +9,9 @@ use rand_distr::StandardNormal;
 
 /// Root tolerance in log standardised time: decision times are found to 1e-12 relative.
 const LOG_TIME_TOLERANCE: f64 = 1e-12;
+
+/// Largest |ln u| the inversion searches (u is standardised time).
+const LN_TIME_LIMIT: f64 = 700.0;
 
 /// Draws one (bound, response time) from the process, without time-discretisation bias.
 ///
@@ -57,7 +60,7 @@ fn invert_lower(lambda: f64, w: f64, q: f64) -> f64 {
     // Residual increasing in x = ln u, and its derivative.
     let residual = |x: f64| -> (f64, f64) {
         let u = x.exp();
-        let parts = std_cdf(lambda, u, w);
+        let parts = std_cdf_given(lambda, u, w, ln_p);
         let ln_density =
             -lambda * w - 0.5 * lambda * lambda * u + std_density::<false>(u, &terms).ln_g;
         if use_cdf {
@@ -69,20 +72,15 @@ fn invert_lower(lambda: f64, w: f64, q: f64) -> f64 {
             )
         }
     };
-    // Start from the conditional mean, (1 − (1 − w)²)/3 at λ = 0, shrinking with |λ|.
+    // Safeguarded Newton iteration from the conditional mean, (1 − (1 − w)²)/3 at λ = 0,
+    // shrinking with |λ|. Every evaluation narrows the bracket [lo, hi] (residual negative at
+    // lo, positive at hi); a Newton step that leaves it is replaced by bisection, or, while one
+    // end is still open, by steps doubling away from the known end (down to ln u = −700 and up
+    // to 700).
     let x0 = ((1.0 - (1.0 - w) * (1.0 - w)) / 3.0 / (1.0 + lambda.abs() * (1.0 - w))).ln();
-    let (mut lo, mut hi) = (x0 - 1.0, x0 + 1.0);
+    let (mut lo, mut hi) = (f64::NEG_INFINITY, f64::INFINITY);
+    let mut x = x0.clamp(-LN_TIME_LIMIT, LN_TIME_LIMIT);
     let mut step = 1.0;
-    while residual(lo).0 > 0.0 && lo > -700.0 {
-        step *= 2.0;
-        lo -= step;
-    }
-    step = 1.0;
-    while residual(hi).0 < 0.0 && hi < 700.0 {
-        step *= 2.0;
-        hi += step;
-    }
-    let mut x = x0.clamp(lo, hi);
     for _ in 0..200 {
         let (r, slope) = residual(x);
         if r == 0.0 {
@@ -96,6 +94,12 @@ fn invert_lower(lambda: f64, w: f64, q: f64) -> f64 {
         let newton = x - r / slope;
         let next = if newton.is_finite() && newton > lo && newton < hi {
             newton
+        } else if hi == f64::INFINITY {
+            step *= 2.0;
+            (x + step).min(LN_TIME_LIMIT)
+        } else if lo == f64::NEG_INFINITY {
+            step *= 2.0;
+            (x - step).max(-LN_TIME_LIMIT)
         } else {
             0.5 * (lo + hi)
         };

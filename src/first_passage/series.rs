@@ -269,7 +269,12 @@ pub(crate) struct StdCdf {
 /// The representation that is accurate in relative terms is computed and the other part follows
 /// from P_lower.
 pub(crate) fn std_cdf(lambda: f64, u: f64, w: f64) -> StdCdf {
-    let ln_p = ln_prob_lower(lambda, w);
+    std_cdf_given(lambda, u, w, ln_prob_lower(lambda, w))
+}
+
+/// [`std_cdf`] with ln P_lower = [`ln_prob_lower`]`(λ, w)` already computed (the sampler
+/// evaluates the distribution function many times for one λ and w).
+pub(crate) fn std_cdf_given(lambda: f64, u: f64, w: f64, ln_p: f64) -> StdCdf {
     if u < CDF_SMALL_TIME_BELOW {
         let ln_cdf = wald_sum(lambda, u, w).min(ln_p);
         StdCdf {
