@@ -392,6 +392,10 @@ pub enum OutputError {
     /// The output path is a file.
     #[error("{} is a file; expected an output folder", .0.display())]
     NotAFolder(PathBuf),
+    /// A stop was requested while the set was being made ([`crate::progress::request_stop`]):
+    /// the new set is dropped.
+    #[error(transparent)]
+    Stopped(#[from] crate::progress::Stopped),
     /// A whole new set was asked for, and the folder holds an earlier one.
     #[error(
         "{} already holds {entries} entries of an earlier result; give --replace to replace \
@@ -601,8 +605,13 @@ impl OutputSet {
         self.staged == 0
     }
 
-    /// Puts the complete new folder in place in one step and then removes the old one.
+    /// Puts the complete new folder in place in one step and then removes the old one; refuses
+    /// with [`OutputError::Stopped`] after a stop request.
     pub fn commit(mut self) -> Result<(), OutputError> {
+        // After a stop request nothing is put in place (dropping self removes the staging).
+        if crate::progress::stop_requested() {
+            return Err(crate::progress::Stopped.into());
+        }
         if self.mode == Mode::Inside {
             return Ok(());
         }
