@@ -1,0 +1,59 @@
+"""Long fits release the GIL and stop on Ctrl-C without leaving result files (common practice
+for long-running calls in notebooks: KeyboardInterrupt, nothing half-written), and a resumed fit
+equals the command line's uninterrupted one."""
+
+from __future__ import annotations
+
+import _thread
+import threading
+import time
+
+import pandas as pd
+import pytest
+
+import valuedrift as vd
+from conftest import DEMO_TRIALS, run_cli, same_csv_files
+
+
+def test_ctrl_c_stops_a_fit_and_writes_nothing(tmp_path):
+    trials = pd.read_csv(DEMO_TRIALS)
+    out = tmp_path / "fit"
+    # Another Python thread keeps running while the fit runs: the GIL is released.
+    ticks = []
+    stop = threading.Event()
+
+    def tick():
+        while not stop.is_set():
+            ticks.append(time.monotonic())
+            time.sleep(0.01)
+
+    ticker = threading.Thread(target=tick)
+    ticker.start()
+    # Ctrl-C as the terminal or a notebook's "interrupt" sends it, one second in.
+    timer = threading.Timer(1.0, _thread.interrupt_main)
+    timer.start()
+    started = time.monotonic()
+    try:
+        with pytest.raises(KeyboardInterrupt):
+            vd.fit(trials, "gainloss-linear", out=out, starts=40, threads=1, progress=False)
+    finally:
+        timer.cancel()
+        stop.set()
+        ticker.join()
+    stopped_after = time.monotonic() - started
+    print(f"stopped {stopped_after:.2f} s after the start (interrupt at 1.0 s)")
+    # No result folder and no staging folder: only the journal of the finished subjects, as
+    # the command line keeps it for --resume.
+    assert not out.exists()
+    assert [p.name for p in tmp_path.iterdir()] == [".fit.valuedrift-journal"]
+    during = [t for t in ticks if started + 0.1 < t < started + 0.9]
+    assert len(during) > 5, f"only {len(during)} ticks of another thread during the fit"
+    # The interrupted fit continues from its journal to the result of an uninterrupted run.
+    resumed = vd.fit(trials, "gainloss-linear", out=out, starts=40, threads=1, resume=True,
+                     progress=False)
+    assert len(resumed.summary) == 40
+    assert [p.name for p in tmp_path.iterdir()] == ["fit"]
+    cli = tmp_path.parent / f"{tmp_path.name}-cli"
+    run_cli("fit", "--data", DEMO_TRIALS, "--model", "gainloss-linear", "--out", cli,
+            "--starts", 40, "--threads", 1)
+    same_csv_files(out, cli)
