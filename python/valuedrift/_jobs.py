@@ -312,17 +312,20 @@ def _one_model(fit_: Optional[Fit], model: Optional[str]) -> str:
 
 
 def _fitted_run(command: str, fits, model, trials, estimates, out, replace, frame, data_name,
-                extra: list, progress: bool) -> Results:
+                reading: Optional[list], extra: list, progress: bool) -> Results:
+    """``check`` or ``export`` of a fit: the fit's trial table and reading options unless
+    given."""
     folder, fit_ = _fitted(fits)
     work = _work()
     names: dict[str, str] = {}
     if trials is None:
         if fit_ is None:
             raise ValueError("trials: give the trial table the fit read (a frame or a path)")
-        path, reading = fit_.trials, fit_._reading
+        path = fit_.trials
         names = dict(fit_._names)
     else:
         path, names = _table_input(trials, Path(work.name), "trials", data_name)
+    if not reading:
         reading = fit_._reading if fit_ is not None else []
     model_args, model_names = _model_inputs(_one_model(fit_, model), Path(work.name))
     names.update(model_names)
@@ -330,7 +333,8 @@ def _fitted_run(command: str, fits, model, trials, estimates, out, replace, fram
     args = [command, "--fits", folder, "--data", path, "--model", model_args[0], "--out", target,
             "--estimates", estimates, *reading, *replace_args, *extra]
     _run(args, progress, names)
-    kind = _frames.check_kind(frame or (fit_.frame if fit_ is not None else "pandas"))
+    given = _frames.kind_of(trials) if trials is not None else None
+    kind = _frames.check_kind(frame or given or (fit_.frame if fit_ is not None else "pandas"))
     return Results(target, kind, work)
 
 
@@ -344,6 +348,9 @@ def check(
     deadline: Optional[float] = None,
     by: Optional[str] = None,
     estimates: str = "per-subject",
+    columns: Optional[Mapping[str, str]] = None,
+    choice_codes: Optional[Mapping[str, str]] = None,
+    missing: Optional[Iterable[str]] = None,
     out: Optional[PathLike] = None,
     replace: bool = False,
     frame: Optional[str] = None,
@@ -354,10 +361,11 @@ def check(
     simulated ``sims`` times at its estimates and observed against predicted choice proportions
     and response-time quantiles (.1 .3 .5 .7 .9; Ratcliff & Tuerlinckx 2002). Tables
     check_choices, check_quantiles, check_misfit (figures as SVG files in the folder).
-    ``trials`` defaults to the table the fit read."""
+    ``trials``, ``columns``, ``choice_codes`` and ``missing`` default to those of a
+    :class:`Fit`; give them with the path of a fit folder."""
     extra = ["--sims", sims, "--seed", seed] + _optional("--deadline", deadline) + _optional("--by", by)
     return _fitted_run("check", fits, model, trials, estimates, out, replace, frame, data_name,
-                       extra, progress)
+                       _reading(columns, choice_codes, missing), extra, progress)
 
 
 def export(
@@ -371,6 +379,9 @@ def export(
     microtime_bins: Optional[int] = None,
     task: str = "choice",
     estimates: str = "per-subject",
+    columns: Optional[Mapping[str, str]] = None,
+    choice_codes: Optional[Mapping[str, str]] = None,
+    missing: Optional[Iterable[str]] = None,
     out: Optional[PathLike] = None,
     replace: bool = False,
     frame: Optional[str] = None,
@@ -380,12 +391,13 @@ def export(
     """Per-trial latent variables of a fitted model for imaging analyses, as ``valuedrift
     export`` (table latents; with onsets in the trial table a BIDS derivative folder of events
     files, and with ``tr`` and ``scans`` design matrices convolved with the canonical
-    double-gamma response, Friston et al. 1998; Glover 1999). ``trials`` defaults to the table
-    the fit read."""
+    double-gamma response, Friston et al. 1998; Glover 1999). ``trials``, ``columns``,
+    ``choice_codes`` and ``missing`` default to those of a :class:`Fit`; give them with the
+    path of a fit folder."""
     extra = ["--scale", scale, "--task", task] + _optional("--tr", tr) + _optional("--scans", scans)
     extra += _optional("--microtime-bins", microtime_bins)
     return _fitted_run("export", fits, model, trials, estimates, out, replace, frame, data_name,
-                       extra, progress)
+                       _reading(columns, choice_codes, missing), extra, progress)
 
 
 def compare(

@@ -89,9 +89,29 @@ fn run(py: Python<'_>, args: Vec<String>, progress: Option<Bound<'_, PyAny>>) ->
         got
     };
     let mut shown: Option<crate::progress::Step> = None;
+    // Hands the latest step to the callback when it changed since the last call.
+    let show = |shown: &mut Option<crate::progress::Step>| -> PyResult<()> {
+        let Some(callback) = &progress else {
+            return Ok(());
+        };
+        let latest = crate::progress::latest();
+        if latest != *shown
+            && let Some(step) = &latest
+        {
+            callback.call1((&step.what, step.done, step.total))?;
+            *shown = latest;
+        }
+        Ok(())
+    };
     let outcome = loop {
         match wait(py, Some(POLL)) {
-            Ok(outcome) => break Ok(outcome),
+            Ok(outcome) => {
+                // The final count, which the last poll may have missed.
+                if outcome.is_ok() {
+                    show(&mut shown)?;
+                }
+                break Ok(outcome);
+            }
             Err(mpsc::RecvTimeoutError::Disconnected) => {
                 break Ok(Err(
                     "the command's thread ended without an answer".to_string()
@@ -99,18 +119,7 @@ fn run(py: Python<'_>, args: Vec<String>, progress: Option<Bound<'_, PyAny>>) ->
             }
             Err(mpsc::RecvTimeoutError::Timeout) => {}
         }
-        let mut interrupted = py.check_signals().err();
-        if interrupted.is_none()
-            && let Some(callback) = &progress
-        {
-            let latest = crate::progress::latest();
-            if latest != shown
-                && let Some(step) = &latest
-            {
-                interrupted = callback.call1((&step.what, step.done, step.total)).err();
-                shown = latest;
-            }
-        }
+        let interrupted = py.check_signals().and_then(|()| show(&mut shown)).err();
         if let Some(error) = interrupted {
             crate::progress::request_stop();
             // The command stops at its next check and writes nothing; wait for it.

@@ -9,7 +9,7 @@ import pyarrow.csv as pacsv
 import pytest
 
 import valuedrift as vd
-from conftest import REFERENCE
+from conftest import REFERENCE, run_cli
 
 
 def reference(name: str) -> dict:
@@ -104,3 +104,18 @@ def test_values_outside_the_domain_raise_naming_element_and_parameter():
         vd.cdf(np.array([0.5, np.nan]), "lower", 1.0, 1.0, 0.5, 0.2)
     with pytest.raises(ValueError, match=r"element 0: bound 'up' is not 'upper' or 'lower'"):
         vd.cdf(0.5, "up", 1.0, 1.0, 0.5, 0.2)
+
+
+def test_vectorised_values_equal_the_density_command(tmp_path, cli_binary):
+    # Source: `valuedrift density` (src/cli/density.rs), the command line's own evaluation of
+    # the same rows; its numbers are written as the shortest text that reads back exactly.
+    t = reference("first_passage_reference.csv")
+    inputs = ["rt", "bound", "drift", "boundary", "start", "ndt", "drift_sd", "start_range", "ndt_range"]
+    pacsv.write_csv(pacsv.read_csv(REFERENCE / "first_passage_reference.csv").select(inputs),
+                    tmp_path / "in.csv")
+    run_cli("density", "--input", tmp_path / "in.csv", "--output", tmp_path / "out.csv")
+    out = pacsv.read_csv(tmp_path / "out.csv")
+    args = (t["rt"], t["bound"], t["drift"], t["boundary"], t["start"], t["ndt"],
+            t["drift_sd"], t["start_range"], t["ndt_range"])
+    assert np.array_equal(vd.ln_density(*args), out["log_density"].to_numpy())
+    assert np.array_equal(vd.cdf(*args), out["cdf"].to_numpy())

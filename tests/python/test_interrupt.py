@@ -57,3 +57,21 @@ def test_ctrl_c_stops_a_fit_and_writes_nothing(tmp_path):
     run_cli("fit", "--data", DEMO_TRIALS, "--model", "gainloss-linear", "--out", cli,
             "--starts", 40, "--threads", 1)
     same_csv_files(out, cli)
+
+
+def test_progress_reaches_python_while_a_fit_runs(capsys):
+    # Common practice: a notebook shows how far a long call is; the callback sees the fitting
+    # step counted up to its total, and the package's own display prints it.
+    from valuedrift._native import run
+
+    trials = pd.read_csv(DEMO_TRIALS)
+    small = trials[trials["subject"].isin(["sub-01", "sub-02", "sub-03"])]
+    seen = []
+    fitted = vd.fit(small, "gainloss-linear", starts=2, threads=1, progress=True)
+    shown = capsys.readouterr().out
+    assert "fitting 3/3 (100 %)" in shown, shown
+    args = ["fit", "--data", fitted.trials, "--model", "gainloss-linear", "--out",
+            fitted.folder.parent / "again", "--starts", "40", "--threads", "1"]
+    run([str(a) for a in args], lambda what, done, total: seen.append((what, done, total)))
+    assert seen[-1] == ("fitting", 3, 3), seen
+    assert any(done < total for _, done, total in seen), seen

@@ -138,3 +138,11 @@ def test_models_list_the_built_in_models_as_the_command_line_does(cli_binary):
     assert vd.describe_model(MODEL) == run_cli("models", MODEL).stdout
     text = (ROOT / "models" / f"{MODEL}.toml").read_text()
     assert vd.models(text)["parameter"].tolist() == table[table["model"] == MODEL]["parameter"].tolist()
+
+
+def test_check_of_a_fit_folder_given_by_path_equals_the_command_line(cli_fit, tmp_path):
+    run_cli("check", "--fits", cli_fit, "--data", DEMO_TRIALS, "--model", MODEL, "--out",
+            tmp_path / "cli", "--sims", 10)
+    ours = vd.check(cli_fit, MODEL, trials=pl.read_csv(DEMO_TRIALS), sims=10, progress=False)
+    assert isinstance(ours["check_misfit"], pl.DataFrame)
+    same_csv_files(ours.folder, tmp_path / "cli")
