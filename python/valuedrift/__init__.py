@@ -7,8 +7,8 @@ code in this process, so results equal the command's files to the last digit and
 was expected).
 
 * Jobs: :func:`fit` (per subject, and hierarchical), :func:`simulate`, :func:`compare`,
-  :func:`contrast`, :func:`check`, :func:`export`, :func:`plan`; :func:`models` and
-  :func:`describe_model` list models. Models are built-in names, model files or TOML texts.
+  :func:`contrast`, :func:`check`, :func:`export`, :func:`plan`, :func:`report` (HTML);
+  :func:`models` and :func:`describe_model` list models. Models are built-in names, model files or TOML texts.
 * The first-passage engine over numpy arrays with broadcasting: :mod:`valuedrift.first_passage`
   (:func:`ln_density`, :func:`cdf`, :func:`bound_probability`, :func:`mean_decision_time`,
   :func:`sample`).
@@ -30,6 +30,7 @@ from ._jobs import (
     fit,
     models,
     plan,
+    report,
     simulate,
 )
 from . import first_passage
@@ -53,6 +54,7 @@ __all__ = [
     "mean_decision_time",
     "models",
     "plan",
+    "report",
     "sample",
     "simulate",
 ]

@@ -537,6 +537,32 @@ def plan(
     return Results(target, _frames.check_kind(frame), work)
 
 
+def report(
+    fits: Union[Fit, PathLike, None] = None,
+    *,
+    check: Union[Results, PathLike, None] = None,
+    plan: Union[Results, PathLike, None] = None,
+    out: Optional[PathLike] = None,
+    replace: bool = False,
+    progress: bool = True,
+) -> str:
+    """The self-contained HTML report of ``valuedrift report`` (inline SVG figures, no script)
+    of a fit and what sits beside it, a check and a plan; returns its text (in a notebook,
+    ``IPython.display.HTML(vd.report(fit))`` shows it) and writes it to ``out`` when given."""
+    work = _work()
+    target = Path(out) if out is not None else Path(work.name) / "report.html"
+    args = ["report", "--out", target]
+    for option, given in (("--fits", fits), ("--check", check), ("--plan", plan)):
+        if given is not None:
+            args += [option, given.folder if isinstance(given, Results) else Path(given)]
+    if replace and out is not None:
+        args.append("--replace")
+    _run(args, progress, {})
+    text = target.read_text(encoding="utf-8")
+    work.cleanup()
+    return text
+
+
 def models(name: Optional[str] = None, *, frame: str = "pandas") -> Any:
     """The parameters of every built-in model (or of the one named: a built-in name, a model
     file or a model TOML text), one row per model and parameter: model, origin, parameter,
@@ -592,5 +618,6 @@ __all__ = [
     "fit",
     "models",
     "plan",
+    "report",
     "simulate",
 ]

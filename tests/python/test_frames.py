@@ -90,3 +90,18 @@ def test_nan_in_a_response_time_names_row_and_column(few_trials, tmp_path):
         vd.fit(polars_frame, MODEL, threads=1, progress=False)
     assert str(raised.value).startswith("DataFrame row 7, column rt: "), str(raised.value)
     print(message, str(raised.value), sep="\n")
+
+
+def test_categorical_labels_read_as_their_text(few_trials):
+    # Common practice: labels held as pandas categories or polars Categorical/Enum columns; the
+    # reader sees their text, so the fit equals the one of plain text columns.
+    plain = vd.fit(few_trials, MODEL, threads=1, starts=2, progress=False)
+    as_categories = few_trials.astype({"subject": "category", "group": "category", "choice": "category"})
+    from_pandas = vd.fit(as_categories, MODEL, threads=1, starts=2, progress=False)
+    as_polars = pl.from_pandas(few_trials).with_columns(
+        pl.col("subject").cast(pl.Categorical), pl.col("group").cast(pl.Enum(["steady", "low-drive"]))
+    )
+    from_polars = vd.fit(as_polars, MODEL, threads=1, starts=2, progress=False)
+    expected = (plain.folder / "parameters.csv").read_bytes()
+    assert (from_pandas.folder / "parameters.csv").read_bytes() == expected
+    assert (from_polars.folder / "parameters.csv").read_bytes() == expected

@@ -146,3 +146,10 @@ def test_check_of_a_fit_folder_given_by_path_equals_the_command_line(cli_fit, tm
     ours = vd.check(cli_fit, MODEL, trials=pl.read_csv(DEMO_TRIALS), sims=10, progress=False)
     assert isinstance(ours["check_misfit"], pl.DataFrame)
     same_csv_files(ours.folder, tmp_path / "cli")
+
+
+def test_report_equals_the_command_line(cli_fit, tmp_path):
+    run_cli("report", "--fits", cli_fit, "--out", tmp_path / "cli.html")
+    ours = vd.report(cli_fit, progress=False)
+    assert ours.startswith("<!DOCTYPE html>") or ours.lower().startswith("<!doctype html>")
+    assert ours == (tmp_path / "cli.html").read_text(encoding="utf-8")
