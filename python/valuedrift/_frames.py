@@ -20,14 +20,11 @@ missing value stays missing (``pd.NA``) instead of turning a flag or a count int
 from __future__ import annotations
 
 import csv
-import os
 from pathlib import Path
-from typing import Any, Union
+from typing import Any
 
 import pyarrow as pa
 import pyarrow.parquet as pq
-
-PathLike = Union[str, "os.PathLike[str]"]
 
 #: The kinds of frame the package returns.
 FRAME_KINDS = ("pandas", "polars")
@@ -87,8 +84,15 @@ def write_csv(frame: Any, path: Path, what: str) -> Path:
         writer = csv.writer(out)
         writer.writerow(table.column_names)
         for row in table.to_pylist():
-            writer.writerow(["" if v is None else repr(v) if isinstance(v, float) else v for v in row.values()])
+            writer.writerow([_cell(v) for v in row.values()])
     return path
+
+
+def _cell(value: Any) -> Any:
+    """A CSV cell: empty when missing, a float as its shortest round-trip text."""
+    if value is None:
+        return ""
+    return repr(value) if isinstance(value, float) else value
 
 
 def read_parquet(path: Path, kind: str) -> Any:
