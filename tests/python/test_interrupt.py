@@ -75,3 +75,39 @@ def test_progress_reaches_python_while_a_fit_runs(capsys):
     run([str(a) for a in args], lambda what, done, total: seen.append((what, done, total)))
     assert seen[-1] == ("fitting", 3, 3), seen
     assert any(done < total for _, done, total in seen), seen
+
+
+def interrupt_at(step: str):
+    """A progress callback that raises KeyboardInterrupt (as Ctrl-C does) once the step whose
+    name starts with `step` reports: the interrupt lands inside that step every time."""
+
+    def callback(what: str, done: int, total: int) -> None:
+        if what.startswith(step):
+            raise KeyboardInterrupt
+
+    return callback
+
+
+def test_an_interrupt_during_the_em_or_a_check_writes_no_result(tmp_path):
+    from valuedrift._native import run
+
+    trials = pd.read_csv(DEMO_TRIALS)
+    keep = sorted(trials["subject"].unique())
+    subset = trials[trials["subject"].isin(keep[:10] + keep[-10:])]
+    data = tmp_path / "trials.csv"
+    subset.to_csv(data, index=False)
+    fit_out = tmp_path / "fit"
+    with pytest.raises(KeyboardInterrupt):
+        run(["fit", "--data", str(data), "--model", "gainloss-linear", "--out", str(fit_out),
+             "--threads", "1", "--hierarchical", "--by", "group", "--em-tolerance", "1e-12"],
+            interrupt_at("empirical Bayes"))
+    assert not fit_out.exists()
+    assert sorted(p.name for p in tmp_path.iterdir()) == [".fit.valuedrift-journal", "trials.csv"]
+
+    run_cli("fit", "--data", data, "--model", "gainloss-linear", "--out", fit_out, "--restart")
+    check_out = tmp_path / "check"
+    with pytest.raises(KeyboardInterrupt):
+        run(["check", "--fits", str(fit_out), "--data", str(data), "--model", "gainloss-linear",
+             "--out", str(check_out), "--sims", "40"], interrupt_at("simulating"))
+    assert not check_out.exists()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["fit", "trials.csv"]
