@@ -147,7 +147,8 @@ pub fn finite_number(path: &Path, line: u64, column: &str, text: &str) -> Result
 /// Writes `path` through `fill`, atomically: the content goes to a staging file beside `path`
 /// (`.<name>.valuedrift-staging-<pid>`), which is renamed to `path` only if `fill` succeeds. The
 /// folder is created if missing. An existing `path` is refused unless `replace` is set; stale
-/// staging files of killed runs are removed first (with a note on standard error).
+/// staging files of killed runs are removed first (with a note on standard error). After a stop
+/// request nothing is renamed into place.
 pub fn write_atomically<E>(
     path: &Path,
     replace: bool,
@@ -169,6 +170,9 @@ pub fn write_atomically<E>(
     }
     if !replace && std::fs::symlink_metadata(path).is_ok() {
         return Err(WriteError::Exists(path.to_path_buf()));
+    }
+    if crate::progress::stop_requested() {
+        return Err(WriteError::Stopped(crate::progress::Stopped));
     }
     std::fs::rename(&staging.path, path).map_err(io)?;
     staging.release();
@@ -205,6 +209,9 @@ pub enum WriteError<E> {
     /// Creating, writing or renaming the file failed; nothing was left at the destination.
     #[error("cannot write {path}: {source}", path = .0.display(), source = .1)]
     Io(PathBuf, std::io::Error),
+    /// A stop was requested ([`crate::progress::request_stop`]); nothing was written.
+    #[error(transparent)]
+    Stopped(crate::progress::Stopped),
 }
 
 /// Name part of staging folders and files: `.<name>.valuedrift-staging-<pid>`.
@@ -392,6 +399,10 @@ pub enum OutputError {
     /// The output path is a file.
     #[error("{} is a file; expected an output folder", .0.display())]
     NotAFolder(PathBuf),
+    /// A stop was requested while the set was being made ([`crate::progress::request_stop`]):
+    /// the new set is dropped.
+    #[error(transparent)]
+    Stopped(#[from] crate::progress::Stopped),
     /// A whole new set was asked for, and the folder holds an earlier one.
     #[error(
         "{} already holds {entries} entries of an earlier result; give --replace to replace \
@@ -601,8 +612,13 @@ impl OutputSet {
         self.staged == 0
     }
 
-    /// Puts the complete new folder in place in one step and then removes the old one.
+    /// Puts the complete new folder in place in one step and then removes the old one; refuses
+    /// with [`OutputError::Stopped`] after a stop request.
     pub fn commit(mut self) -> Result<(), OutputError> {
+        // After a stop request nothing is put in place (dropping self removes the staging).
+        if crate::progress::stop_requested() {
+            return Err(crate::progress::Stopped.into());
+        }
         if self.mode == Mode::Inside {
             return Ok(());
         }

@@ -19,6 +19,8 @@ pub mod likelihood;
 pub mod model;
 pub mod plan;
 pub mod progress;
+#[cfg(feature = "python")]
+pub mod python;
 pub mod race;
 pub mod report;
 pub mod results;

@@ -8,19 +8,68 @@
 //! progress: fitting 120/958 (12.5 %), elapsed 0:00:31, time left 0:03:36
 //! ```
 //!
-//! Progress only reports: it never changes what a command computes.
+//! Progress only reports: it never changes what a command computes. A caller that shows
+//! progress its own way (the Python package, in a notebook) reads the latest step with
+//! [`latest`].
+//!
+//! The one way to end a long step early is [`request_stop`] (the Python package calls it on
+//! Ctrl-C): the per-subject fits check it before each subject and the EM before each iteration,
+//! and the command then fails with [`Stopped`] before writing anything.
 
 use indicatif::{ProgressBar, ProgressStyle};
 use std::io::IsTerminal;
 use std::sync::Mutex;
-use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::{Duration, Instant};
+
+/// What the step that reported last says: its name, units done and total.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Step {
+    /// The step's name ("fitting").
+    pub what: String,
+    /// Units done.
+    pub done: u64,
+    /// Units in all.
+    pub total: u64,
+}
+
+static LATEST: Mutex<Option<Step>> = Mutex::new(None);
+
+/// The step that reported last in this process, if any (the last state of a finished step stays
+/// until the next step starts).
+pub fn latest() -> Option<Step> {
+    lock(&LATEST).clone()
+}
+
+static STOP: AtomicBool = AtomicBool::new(false);
+
+/// Asks the running command to stop at its next check; it then writes nothing and fails with
+/// [`Stopped`]. Stays set until [`clear_stop`].
+pub fn request_stop() {
+    STOP.store(true, Ordering::SeqCst);
+}
+
+/// Whether [`request_stop`] was called since the last [`clear_stop`].
+pub fn stop_requested() -> bool {
+    STOP.load(Ordering::SeqCst)
+}
+
+/// Forgets an earlier [`request_stop`] (before a new command starts).
+pub fn clear_stop() {
+    STOP.store(false, Ordering::SeqCst);
+}
+
+/// A command that stopped because [`request_stop`] was called.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, thiserror::Error)]
+#[error("interrupted: stopped before the end, nothing was written")]
+pub struct Stopped;
 
 /// Least time between two progress lines in a log.
 pub const LINE_INTERVAL: Duration = Duration::from_secs(10);
 
 /// The progress of one step of `total` units (subjects, files, iterations).
 pub struct Progress {
+    step: Mutex<Step>,
     shown: Shown,
 }
 
@@ -32,10 +81,7 @@ enum Shown {
 }
 
 struct Lines {
-    what: Mutex<String>,
     detail: Mutex<String>,
-    total: AtomicU64,
-    done: AtomicU64,
     times: Mutex<Times>,
 }
 
@@ -54,24 +100,37 @@ impl Progress {
             Shown::Bar(bar)
         } else {
             Shown::Lines(Lines {
-                what: Mutex::new(what.to_string()),
                 detail: Mutex::new(String::new()),
-                total: AtomicU64::new(total as u64),
-                done: AtomicU64::new(0),
                 times: Mutex::new(Times::now()),
             })
         };
-        Progress { shown }
+        let progress = Progress {
+            step: Mutex::new(Step {
+                what: what.to_string(),
+                done: 0,
+                total: total as u64,
+            }),
+            shown,
+        };
+        progress.publish(|_| {});
+        progress
+    }
+
+    /// Changes the step with `change` and makes it the [`latest`].
+    fn publish(&self, change: impl FnOnce(&mut Step)) -> Step {
+        let mut step = lock(&self.step);
+        change(&mut step);
+        let copy = step.clone();
+        *lock(&LATEST) = Some(copy.clone());
+        copy
     }
 
     /// One more unit done.
     pub fn inc(&self) {
+        let step = self.publish(|s| s.done += 1);
         match &self.shown {
             Shown::Bar(bar) => bar.inc(1),
-            Shown::Lines(lines) => {
-                lines.done.fetch_add(1, Ordering::Relaxed);
-                lines.maybe_write(false);
-            }
+            Shown::Lines(lines) => lines.maybe_write(&step, false),
         }
     }
 
@@ -79,6 +138,14 @@ impl Progress {
     /// one after another, such as the EM of one model and group after another. In a log the old
     /// step gets its final line first.
     pub fn restart(&self, what: &str, total: usize) {
+        let old = lock(&self.step).clone();
+        self.publish(|s| {
+            *s = Step {
+                what: what.to_string(),
+                done: 0,
+                total: total as u64,
+            }
+        });
         match &self.shown {
             Shown::Bar(bar) => {
                 bar.set_prefix(what.to_string());
@@ -86,12 +153,9 @@ impl Progress {
                 bar.reset();
             }
             Shown::Lines(lines) => {
-                if lines.done.load(Ordering::Relaxed) > 0 {
-                    lines.maybe_write(true);
+                if old.done > 0 {
+                    lines.maybe_write(&old, true);
                 }
-                *lock(&lines.what) = what.to_string();
-                lines.total.store(total as u64, Ordering::Relaxed);
-                lines.done.store(0, Ordering::Relaxed);
                 *lock(&lines.times) = Times::now();
             }
         }
@@ -100,15 +164,15 @@ impl Progress {
     /// Sets the units done to `done` and a detail shown after the counts (e.g. the change of the
     /// last EM iteration).
     pub fn set(&self, done: usize, detail: &str) {
+        let step = self.publish(|s| s.done = done as u64);
         match &self.shown {
             Shown::Bar(bar) => {
                 bar.set_position(done as u64);
                 bar.set_message(detail.to_string());
             }
             Shown::Lines(lines) => {
-                lines.done.store(done as u64, Ordering::Relaxed);
                 *lock(&lines.detail) = detail.to_string();
-                lines.maybe_write(false);
+                lines.maybe_write(&step, false);
             }
         }
     }
@@ -117,7 +181,7 @@ impl Progress {
     pub fn finish(&self) {
         match &self.shown {
             Shown::Bar(bar) => bar.finish_and_clear(),
-            Shown::Lines(lines) => lines.maybe_write(true),
+            Shown::Lines(lines) => lines.maybe_write(&lock(&self.step).clone(), true),
         }
     }
 }
@@ -125,9 +189,8 @@ impl Progress {
 impl Lines {
     /// Writes a line when the step is complete or ends (once), or when the last line is older
     /// than [`LINE_INTERVAL`].
-    fn maybe_write(&self, end: bool) {
-        let done = self.done.load(Ordering::Relaxed);
-        let total = self.total.load(Ordering::Relaxed);
+    fn maybe_write(&self, step: &Step, end: bool) {
+        let (done, total) = (step.done, step.total);
         let last_one = done >= total || end;
         let now = Instant::now();
         let mut times = lock(&self.times);
@@ -143,11 +206,10 @@ impl Lines {
         times.finished = last_one;
         let elapsed = now.duration_since(times.start);
         drop(times);
-        let what = lock(&self.what).clone();
         let detail = lock(&self.detail).clone();
         eprintln!(
             "{}",
-            progress_line(&what, done, total, elapsed, last_one, &detail)
+            progress_line(&step.what, done, total, elapsed, last_one, &detail)
         );
     }
 }

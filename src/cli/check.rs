@@ -153,6 +153,9 @@ pub fn run(run: CheckRun<'_>) -> Result<(), Box<dyn std::error::Error>> {
             }
         }
         None => fitted.for_each_part(&run.input.data, &mut |part| {
+            if crate::progress::stop_requested() {
+                return Err(crate::progress::Stopped.into());
+            }
             let (indices, subjects): (Vec<usize>, Vec<_>) = part
                 .into_iter()
                 .filter(|(_, s)| shard.is_none_or(|shard| shard.holds(&s.id)))

@@ -306,6 +306,9 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
         )?,
     };
     bar.finish();
+    if crate::progress::stop_requested() {
+        return Err(crate::progress::Stopped.into());
+    }
     // A shard may hold no subject, or only subjects that cannot be fitted: `merge` judges the
     // whole run.
     if fits.is_empty() && run.shard.is_none() {
@@ -367,6 +370,9 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             );
         }
         groups = fitted;
+        if crate::progress::stop_requested() {
+            return Err(crate::progress::Stopped.into());
+        }
     }
     // A resumed run records the command line of an uninterrupted one.
     let command_line = journal::without_flags(command_line);

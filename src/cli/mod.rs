@@ -10,7 +10,7 @@ mod fit;
 mod input;
 mod journal;
 mod merge;
-mod models;
+pub mod models;
 pub mod plan;
 mod report;
 mod shard;
@@ -685,6 +685,14 @@ pub fn group_column(fits: &std::path::Path, by: &str) -> String {
 pub fn run(cli: Cli) -> Result<(), Box<dyn std::error::Error>> {
     let command_line: Vec<String> = std::env::args().collect();
     run_as(cli, &command_line, None)
+}
+
+/// Parses `args` (the program name first, as `std::env::args` gives it) and runs that command:
+/// the whole command line in one call, for callers inside another program (the Python package).
+/// Argument errors come back as clap's message; nothing is printed for them.
+pub fn run_args(args: &[String]) -> Result<(), Box<dyn std::error::Error>> {
+    let cli = Cli::try_parse_from(args)?;
+    run_as(cli, args, None)
 }
 
 /// What `merge` gathered from the shards of a run, used by the run's own command in place of

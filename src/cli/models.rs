@@ -1,11 +1,21 @@
 //! `valuedrift models`: the built-in models with their components, equations and parameters.
 
 use crate::model::{Model, built_in_models, load_model};
+use std::fmt::Write;
 
-fn describe(model: &Model) {
-    println!("{}  ({})", model.name, model.origin);
+/// What `valuedrift models` prints for one model: name, origin, description, components with
+/// their equations, and parameters with bounds, start ranges and priors.
+pub fn description(model: &Model) -> String {
+    let mut text = String::new();
+    // Writing to a String cannot fail.
+    let _ = write_description(&mut text, model);
+    text
+}
+
+fn write_description(out: &mut String, model: &Model) -> std::fmt::Result {
+    writeln!(out, "{}  ({})", model.name, model.origin)?;
     if !model.description.is_empty() {
-        println!("  {}", model.description);
+        writeln!(out, "  {}", model.description)?;
     }
     let kinds = ["learning", "cost", "drift", "choice"];
     for ((kind, name), equation) in kinds.iter().zip(model.component_names).zip(model.equations) {
@@ -13,16 +23,17 @@ fn describe(model: &Model) {
             // Every cost attribute, in the order applied.
             for cost in &model.costs {
                 let label = format!("{} ({})", cost.shape_name, cost.name);
-                println!("  {kind:<9} {label:<20} {}", cost.equation);
+                writeln!(out, "  {kind:<9} {label:<20} {}", cost.equation)?;
             }
         } else if name != "-" {
-            println!("  {kind:<9} {name:<20} {equation}");
+            writeln!(out, "  {kind:<9} {name:<20} {equation}")?;
         }
     }
     for p in &model.parameters {
         match p.fixed {
-            Some(x) => println!("    {:<20} fixed at {x}", p.name),
-            None => println!(
+            Some(x) => writeln!(out, "    {:<20} fixed at {x}", p.name)?,
+            None => writeln!(
+                out,
                 "    {:<20} in [{}, {}], starts in [{}, {}]{}{}",
                 p.name,
                 p.lower,
@@ -37,19 +48,19 @@ fn describe(model: &Model) {
                 } else {
                     format!(" — {}", p.description)
                 }
-            ),
+            )?,
         }
     }
+    Ok(())
 }
 
 /// Lists every built-in model, or describes one model (built-in name or file path).
 pub fn run(name: Option<&str>) -> Result<(), Box<dyn std::error::Error>> {
     match name {
-        Some(n) => describe(&load_model(n)?),
+        Some(n) => print!("{}", description(&load_model(n)?)),
         None => {
             for model in built_in_models() {
-                describe(&model);
-                println!();
+                println!("{}", description(&model));
             }
         }
     }

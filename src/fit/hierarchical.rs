@@ -243,7 +243,11 @@ pub fn fit_group(
         progress(&model.name, scope, iterations, last_change);
         prior = next;
         coefficients = next_coefficients;
-        if last_change < em.tolerance || iterations >= em.max_iterations {
+        // A stop request ends the EM here; the command then writes nothing (crate::progress).
+        if last_change < em.tolerance
+            || iterations >= em.max_iterations
+            || crate::progress::stop_requested()
+        {
             break;
         }
     }

@@ -231,6 +231,17 @@ pub fn fit_table_each(
     Ok(pool.install(|| {
         jobs.par_iter()
             .map(|&(model, subject)| {
+                // After a stop request the remaining pairs are not fitted; the caller writes
+                // nothing (crate::progress::request_stop).
+                if crate::progress::stop_requested() {
+                    return Err(Skipped {
+                        model: model.name.clone(),
+                        reason: DataMismatch {
+                            subject: subject.id.clone(),
+                            message: crate::progress::Stopped.to_string(),
+                        },
+                    });
+                }
                 let outcome = SubjectLikelihood::new(model, subject, options.deadline)
                     .map(|lik| fit_subject(&lik.with_lock(options.lock), options))
                     .map_err(|reason| Skipped {
