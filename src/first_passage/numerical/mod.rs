@@ -589,40 +589,85 @@ impl<N: DualNum<Primitive = f64> + Copy> Solution<N> {
         Ok(self.undecided[k] * (1.0 - u) + self.undecided[k + 1] * u)
     }
 
-    /// P(`bound` reached by time t ≤ horizon) at drift v (`None`: the solved drift; another drift
-    /// needs a process without leak), by the trapezoid rule over the grid times (with the
-    /// interpolated density at t).
-    pub fn absorbed_by(&self, t: f64, bound: Bound, drift: Option<N>) -> Result<N, NumericalError> {
-        let density = |k: usize| -> Result<N, NumericalError> {
-            let g = self.nodes(bound)[k];
-            Ok(match drift {
-                Some(v) => g * self.tilt(N::from(self.times[k]), bound, v)?.exp(),
-                None => g,
-            })
-        };
+    /// The density of `bound` at grid time k, at drift v (`None`: the solved drift).
+    fn node_at(&self, k: usize, bound: Bound, drift: Option<N>) -> Result<N, NumericalError> {
+        let g = self.nodes(bound)[k];
+        Ok(match drift {
+            Some(v) => g * self.tilt(N::from(self.times[k]), bound, v)?.exp(),
+            None => g,
+        })
+    }
+
+    /// P(`bound` reached by decision time t ≤ horizon) at drift v (`None`: the solved drift;
+    /// another drift needs a process without leak), by the trapezoid rule over the grid times,
+    /// the last piece up to t with the interpolated density at t (so the result is smooth in t,
+    /// with derivative close to g(t)).
+    ///
+    /// # Accuracy
+    /// The solve's, plus the trapezoid rule's O(h²).
+    pub fn absorbed_by(&self, t: N, bound: Bound, drift: Option<N>) -> Result<N, NumericalError> {
+        let tv = t.re();
         let mut mass = N::from(0.0);
         let mut k = 0;
-        while k + 1 < self.times.len() && self.times[k + 1] <= t {
-            mass += (density(k)? + density(k + 1)?) * (0.5 * (self.times[k + 1] - self.times[k]));
+        while k + 1 < self.times.len() && self.times[k + 1] <= tv {
+            mass += (self.node_at(k, bound, drift)? + self.node_at(k + 1, bound, drift)?)
+                * (0.5 * (self.times[k + 1] - self.times[k]));
             k += 1;
         }
-        if k + 1 < self.times.len() && t > self.times[k] {
-            let at_t = match drift {
-                Some(v) => self.ln_density_at_drift(N::from(t), bound, v)?,
-                None => self.ln_density(N::from(t), bound)?,
+        if k + 1 < self.times.len() && tv > self.times[k] {
+            let ln_at_t = match drift {
+                Some(v) => self.ln_density_at_drift(t, bound, v)?,
+                None => self.ln_density(t, bound)?,
             };
-            mass += (density(k)? + at_t.exp()) * (0.5 * (t - self.times[k]));
+            mass += (self.node_at(k, bound, drift)? + ln_at_t.exp()) * (t - self.times[k]) * 0.5;
         }
         Ok(mass)
+    }
+
+    /// ln P(no bound reached by decision time t ≤ horizon) at drift v (`None`: the solved
+    /// drift), as ln(1 − P₊(t) − P₋(t)) from [`Solution::absorbed_by`]; exactly −∞ where that is
+    /// not positive (every process has ended, up to the solve's error).
+    pub fn ln_undecided(&self, t: N, drift: Option<N>) -> Result<N, NumericalError> {
+        let left = N::from(1.0)
+            - self.absorbed_by(t, Bound::Upper, drift)?
+            - self.absorbed_by(t, Bound::Lower, drift)?;
+        Ok(if left.re() > 0.0 {
+            left.ln()
+        } else {
+            N::from(f64::NEG_INFINITY)
+        })
+    }
+
+    /// The mean decision time of the processes absorbed by the horizon, ∫t·(g₊ + g₋)dt / ∫(g₊ + g₋)dt
+    /// by the trapezoid rule, at drift v (`None`: the solved drift); `None` when nothing is
+    /// absorbed. On a horizon that holds the whole distribution (see [`solve_settled`]) it is the
+    /// mean decision time.
+    pub fn mean_decision_time(&self, drift: Option<N>) -> Result<Option<N>, NumericalError> {
+        let mut mass = N::from(0.0);
+        let mut moment = N::from(0.0);
+        for k in 1..self.times.len() {
+            let width = 0.5 * (self.times[k] - self.times[k - 1]);
+            for bound in [Bound::Upper, Bound::Lower] {
+                let (a, b) = (
+                    self.node_at(k - 1, bound, drift)?,
+                    self.node_at(k, bound, drift)?,
+                );
+                mass += (a + b) * width;
+                moment += (a * self.times[k - 1] + b * self.times[k]) * width;
+            }
+        }
+        Ok((mass.re() > 0.0).then(|| moment / mass))
     }
 }
 
 impl Solution<f64> {
-    /// A draw of (bound, decision time) at drift v (`None`: the solved drift), by inverting the
-    /// distribution function on the grid: a uniform u picks the step where the cumulative mass
-    /// of both bounds (trapezoid rule) passes it, the bound in proportion to each bound's mass
-    /// in that step, and the time linearly within it. `None` when u falls in the mass not
-    /// absorbed by the horizon (the caller decides: a late response or none).
+    /// A draw of (bound, decision time) at drift v (`None`: the solved drift), conditioned on a
+    /// passage by the horizon, by inverting the distribution function on the grid: a uniform u
+    /// times the mass absorbed by the horizon picks the step where the cumulative mass of both
+    /// bounds (trapezoid rule) passes it, the bound in proportion to each bound's mass in that
+    /// step, and the time linearly within it. `None` when nothing is absorbed by the horizon.
+    /// On a horizon that holds the whole distribution ([`solve_settled`]) the conditioning
+    /// changes nothing beyond its tolerance.
     ///
     /// # Accuracy
     /// Exact up to the solve's error and the linear interpolation within a step (a time error
@@ -632,34 +677,45 @@ impl Solution<f64> {
         drift: Option<f64>,
         rng: &mut dyn Rng,
     ) -> Result<Option<(Bound, f64)>, NumericalError> {
-        let u: f64 = rng.random();
-        let tilted = |k: usize, bound: Bound| -> Result<f64, NumericalError> {
-            let g = self.nodes(bound)[k];
-            Ok(match drift {
-                Some(v) => g * self.tilt(self.times[k], bound, v)?.exp(),
-                None => g,
-            })
-        };
-        let mut cumulative = 0.0;
+        let mut steps = Vec::with_capacity(self.times.len());
+        let mut total = 0.0;
         for k in 1..self.times.len() {
-            let width = self.times[k] - self.times[k - 1];
-            let up =
-                (0.5 * width * (tilted(k - 1, Bound::Upper)? + tilted(k, Bound::Upper)?)).max(0.0);
-            let down =
-                (0.5 * width * (tilted(k - 1, Bound::Lower)? + tilted(k, Bound::Lower)?)).max(0.0);
+            let width = 0.5 * (self.times[k] - self.times[k - 1]);
+            let mass = |bound| -> Result<f64, NumericalError> {
+                let sum = self.node_at(k - 1, bound, drift)? + self.node_at(k, bound, drift)?;
+                Ok((width * sum).max(0.0))
+            };
+            let (up, down) = (mass(Bound::Upper)?, mass(Bound::Lower)?);
+            steps.push((up, down));
+            total += up + down;
+        }
+        if total <= 0.0 {
+            return Ok(None);
+        }
+        let target = rng.random::<f64>() * total;
+        let mut cumulative = 0.0;
+        for (k, &(up, down)) in steps.iter().enumerate() {
             let step_mass = up + down;
-            if step_mass > 0.0 && cumulative + step_mass >= u {
-                let within = (u - cumulative) / step_mass;
+            if step_mass > 0.0 && cumulative + step_mass >= target {
+                let within = ((target - cumulative) / step_mass).clamp(0.0, 1.0);
                 let bound = if within * step_mass < up {
                     Bound::Upper
                 } else {
                     Bound::Lower
                 };
-                return Ok(Some((bound, self.times[k - 1] + within * width)));
+                let (ta, tb) = (self.times[k], self.times[k + 1]);
+                return Ok(Some((bound, ta + within * (tb - ta))));
             }
             cumulative += step_mass;
         }
-        Ok(None)
+        // Rounding left the target above the last step's sum: the last step with mass.
+        let last = steps.iter().rposition(|&(u, d)| u + d > 0.0).unwrap_or(0);
+        let bound = if steps[last].0 > 0.0 {
+            Bound::Upper
+        } else {
+            Bound::Lower
+        };
+        Ok(Some((bound, self.times[last + 1])))
     }
 }
 
@@ -669,16 +725,16 @@ impl Solution<f64> {
 ///
 /// # Errors
 /// As [`solve`].
-pub fn solve_settled(
-    process: &Process<f64>,
+pub fn solve_settled<N: DualNum<Primitive = f64> + Copy>(
+    process: &Process<N>,
     mut horizon: f64,
     max_horizon: f64,
     grid: Grid,
     tolerance: f64,
-) -> Result<Solution<f64>, NumericalError> {
+) -> Result<Solution<N>, NumericalError> {
     loop {
         let solution = solve(process, horizon, grid)?;
-        let left = solution.undecided(solution.horizon())?;
+        let left = solution.undecided(solution.horizon())?.re();
         if left < tolerance || horizon >= max_horizon {
             return Ok(solution);
         }
