@@ -351,7 +351,7 @@ pub fn solve<N: DualNum<Primitive = f64> + Copy>(
     let t0 = (distance / START_DEVIATIONS)
         .powi(2)
         .min(0.5 * h)
-        .min(horizon);
+        .min(0.5 * horizon);
     let dz = 2.0 / (m + 1) as f64;
     let z = |i: usize| -1.0 + dz * (i + 1) as f64;
     // The free Gaussian at t₀ in z: q = S·p(Sz).

@@ -351,14 +351,16 @@ fn cached<N: Clone>(
 }
 
 impl Prepared<'_> {
-    /// The latest decision time the subject's observations need.
+    /// A horizon past the latest decision time the subject's observations need: the latest
+    /// observed time itself, not less the non-decision time, so that the grid does not move
+    /// with ndt (its dual derivative is then the derivative of the discretised likelihood).
     fn horizon(&self) -> f64 {
         let c = &self.context;
         let latest = [Some(c.rt_max), c.deadline, c.lock]
             .into_iter()
             .flatten()
             .fold(0.0, f64::max);
-        (latest - self.ndt).max(1e-3)
+        latest.max(1e-3)
     }
 
     /// The solve on the stage's numbers for drift `v` (drift 0 when one solve serves every
