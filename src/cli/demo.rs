@@ -52,7 +52,7 @@ pub fn run(
     let names: Vec<String> = built_in_models()
         .into_iter()
         .filter(|m| m.signal() != crate::model::components::Signal::DriftPerOption)
-        .filter(|m| !crate::model::components::uses_numerical_engine(&m.component_names[3]))
+        .filter(|m| !crate::model::components::uses_numerical_engine(m.component_names[3]))
         .map(|m| m.name)
         .collect();
     println!(

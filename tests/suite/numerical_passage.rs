@@ -288,6 +288,9 @@ fn ks_distance(
         .fold(0.0, f64::max)
 }
 
+/// (name, (drift, boundary, start, leak), shape, drift by Girsanov's theorem?).
+type Case = (&'static str, (f64, f64, f64, f64), Collapse<f64>, bool);
+
 #[test]
 fn leak_and_collapse_match_a_fine_step_simulation() {
     // Kolmogorov–Smirnov at fixed seeds: 3000 Euler paths (dt = 1e-4 s, bridge-corrected)
@@ -295,7 +298,7 @@ fn leak_and_collapse_match_a_fine_step_simulation() {
     // (common practice). Cases: Weibull collapse with leak (solved at the drift), urgency
     // and linear collapse without leak (solved at drift 0, the drift by Girsanov's theorem).
     let n = 3000;
-    let cases: Vec<(&str, (f64, f64, f64, f64), Collapse<f64>, bool)> = vec![
+    let cases: Vec<Case> = vec![
         (
             "weibull+leak",
             (0.8, 1.6, 0.45, 1.5),
@@ -359,7 +362,7 @@ fn gradient_of_every_numerical_engine_model_matches_central_differences() {
     let mut rng = ChaCha8Rng::seed_from_u64(16);
     let models: Vec<_> = built_in_models()
         .into_iter()
-        .filter(|m| uses_numerical_engine(&m.component_names[3]))
+        .filter(|m| uses_numerical_engine(m.component_names[3]))
         .collect();
     assert_eq!(models.len(), 4);
     for model in &models {
