@@ -12,8 +12,8 @@ use std::path::Path;
 use valuedrift::first_passage::Bound;
 use valuedrift::first_passage::numerical::{Collapse, Grid, Process, solve, solve_settled};
 use valuedrift::likelihood::SubjectLikelihood;
-use valuedrift::model::built_in_models;
 use valuedrift::model::components::uses_numerical_engine;
+use valuedrift::model::{built_in_models, parse_model};
 use valuedrift::simulate::{
     SimulationSettings, orchard_design, orchard_generating_values, simulate_subject,
 };
@@ -402,5 +402,40 @@ fn gradient_of_every_numerical_engine_model_matches_central_differences() {
                 e.gradient[j]
             );
         }
+    }
+}
+
+#[test]
+fn collapse_parameters_outside_their_domain_are_refused_naming_the_key() {
+    // Source: the shapes' domains (src/first_passage/numerical/shape.rs): a collapse fraction
+    // above 1 would turn the bounds inside out, a negative leak is not a leak.
+    let weibull = built_in_models()
+        .into_iter()
+        .find(|m| m.name == "gainloss-collapse-weibull")
+        .unwrap()
+        .text;
+    let leaky = built_in_models()
+        .into_iter()
+        .find(|m| m.name == "gainloss-leaky")
+        .unwrap()
+        .text;
+    for (text, from, to, key) in [
+        (
+            &weibull,
+            "[parameters.collapse]\nlower = 0.0\nupper = 1.0",
+            "[parameters.collapse]\nlower = 0.0\nupper = 1.5",
+            "parameters.collapse",
+        ),
+        (
+            &leaky,
+            "[parameters.leak]\nlower = 0.0",
+            "[parameters.leak]\nlower = -1.0",
+            "parameters.leak",
+        ),
+    ] {
+        assert!(text.contains(from));
+        let err = parse_model(&text.replace(from, to), "bad.toml").unwrap_err();
+        assert!(err.key.starts_with(key), "{err}");
+        assert_eq!(err.origin, "bad.toml");
     }
 }
