@@ -124,6 +124,11 @@ pub fn orchard_generating_values(model: &Model, rng: &mut dyn Rng) -> Option<Vec
                 "threshold" => (1.0, 2.0),
                 "start_range" => (0.3, 1.0),
                 "threshold_gap" => (0.2, 0.8),
+                "collapse_rate" => (0.05, 0.3),
+                "collapse" => (0.3, 0.8),
+                "collapse_scale" => (0.5, 2.0),
+                "urgency" => (0.3, 2.0),
+                "leak" => (0.5, 3.0),
                 _ => return p.fixed,
             };
             // Drawn even for a fixed parameter, so the random stream does not depend on which

@@ -47,10 +47,12 @@ pub fn run(
     let data = dir.path().join("demo_trials.csv");
     std::fs::write(&data, TRIALS)?;
     // The demo weighs the cost-weighting hypotheses; the racing accumulators (made for three
-    // or more options, slower to fit) are left to their own tests and examples.
+    // or more options, slower to fit) and the numerical-engine stages (collapsing bounds,
+    // urgency, leak) are left to their own tests and examples.
     let names: Vec<String> = built_in_models()
         .into_iter()
         .filter(|m| m.signal() != crate::model::components::Signal::DriftPerOption)
+        .filter(|m| !crate::model::components::uses_numerical_engine(m.component_names[3]))
         .map(|m| m.name)
         .collect();
     println!(

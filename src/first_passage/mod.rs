@@ -16,7 +16,9 @@
 //!   [`ln_bound_probability_with_gradient`] with its partial derivatives;
 //! * [`mean_decision_time`], [`mean_decision_time_given`]: mean decision times overall and per
 //!   bound (Grasman, Wagenmakers & van der Maas 2009);
-//! * [`sample`]: exact draws of (bound, response time).
+//! * [`sample`]: exact draws of (bound, response time);
+//! * [`numerical`]: time-varying (collapsing) bounds, urgency and leak, by the integral-equation
+//!   method, with controllable accuracy.
 //!
 //! # Example
 //! ```
@@ -43,6 +45,7 @@ mod density;
 mod distribution;
 mod moments;
 mod normal;
+pub mod numerical;
 mod params;
 mod quadrature;
 mod sampler;

@@ -547,6 +547,7 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
         "forget_rate",
         "lapse",
         "gaze_discount",
+        "collapse",
     ] {
         check_range(rate, 0.0, 1.0)?;
     }
@@ -560,7 +561,10 @@ pub fn parse_model(text: &str, origin: &str) -> Result<Model, ModelError> {
         check_range("drift_sd", 1e-9, f64::INFINITY)?;
         check_range("start_range", 1e-9, f64::INFINITY)?;
     }
-    for non_negative in ["ndt", "drift_sd"] {
+    for positive in ["half_time", "collapse_scale", "collapse_shape"] {
+        check_range(positive, 1e-9, f64::INFINITY)?;
+    }
+    for non_negative in ["ndt", "drift_sd", "collapse_rate", "urgency", "leak"] {
         check_range(non_negative, 0.0, f64::INFINITY)?;
     }
     if choice.name == "diffusion" {

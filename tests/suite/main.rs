@@ -23,6 +23,7 @@ mod honest_output;
 mod likelihood;
 mod likelihood_fast_path;
 mod model_selection;
+mod numerical_passage;
 mod output_formats;
 mod output_safety;
 mod parameter_recovery;

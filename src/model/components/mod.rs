@@ -8,6 +8,7 @@
 //! `cost_<name>.rs` implementing [`CostShape`], add its line to [`COST_SHAPES`], and add a model
 //! file to models/ that uses it.
 
+mod choice_collapse;
 mod choice_diffusion;
 mod choice_race;
 mod choice_softmax;
@@ -284,6 +285,11 @@ pub const CHOICE_STAGES: &[Entry<dyn ChoiceStage>] = &[
     choice_softmax::ENTRY,
     choice_race::WALD_ENTRY,
     choice_race::BALLISTIC_ENTRY,
+    choice_collapse::LINEAR_ENTRY,
+    choice_collapse::HYPERBOLIC_ENTRY,
+    choice_collapse::WEIBULL_ENTRY,
+    choice_collapse::URGENCY_ENTRY,
+    choice_collapse::LEAKY_ENTRY,
 ];
 
 /// [`PreparedChoice::ln_likelihood_local_batch`] by one call of
@@ -306,6 +312,12 @@ pub fn local_trial_by_trial<P: PreparedChoice + ?Sized>(
         }
     }
     Ok(())
+}
+
+/// True for the choice stages that use the numerical first-passage engine (collapsing bounds,
+/// urgency, leak): slower to fit than the closed-form stages.
+pub fn uses_numerical_engine(stage: &str) -> bool {
+    choice_collapse::STAGE_NAMES.contains(&stage)
 }
 
 /// Looks a component up by name in its table.
