@@ -70,11 +70,13 @@ def test_progress_reaches_python_while_a_fit_runs(capsys):
     fitted = vd.fit(small, "gainloss-linear", starts=2, threads=1, progress=True)
     shown = capsys.readouterr().out
     assert "fitting 3/3 (100 %)" in shown, shown
-    args = ["fit", "--data", fitted.trials, "--model", "gainloss-linear", "--out",
-            fitted.folder.parent / "again", "--starts", "40", "--threads", "1"]
+    # The whole demo table (40 subjects), so that the fit outlasts several polls (every 0.1 s)
+    # on any machine; a few subjects can finish between two polls.
+    args = ["fit", "--data", DEMO_TRIALS, "--model", "gainloss-linear", "--out",
+            fitted.folder.parent / "again", "--starts", "10", "--threads", "1"]
     run([str(a) for a in args], lambda what, done, total: seen.append((what, done, total)))
-    assert seen[-1] == ("fitting", 3, 3), seen
-    assert any(done < total for _, done, total in seen), seen
+    assert seen[-1] == ("fitting", 40, 40), seen
+    assert any(what == "fitting" and done < total for what, done, total in seen), seen
 
 
 def interrupt_at(step: str):
