@@ -1,7 +1,7 @@
 //! Exact sampling of (bound, response time).
 
 use super::params::{Bound, DiffusionParams, StartTerms};
-use super::series::{ln_prob_upper, std_cdf_given, std_density};
+use super::series::{large_time_survival, ln_prob_upper, std_cdf_given, std_density};
 use rand::Rng;
 use rand::RngExt;
 use rand::distr::Open01;
@@ -9,6 +9,15 @@ use rand_distr::StandardNormal;
 
 /// Root tolerance in log standardised time: decision times are found to 1e-12 relative.
 const LOG_TIME_TOLERANCE: f64 = 1e-12;
+
+/// Standardised time from which the upper half of the distribution is inverted through the
+/// large-time survival series directly (Blurton, Kesselmeier & Gondan 2012, eq. 5): it needs
+/// no special function per term, where the sum of Wald distribution functions that
+/// [`super::series::std_cdf`] uses below u = 0.5 needs four normal tails and four logarithms
+/// per image pair. Each term is below exp(−π²u/2·(2k − 1)) times the previous one, so from
+/// u = 0.1 it takes at most a dozen terms, and the survival comes out in relative terms (no
+/// subtraction from P_lower).
+const SURVIVAL_SERIES_FROM: f64 = 0.1;
 
 /// Largest |ln u| the inversion searches (u is standardised time).
 const LN_TIME_LIMIT: f64 = 700.0;
@@ -60,16 +69,18 @@ fn invert_lower(lambda: f64, w: f64, q: f64) -> f64 {
     // Residual increasing in x = ln u, and its derivative.
     let residual = |x: f64| -> (f64, f64) {
         let u = x.exp();
-        let parts = std_cdf_given(lambda, u, w, ln_p);
         let ln_density =
             -lambda * w - 0.5 * lambda * lambda * u + std_density::<false>(u, &terms).ln_g;
         if use_cdf {
-            (parts.ln_cdf - target, (x + ln_density - parts.ln_cdf).exp())
+            let ln_cdf = std_cdf_given(lambda, u, w, ln_p).ln_cdf;
+            (ln_cdf - target, (x + ln_density - ln_cdf).exp())
         } else {
-            (
-                target - parts.ln_survival,
-                (x + ln_density - parts.ln_survival).exp(),
-            )
+            let ln_survival = if u >= SURVIVAL_SERIES_FROM {
+                large_time_survival(lambda, u, w).min(ln_p)
+            } else {
+                std_cdf_given(lambda, u, w, ln_p).ln_survival
+            };
+            (target - ln_survival, (x + ln_density - ln_survival).exp())
         }
     };
     // Safeguarded Newton iteration from the conditional mean, (1 − (1 − w)²)/3 at λ = 0,

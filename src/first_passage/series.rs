@@ -329,7 +329,7 @@ fn wald_sum(lambda: f64, u: f64, w: f64) -> f64 {
     ln_sub_exp(ln_pos, ln_neg)
 }
 
-fn large_time_survival(lambda: f64, u: f64, w: f64) -> f64 {
+pub(crate) fn large_time_survival(lambda: f64, u: f64, w: f64) -> f64 {
     let pi2 = PI * PI;
     let lambda2 = lambda * lambda;
     let (sin1, cos1) = (PI * w).sin_cos();
