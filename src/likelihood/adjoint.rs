@@ -31,7 +31,7 @@ use super::design::TrialColumns;
 use super::design::{Origin, origin_linear};
 use crate::data::Subject;
 use crate::model::Model;
-use crate::model::components::{Observation, Signal};
+use crate::model::components::{LocalStretch, Observation, Signal};
 use crate::model::dual::{Local, constant};
 
 /// ln L with its partial derivatives: `d_natural` by model slot with respect to natural values,
@@ -305,13 +305,13 @@ impl SubjectLikelihood<'_> {
             d_c.clear();
             d_c.resize(p.len(), 0.0);
             prepared
-                .ln_likelihood_local_batch(
-                    &drifts[*from..*until],
-                    &columns.observations[*from..*until],
-                    &mut d_drifts[*from..*until],
-                    d_c,
-                    &mut out.ln_likelihood,
-                )
+                .ln_likelihood_local_batch(LocalStretch {
+                    drifts: &drifts[*from..*until],
+                    observations: &columns.observations[*from..*until],
+                    d_drifts: &mut d_drifts[*from..*until],
+                    d_parameters: d_c,
+                    total: &mut out.ln_likelihood,
+                })
                 .ok()?;
             self.flush(*from, d_c, theta, &mut out);
         }

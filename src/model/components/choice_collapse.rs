@@ -366,16 +366,30 @@ impl Prepared<'_> {
     /// The solve on the stage's numbers for drift `v` (drift 0 when one solve serves every
     /// drift), with the drift to pass to it (`Some` when the drift is changed after the solve).
     fn local_solution(&self, v: f64) -> Option<(Solution<Local>, Option<Local>)> {
+        self.local_solved(v, &self.solutions, |at| {
+            solve(at, self.horizon(), self.stage.grid).ok()
+        })
+    }
+
+    /// A solve on the stage's numbers for drift `v`, kept in `cache` and made by `make` from
+    /// the process (at drift 0 when one solve serves every drift), with the drift to pass to it
+    /// (`Some` when the drift is changed after the solve).
+    fn local_solved(
+        &self,
+        v: f64,
+        cache: &RefCell<Vec<(u64, Solution<Local>)>>,
+        make: impl FnOnce(&Process<Local>) -> Option<Solution<Local>>,
+    ) -> Option<(Solution<Local>, Option<Local>)> {
         let process = self.local?;
         let drift = seeded(v, DRIFT);
         let solve_drift = if self.tilts { 0.0 } else { v };
-        let solution = cached(&self.solutions, solve_drift, || {
+        let solution = cached(cache, solve_drift, || {
             let at = if self.tilts {
                 process
             } else {
                 process.with_drift(drift)
             };
-            solve(&at, self.horizon(), self.stage.grid).ok()
+            make(&at)
         })?;
         Some((solution, self.tilts.then_some(drift)))
     }
@@ -491,25 +505,16 @@ impl Prepared<'_> {
 
     /// The solve on the stage's numbers that holds the whole distribution at drift v.
     fn local_settled(&self, v: f64) -> Option<(Solution<Local>, Option<Local>)> {
-        let process = self.local?;
-        let drift = seeded(v, DRIFT);
-        let solve_drift = if self.tilts { 0.0 } else { v };
-        let solution = cached(&self.settled_local, solve_drift, || {
-            let at = if self.tilts {
-                process
-            } else {
-                process.with_drift(drift)
-            };
+        self.local_solved(v, &self.settled_local, |at| {
             solve_settled(
-                &at,
+                at,
                 self.horizon().max(1.0),
                 MAX_HORIZON,
                 self.stage.grid,
                 SETTLED,
             )
             .ok()
-        })?;
-        Some((solution, self.tilts.then_some(drift)))
+        })
     }
 
     /// P(a), the mean decision time, at drift v, from the settled plain solve.

@@ -31,15 +31,15 @@
 //! process (tests/suite/response_window.rs compares the two).
 
 use super::{
-    ChoiceStage, Entry, NoLocalForm, Observation, Options, PreparedChoice, Signal, Slots,
-    SubjectContext, local_trial_by_trial, only_options,
+    ChoiceStage, Entry, LocalStretch, NoLocalForm, Observation, Options, PreparedChoice, Signal,
+    Slots, SubjectContext, local_trial, local_trial_by_trial, only_options,
 };
 use crate::data::Choice;
 use crate::first_passage::{
     Bound, DensityGradient, DiffusionParams, ln_bound_probability_with_gradient,
     ln_density_with_gradient, ln_survival, ln_survival_with_gradient, mean_decision_time, sample,
 };
-use crate::model::dual::{D, Local, chain};
+use crate::model::dual::{D, chain};
 use nalgebra::{Const, SVector, U1};
 use num_dual::{Derivative, DualNum, DualSVec64};
 use rand::{Rng, RngExt};
@@ -411,19 +411,18 @@ impl PreparedChoice for Prepared<'_> {
     /// active lock) go straight to the engine, the stage parameters' partial derivatives summed
     /// over the stretch before they are added to their slots; the others take
     /// [`PreparedChoice::ln_likelihood_local`].
-    fn ln_likelihood_local_batch(
-        &self,
-        drifts: &[Local],
-        observations: &[Observation],
-        d_drifts: &mut [f64],
-        d_parameters: &mut [f64],
-        total: &mut f64,
-    ) -> Result<(), NoLocalForm> {
+    fn ln_likelihood_local_batch(&self, stretch: LocalStretch<'_>) -> Result<(), NoLocalForm> {
         let (Some(base), None) = (self.base, self.local_lapse_terms) else {
-            return local_trial_by_trial(self, drifts, observations, d_drifts, d_parameters, total);
+            return local_trial_by_trial(self, stretch);
         };
+        let LocalStretch {
+            drifts,
+            observations,
+            d_drifts,
+            d_parameters,
+            total,
+        } = stretch;
         let mut stage = [0.0; 7];
-        let mut d_signal = [0.0];
         for ((drift, observation), d_drift) in drifts.iter().zip(observations).zip(d_drifts) {
             let params = base.with_drift(drift.value);
             if let (Some(choice), Some(rt)) = (observation.choice, observation.rt)
@@ -437,11 +436,8 @@ impl PreparedChoice for Prepared<'_> {
                     .iter_mut()
                     .zip(&partials[1..])
                     .for_each(|(sum, d)| *sum += d);
-            } else if let Some(ln_trial) =
-                self.ln_likelihood_local(&[drift.value], observation, &mut d_signal, d_parameters)?
-            {
-                *total += ln_trial;
-                *d_drift = d_signal[0];
+            } else {
+                local_trial(self, drift.value, observation, d_drift, d_parameters, total)?;
             }
         }
         for (slot, d) in self.stage.slots().into_iter().zip(stage) {

@@ -229,21 +229,12 @@ pub trait PreparedChoice {
     ) -> Result<Option<f64>, NoLocalForm> {
         Err(NoLocalForm)
     }
-    /// [`PreparedChoice::ln_likelihood_local`] over the trials of a stretch, for stages read by
-    /// one drift (trial i's is `drifts[i].value`): adds each scored trial's ln ℓᵢ to `total` in
-    /// trial order, writes ∂ln ℓᵢ/∂driftᵢ to `d_drifts[i]` (untouched for a trial not scored)
-    /// and adds the stage parameters' partial derivatives to `d_parameters`. The default scores
-    /// trial by trial ([`local_trial_by_trial`]); a stage may override it to keep its own
-    /// parameters' sums in registers.
-    fn ln_likelihood_local_batch(
-        &self,
-        drifts: &[Local],
-        observations: &[Observation],
-        d_drifts: &mut [f64],
-        d_parameters: &mut [f64],
-        total: &mut f64,
-    ) -> Result<(), NoLocalForm> {
-        local_trial_by_trial(self, drifts, observations, d_drifts, d_parameters, total)
+    /// [`PreparedChoice::ln_likelihood_local`] over the trials of a stretch ([`LocalStretch`]),
+    /// for stages read by one drift. The default scores trial by trial
+    /// ([`local_trial_by_trial`]); a stage may override it to keep its own parameters' sums in
+    /// registers.
+    fn ln_likelihood_local_batch(&self, stretch: LocalStretch<'_>) -> Result<(), NoLocalForm> {
+        local_trial_by_trial(self, stretch)
     }
     /// P(choose each offered option | signal).
     fn probabilities(&self, signal: &[f64]) -> Vec<f64>;
@@ -292,24 +283,59 @@ pub const CHOICE_STAGES: &[Entry<dyn ChoiceStage>] = &[
     choice_collapse::LEAKY_ENTRY,
 ];
 
+/// One stretch of trials for [`PreparedChoice::ln_likelihood_local_batch`]: trial i's drift
+/// (`drifts[i].value`) and observation in; out, each scored trial's ln ℓᵢ added to `total` in
+/// trial order, ∂ln ℓᵢ/∂driftᵢ written to `d_drifts[i]` (untouched for a trial not scored) and
+/// the stage parameters' partial derivatives added to `d_parameters` by slot.
+pub struct LocalStretch<'a> {
+    /// Each trial's drift (its `value`).
+    pub drifts: &'a [Local],
+    /// Each trial's observation.
+    pub observations: &'a [Observation],
+    /// ∂ln ℓᵢ/∂driftᵢ.
+    pub d_drifts: &'a mut [f64],
+    /// ∂ln L/∂p by model slot, added to.
+    pub d_parameters: &'a mut [f64],
+    /// The running ln L, added to.
+    pub total: &'a mut f64,
+}
+
 /// [`PreparedChoice::ln_likelihood_local_batch`] by one call of
 /// [`PreparedChoice::ln_likelihood_local`] per trial.
 pub fn local_trial_by_trial<P: PreparedChoice + ?Sized>(
     stage: &P,
-    drifts: &[Local],
-    observations: &[Observation],
-    d_drifts: &mut [f64],
+    stretch: LocalStretch<'_>,
+) -> Result<(), NoLocalForm> {
+    let trials = stretch.drifts.iter().zip(stretch.observations);
+    for ((drift, observation), d_drift) in trials.zip(stretch.d_drifts.iter_mut()) {
+        let (d_parameters, total) = (&mut *stretch.d_parameters, &mut *stretch.total);
+        local_trial(
+            stage,
+            drift.value,
+            observation,
+            d_drift,
+            d_parameters,
+            total,
+        )?;
+    }
+    Ok(())
+}
+
+/// One trial of [`local_trial_by_trial`].
+pub fn local_trial<P: PreparedChoice + ?Sized>(
+    stage: &P,
+    drift: f64,
+    observation: &Observation,
+    d_drift: &mut f64,
     d_parameters: &mut [f64],
     total: &mut f64,
 ) -> Result<(), NoLocalForm> {
     let mut d_signal = [0.0];
-    for ((drift, observation), d_drift) in drifts.iter().zip(observations).zip(d_drifts) {
-        if let Some(ln_trial) =
-            stage.ln_likelihood_local(&[drift.value], observation, &mut d_signal, d_parameters)?
-        {
-            *total += ln_trial;
-            *d_drift = d_signal[0];
-        }
+    if let Some(ln_trial) =
+        stage.ln_likelihood_local(&[drift], observation, &mut d_signal, d_parameters)?
+    {
+        *total += ln_trial;
+        *d_drift = d_signal[0];
     }
     Ok(())
 }
