@@ -47,8 +47,10 @@
 //! # Accuracy and cost
 //! Second order in h and in the grid spacing 2/M; see [`DEFAULT_STEP`] for the measured errors.
 //! Cost: one tridiagonal solve of M unknowns per step, so a solve to horizon T costs about
-//! (T/h)·M·20 operations. Every number type goes through the same code, so dual numbers give
-//! the exact derivatives of the discretised solution on its grid; the grid's start time and
+//! (T/h)·M·20 operations for the density and about as much again for each parameter the
+//! derivatives are taken in. Those derivatives are forward sensitivities of the discretised
+//! solution (`march`): the exact derivatives of the grid's numbers, computed on plain numbers with
+//! the density's factored matrix; the grid's start time and
 //! first steps depend on the boundary and start, which those derivatives hold fixed (the test allows
 //! 1e-3 relative to central differences and saw 3e-5 and 1.9e-4 on the boundary;
 //! tests/suite/numerical_passage.rs).
@@ -66,9 +68,15 @@
 //! −∞. No function returns NaN for valid parameters: every parameter is checked by
 //! [`Process::new`], and the grid by [`Grid::new`].
 
+mod march;
+mod partials;
 mod shape;
 
+pub use partials::Partials;
 pub use shape::Collapse;
+
+use march::March;
+use partials::carried;
 
 use super::Bound;
 use num_dual::DualNum;
@@ -256,6 +264,13 @@ impl<N: DualNum<Primitive = f64> + Copy> Process<N> {
         self.leak
     }
 
+    /// Every parameter of the process, shape parameters included.
+    fn numbers(&self) -> Vec<N> {
+        let mut all = vec![self.drift, self.boundary, self.start, self.leak];
+        all.extend(self.collapse.parameters().into_iter().map(|(_, x)| x));
+        all
+    }
+
     /// The start y₀ = (w − ½)·a, measured from the midpoint.
     fn origin(&self) -> N {
         (self.start - 0.5) * self.boundary
@@ -335,7 +350,7 @@ pub struct Solution<N> {
 /// # Errors
 /// [`NumericalError::Grid`] when the horizon is not a positive finite number or more than
 /// [`MAX_STEPS`] steps would be needed.
-pub fn solve<N: DualNum<Primitive = f64> + Copy>(
+pub fn solve<N: Partials>(
     process: &Process<N>,
     horizon: f64,
     grid: Grid,
@@ -365,103 +380,38 @@ pub fn solve<N: DualNum<Primitive = f64> + Copy>(
     let (s0, _) = p.half_width(N::from(t0));
     let lag = Lag::new(N::from(t0), p.leak);
     let mean = lag.mean(y0, p.drift);
-    let mut q: Vec<N> = (0..m)
+    let initial: Vec<N> = (0..m)
         .map(|i| {
             let d = s0 * z(i) - mean;
             (-(d * d) / (lag.variance * 2.0)).exp() * s0 / (lag.variance * (2.0 * PI)).sqrt()
         })
         .collect();
-    let mass = |q: &[N]| q.iter().fold(zero, |acc, &x| acc + x) * dz;
     let mut solution = Solution {
         process: *p,
         times: vec![t0],
         upper: vec![zero],
         lower: vec![zero],
-        undecided: vec![mass(&q)],
+        undecided: vec![initial.iter().fold(zero, |acc, &x| acc + x) * dz],
     };
-    // Operator coefficients at time t: (Lq)_i = α_i q_{i−1} + β q_i + γ_i q_{i+1}.
-    let operator = |t: f64| -> Option<(Vec<N>, N, Vec<N>, N)> {
-        let (s, ds) = p.half_width(N::from(t));
-        if s.re() <= 0.0 {
-            return None;
-        }
-        let inverse = s.recip();
-        let diffusion = inverse * inverse * 0.5;
-        // b(z) = (v − λSz)/S − z·S′/S = v/S − z·(λ + S′/S), one reciprocal per time.
-        let (level, slope) = (p.drift * inverse, p.leak + ds * inverse);
-        let advection = |i: isize| {
-            let zi = -1.0 + dz * (i + 1) as f64;
-            level - slope * zi
-        };
-        let centre = diffusion / (dz * dz);
-        let alpha = (0..m as isize)
-            .map(|i| centre + advection(i - 1) / (2.0 * dz))
-            .collect();
-        let gamma = (0..m as isize)
-            .map(|i| centre - advection(i + 1) / (2.0 * dz))
-            .collect();
-        Some((alpha, -centre * 2.0, gamma, inverse * inverse))
-    };
-    let apply = |op: &(Vec<N>, N, Vec<N>, N), q: &[N], i: usize| {
-        let left = if i > 0 { op.0[i] * q[i - 1] } else { zero };
-        let right = if i + 1 < m { op.2[i] * q[i + 1] } else { zero };
-        left + op.1 * q[i] + right
-    };
-    let mut t = t0;
-    let mut current = operator(t);
-    let mut rhs = vec![zero; m];
-    let mut c_prime = vec![zero; m];
-    let mut step_index = 0;
-    while t < horizon * (1.0 - 1e-12) {
+    let step = |t: f64| {
         let edge = distances
             .iter()
             .filter(|&&d| d * d / (2.0 * t) < EDGE_FROM)
             .map(|&d| EDGE_STEP * t * t / (d * d))
             .fold(f64::INFINITY, f64::min);
-        let dt = h
-            .min(STEP_GROWTH * t)
+        h.min(STEP_GROWTH * t)
             .min(edge)
             .max(t0.min(h))
-            .min(horizon - t);
-        let next_t = t + dt;
-        let Some(now) = current.as_ref() else { break };
-        let Some(next) = operator(next_t) else {
-            // The bounds have met: every process has ended.
-            solution.push(next_t, zero, zero, zero);
-            break;
-        };
-        let theta = if step_index < DAMPING_STEPS { 1.0 } else { 0.5 };
-        for (i, r) in rhs.iter_mut().enumerate() {
-            *r = q[i] + apply(now, &q, i) * ((1.0 - theta) * dt);
-        }
-        // Thomas algorithm for (I − θ·dt·L_next) q = rhs.
-        let w = theta * dt;
-        let lower_diag = |i: usize| -next.0[i] * w;
-        let diag = N::from(1.0) - next.1 * w;
-        let upper_diag = |i: usize| -next.2[i] * w;
-        let mut inverse = diag.recip();
-        c_prime[0] = upper_diag(0) * inverse;
-        rhs[0] *= inverse;
-        for i in 1..m {
-            inverse = (diag - lower_diag(i) * c_prime[i - 1]).recip();
-            c_prime[i] = upper_diag(i) * inverse;
-            let previous = rhs[i - 1];
-            rhs[i] = (rhs[i] - lower_diag(i) * previous) * inverse;
-        }
-        for i in (0..m - 1).rev() {
-            let following = rhs[i + 1];
-            rhs[i] -= c_prime[i] * following;
-        }
-        std::mem::swap(&mut q, &mut rhs);
-        // Currents through the bounds: ∂q/∂z at z = ±1 from q(±1) = 0 and the two nearest points.
-        let scale = next.3 * 0.5 / (2.0 * dz);
-        let upper = (q[m - 1] * 4.0 - q[m - 2]) * scale;
-        let lower = (q[0] * 4.0 - q[1]) * scale;
-        solution.push(next_t, upper, lower, mass(&q));
-        current = Some(next);
-        t = next_t;
-        step_index += 1;
-    }
+            .min(horizon - t)
+    };
+    let march = March {
+        process: p,
+        directions: carried(&p.numbers()),
+        points: m,
+        horizon,
+        step: &step,
+    };
+    march.run(&initial, &mut solution);
     Ok(solution)
 }
 
@@ -735,7 +685,7 @@ impl Solution<f64> {
 ///
 /// # Errors
 /// As [`solve`].
-pub fn solve_settled<N: DualNum<Primitive = f64> + Copy>(
+pub fn solve_settled<N: Partials>(
     process: &Process<N>,
     mut horizon: f64,
     max_horizon: f64,

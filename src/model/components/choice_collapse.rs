@@ -51,6 +51,7 @@ use nalgebra::{Const, U1};
 use num_dual::{DualNum, DualSVec64};
 use rand::Rng;
 use std::cell::RefCell;
+use std::rc::Rc;
 
 /// Longest horizon (seconds) of the solves behind probabilities, mean times and draws.
 pub const MAX_HORIZON: f64 = 60.0;
@@ -323,29 +324,32 @@ struct Prepared<'a> {
     ndt: f64,
     context: SubjectContext,
     /// Solves to the subject's last time, by drift bits (one entry, at drift 0, when `tilts`).
-    solutions: RefCell<Vec<(u64, Solution<Local>)>>,
+    solutions: SolveCache<Local>,
     /// Solves that hold the whole distribution, on plain numbers and on the stage's numbers.
-    settled: RefCell<Vec<(u64, Solution<f64>)>>,
-    settled_local: RefCell<Vec<(u64, Solution<Local>)>>,
+    settled: SolveCache<f64>,
+    settled_local: SolveCache<Local>,
 }
+
+/// Solves kept by the bit pattern of their drift.
+type SolveCache<N> = RefCell<Vec<(u64, Rc<Solution<N>>)>>;
 
 /// Most solves kept per prepared stage (per-drift solves with leak).
 const SOLUTION_CACHE: usize = 512;
 
 /// Finds or makes the solve for `drift` in `cache`.
-fn cached<N: Clone>(
-    cache: &RefCell<Vec<(u64, N)>>,
+fn cached<N>(
+    cache: &RefCell<Vec<(u64, Rc<N>)>>,
     drift: f64,
     make: impl FnOnce() -> Option<N>,
-) -> Option<N> {
+) -> Option<Rc<N>> {
     let key = drift.to_bits();
     if let Some((_, hit)) = cache.borrow().iter().find(|(k, _)| *k == key) {
-        return Some(hit.clone());
+        return Some(Rc::clone(hit));
     }
-    let fresh = make()?;
+    let fresh = Rc::new(make()?);
     let mut cache = cache.borrow_mut();
     if cache.len() < SOLUTION_CACHE {
-        cache.push((key, fresh.clone()));
+        cache.push((key, Rc::clone(&fresh)));
     }
     Some(fresh)
 }
@@ -365,7 +369,7 @@ impl Prepared<'_> {
 
     /// The solve on the stage's numbers for drift `v` (drift 0 when one solve serves every
     /// drift), with the drift to pass to it (`Some` when the drift is changed after the solve).
-    fn local_solution(&self, v: f64) -> Option<(Solution<Local>, Option<Local>)> {
+    fn local_solution(&self, v: f64) -> Option<(Rc<Solution<Local>>, Option<Local>)> {
         self.local_solved(v, &self.solutions, |at| {
             solve(at, self.horizon(), self.stage.grid).ok()
         })
@@ -377,9 +381,9 @@ impl Prepared<'_> {
     fn local_solved(
         &self,
         v: f64,
-        cache: &RefCell<Vec<(u64, Solution<Local>)>>,
+        cache: &SolveCache<Local>,
         make: impl FnOnce(&Process<Local>) -> Option<Solution<Local>>,
-    ) -> Option<(Solution<Local>, Option<Local>)> {
+    ) -> Option<(Rc<Solution<Local>>, Option<Local>)> {
         let process = self.local?;
         let drift = seeded(v, DRIFT);
         let solve_drift = if self.tilts { 0.0 } else { v };
@@ -395,7 +399,7 @@ impl Prepared<'_> {
     }
 
     /// The solve on plain numbers holding the whole distribution at drift `v`.
-    fn plain_settled(&self, v: f64) -> Option<(Solution<f64>, Option<f64>)> {
+    fn plain_settled(&self, v: f64) -> Option<(Rc<Solution<f64>>, Option<f64>)> {
         let process = self.plain?;
         let solve_drift = if self.tilts { 0.0 } else { v };
         let solution = cached(&self.settled, solve_drift, || {
@@ -504,7 +508,7 @@ impl Prepared<'_> {
     }
 
     /// The solve on the stage's numbers that holds the whole distribution at drift v.
-    fn local_settled(&self, v: f64) -> Option<(Solution<Local>, Option<Local>)> {
+    fn local_settled(&self, v: f64) -> Option<(Rc<Solution<Local>>, Option<Local>)> {
         self.local_solved(v, &self.settled_local, |at| {
             solve_settled(
                 at,
