@@ -60,7 +60,8 @@
 //! v²t/2) with respect to the law at drift 0 (Girsanov's theorem; at the passage time X equals
 //! the bound, by optional stopping). So g_v(t) = g₀(t)·exp(v·(S(t) − y₀) − v²t/2) for either
 //! bound: one solve serves every drift ([`Solution::ln_density_at_drift`]). With leak there is no
-//! such identity: each drift is a solve.
+//! such identity: each drift is a solve, or an interpolation between solves at fixed drift nodes
+//! (`drift_nodes`).
 //!
 //! # Numbers
 //! Densities are returned as logarithms; where the discretised density is not positive (far
@@ -68,10 +69,12 @@
 //! −∞. No function returns NaN for valid parameters: every parameter is checked by
 //! [`Process::new`], and the grid by [`Grid::new`].
 
+mod drift_nodes;
 mod march;
 mod partials;
 mod shape;
 
+pub use drift_nodes::{NODE_SPACING, interpolate, nodes_around};
 pub use partials::Partials;
 pub use shape::Collapse;
 
@@ -517,9 +520,16 @@ impl<N: DualNum<Primitive = f64> + Copy> Solution<N> {
         if p.leak.re() != 0.0 {
             return Err(NumericalError::TiltWithLeak(p.leak.re()));
         }
+        Ok(self.drift_exponent(t, bound, drift) - self.drift_exponent(t, bound, p.drift))
+    }
+
+    /// τ(v) = v·(B(t) − y₀) − v²t/2 for a passage through `bound` at t: the part of ln g_v(t)
+    /// that carries its dependence on the drift exactly without leak (Girsanov's theorem) and
+    /// mostly with it (see `drift_nodes`).
+    pub fn drift_exponent(&self, t: N, bound: Bound, drift: N) -> N {
+        let p = &self.process;
         let (position, _) = p.bound_at(t, bound);
-        let v0 = p.drift;
-        Ok((drift - v0) * (position - p.origin()) - (drift * drift - v0 * v0) * t * 0.5)
+        drift * (position - p.origin()) - drift * drift * t * 0.5
     }
 
     /// ln g_v(t) of `bound` for the solved process with its drift replaced by v:

@@ -19,11 +19,13 @@
 //! A response c at time rt scores ln g_c(rt − ndt). Without leak one engine solve at drift 0
 //! per evaluation serves every trial: each trial's drift enters in closed form by Girsanov's
 //! theorem ([`Solution::ln_density_at_drift`]), so trial-by-trial drifts from learning cost no
-//! further solves. With a leak (declared free, or fixed above 0) every distinct drift is a solve
-//! (kept for the evaluation), which is slow when every trial has its own drift. The solve runs on
-//! dual numbers in the stage's parameters (boundary, start, ndt, the shape's parameters, leak)
-//! and the drift, so the gradient is the exact derivative of the discretised likelihood; it is
-//! chained to the model's free parameters. These stages take the likelihood's reference path
+//! further solves. With a leak (declared free, or fixed above 0) the engine solves at fixed drift
+//! nodes 0.5 apart and interpolates between the six around each trial's drift
+//! ([`interpolate`]; 3.9e-5 in ln g, below the engine's error): one solve per node the
+//! subject's drifts reach, kept for the evaluation. The solves carry forward sensitivities in
+//! the stage's parameters (boundary, start, the shape's parameters, leak), ndt and the drift
+//! enter after them, so the gradient is the exact derivative of the discretised (and, with leak,
+//! interpolated) likelihood; it is chained to the model's free parameters. These stages take the likelihood's reference path
 //! (dual numbers through the learning recursion).
 //!
 //! A trial without response and a deadline D scores ln P(no bound by D − ndt); a lock L
@@ -44,7 +46,8 @@ use super::{
 use crate::data::Choice;
 use crate::first_passage::Bound;
 use crate::first_passage::numerical::{
-    Collapse, DEFAULT_POINTS, DEFAULT_STEP, Grid, Process, Solution, solve, solve_settled,
+    Collapse, DEFAULT_POINTS, DEFAULT_STEP, Grid, Process, Solution, interpolate, nodes_around,
+    solve, solve_settled,
 };
 use crate::model::dual::{D, chain, gradient};
 use nalgebra::{Const, U1};
@@ -367,35 +370,23 @@ impl Prepared<'_> {
         latest.max(1e-3)
     }
 
-    /// The solve on the stage's numbers for drift `v` (drift 0 when one solve serves every
-    /// drift), with the drift to pass to it (`Some` when the drift is changed after the solve).
-    fn local_solution(&self, v: f64) -> Option<(Rc<Solution<Local>>, Option<Local>)> {
-        self.local_solved(v, &self.solutions, |at| {
-            solve(at, self.horizon(), self.stage.grid).ok()
+    /// The solve on the stage's numbers at the fixed drift `at`, to the subject's last time.
+    fn local_solution(&self, at: f64) -> Option<Rc<Solution<Local>>> {
+        self.local_solved(at, &self.solutions, |process| {
+            solve(process, self.horizon(), self.stage.grid).ok()
         })
     }
 
-    /// A solve on the stage's numbers for drift `v`, kept in `cache` and made by `make` from
-    /// the process (at drift 0 when one solve serves every drift), with the drift to pass to it
-    /// (`Some` when the drift is changed after the solve).
+    /// A solve on the stage's numbers at the fixed drift `at` (no derivative in the drift),
+    /// kept in `cache` and made by `make` from the process.
     fn local_solved(
         &self,
-        v: f64,
+        at: f64,
         cache: &SolveCache<Local>,
         make: impl FnOnce(&Process<Local>) -> Option<Solution<Local>>,
-    ) -> Option<(Rc<Solution<Local>>, Option<Local>)> {
-        let process = self.local?;
-        let drift = seeded(v, DRIFT);
-        let solve_drift = if self.tilts { 0.0 } else { v };
-        let solution = cached(cache, solve_drift, || {
-            let at = if self.tilts {
-                process
-            } else {
-                process.with_drift(drift)
-            };
-            make(&at)
-        })?;
-        Some((solution, self.tilts.then_some(drift)))
+    ) -> Option<Rc<Solution<Local>>> {
+        let process = self.local?.with_drift(Local::from_re(at));
+        cached(cache, at, || make(&process))
     }
 
     /// The solve on plain numbers holding the whole distribution at drift `v`.
@@ -436,10 +427,44 @@ impl Prepared<'_> {
         chain(x.re, &parts)
     }
 
-    /// ln P(observation) on the stage's numbers at drift v.
+    /// ln P(observation) on the stage's numbers at drift v: from the solve at drift 0 changed to
+    /// v by Girsanov's theorem without leak, from the drift nodes around v with leak
+    /// ([`interpolate`]).
     fn score(&self, v: f64, observation: &Observation) -> Option<Local> {
+        let drift = seeded(v, DRIFT);
+        if self.tilts {
+            return self.score_on(0.0, Some(drift), observation);
+        }
+        // The passage of a response with its time, whose density's smooth part τ is taken out
+        // before interpolating and put back after.
+        let passage = match (observation.choice, observation.rt) {
+            (Some(choice), Some(rt)) => {
+                Some((bound_of(choice), Local::from_re(rt) - seeded(self.ndt, NDT)))
+            }
+            _ => None,
+        };
+        let nodes = nodes_around(v);
+        let mut values = [Local::from_re(0.0); 6];
+        let mut any = None;
+        for (value, &node) in values.iter_mut().zip(&nodes) {
+            *value = self.score_on(node, None, observation)?;
+            if let (Some((bound, t)), Some(solution)) = (passage, self.local_solution(node)) {
+                *value -= solution.drift_exponent(t, bound, Local::from_re(node));
+                any = Some(solution);
+            }
+        }
+        let mut total = interpolate(drift, nodes, values);
+        if let (Some((bound, t)), Some(solution)) = (passage, any) {
+            total += solution.drift_exponent(t, bound, drift);
+        }
+        Some(total)
+    }
+
+    /// ln P(observation) on the stage's numbers from the solve at the fixed drift `at`, changed
+    /// to `drift` by Girsanov's theorem when given (no leak).
+    fn score_on(&self, at: f64, drift: Option<Local>, observation: &Observation) -> Option<Local> {
         let minus_infinity = Local::from_re(f64::NEG_INFINITY);
-        let Some((solution, drift)) = self.local_solution(v) else {
+        let Some(solution) = self.local_solution(at) else {
             return Some(minus_infinity);
         };
         let ndt = seeded(self.ndt, NDT);
@@ -478,13 +503,10 @@ impl Prepared<'_> {
                 match (self.context.lock, window) {
                     (Some(lock), Some(w)) => {
                         // P(bound after the lock | none before) = (P_c(∞) − P_c(L))/S(L).
-                        let settled = self.local_settled(v)?;
-                        let all = settled.0.absorbed_by(
-                            Local::from_re(settled.0.horizon()),
-                            bound,
-                            settled.1,
-                        );
-                        let before = settled.0.absorbed_by(decision(lock), bound, settled.1);
+                        let settled = self.local_settled(at)?;
+                        let all =
+                            settled.absorbed_by(Local::from_re(settled.horizon()), bound, drift);
+                        let before = settled.absorbed_by(decision(lock), bound, drift);
                         match (all, before) {
                             (Ok(all), Ok(before)) if (all - before).re > 0.0 => {
                                 (all - before).ln() - w
@@ -493,9 +515,9 @@ impl Prepared<'_> {
                         }
                     }
                     _ => {
-                        let settled = self.local_settled(v)?;
-                        let end = Local::from_re(settled.0.horizon());
-                        let mass = |b| settled.0.absorbed_by(end, b, settled.1).ok();
+                        let settled = self.local_settled(at)?;
+                        let end = Local::from_re(settled.horizon());
+                        let mass = |b| settled.absorbed_by(end, b, drift).ok();
                         match (mass(bound), mass(bound.other())) {
                             (Some(c), Some(o)) if c.re > 0.0 => (c / (c + o)).ln(),
                             _ => minus_infinity,
@@ -507,11 +529,12 @@ impl Prepared<'_> {
         Some(value)
     }
 
-    /// The solve on the stage's numbers that holds the whole distribution at drift v.
-    fn local_settled(&self, v: f64) -> Option<(Rc<Solution<Local>>, Option<Local>)> {
-        self.local_solved(v, &self.settled_local, |at| {
+    /// The solve on the stage's numbers that holds the whole distribution at the fixed drift
+    /// `at`.
+    fn local_settled(&self, at: f64) -> Option<Rc<Solution<Local>>> {
+        self.local_solved(at, &self.settled_local, |process| {
             solve_settled(
-                at,
+                process,
                 self.horizon().max(1.0),
                 MAX_HORIZON,
                 self.stage.grid,
