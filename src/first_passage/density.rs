@@ -167,7 +167,9 @@ pub fn ln_density_with_gradient(
 
 /// [`ln_density_with_gradient`] of the process `params` with its drift replaced by `drift`
 /// (the same numbers as on `params.with_drift(drift)`), without copying the parameter set when
-/// it has no start or non-decision range: the per-trial call of the likelihood's fused kernel.
+/// it has no start or non-decision range: the per-trial call of the likelihood's fused kernel
+/// (inlined there, so that the partial derivatives stay in registers).
+#[inline]
 pub(crate) fn ln_density_with_gradient_at(
     rt: f64,
     bound: Bound,
