@@ -14,8 +14,9 @@
 //!     ([`SubjectLikelihood::evaluate_without_kernel`]);
 //! (e) `reference_gradient`: the same by the general dual-number path, which every model can
 //!     take ([`SubjectLikelihood::evaluate_reference`]).
-//! The last line is `ns_per_trial density=A density_gradient=B likelihood_gradient=C
-//! generic_gradient=D reference_gradient=E ratio=C/A`. Each figure is the fastest of several rounds (the machine is
+//! The first line says whether the model takes the fused kernel; the last line is
+//! `ns_per_trial density=A density_gradient=B likelihood_gradient=C generic_gradient=D
+//! reference_gradient=E ratio=C/A`. Each figure is the fastest of several rounds (the machine is
 //! shared); run with `cargo run --release --example likelihood_speed`, or name another built-in
 //! model as the argument.
 
