@@ -4,6 +4,9 @@
 //! with forgetting, a free initial value, lapses, a free start, across-trial variability, gaze
 //! weighting, a response lock, a deadline and trimmed times. Reference: the dual-number path
 //! (exact forward-mode derivatives, checked against central differences in likelihood.rs).
+//! The fused kernel (src/likelihood/kernel.rs) against the generic fast path: the same bits of
+//! ln L and gradient on random θ, and the gradient against the dual-number path and central
+//! differences (common practice); models and data outside the kernel shown to fall back.
 
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
