@@ -8,11 +8,15 @@
 //!     same trials' drifts and times;
 //! (b) `density_gradient`: the same with its partial derivatives;
 //! (c) `likelihood_gradient`: [`SubjectLikelihood::evaluate`], ln L with its full gradient with
-//!     respect to the free parameters (learning recursion, costs, drift and choice stage);
-//! (d) `reference_gradient`: the same by the general dual-number path, which every model can
+//!     respect to the free parameters (learning recursion, costs, drift and choice stage; the
+//!     fused kernel where the model takes it);
+//! (d) `generic_gradient`: the same by the generic fast path without the fused kernel
+//!     ([`SubjectLikelihood::evaluate_without_kernel`]);
+//! (e) `reference_gradient`: the same by the general dual-number path, which every model can
 //!     take ([`SubjectLikelihood::evaluate_reference`]).
-//! The last line is `ns_per_trial density=A density_gradient=B likelihood_gradient=C
-//! reference_gradient=D ratio=C/A`. Each figure is the fastest of several rounds (the machine is
+//! The first line says whether the model takes the fused kernel; the last line is
+//! `ns_per_trial density=A density_gradient=B likelihood_gradient=C generic_gradient=D
+//! reference_gradient=E ratio=C/A`. Each figure is the fastest of several rounds (the machine is
 //! shared); run with `cargo run --release --example likelihood_speed`, or name another built-in
 //! model as the argument.
 
@@ -112,20 +116,26 @@ fn main() {
         let e = lik.evaluate(black_box(&theta));
         e.ln_likelihood + e.gradient[0]
     });
+    let generic_gradient = ns_per_trial(|| {
+        let e = lik.evaluate_without_kernel(black_box(&theta));
+        e.ln_likelihood + e.gradient[0]
+    });
     let reference_gradient = ns_per_trial(|| {
         let e = lik.evaluate_reference(black_box(&theta));
         e.ln_likelihood + e.gradient[0]
     });
     println!(
         "{name}: {} trials ({} with a response time), {} free parameters, fastest of {ROUNDS} \
-         rounds of {REPEATS} evaluations",
+         rounds of {REPEATS} evaluations; fused kernel taken: {}",
         TRIALS,
         trials.len(),
-        lik.n_free()
+        lik.n_free(),
+        lik.takes_kernel(&theta)
     );
     println!(
         "ns_per_trial density={density:.1} density_gradient={density_gradient:.1} \
-         likelihood_gradient={likelihood_gradient:.1} reference_gradient={reference_gradient:.1} \
+         likelihood_gradient={likelihood_gradient:.1} generic_gradient={generic_gradient:.1} \
+         reference_gradient={reference_gradient:.1} \
          ratio={:.2}",
         likelihood_gradient / density
     );

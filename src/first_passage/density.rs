@@ -83,7 +83,7 @@ pub fn ln_density(rt: f64, bound: Bound, params: &DiffusionParams) -> f64 {
     if !positive(t) {
         return f64::NEG_INFINITY;
     }
-    let (v, terms) = oriented_start(params, bound);
+    let (v, terms) = oriented_start(params.drift, params, bound);
     lower_bound_kernel::<false>(
         t,
         v,
@@ -95,14 +95,14 @@ pub fn ln_density(rt: f64, bound: Bound, params: &DiffusionParams) -> f64 {
     .0
 }
 
-/// Drift and start functions of the lower-bound problem for `bound`, without copying the whole
-/// parameter set (the hot path of [`ln_density`]).
+/// Drift and start functions of the lower-bound problem for `bound` of the process `p` with
+/// drift `drift`, without copying the whole parameter set (the hot path of [`ln_density`]).
 #[inline]
-fn oriented_start(p: &DiffusionParams, bound: Bound) -> (f64, StartTerms) {
+fn oriented_start(drift: f64, p: &DiffusionParams, bound: Bound) -> (f64, StartTerms) {
     match bound {
-        Bound::Lower => (p.drift, p.start_terms),
+        Bound::Lower => (drift, p.start_terms),
         Bound::Upper => (
-            -p.drift,
+            -drift,
             StartTerms {
                 w: 1.0 - p.start,
                 ln_w: p.ln_start_complement,
@@ -150,28 +150,64 @@ pub fn ln_density_with_gradient(
     bound: Bound,
     params: &DiffusionParams,
 ) -> (f64, DensityGradient) {
-    let t = rt - params.ndt;
     if !params.has_integrated_variability() {
-        // The hot path of fits: the kernel alone.
-        if !positive(t) {
-            return (f64::NEG_INFINITY, DensityGradient::default());
-        }
-        let (ln_f, g) = lower_bound_core::<true>(t, &params.mirrored_for(bound));
-        return (
-            ln_f,
-            oriented(bound, [g[V], g[A], g[W], -g[T], g[ETA], 0.0, 0.0]),
-        );
+        return fixed_with_gradient(rt, bound, params.drift, params);
     }
     let p = params.mirrored_for(bound);
     let (ln_f, g) = if p.ndt_range > 0.0 {
         ln_density_window_with_gradient(rt, &p)
     } else {
-        let (ln_f, mut g) = density_over_start_with_gradient(t, &p);
+        let (ln_f, mut g) = density_over_start_with_gradient(rt - p.ndt, &p);
         // ∂/∂ndt = −∂/∂t.
         g[T] = -g[T];
         (ln_f, g)
     };
     (ln_f, oriented(bound, g))
+}
+
+/// [`ln_density_with_gradient`] of the process `params` with its drift replaced by `drift`
+/// (the same numbers as on `params.with_drift(drift)`), without copying the parameter set when
+/// it has no start or non-decision range: the per-trial call of the likelihood's fused kernel
+/// (inlined there, so that the partial derivatives stay in registers).
+#[inline]
+pub(crate) fn ln_density_with_gradient_at(
+    rt: f64,
+    bound: Bound,
+    drift: f64,
+    params: &DiffusionParams,
+) -> (f64, DensityGradient) {
+    if params.has_integrated_variability() {
+        return ln_density_with_gradient(rt, bound, &params.with_drift(drift));
+    }
+    fixed_with_gradient(rt, bound, drift, params)
+}
+
+/// [`ln_density_with_gradient`] without start or non-decision range, at drift `drift`: the
+/// kernel alone (the hot path of fits).
+#[inline]
+fn fixed_with_gradient(
+    rt: f64,
+    bound: Bound,
+    drift: f64,
+    params: &DiffusionParams,
+) -> (f64, DensityGradient) {
+    let t = rt - params.ndt;
+    if !positive(t) {
+        return (f64::NEG_INFINITY, DensityGradient::default());
+    }
+    let (v, terms) = oriented_start(drift, params, bound);
+    let (ln_f, g) = lower_bound_kernel::<true>(
+        t,
+        v,
+        params.boundary,
+        params.drift_sd,
+        params.ln_boundary,
+        &terms,
+    );
+    (
+        ln_f,
+        oriented(bound, [g[V], g[A], g[W], -g[T], g[ETA], 0.0, 0.0]),
+    )
 }
 
 /// A gradient of the mirrored process expressed in the parameters as given: mirroring for the

@@ -51,6 +51,7 @@ mod quadrature;
 mod sampler;
 mod series;
 
+pub(crate) use density::ln_density_with_gradient_at;
 pub use density::{DensityGradient, ln_density, ln_density_with_gradient};
 pub use distribution::{
     bound_probability, cdf, ln_bound_probability, ln_bound_probability_with_gradient, ln_cdf,

@@ -24,7 +24,9 @@
 //! the same component parameters), their partial derivatives passed back to the level
 //! intercepts and slopes they come from. It covers models with a two-bound choice stage (one
 //! drift from the value difference) and components that give their plain-number form; the
-//! others return `None` and the likelihood takes the dual path.
+//! others return `None` and the likelihood takes the dual path. The commonest built-in
+//! combination takes the fused kernel of the `kernel` module instead, which computes this
+//! path's numbers in this path's order in two loops; this path stays the reference for it.
 
 use super::SubjectLikelihood;
 use super::design::TrialColumns;

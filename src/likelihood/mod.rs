@@ -14,6 +14,7 @@
 mod adjoint;
 mod design;
 mod group_prior;
+mod kernel;
 
 pub use design::TrialColumns;
 pub use group_prior::GroupPrior;
@@ -96,6 +97,8 @@ pub struct SubjectLikelihood<'a> {
     slot_transforms: Vec<Transform>,
     /// The trial columns of the fast path, laid out once.
     fast_columns: adjoint::FastColumns,
+    /// The fused kernel, when the model and the data are inside it.
+    kernel: Option<kernel::Kernel>,
 }
 
 /// Upper limit of the earliest possible response, ndt − ndt_range/2, relative to the fastest
@@ -199,6 +202,7 @@ impl<'a> SubjectLikelihood<'a> {
             transforms.push(transform);
         }
         let fast_columns = adjoint::FastColumns::bind(model, subject, &design);
+        let kernel = kernel::Kernel::bind(model, subject, deadline);
         Ok(SubjectLikelihood {
             model,
             subject,
@@ -209,6 +213,7 @@ impl<'a> SubjectLikelihood<'a> {
             design,
             slot_transforms,
             fast_columns,
+            kernel,
         })
     }
 
@@ -327,11 +332,43 @@ impl<'a> SubjectLikelihood<'a> {
     /// built-in components (or components that give their plain-number form) take the fast path
     /// of the `adjoint` module: the same ln L, and the gradient of
     /// [`SubjectLikelihood::evaluate_reference`] up to the order of its sums. The others take
-    /// that dual-number path.
+    /// that dual-number path. Within the fast path, the commonest built-in combination (rate
+    /// learning, linear effort cost, linear drift, diffusion stage; see the `kernel` module)
+    /// takes a fused kernel that gives the same numbers to the last bit
+    /// ([`SubjectLikelihood::evaluate_without_kernel`]).
     pub fn evaluate(&self, theta: &[f64]) -> Evaluation {
+        self.evaluate_fast(theta, true)
+    }
+
+    /// [`SubjectLikelihood::evaluate`] without the fused kernel: the generic fast path (or the
+    /// dual-number path outside it), which the kernel must match to the last bit (for tests and
+    /// benchmarks).
+    pub fn evaluate_without_kernel(&self, theta: &[f64]) -> Evaluation {
+        self.evaluate_fast(theta, false)
+    }
+
+    /// True when [`SubjectLikelihood::evaluate`] takes the fused kernel at θ.
+    pub fn takes_kernel(&self, theta: &[f64]) -> bool {
+        let (natural, _) = self.plain_values(theta);
+        self.run_kernel(&natural).is_some()
+    }
+
+    /// The fused kernel's ln L and partial derivatives at the natural values of every
+    /// parameter, when the model, the data and the point are inside it.
+    fn run_kernel(&self, natural: &[f64]) -> Option<adjoint::Adjoint> {
+        self.kernel.as_ref()?.run(natural, self.context.lock)
+    }
+
+    /// [`SubjectLikelihood::evaluate`], with the fused kernel where it applies when `kernel`.
+    fn evaluate_fast(&self, theta: &[f64], kernel: bool) -> Evaluation {
         assert!(theta.len() == self.free.len());
         let (natural, thetas) = self.plain_values(theta);
-        let Some(adjoint) = self.run_adjoint(&natural, &thetas) else {
+        let fused = if kernel {
+            self.run_kernel(&natural)
+        } else {
+            None
+        };
+        let Some(adjoint) = fused.or_else(|| self.run_adjoint(&natural, &thetas)) else {
             return self.evaluate_reference(theta);
         };
         let slopes: Vec<f64> = self
@@ -353,7 +390,7 @@ impl<'a> SubjectLikelihood<'a> {
     /// subject at θ, false when it takes the dual-number path.
     pub fn takes_fast_path(&self, theta: &[f64]) -> bool {
         let (natural, thetas) = self.plain_values(theta);
-        self.run_adjoint(&natural, &thetas).is_some()
+        self.run_kernel(&natural).is_some() || self.run_adjoint(&natural, &thetas).is_some()
     }
 
     /// Natural values and θ of every parameter by slot on plain numbers (the real parts of

@@ -4,6 +4,9 @@
 //! with forgetting, a free initial value, lapses, a free start, across-trial variability, gaze
 //! weighting, a response lock, a deadline and trimmed times. Reference: the dual-number path
 //! (exact forward-mode derivatives, checked against central differences in likelihood.rs).
+//! The fused kernel (src/likelihood/kernel.rs) against the generic fast path: the same bits of
+//! ln L and gradient on random θ, and the gradient against the dual-number path and central
+//! differences (common practice); models and data outside the kernel shown to fall back.
 
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -213,4 +216,193 @@ fn fast_path_equals_the_dual_path_with_across_trial_variability() {
     }
     let lik = SubjectLikelihood::new(&model, &subject, None).unwrap();
     assert_eq!(compare(&lik, &mut rng, 8), 8);
+}
+
+/// Evaluates with and without the fused kernel at `draws` random θ (components uniform in
+/// [−2.5, 2.5]): the same ln L, ln prior and gradient to the last bit (the kernel computes the
+/// generic fast path's numbers in its order, see src/likelihood/kernel.rs); then compares with
+/// the dual-number path ([`compare`]). Returns how many points took the kernel.
+fn compare_kernel(lik: &SubjectLikelihood<'_>, rng: &mut ChaCha8Rng, draws: usize) -> usize {
+    let mut kernel = 0;
+    for _ in 0..draws {
+        let theta: Vec<f64> = (0..lik.n_free())
+            .map(|_| rng.random_range(-2.5..2.5))
+            .collect();
+        kernel += usize::from(lik.takes_kernel(&theta));
+        let fused = lik.evaluate(&theta);
+        let generic = lik.evaluate_without_kernel(&theta);
+        let name = &lik.model().name;
+        assert_eq!(
+            fused.ln_likelihood.to_bits(),
+            generic.ln_likelihood.to_bits(),
+            "{name} at {theta:?}: ln L {} vs {}",
+            fused.ln_likelihood,
+            generic.ln_likelihood
+        );
+        assert_eq!(
+            fused.ln_prior.to_bits(),
+            generic.ln_prior.to_bits(),
+            "{name}"
+        );
+        let bits = |g: &[f64]| g.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        assert_eq!(
+            bits(&fused.gradient),
+            bits(&generic.gradient),
+            "{name} at {theta:?}: gradient {:?} vs {:?}",
+            fused.gradient,
+            generic.gradient
+        );
+    }
+    // The dual-number path (independent forward-mode derivatives) on points of the same kind.
+    compare(lik, rng, draws.min(5));
+    kernel
+}
+
+/// `subject` with edge cases the kernel scores itself: every 13th trial without a response
+/// (without a deadline it carries no information and does not learn), every 7th with its time
+/// trimmed (scored by the absorption probability of its bound), every 5th with no effort on
+/// option b (a zero partial derivative of the cost, skipped as the generic pass skips it).
+fn edged(mut subject: Subject) -> Subject {
+    for (i, trial) in subject.trials.iter_mut().enumerate() {
+        if i % 13 == 4 {
+            trial.choice = None;
+            trial.rt = None;
+            trial.outcome = None;
+        } else if i % 7 == 2 {
+            trial.rt = None;
+        }
+        if i % 5 == 1 {
+            trial.offers[1].effort = 0.0;
+        }
+    }
+    subject
+}
+
+/// The rich model without forgetting, its lapse rate given by `lapse` (a parameter line).
+fn rich_without_forgetting(lapse: &str) -> Model {
+    let text = RICH
+        .replace("COST", "linear")
+        .replace("MAPPING", "linear")
+        .replace("forgetting = true\n", "")
+        .replace(
+            "forget_rate = { lower = 0.0, upper = 1.0, start = [0.05, 0.5] }\n",
+            "",
+        )
+        .replace(
+            "lapse = { lower = 0.0, upper = 0.2, start = [0.01, 0.1] }",
+            lapse,
+        );
+    parse_model(&text, "rich-without-forgetting.toml").unwrap()
+}
+
+#[test]
+fn fused_kernel_equals_the_generic_fast_path_to_the_last_bit() {
+    let mut rng = ChaCha8Rng::seed_from_u64(1414);
+    let reference = valuedrift::model::load_model("gainloss-linear").unwrap();
+    let with_split = parse_model(
+        &reference.text.replace(
+            "rule = \"gain-loss\"",
+            "rule = \"gain-loss\"\nsplit = \"outcome\"",
+        ),
+        "split.toml",
+    )
+    .unwrap();
+    // A free initial value: its derivative is the sum of the values' adjoints at the start.
+    let with_initial = parse_model(
+        &(reference.text.clone()
+            + "\n[parameters.initial_value]\nlower = -1.0\nupper = 1.0\nstart = [0.0, 0.5]\n"),
+        "initial.toml",
+    )
+    .unwrap();
+    assert_eq!(
+        with_initial.free_slots().len(),
+        reference.free_slots().len() + 1
+    );
+    let models = [
+        valuedrift::model::load_model("delta-linear").unwrap(),
+        with_split,
+        with_initial,
+        // A free start, drift_sd (across-trial drift variability), initial value and drift
+        // intercept, the lapse rate fixed at zero.
+        rich_without_forgetting(
+            "lapse = { fixed = 0.0 }\n\
+             drift_intercept = { lower = -2.0, upper = 2.0, start = [-0.5, 0.5] }",
+        ),
+    ];
+    for model in std::iter::once(&reference).chain(&models) {
+        for round in 0..3 {
+            let subject = participant(&reference, &mut rng);
+            let subject = if round == 0 { subject } else { edged(subject) };
+            let lik = SubjectLikelihood::new(model, &subject, None).unwrap();
+            let taken = compare_kernel(&lik, &mut rng, 10);
+            assert_eq!(
+                taken, 10,
+                "{} (subject {round}) takes the kernel",
+                model.name
+            );
+            // Central differences of the kernel's ln L (common practice).
+            let theta: Vec<f64> = (0..lik.n_free()).map(|j| 0.4 - 0.3 * j as f64).collect();
+            assert!(lik.takes_kernel(&theta));
+            crate::common::assert_gradient(&lik, &theta, &model.name);
+        }
+    }
+}
+
+#[test]
+fn fused_kernel_falls_back_to_the_generic_path_outside_its_combination() {
+    let mut rng = ChaCha8Rng::seed_from_u64(1415);
+    let reference = valuedrift::model::load_model("gainloss-linear").unwrap();
+    let subject = participant(&reference, &mut rng);
+    let theta = vec![0.3; reference.free_slots().len()];
+    // Missing responses are scored by the kernel without a deadline; with one (the probability
+    // of no bound by the deadline), and under a response lock, by the generic fast path.
+    let mut missing = subject.clone();
+    missing.trials[3].choice = None;
+    missing.trials[3].rt = None;
+    missing.trials[3].outcome = None;
+    let without_deadline = SubjectLikelihood::new(&reference, &missing, None).unwrap();
+    assert!(without_deadline.takes_kernel(&theta));
+    let deadline = SubjectLikelihood::new(&reference, &missing, Some(4.0)).unwrap();
+    let locked = SubjectLikelihood::new(&reference, &subject, None)
+        .unwrap()
+        .with_lock(Some(0.2));
+    for lik in [&deadline, &locked] {
+        assert!(!lik.takes_kernel(&theta) && lik.takes_fast_path(&theta));
+        assert_eq!(compare_kernel(lik, &mut rng, 4), 0);
+    }
+    // A lapse rate above zero, forgetting, other cost shapes and mappings, a condition effect:
+    // the generic fast path; races, softmax: the dual-number path.
+    let mut others = vec![rich_without_forgetting(
+        "lapse = { lower = 0.0, upper = 0.2, start = [0.01, 0.1] }",
+    )];
+    others.extend(
+        ["linear", "exponential", "quadratic", "hyperbolic"]
+            .iter()
+            .map(|cost| rich(cost, "linear", "")),
+    );
+    let varying = reference.text.replace(
+        "[parameters.boundary]\n",
+        "[parameters.boundary]\nby = \"run\"\nlevels = [\"1\", \"2\"]\n",
+    );
+    others.push(parse_model(&varying, "varying.toml").unwrap());
+    assert!(others.last().unwrap().varies());
+    for name in [
+        "gainloss-exponential",
+        "gainloss-linear-bounded",
+        "offered-linear",
+        "gainloss-wald-race",
+        "gainloss-linear-choices",
+    ] {
+        others.push(valuedrift::model::load_model(name).unwrap());
+    }
+    for model in &others {
+        let subject = participant(model, &mut rng);
+        let lik = SubjectLikelihood::new(model, &subject, None).unwrap();
+        assert_eq!(
+            compare_kernel(&lik, &mut rng, 4),
+            0,
+            "{} does not take the kernel",
+            model.name
+        );
+    }
 }

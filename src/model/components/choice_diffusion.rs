@@ -107,24 +107,12 @@ impl ChoiceStage for Diffusion {
         Some(2)
     }
 
+    fn diffusion(&self) -> Option<DiffusionSlots> {
+        Some(DiffusionSlots(self.slots()))
+    }
+
     fn prepare<'a>(&'a self, p: &'a [D], context: SubjectContext) -> Box<dyn PreparedChoice + 'a> {
-        let value = |slot: usize| p[slot].re;
-        // The fitter keeps every parameter inside its declared bounds, so this cannot fail for
-        // a valid model; a NaN proposal falls back to a neutral process and an infinite cost.
-        let base = DiffusionParams::new(
-            0.0,
-            value(self.boundary),
-            value(self.start),
-            value(self.ndt),
-        )
-        .and_then(|q| {
-            q.with_variability(
-                value(self.drift_sd),
-                value(self.start_range),
-                value(self.ndt_range),
-            )
-        })
-        .ok();
+        let base = DiffusionSlots(self.slots()).base(|slot| p[slot].re);
         let lapse = p[self.lapse];
         let guess_density = 0.5 / (context.rt_max - context.rt_min).max(1e-3);
         // The lapse rate as a stage number: the last of its local partial derivatives.
@@ -155,6 +143,30 @@ const LAPSE: usize = 7;
 /// (ln(1 − lapse), ln(lapse·guess density)) when the lapse rate is above zero.
 fn lapse_terms<N: DualNum<Primitive = f64> + Copy>(lapse: N, guess_density: f64) -> Option<(N, N)> {
     (lapse.re() > 0.0).then(|| ((-lapse).ln_1p(), lapse.ln() + guess_density.ln()))
+}
+
+/// The slots of the diffusion stage's parameters in the order boundary, start, ndt, drift_sd,
+/// start_range, ndt_range, lapse (the order of a [`Local8`]'s partial derivatives after the
+/// drift), for the likelihood's fused kernel.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct DiffusionSlots(pub [usize; 7]);
+
+impl DiffusionSlots {
+    /// Slot of the lapse rate.
+    pub(crate) fn lapse(&self) -> usize {
+        self.0[LAPSE - 1]
+    }
+
+    /// The process at drift 0 with the stage's parameters (`value` of each slot), or `None`
+    /// when they are invalid. The fitter keeps every parameter inside its declared bounds, so
+    /// this cannot fail for a valid model; a NaN proposal falls back to a neutral process and
+    /// an infinite cost.
+    pub(crate) fn base(&self, value: impl Fn(usize) -> f64) -> Option<DiffusionParams> {
+        let [boundary, start, ndt, drift_sd, start_range, ndt_range, _] = self.0.map(value);
+        DiffusionParams::new(0.0, boundary, start, ndt)
+            .and_then(|q| q.with_variability(drift_sd, start_range, ndt_range))
+            .ok()
+    }
 }
 
 impl Diffusion {
@@ -340,7 +352,7 @@ impl Prepared<'_> {
 }
 
 /// The engine's partial derivatives in the order of a [`Local8`].
-fn local_partials(g: DensityGradient) -> [f64; 8] {
+pub(crate) fn local_partials(g: DensityGradient) -> [f64; 8] {
     let mut partials = [0.0; 8];
     partials[..7].copy_from_slice(&g.to_array());
     partials
@@ -463,7 +475,7 @@ impl PreparedChoice for Prepared<'_> {
 }
 
 /// The bound of a choice: a (index 0) is the upper bound, b the lower.
-fn bound_of(choice: Choice) -> Bound {
+pub(crate) fn bound_of(choice: Choice) -> Bound {
     if choice == Choice::A {
         Bound::Upper
     } else {

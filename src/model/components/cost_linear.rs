@@ -17,7 +17,15 @@ pub const ENTRY: Entry<dyn CostShape> = Entry {
 struct Linear;
 
 impl Formula for Linear {
+    const LINEAR: bool = true;
+
     fn formula<N: DualNum<Primitive = f64> + Copy>(q: N, effort: f64, k: N) -> N {
         q - k * effort
     }
+}
+
+/// SV = Q − k·E on plain numbers: the formula of [`Linear`], for the likelihood's fused kernel.
+#[inline]
+pub(crate) fn linear_cost(q: f64, effort: f64, k: f64) -> f64 {
+    Linear::formula(q, effort, k)
 }

@@ -30,8 +30,10 @@ fn build(options: &Options, slots: Slots<'_>) -> Result<Box<dyn DriftMapping>, S
     }))
 }
 
-/// drift_intercept + value_scale·x with its partial derivatives (shared with the gaze mapping).
-pub(super) fn linear_drift(intercept: usize, scale: usize, x: f64, p: &[f64]) -> Option<Local> {
+/// drift_intercept + value_scale·x with its partial derivatives (shared with the gaze mapping
+/// and the likelihood's fused kernel).
+#[inline]
+pub(crate) fn linear_drift(intercept: usize, scale: usize, x: f64, p: &[f64]) -> Option<Local> {
     Some(Local::new(
         p[intercept] + p[scale] * x,
         p[scale],
@@ -50,5 +52,9 @@ impl DriftMapping for Linear {
 
     fn drift_local(&self, x: f64, p: &[f64]) -> Option<Local> {
         linear_drift(self.intercept, self.scale, x, p)
+    }
+
+    fn linear_slots(&self) -> Option<(usize, usize)> {
+        Some((self.intercept, self.scale))
     }
 }

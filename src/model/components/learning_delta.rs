@@ -1,6 +1,6 @@
 //! One learning rate: Q ← Q + α·(r − Q) (Rescorla & Wagner 1972; Sutton & Barto 1998, §2.4).
 
-use super::{Entry, LearningRule, Options, Slots, only_options};
+use super::{Entry, LearningRule, Options, RateRule, Slots, only_options};
 use crate::model::dual::{D, Local};
 
 /// The table entry.
@@ -23,14 +23,28 @@ fn build(options: &Options, slots: Slots<'_>) -> Result<Box<dyn LearningRule>, S
     }))
 }
 
+impl Delta {
+    /// The rule as a [`RateRule`] with one rate.
+    fn rule(&self) -> RateRule {
+        RateRule {
+            gain: self.rate,
+            loss: self.rate,
+            by_outcome: false,
+        }
+    }
+}
+
 impl LearningRule for Delta {
     fn update(&self, q: D, outcome: f64, p: &[D]) -> D {
         q + p[self.rate] * (-q + outcome)
     }
 
     fn update_local(&self, q: f64, outcome: f64, p: &[f64], out: &mut Local) -> bool {
-        let (rate, error) = (p[self.rate], -q + outcome);
-        *out = Local::new(q + rate * error, 1.0 - rate, [(self.rate, error), (0, 0.0)]);
+        *out = self.rule().update_local(q, outcome, p);
         true
+    }
+
+    fn rate_rule(&self) -> Option<RateRule> {
+        Some(self.rule())
     }
 }

@@ -2,7 +2,7 @@
 //! d = r − Q(s), Q(s) ← Q(s) + α·d with α = gain_rate when the prediction error is positive
 //! (default) or, with `split = "outcome"`, when the outcome is positive; loss_rate otherwise.
 
-use super::{Entry, LearningRule, Options, Slots, only_options};
+use super::{Entry, LearningRule, Options, RateRule, Slots, only_options};
 use crate::model::dual::{D, Local};
 
 /// The table entry.
@@ -43,6 +43,15 @@ fn build(options: &Options, slots: Slots<'_>) -> Result<Box<dyn LearningRule>, S
 }
 
 impl GainLoss {
+    /// The rule as a [`RateRule`].
+    fn rule(&self) -> RateRule {
+        RateRule {
+            gain: self.gain,
+            loss: self.loss,
+            by_outcome: self.split == Split::Outcome,
+        }
+    }
+
     /// The slot of the rate that applies to prediction error `error` of outcome `outcome`.
     fn rate_slot(&self, error: f64, outcome: f64) -> usize {
         let positive = match self.split {
@@ -61,10 +70,11 @@ impl LearningRule for GainLoss {
     }
 
     fn update_local(&self, q: f64, outcome: f64, p: &[f64], out: &mut Local) -> bool {
-        let error = -q + outcome;
-        let slot = self.rate_slot(error, outcome);
-        let rate = p[slot];
-        *out = Local::new(q + rate * error, 1.0 - rate, [(slot, error), (0, 0.0)]);
+        *out = self.rule().update_local(q, outcome, p);
         true
+    }
+
+    fn rate_rule(&self) -> Option<RateRule> {
+        Some(self.rule())
     }
 }

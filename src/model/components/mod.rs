@@ -24,6 +24,11 @@ mod learning_delta;
 mod learning_gain_loss;
 mod learning_none;
 
+pub use choice_diffusion::DiffusionSlots;
+pub(crate) use choice_diffusion::{bound_of, local_partials};
+pub(crate) use cost_linear::linear_cost;
+pub(crate) use drift_linear::linear_drift;
+
 use super::dual::{D, Local};
 use crate::data::Choice;
 use num_dual::{Dual64, DualNum};
@@ -68,6 +73,52 @@ pub trait LearningRule: Send + Sync {
     fn learns(&self) -> bool {
         true
     }
+    /// The rule as a [`RateRule`], for the likelihood's fused kernel (which then runs the
+    /// [`RateRule`] formula in place of the rule's methods); `None` (the default) for rules it
+    /// does not run.
+    fn rate_rule(&self) -> Option<RateRule> {
+        None
+    }
+}
+
+/// A learning rule of the form Q ← Q + α·(r − Q) with α = `gain` when the outcome counts as a
+/// gain, `loss` otherwise (one rate: both slots the same): the gain-loss rule (Niv et al. 2012)
+/// and the delta rule (Rescorla & Wagner 1972) as the likelihood's fused kernel runs them.
+/// A rule that returns one from [`LearningRule::rate_rule`] is run by that formula in the
+/// kernel, in place of its own methods.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct RateRule {
+    /// Slot of the rate for gains.
+    pub gain: usize,
+    /// Slot of the rate for losses.
+    pub loss: usize,
+    /// True when a gain is a positive outcome, false when it is a positive prediction error.
+    pub by_outcome: bool,
+}
+
+impl RateRule {
+    /// (Q′, d, slot): the value after outcome `r` from value `q`, the prediction error
+    /// d = r − Q and the slot of the rate used. The one formula of both rules' `update_local`
+    /// and of the fused kernel.
+    #[inline]
+    pub(crate) fn update(&self, q: f64, outcome: f64, p: &[f64]) -> (f64, f64, usize) {
+        let error = -q + outcome;
+        let gain = if self.by_outcome {
+            outcome > 0.0
+        } else {
+            error > 0.0
+        };
+        let slot = if gain { self.gain } else { self.loss };
+        (q + p[slot] * error, error, slot)
+    }
+
+    /// [`RateRule::update`] with its partial derivatives, as [`LearningRule::update_local`]
+    /// writes them.
+    #[inline]
+    pub(crate) fn update_local(&self, q: f64, outcome: f64, p: &[f64]) -> Local {
+        let (value, error, slot) = self.update(q, outcome, p);
+        Local::new(value, 1.0 - p[slot], [(slot, error), (0, 0.0)])
+    }
 }
 
 /// Discounts a value by the effort it demands.
@@ -92,6 +143,11 @@ pub trait CostShape: Send + Sync {
         each_local(q.iter().zip(amounts), out, |(&q, &amount)| {
             self.subjective_value_local(q, amount, p)
         })
+    }
+    /// The slot of k when the shape is linear, SV = Q − k·E (the fused kernel then runs that
+    /// formula in place of the shape's methods); `None` (the default) for other shapes.
+    fn linear_weight(&self) -> Option<usize> {
+        None
     }
 }
 
@@ -143,6 +199,12 @@ pub trait DriftMapping: Send + Sync {
     /// the mapping has no plain-number form.
     fn drifts_local(&self, x: &[f64], p: &[f64], out: &mut [Local]) -> bool {
         each_local(x.iter(), out, |&x| self.drift_local(x, p))
+    }
+    /// The slots (intercept, scale) when the mapping is the linear one without an attribute,
+    /// drift = intercept + scale·x (the fused kernel then runs that formula in place of the
+    /// mapping's methods); `None` (the default) otherwise.
+    fn linear_slots(&self) -> Option<(usize, usize)> {
+        None
     }
 }
 
@@ -209,6 +271,12 @@ pub trait ChoiceStage: Send + Sync {
     fn uses_response_times(&self) -> bool;
     /// The most options a trial may offer (`None`: any number).
     fn max_options(&self) -> Option<usize>;
+    /// The stage's parameter slots when it is the two-bound diffusion stage of this module (the
+    /// fused kernel then scores trials by that stage's formulas in place of the stage's
+    /// methods); `None` (the default) for other stages.
+    fn diffusion(&self) -> Option<DiffusionSlots> {
+        None
+    }
 }
 
 /// A choice stage with its parameters fixed for one likelihood evaluation.
@@ -370,6 +438,8 @@ pub fn only_options(options: &Options, known: &[&str]) -> Result<(), String> {
 /// once on any dual number: the likelihood's (`D`) for the reference path, one-direction duals
 /// for the fast path's partial derivatives.
 pub(super) trait Formula: Send + Sync + 'static {
+    /// True for the linear shape SV = Q − k·E.
+    const LINEAR: bool = false;
     /// SV = f(Q, E, k).
     fn formula<N: DualNum<Primitive = f64> + Copy>(q: N, effort: f64, k: N) -> N;
 }
@@ -396,6 +466,10 @@ impl<F: Formula> CostShape for WeightedCost<F> {
             (slot, by_k.eps)
         });
         Some(Local::new(by_q.re, by_q.eps, [d_k, (0, 0.0)]))
+    }
+
+    fn linear_weight(&self) -> Option<usize> {
+        self.weight.filter(|_| F::LINEAR)
     }
 }
 
