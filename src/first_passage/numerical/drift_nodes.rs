@@ -19,13 +19,14 @@
 
 use num_dual::DualNum;
 
-/// Spacing Δ of the drift nodes.
+/// Spacing Δ of the drift nodes v_j = j·Δ.
 ///
 /// # Accuracy
 /// Against a solve at the drift itself, measured by tests/suite/numerical_passage.rs (boundaries
-/// 1–2.5, leaks 0.5–3, drifts −3.8 to 4.6, times 0.15–2.9 s): worst |Δ ln g| 3.9e-5 with six
-/// nodes, below the engine's own error (see [`super::DEFAULT_STEP`]); four nodes gave 4.9e-4.
-/// Cost: one solve per node the subject's drifts reach, (range of drifts)/Δ + 6 solves.
+/// 1–2.5, leaks 0.5–3, drifts −14.3 to 17.2, times 0.15–2.9 s, ln g > −30): see that test for
+/// the worst |Δ ln g|: 5.0e-5 with six nodes (four gave 4.9e-4; nodes spaced wider at strong
+/// drifts gave 1e-1). Cost: one solve per node the subject's drifts reach, (range of drifts)/Δ
+/// + 6 solves (a subject whose drifts span ±10 needs 46).
 pub const NODE_SPACING: f64 = 0.5;
 
 /// How many nodes the interpolation uses.
@@ -38,15 +39,15 @@ pub fn nodes_around(v: f64) -> [f64; NODES] {
 }
 
 /// Σⱼ ℓⱼ(v)·valuesⱼ, the Lagrange polynomial through (nodesⱼ, valuesⱼ) at v, with
-/// ℓⱼ(v) = Πₖ≠ⱼ (v − vₖ)/(vⱼ − vₖ); exactly −∞ when a value is not finite (a density of zero at
-/// a node, which the polynomial cannot bridge).
+/// ℓⱼ(v) = Πₖ≠ⱼ (v − vₖ)/(vⱼ − vₖ); `None` when a value is not finite (a density of zero on
+/// the grid at a node, far in a tail, which the polynomial cannot bridge: solve at v instead).
 pub fn interpolate<N: DualNum<Primitive = f64> + Copy>(
     v: N,
     nodes: [f64; NODES],
     values: [N; NODES],
-) -> N {
+) -> Option<N> {
     if values.iter().any(|x| !x.re().is_finite()) {
-        return N::from(f64::NEG_INFINITY);
+        return None;
     }
     let mut total = N::from(0.0);
     for (j, &value) in values.iter().enumerate() {
@@ -58,5 +59,5 @@ pub fn interpolate<N: DualNum<Primitive = f64> + Copy>(
         }
         total += weight * value;
     }
-    total
+    Some(total)
 }

@@ -21,7 +21,8 @@
 //! theorem ([`Solution::ln_density_at_drift`]), so trial-by-trial drifts from learning cost no
 //! further solves. With a leak (declared free, or fixed above 0) the engine solves at fixed drift
 //! nodes 0.5 apart and interpolates between the six around each trial's drift
-//! ([`interpolate`]; 3.9e-5 in ln g, below the engine's error): one solve per node the
+//! ([`interpolate`]; 5.0e-5 in ln g, below the engine's error; a solve at the drift itself where
+//! a node's density is zero on the grid): one solve per node the
 //! subject's drifts reach, kept for the evaluation. The solves carry forward sensitivities in
 //! the stage's parameters (boundary, start, the shape's parameters, leak), ndt and the drift
 //! enter after them, so the gradient is the exact derivative of the discretised (and, with leak,
@@ -232,7 +233,7 @@ const SHAPE: usize = 4;
 const LEAK: usize = 7;
 
 /// A value seeded with a unit derivative in `direction`.
-fn seeded(value: f64, direction: usize) -> Local {
+fn seeded_number(value: f64, direction: usize) -> Local {
     Local::from_re(value).derivative(direction)
 }
 
@@ -281,13 +282,13 @@ impl ChoiceStage for Moving {
             .shape_slots
             .iter()
             .enumerate()
-            .map(|(k, &slot)| seeded(p[slot].re, SHAPE + k))
+            .map(|(k, &slot)| seeded_number(p[slot].re, SHAPE + k))
             .collect();
         let local = Process::new(
             Local::from_re(0.0),
-            seeded(p[self.boundary].re, BOUNDARY),
-            seeded(p[self.start].re, START),
-            seeded(leak.re, LEAK),
+            seeded_number(p[self.boundary].re, BOUNDARY),
+            seeded_number(p[self.start].re, START),
+            seeded_number(leak.re, LEAK),
             self.collapse(&shape_values),
         )
         .ok();
@@ -334,18 +335,22 @@ struct Prepared<'a> {
 }
 
 /// Solves kept by the bit pattern of their drift.
-type SolveCache<N> = RefCell<Vec<(u64, Rc<Solution<N>>)>>;
+type SolveCache<N> = Cache<Solution<N>>;
+
+/// Values kept by (drift bits, whether the drift carries its derivative).
+type Cache<N> = RefCell<Vec<((u64, bool), Rc<N>)>>;
 
 /// Most solves kept per prepared stage (per-drift solves with leak).
 const SOLUTION_CACHE: usize = 512;
 
 /// Finds or makes the solve for `drift` in `cache`.
 fn cached<N>(
-    cache: &RefCell<Vec<(u64, Rc<N>)>>,
+    cache: &Cache<N>,
     drift: f64,
+    seeded: bool,
     make: impl FnOnce() -> Option<N>,
 ) -> Option<Rc<N>> {
-    let key = drift.to_bits();
+    let key = (drift.to_bits(), seeded);
     if let Some((_, hit)) = cache.borrow().iter().find(|(k, _)| *k == key) {
         return Some(Rc::clone(hit));
     }
@@ -370,30 +375,37 @@ impl Prepared<'_> {
         latest.max(1e-3)
     }
 
-    /// The solve on the stage's numbers at the fixed drift `at`, to the subject's last time.
-    fn local_solution(&self, at: f64) -> Option<Rc<Solution<Local>>> {
-        self.local_solved(at, &self.solutions, |process| {
+    /// The solve on the stage's numbers at drift `at`, to the subject's last time (with a
+    /// derivative in the drift when `seeded`).
+    fn local_solution(&self, at: f64, seeded: bool) -> Option<Rc<Solution<Local>>> {
+        self.local_solved(at, seeded, &self.solutions, |process| {
             solve(process, self.horizon(), self.stage.grid).ok()
         })
     }
 
-    /// A solve on the stage's numbers at the fixed drift `at` (no derivative in the drift),
-    /// kept in `cache` and made by `make` from the process.
+    /// A solve on the stage's numbers at drift `at` (a fixed drift node, or with its derivative
+    /// in the drift when `seeded`), kept in `cache` and made by `make` from the process.
     fn local_solved(
         &self,
         at: f64,
+        seeded: bool,
         cache: &SolveCache<Local>,
         make: impl FnOnce(&Process<Local>) -> Option<Solution<Local>>,
     ) -> Option<Rc<Solution<Local>>> {
-        let process = self.local?.with_drift(Local::from_re(at));
-        cached(cache, at, || make(&process))
+        let drift = if seeded {
+            seeded_number(at, DRIFT)
+        } else {
+            Local::from_re(at)
+        };
+        let process = self.local?.with_drift(drift);
+        cached(cache, at, seeded, || make(&process))
     }
 
     /// The solve on plain numbers holding the whole distribution at drift `v`.
     fn plain_settled(&self, v: f64) -> Option<(Rc<Solution<f64>>, Option<f64>)> {
         let process = self.plain?;
         let solve_drift = if self.tilts { 0.0 } else { v };
-        let solution = cached(&self.settled, solve_drift, || {
+        let solution = cached(&self.settled, solve_drift, false, || {
             let at = process.with_drift(solve_drift);
             solve_settled(
                 &at,
@@ -431,43 +443,58 @@ impl Prepared<'_> {
     /// v by Girsanov's theorem without leak, from the drift nodes around v with leak
     /// ([`interpolate`]).
     fn score(&self, v: f64, observation: &Observation) -> Option<Local> {
-        let drift = seeded(v, DRIFT);
+        let drift = seeded_number(v, DRIFT);
         if self.tilts {
-            return self.score_on(0.0, Some(drift), observation);
+            return self.score_on(0.0, false, Some(drift), observation);
         }
         // The passage of a response with its time, whose density's smooth part τ is taken out
         // before interpolating and put back after.
         let passage = match (observation.choice, observation.rt) {
-            (Some(choice), Some(rt)) => {
-                Some((bound_of(choice), Local::from_re(rt) - seeded(self.ndt, NDT)))
-            }
+            (Some(choice), Some(rt)) => Some((
+                bound_of(choice),
+                Local::from_re(rt) - seeded_number(self.ndt, NDT),
+            )),
             _ => None,
         };
         let nodes = nodes_around(v);
         let mut values = [Local::from_re(0.0); 6];
         let mut any = None;
         for (value, &node) in values.iter_mut().zip(&nodes) {
-            *value = self.score_on(node, None, observation)?;
-            if let (Some((bound, t)), Some(solution)) = (passage, self.local_solution(node)) {
+            *value = self.score_on(node, false, None, observation)?;
+            if let (Some((bound, t)), Some(solution)) = (passage, self.local_solution(node, false))
+            {
                 *value -= solution.drift_exponent(t, bound, Local::from_re(node));
                 any = Some(solution);
             }
         }
-        let mut total = interpolate(drift, nodes, values);
-        if let (Some((bound, t)), Some(solution)) = (passage, any) {
-            total += solution.drift_exponent(t, bound, drift);
+        match interpolate(drift, nodes, values) {
+            Some(mut total) => {
+                if let (Some((bound, t)), Some(solution)) = (passage, any) {
+                    total += solution.drift_exponent(t, bound, drift);
+                }
+                Some(total)
+            }
+            // A node's density is zero on the grid (far in a tail the polynomial cannot
+            // bridge): a solve at the drift itself.
+            None => self.score_on(v, true, None, observation),
         }
-        Some(total)
     }
 
-    /// ln P(observation) on the stage's numbers from the solve at the fixed drift `at`, changed
-    /// to `drift` by Girsanov's theorem when given (no leak).
-    fn score_on(&self, at: f64, drift: Option<Local>, observation: &Observation) -> Option<Local> {
+    /// ln P(observation) on the stage's numbers from the solve at drift `at` (with its
+    /// derivative in the drift when `seeded`), changed to `drift` by Girsanov's theorem when
+    /// given (no leak).
+    fn score_on(
+        &self,
+        at: f64,
+        seeded: bool,
+        drift: Option<Local>,
+        observation: &Observation,
+    ) -> Option<Local> {
         let minus_infinity = Local::from_re(f64::NEG_INFINITY);
-        let Some(solution) = self.local_solution(at) else {
+        let Some(solution) = self.local_solution(at, seeded) else {
             return Some(minus_infinity);
         };
-        let ndt = seeded(self.ndt, NDT);
+        let ndt = seeded_number(self.ndt, NDT);
         let decision = |time: f64| Local::from_re(time) - ndt;
         // ln P(no bound by the lock), what every observation is conditioned on.
         let window = match self.context.lock {
@@ -503,7 +530,7 @@ impl Prepared<'_> {
                 match (self.context.lock, window) {
                     (Some(lock), Some(w)) => {
                         // P(bound after the lock | none before) = (P_c(∞) − P_c(L))/S(L).
-                        let settled = self.local_settled(at)?;
+                        let settled = self.local_settled(at, seeded)?;
                         let all =
                             settled.absorbed_by(Local::from_re(settled.horizon()), bound, drift);
                         let before = settled.absorbed_by(decision(lock), bound, drift);
@@ -515,7 +542,7 @@ impl Prepared<'_> {
                         }
                     }
                     _ => {
-                        let settled = self.local_settled(at)?;
+                        let settled = self.local_settled(at, seeded)?;
                         let end = Local::from_re(settled.horizon());
                         let mass = |b| settled.absorbed_by(end, b, drift).ok();
                         match (mass(bound), mass(bound.other())) {
@@ -531,8 +558,8 @@ impl Prepared<'_> {
 
     /// The solve on the stage's numbers that holds the whole distribution at the fixed drift
     /// `at`.
-    fn local_settled(&self, at: f64) -> Option<Rc<Solution<Local>>> {
-        self.local_solved(at, &self.settled_local, |process| {
+    fn local_settled(&self, at: f64, seeded: bool) -> Option<Rc<Solution<Local>>> {
+        self.local_solved(at, seeded, &self.settled_local, |process| {
             solve_settled(
                 process,
                 self.horizon().max(1.0),
