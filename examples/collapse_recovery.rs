@@ -28,6 +28,7 @@ use std::time::Instant;
 use valuedrift::fit::{FitOptions, SubjectFit, fit_subject};
 use valuedrift::likelihood::SubjectLikelihood;
 use valuedrift::model::{Model, load_model, parse_model};
+use valuedrift::plan::summaries::pearson;
 use valuedrift::simulate::{
     SimulationSettings, orchard_design, orchard_generating_values, simulate_subject,
 };
@@ -71,15 +72,6 @@ fn value_of(model: &Model, values: &[f64], name: &str) -> f64 {
 fn median(mut x: Vec<f64>) -> f64 {
     x.sort_by(f64::total_cmp);
     x[x.len() / 2]
-}
-
-fn pearson(x: &[f64], y: &[f64]) -> f64 {
-    let n = x.len() as f64;
-    let (mx, my) = (x.iter().sum::<f64>() / n, y.iter().sum::<f64>() / n);
-    let sxy: f64 = x.iter().zip(y).map(|(a, b)| (a - mx) * (b - my)).sum();
-    let sxx: f64 = x.iter().map(|a| (a - mx).powi(2)).sum();
-    let syy: f64 = y.iter().map(|b| (b - my).powi(2)).sum();
-    sxy / (sxx * syy).sqrt()
 }
 
 fn main() {
@@ -224,7 +216,7 @@ fn main() {
             .collect();
         println!(
             "{label}: r = {:.3}, median |error| {:.3} ({} participants)",
-            pearson(truth, estimate),
+            pearson(truth, estimate).unwrap_or(f64::NAN),
             median(errors),
             truth.len()
         );
