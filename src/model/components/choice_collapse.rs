@@ -21,7 +21,7 @@
 //! theorem ([`Solution::ln_density_at_drift`]), so trial-by-trial drifts from learning cost no
 //! further solves. With a leak (declared free, or fixed above 0) the engine solves at fixed drift
 //! nodes 0.5 apart and interpolates between the six around each trial's drift
-//! ([`interpolate`]; 5.0e-5 in ln g, below the engine's error; a solve at the drift itself where
+//! ([`interpolate`]; 5.4e-5 in ln g, below the engine's error; a solve at the drift itself where
 //! a node's density is zero on the grid): one solve per node the
 //! subject's drifts reach, kept for the evaluation. The solves carry forward sensitivities in
 //! the stage's parameters (boundary, start, the shape's parameters, leak), ndt and the drift
