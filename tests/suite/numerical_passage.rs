@@ -507,20 +507,12 @@ fn fits_through_the_engine_reported_converged_sit_where_the_objective_is_flat() 
     // participants (gainloss-collapse-linear, 300 trials, fixed seed).
     use valuedrift::fit::{FitOptions, fit_subject};
     use valuedrift::model::load_model;
+    use valuedrift::simulate::orchard_participant;
     let model = load_model("gainloss-collapse-linear").unwrap();
     let mut rng = ChaCha8Rng::seed_from_u64(20_261_203);
     let mut converged = 0;
     for i in 0..3 {
-        let design = orchard_design(&format!("s{i}"), "sim", 300, &mut rng);
-        let values = orchard_generating_values(&model, &mut rng).unwrap();
-        let subject = simulate_subject(
-            &model,
-            &values,
-            &design,
-            SimulationSettings::default(),
-            &mut rng,
-        )
-        .unwrap();
+        let subject = orchard_participant(&model, &format!("s{i}"), "sim", 300, &mut rng).unwrap();
         let lik = SubjectLikelihood::new(&model, &subject, None).unwrap();
         let fit = fit_subject(&lik, &FitOptions::default());
         if !fit.converged {
