@@ -454,7 +454,7 @@ fn drift_nodes_reproduce_a_solve_at_the_drift_itself_with_leak() {
     // the tail, drifts up to 17 where ln g > −30. Measured at the default spacing (0.5, six nodes):
     // worst |Δ ln g| 5.4e-5 on 540 points, none left to a direct solve (four nodes gave 4.9e-4 at
     // boundary 2.5, leak 3, t = 2.9 s; nodes spaced like A·sinh(jδ), wider at strong drifts, 1e-1).
-    use valuedrift::first_passage::numerical::{interpolate, nodes_around};
+    use valuedrift::first_passage::numerical::{NODES, interpolate, nodes_around};
     let mut worst: f64 = 0.0;
     let (mut checked, mut declined) = (0, 0);
     for (boundary, start) in [(1.0, 0.5), (1.6, 0.35), (2.5, 0.6)] {
@@ -474,7 +474,7 @@ fn drift_nodes_reproduce_a_solve_at_the_drift_itself_with_leak() {
                         if expected < -30.0 {
                             continue;
                         }
-                        let mut values = [0.0; 6];
+                        let mut values = [0.0; NODES];
                         for ((value, solution), &u) in values.iter_mut().zip(&solves).zip(&nodes) {
                             *value = solution.ln_density(t, bound).unwrap()
                                 - solution.drift_exponent(t, bound, u);

@@ -76,7 +76,7 @@ mod march;
 mod partials;
 mod shape;
 
-pub use drift_nodes::{NODE_SPACING, interpolate, nodes_around};
+pub use drift_nodes::{NODE_SPACING, NODES, interpolate, nodes_around};
 pub use partials::Partials;
 pub use shape::Collapse;
 

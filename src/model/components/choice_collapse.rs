@@ -47,8 +47,8 @@ use super::{
 use crate::data::Choice;
 use crate::first_passage::Bound;
 use crate::first_passage::numerical::{
-    Collapse, DEFAULT_POINTS, DEFAULT_STEP, Grid, Process, Solution, interpolate, nodes_around,
-    solve, solve_settled,
+    Collapse, DEFAULT_POINTS, DEFAULT_STEP, Grid, NODES, Process, Solution, interpolate,
+    nodes_around, solve, solve_settled,
 };
 use crate::model::dual::{D, chain, gradient};
 use nalgebra::{Const, U1};
@@ -457,19 +457,20 @@ impl Prepared<'_> {
             _ => None,
         };
         let nodes = nodes_around(v);
-        let mut values = [Local::from_re(0.0); 6];
-        let mut any = None;
+        let mut values = [Local::from_re(0.0); NODES];
+        // Any node's solve: τ depends on the process, not on the drift it was solved at.
+        let mut solved = None;
         for (value, &node) in values.iter_mut().zip(&nodes) {
             *value = self.score_on(node, false, None, observation)?;
             if let (Some((bound, t)), Some(solution)) = (passage, self.local_solution(node, false))
             {
                 *value -= solution.drift_exponent(t, bound, Local::from_re(node));
-                any = Some(solution);
+                solved = Some(solution);
             }
         }
         match interpolate(drift, nodes, values) {
             Some(mut total) => {
-                if let (Some((bound, t)), Some(solution)) = (passage, any) {
+                if let (Some((bound, t)), Some(solution)) = (passage, solved) {
                     total += solution.drift_exponent(t, bound, drift);
                 }
                 Some(total)
