@@ -90,6 +90,19 @@ fn main() {
         fit.converged
     );
     println!(
+        "evaluations by stage: screen {}, starts {:?}, restarts {}, interior {}, faces {}, \
+         fresh {}, examine {}, curvature {}, standard errors {}",
+        work.screen,
+        work.starts,
+        work.restarts,
+        work.interior,
+        work.faces,
+        work.fresh,
+        work.examine,
+        work.curvature,
+        work.standard_errors
+    );
+    println!(
         "likelihood_seconds={numerical:.5} closed_form_seconds={closed_form:.6} ratio={:.0} \
          fit_seconds={fit_seconds:.2} evaluations={}",
         numerical / closed_form,

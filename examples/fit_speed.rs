@@ -90,7 +90,7 @@ fn main() {
     let per_subject = start.elapsed().as_secs_f64() / SUBJECTS as f64;
     println!(
         "subject: ln L (f3593c4; new - f3593c4), starts at best/runs, converged | evaluations: \
-         screen, [each start], restarts, interior, faces, fresh, examine, standard errors, total"
+         screen, [each start], restarts, interior, faces, fresh, examine, curvature, standard errors, total"
     );
     let mut total = 0;
     for (i, (fit, work)) in fits.iter().enumerate() {
@@ -106,7 +106,7 @@ fn main() {
             "-".to_string()
         };
         println!(
-            "{}: ln L = {} ({earlier}), {}/{}, {} | {} {:?} {} {} {} {} {} {} {}",
+            "{}: ln L = {} ({earlier}), {}/{}, {} | {} {:?} {} {} {} {} {} {} {} {}",
             fit.subject,
             fit.log_likelihood,
             fit.starts_at_best,
@@ -119,6 +119,7 @@ fn main() {
             work.faces,
             work.fresh,
             work.examine,
+            work.curvature,
             work.standard_errors,
             work.total()
         );

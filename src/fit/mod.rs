@@ -151,8 +151,24 @@ pub fn fit_subject_with_work(
         options.max_iterations,
     );
     let mut work = searched.work;
-    work.standard_errors = uncertainty::evaluations(likelihood.n_free());
-    let fit = summarise_best(likelihood, &searched.runs, searched.best, searched.verdict);
+    // The curvature taken at the first optimum is the observed information when that optimum
+    // is the best point (the same function at the same θ).
+    let known = searched
+        .curvature
+        .filter(|(theta, _)| *theta == searched.runs[searched.best].theta)
+        .map(|(_, h)| h);
+    work.standard_errors = if known.is_some() {
+        1
+    } else {
+        uncertainty::evaluations(likelihood.n_free())
+    };
+    let fit = summarise_best(
+        likelihood,
+        &searched.runs,
+        searched.best,
+        searched.verdict,
+        known,
+    );
     (fit, work)
 }
 
@@ -162,6 +178,7 @@ fn summarise_best(
     results: &[StartResult],
     best: usize,
     verdict: Verdict,
+    hessian: Option<nalgebra::DMatrix<f64>>,
 ) -> SubjectFit {
     let best_objective = results[best].objective;
     let starts_at_best = results
@@ -174,6 +191,7 @@ fn summarise_best(
         starts_at_best,
         results.len(),
         verdict,
+        hessian,
     )
 }
 

@@ -1,6 +1,16 @@
 //! One L-BFGS run from one start, through argmin, optionally with some parameters held fixed,
 //! and the rule that ends a run before its tolerance test when it has reached an optimum an
 //! earlier run found ([`EarlyStop`]).
+//!
+//! A run may be given the curvature of the objective at an optimum found before (the Hessian H
+//! of the negative log-posterior there). It then searches over z with θ_A = start_A + P·z on
+//! its active parameters A, P = L⁻ᵀ for the Cholesky factor H_AA = L·Lᵀ, so that the objective's
+//! Hessian in z is the identity near that optimum: preconditioning by a linear change of
+//! variables (Nocedal & Wright 2006, §5.1 and §7.2). L-BFGS starts with a scaled identity as its
+//! inverse Hessian, so on the original scale its first steps ignore the parameters' very
+//! different curvatures and correlations (a boundary against a learning rate) and spend
+//! iterations learning them; on z it starts with them. The search's held probes, which start
+//! next to the best point, use it (see [`super::search`]).
 
 use crate::likelihood::SubjectLikelihood;
 use argmin::core::{
@@ -9,6 +19,7 @@ use argmin::core::{
 };
 use argmin::solver::linesearch::MoreThuenteLineSearch;
 use argmin::solver::quasinewton::LBFGS;
+use nalgebra::{DMatrix, DVector};
 use std::cell::{Cell, RefCell};
 
 /// Cost returned for a point where the log-posterior is not finite, so that the line search
@@ -116,6 +127,8 @@ struct Watched<'k, S> {
     stopped: &'k Cell<Option<Stop>>,
     /// The objective after each iteration so far (for [`EarlyStop::OutOfReach`]).
     history: Vec<f64>,
+    /// θ (all free parameters) of the solver's parameter vector.
+    position: &'k dyn Fn(&[f64]) -> Vec<f64>,
 }
 
 type LbfgsState = IterState<Vec<f64>, Vec<f64>, (), (), (), f64>;
@@ -142,13 +155,13 @@ impl<O, S: Solver<O, LbfgsState>> Solver<O, LbfgsState> for Watched<'_, S> {
             EarlyStop::Never => None,
             EarlyStop::Join(known) => {
                 let objective = -state.get_cost();
-                let theta = state.get_param();
+                let theta = state.get_param().map(|z| (self.position)(z));
                 known
                     .iter()
                     .any(|(at, value)| {
                         objective <= *value
                             && value - objective <= JOIN_GAP
-                            && theta.is_some_and(|t| {
+                            && theta.as_ref().is_some_and(|t| {
                                 t.iter()
                                     .zip(at)
                                     .all(|(a, b)| (a - b).abs() <= JOIN_DISTANCE)
@@ -193,22 +206,65 @@ struct Problem<'a, 'b> {
     base: Vec<f64>,
     /// Indices of the free parameters being optimised.
     active: Vec<usize>,
+    /// The change of variables, when the run is preconditioned.
+    scaling: Option<Scaling>,
     cache: RefCell<Option<Cached>>,
     /// Evaluations of the likelihood made (cache hits not counted).
     evaluations: &'a Cell<usize>,
 }
 
+/// The change of variables θ_A = origin + P·z of a preconditioned run (see the module docs).
+#[derive(Clone)]
+struct Scaling {
+    origin: DVector<f64>,
+    factor: DMatrix<f64>,
+}
+
+impl Scaling {
+    /// The change of variables around `start` for the active parameters, from the Hessian
+    /// `curvature` of all free parameters; None where H_AA is not positive definite or not
+    /// finite (the run then searches on θ itself).
+    fn new(curvature: &DMatrix<f64>, active: &[usize], start: &[f64]) -> Option<Scaling> {
+        let n = active.len();
+        let sub = DMatrix::from_fn(n, n, |a, b| curvature[(active[a], active[b])]);
+        if !sub.iter().all(|x| x.is_finite()) {
+            return None;
+        }
+        // P = L⁻ᵀ, so that Pᵀ·H_AA·P = L⁻¹·L·Lᵀ·L⁻ᵀ = I.
+        let lower = sub.cholesky()?.l();
+        let factor = lower.transpose().try_inverse()?;
+        factor.iter().all(|x| x.is_finite()).then(|| Scaling {
+            origin: DVector::from_iterator(n, active.iter().map(|&j| start[j])),
+            factor,
+        })
+    }
+}
+
 impl Problem<'_, '_> {
     fn full(&self, reduced: &[f64]) -> Vec<f64> {
         let mut theta = self.base.clone();
-        for (&j, &x) in self.active.iter().zip(reduced) {
-            theta[j] = x;
+        match &self.scaling {
+            Some(s) => {
+                let x = &s.origin + &s.factor * DVector::from_column_slice(reduced);
+                for (&j, &x) in self.active.iter().zip(x.iter()) {
+                    theta[j] = x;
+                }
+            }
+            None => {
+                for (&j, &x) in self.active.iter().zip(reduced) {
+                    theta[j] = x;
+                }
+            }
         }
         theta
     }
 
+    /// The solver's parameter vector at the start (z = 0 when preconditioned).
     fn reduce(&self, full: &[f64]) -> Vec<f64> {
-        self.active.iter().map(|&j| full[j]).collect()
+        match &self.scaling {
+            Some(s) => vec![0.0; s.origin.len()],
+            None => self.active.iter().map(|&j| full[j]).collect(),
+        }
     }
 
     fn evaluate(&self, reduced: &[f64]) -> (f64, Vec<f64>) {
@@ -221,10 +277,16 @@ impl Problem<'_, '_> {
         let e = self.likelihood.evaluate(&self.full(reduced));
         let objective = e.ln_likelihood + e.ln_prior;
         let (cost, grad) = if objective.is_finite() && e.gradient.iter().all(|g| g.is_finite()) {
-            (
-                -objective,
-                self.active.iter().map(|&j| -e.gradient[j]).collect(),
-            )
+            let on_theta: Vec<f64> = self.active.iter().map(|&j| -e.gradient[j]).collect();
+            let grad = match &self.scaling {
+                // ∂f/∂z = Pᵀ·∂f/∂θ_A.
+                Some(s) => (s.factor.transpose() * DVector::from_vec(on_theta))
+                    .iter()
+                    .copied()
+                    .collect(),
+                None => on_theta,
+            };
+            (-objective, grad)
         } else {
             (INVALID_COST, vec![0.0; reduced.len()])
         };
@@ -260,25 +322,37 @@ pub fn run_start(
     max_iterations: u64,
     held: &[usize],
 ) -> StartResult {
-    run_start_until(likelihood, start, max_iterations, held, EarlyStop::Never)
+    run_start_until(
+        likelihood,
+        start,
+        max_iterations,
+        held,
+        EarlyStop::Never,
+        None,
+    )
 }
 
-/// As [`run_start`], ended early by `rule` where it applies.
+/// As [`run_start`], ended early by `rule` where it applies, and preconditioned by `curvature`
+/// (the Hessian of the negative log-posterior at an optimum found before, all free parameters)
+/// when given and positive definite on the active parameters.
 pub fn run_start_until(
     likelihood: &SubjectLikelihood<'_>,
     start: Vec<f64>,
     max_iterations: u64,
     held: &[usize],
     rule: EarlyStop<'_>,
+    curvature: Option<&DMatrix<f64>>,
 ) -> StartResult {
     debug_assert!(held.is_empty() || !matches!(rule, EarlyStop::Join(_)));
     let active: Vec<usize> = (0..start.len()).filter(|j| !held.contains(j)).collect();
     let evaluations = Cell::new(0);
     let stopped = Cell::new(None);
+    let scaling = curvature.and_then(|h| Scaling::new(h, &active, &start));
     let problem = Problem {
         likelihood,
         base: start.clone(),
         active,
+        scaling,
         cache: RefCell::new(None),
         evaluations: &evaluations,
     };
@@ -303,14 +377,24 @@ pub fn run_start_until(
     else {
         return failed(Stop::Failed);
     };
+    // The executor owns the problem; the stop rule and the outcome map the solver's parameters
+    // to θ through a copy of its change of variables.
+    let mapping = Problem {
+        likelihood,
+        base: problem.base.clone(),
+        active: problem.active.clone(),
+        scaling: problem.scaling.clone(),
+        cache: RefCell::new(None),
+        evaluations: &evaluations,
+    };
+    let position = |z: &[f64]| mapping.full(z);
     let solver = Watched {
         inner: lbfgs,
         rule,
         stopped: &stopped,
         history: Vec::new(),
+        position: &position,
     };
-    let base = problem.base.clone();
-    let active = problem.active.clone();
     let outcome = Executor::new(problem, solver)
         .configure(|state| {
             // With cost and gradient given, L-BFGS's own initialisation evaluates nothing, so
@@ -329,10 +413,7 @@ pub fn run_start_until(
                 .get_best_param()
                 .cloned()
                 .unwrap_or_else(|| reduced_start.clone());
-            let mut theta = base;
-            for (&j, &x) in active.iter().zip(&reduced) {
-                theta[j] = x;
-            }
+            let theta = mapping.full(&reduced);
             let cost = state.get_best_cost();
             let stop = match (stopped.get(), state.get_termination_status()) {
                 (Some(early), _) => early,

@@ -11,7 +11,7 @@ pub(crate) const Z_975: f64 = 1.959_963_984_540_054;
 
 /// Hessian of the negative log-posterior by central differences of its exact gradient,
 /// step 1e-5·max(1, |θ_j|), symmetrised (common practice; Nocedal & Wright 2006, §8.1).
-fn hessian(likelihood: &SubjectLikelihood<'_>, theta: &[f64]) -> DMatrix<f64> {
+pub(crate) fn hessian(likelihood: &SubjectLikelihood<'_>, theta: &[f64]) -> DMatrix<f64> {
     let n = theta.len();
     let mut h = DMatrix::zeros(n, n);
     for j in 0..n {
@@ -35,13 +35,15 @@ pub(crate) fn evaluations(n_free: usize) -> usize {
     1 + 2 * n_free
 }
 
-/// Builds the fit record from the best start.
+/// Builds the fit record from the best start; `known` is [`hessian`] at the best point when it
+/// has been computed already.
 pub fn summarise(
     likelihood: &SubjectLikelihood<'_>,
     best: &StartResult,
     starts_at_best: usize,
     starts: usize,
     verdict: Verdict,
+    known: Option<DMatrix<f64>>,
 ) -> SubjectFit {
     let model = likelihood.model();
     let subject = likelihood.subject();
@@ -56,7 +58,7 @@ pub fn summarise(
         .map(|(&slot, t)| at_bound(natural[slot], t))
         .collect();
     let interior: Vec<usize> = (0..free.len()).filter(|&j| !bounded[j]).collect();
-    let full = hessian(likelihood, theta);
+    let full = known.unwrap_or_else(|| hessian(likelihood, theta));
     let sub = DMatrix::from_fn(interior.len(), interior.len(), |a, b| {
         full[(interior[a], interior[b])]
     });
