@@ -200,8 +200,8 @@ pub struct Fitted {
 /// Reads, fits and writes; returns what was fitted for the caller's summary.
 ///
 /// Per-subject fits read the trial table a part at a time, twice (the data screen, then the
-/// fits), so memory does not grow with the number of subjects; `--hierarchical` holds the whole
-/// table, since every EM step refits every subject.
+/// fits), so memory does not grow with the number of subjects; a table that fits in one part is
+/// read once. `--hierarchical` holds the whole table, since every EM step refits every subject.
 pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn std::error::Error>> {
     let mut outputs = OutputSet::create(run.out, run.replace)?;
     let window = (run.options.lock, run.options.deadline);
@@ -229,10 +229,12 @@ pub fn run(run: FitRun<'_>, command_line: &[String]) -> Result<Fitted, Box<dyn s
             (models, screened, Some(table), scores)
         }
         None => {
-            let tally = super::input::screen_streamed(run.data, &run.columns, &run.screen, window)?;
+            let (tally, single) =
+                super::input::screen_streamed(run.data, &run.columns, &run.screen, window)?;
             let models = load_models(run.models)?;
             let screened = tally.judge(run.data, &models)?;
-            (models, screened, None, None)
+            // A table read in one part is fitted from memory rather than read again.
+            (models, screened, single, None)
         }
     };
     let table_subjects: Vec<String> = screened

@@ -238,21 +238,29 @@ pub fn screen_before_fit(
 /// The data screen of the trial table at `path`, read a part at a time (memory does not grow
 /// with the number of subjects); prints what the reader noted. [`ScreenTally::judge`] then
 /// refuses or passes it exactly as [`screen_before_fit`] would the whole table.
+///
+/// A table that came in a single part (at most [`SUBJECTS_PER_PART`] subjects) is returned
+/// too, trimmed as the screen trimmed it: it is what [`fit_streamed`] would read again, and
+/// holding it costs no more memory than the part did.
 pub fn screen_streamed(
     path: &Path,
     columns: &ColumnMap,
     settings: &ScreenSettings,
     window: (Option<f64>, Option<f64>),
-) -> Result<ScreenTally, Box<dyn std::error::Error>> {
+) -> Result<(ScreenTally, Option<TrialTable>), Box<dyn std::error::Error>> {
     let mut parts = SubjectParts::open(path, columns)?;
     let mut tally = ScreenTally::new(*settings, window);
+    let mut single = None;
+    let mut count = 0;
     while let Some(mut part) = parts.next_part(SUBJECTS_PER_PART)? {
         tally.add(&mut part);
+        count += 1;
+        single = (count == 1).then_some(part);
     }
     for line in parts.notes().lines(path) {
         eprintln!("{line}");
     }
-    Ok(tally)
+    Ok((tally, single))
 }
 
 /// Subjects read at a time when a table is streamed: enough to keep every thread busy, few
