@@ -14,15 +14,18 @@
 //! The leaky model runs on a coarser grid than its default (time step 0.004 s, 100 points:
 //! about 4.8e-3 in ln g on the Wiener table instead of 1e-3), in simulation and fit alike, to
 //! keep the study within an hour on two cores; its solves, one per drift node, are what make it
-//! slow. Run with `cargo run --release --example collapse_recovery [-- N [generators [fitted]]]`
-//! (indices 0 fixed, 1 collapse, 2 leaky, comma-separated; default all three for both); the
-//! confusion matrix then has a column for each fitted model.; a line per fit goes
-//! to `collapse_recovery.csv` in the working folder.
+//! slow. Run with
+//! `cargo run --release --example collapse_recovery [-- N [generators [fitted [starts]]]]`
+//! (indices 0 fixed, 1 collapse, 2 leaky, comma-separated; default all three for both; the
+//! confusion matrix then has a column for each fitted model; `starts` per fit, default 10). A
+//! line per fit goes to `collapse_recovery.csv.partial` in the working folder as soon as its
+//! participant is done, renamed `collapse_recovery.csv` when the study ends.
 
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rayon::prelude::*;
 use std::io::Write;
+use std::sync::Mutex;
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::time::Instant;
 use valuedrift::fit::{FitOptions, SubjectFit, fit_subject};
@@ -69,6 +72,43 @@ fn value_of(model: &Model, values: &[f64], name: &str) -> f64 {
     values[slot]
 }
 
+/// The table line of fitted model `f` on `case` (without the time).
+fn fit_line(models: &[Model], names: [&str; 3], case: &Case, f: usize, fit: &SubjectFit) -> String {
+    let generator = &models[case.generator];
+    let fitted = &models[f];
+    let estimates: Vec<f64> = fit.estimates.iter().map(|e| e.estimate).collect();
+    let pair = |name: &str| -> (String, String) {
+        let has = |m: &Model| {
+            m.parameters
+                .iter()
+                .any(|p| p.name == name && p.fixed.is_none())
+        };
+        let truth = if has(generator) {
+            format!("{}", value_of(generator, &case.truth, name))
+        } else {
+            String::new()
+        };
+        let estimate = if has(fitted) {
+            format!("{}", value_of(fitted, &estimates, name))
+        } else {
+            String::new()
+        };
+        (truth, estimate)
+    };
+    let (tr, er) = pair("collapse_rate");
+    let (tl, el) = pair("leak");
+    format!(
+        "{},{},{},{},{},{},\"{}\",{tr},{er},{tl},{el}",
+        names[case.generator],
+        case.index,
+        names[f],
+        fit.log_likelihood,
+        fit.bic,
+        fit.converged,
+        fit.status
+    )
+}
+
 fn median(mut x: Vec<f64>) -> f64 {
     x.sort_by(f64::total_cmp);
     x[x.len() / 2]
@@ -90,13 +130,28 @@ fn main() {
         })
     };
     let (generators, fitted) = (indices(2), indices(3));
+    let starts: usize = std::env::args()
+        .nth(4)
+        .map_or(10, |a| a.parse().expect("starts: a whole number"));
     let jobs: Vec<(usize, usize)> = generators
         .into_iter()
         .flat_map(|g| (0..n).map(move |i| (g, i)))
         .collect();
     let started = Instant::now();
     let done = AtomicUsize::new(0);
-    let options = FitOptions::default();
+    let options = FitOptions {
+        starts,
+        ..FitOptions::default()
+    };
+    const PARTIAL: &str = "collapse_recovery.csv.partial";
+    let mut file = std::fs::File::create(PARTIAL).expect("a writable folder");
+    writeln!(
+        file,
+        "generator,participant,fitted,log_likelihood,bic,converged,status,true_collapse_rate,\
+         collapse_rate,true_leak,leak,seconds"
+    )
+    .unwrap();
+    let file = Mutex::new(file);
     let cases: Vec<Case> = jobs
         .par_iter()
         .map(|&(g, i)| {
@@ -125,6 +180,20 @@ fn main() {
                     fit
                 })
                 .collect();
+            let case = Case {
+                generator: g,
+                index: i,
+                truth,
+                fits,
+            };
+            {
+                let mut file = file.lock().expect("no panic while writing");
+                for ((&f, fit), seconds) in fitted.iter().zip(&case.fits).zip(&seconds) {
+                    let line = fit_line(&models, names, &case, f, fit);
+                    writeln!(file, "{line},{seconds}").unwrap();
+                }
+                file.flush().unwrap();
+            }
             let k = done.fetch_add(1, Ordering::Relaxed) + 1;
             eprintln!(
                 "[{:7.1} s] {k}/{} participants fitted ({} {i}: {} s)",
@@ -133,21 +202,11 @@ fn main() {
                 names[g],
                 seconds.join(", ")
             );
-            Case {
-                generator: g,
-                index: i,
-                truth,
-                fits,
-            }
+            case
         })
         .collect();
-    let mut file = std::fs::File::create("collapse_recovery.csv").expect("a writable folder");
-    writeln!(
-        file,
-        "generator,participant,fitted,log_likelihood,bic,converged,status,true_collapse_rate,\
-         collapse_rate,true_leak,leak"
-    )
-    .unwrap();
+    drop(file);
+    std::fs::rename(PARTIAL, "collapse_recovery.csv").expect("the table is renamed");
     let mut confusion = vec![vec![0usize; models.len()]; models.len()];
     let mut flagged = vec![0usize; models.len()];
     let (mut rate, mut leak) = ((Vec::new(), Vec::new()), (Vec::new(), Vec::new()));
@@ -156,38 +215,6 @@ fn main() {
         for (&f, fit) in fitted.iter().zip(&case.fits) {
             let fitted = &models[f];
             let estimates: Vec<f64> = fit.estimates.iter().map(|e| e.estimate).collect();
-            let pair = |name: &str| -> (String, String) {
-                let has = |m: &Model| {
-                    m.parameters
-                        .iter()
-                        .any(|p| p.name == name && p.fixed.is_none())
-                };
-                let truth = if has(generator) {
-                    format!("{}", value_of(generator, &case.truth, name))
-                } else {
-                    String::new()
-                };
-                let estimate = if has(fitted) {
-                    format!("{}", value_of(fitted, &estimates, name))
-                } else {
-                    String::new()
-                };
-                (truth, estimate)
-            };
-            let (tr, er) = pair("collapse_rate");
-            let (tl, el) = pair("leak");
-            writeln!(
-                file,
-                "{},{},{},{},{},{},\"{}\",{tr},{er},{tl},{el}",
-                names[case.generator],
-                case.index,
-                names[f],
-                fit.log_likelihood,
-                fit.bic,
-                fit.converged,
-                fit.status
-            )
-            .unwrap();
             flagged[f] += usize::from(!fit.converged);
             if f == case.generator && f == 1 {
                 rate.0
@@ -221,7 +248,7 @@ fn main() {
             truth.len()
         );
     };
-    println!("{n} participants × {TRIALS} trials per generating model, 10 starts per fit");
+    println!("{n} participants × {TRIALS} trials per generating model, {starts} starts per fit");
     summary("collapse_rate (collapsing data, collapsing fit)", &rate);
     summary("leak (leaky data, leaky fit)", &leak);
     println!("model recovery by BIC (rows: generating model; columns: winning fitted model)");
