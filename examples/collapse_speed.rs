@@ -91,7 +91,7 @@ fn main() {
     );
     println!(
         "evaluations by stage: screen {}, starts {:?}, restarts {}, interior {}, faces {}, \
-         fresh {}, examine {}, curvature {}, standard errors {}",
+         fresh {}, examine {}, curvature {}, standard errors {}; on the model's own grid {}",
         work.screen,
         work.starts,
         work.restarts,
@@ -100,7 +100,8 @@ fn main() {
         work.fresh,
         work.examine,
         work.curvature,
-        work.standard_errors
+        work.standard_errors,
+        work.refined
     );
     println!(
         "likelihood_seconds={numerical:.5} closed_form_seconds={closed_form:.6} ratio={:.0} \

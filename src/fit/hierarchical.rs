@@ -394,7 +394,7 @@ fn e_step(
                 .collect();
             let best = super::search::best_of(&results);
             let verdict = super::search::verdict_of_run(&lik, &results[best]);
-            super::summarise_best(&lik, &results, best, verdict, None)
+            super::summarise_best(&lik, &results, best, verdict)
         })
         .collect()
 }

@@ -144,12 +144,18 @@ pub fn fit_subject_with_work(
     options: &FitOptions,
 ) -> (SubjectFit, search::Work) {
     let plan = StartPlan::new(likelihood, options.seed);
-    let searched = search::search(
-        likelihood,
-        &plan,
-        options.starts.max(1),
-        options.max_iterations,
-    );
+    let starts = options.starts.max(1);
+    // A model computed on a grid searches on a coarser one first (search::search_refined).
+    let coarse_model = likelihood.model().on_coarser_grid();
+    let coarse = coarse_model
+        .as_ref()
+        .and_then(|m| likelihood.with_model(m).ok());
+    let searched = match &coarse {
+        Some(coarse) => {
+            search::search_refined(likelihood, coarse, &plan, starts, options.max_iterations)
+        }
+        None => search::search(likelihood, &plan, starts, options.max_iterations),
+    };
     let mut work = searched.work;
     // The curvature taken at the first optimum is the observed information when that optimum
     // is the best point (the same function at the same θ).
@@ -162,10 +168,11 @@ pub fn fit_subject_with_work(
     } else {
         uncertainty::evaluations(likelihood.n_free())
     };
-    let fit = summarise_best(
+    let fit = uncertainty::summarise(
         likelihood,
-        &searched.runs,
-        searched.best,
+        &searched.runs[searched.best],
+        searched.starts_at_best,
+        searched.verdict.runs,
         searched.verdict,
         known,
     );
@@ -178,20 +185,14 @@ fn summarise_best(
     results: &[StartResult],
     best: usize,
     verdict: Verdict,
-    hessian: Option<nalgebra::DMatrix<f64>>,
 ) -> SubjectFit {
-    let best_objective = results[best].objective;
-    let starts_at_best = results
-        .iter()
-        .filter(|r| (r.objective - best_objective).abs() <= SAME_OPTIMUM)
-        .count();
     uncertainty::summarise(
         likelihood,
         &results[best],
-        starts_at_best,
+        search::at_best(results, best),
         results.len(),
         verdict,
-        hessian,
+        None,
     )
 }
 

@@ -217,6 +217,18 @@ impl<'a> SubjectLikelihood<'a> {
         })
     }
 
+    /// This likelihood's subject, deadline, lock and prior bound to `model` instead, which must
+    /// have the same parameters (for example [`Model::on_coarser_grid`] of this one's model).
+    pub fn with_model<'m>(&self, model: &'m Model) -> Result<SubjectLikelihood<'m>, DataMismatch>
+    where
+        'a: 'm,
+    {
+        let mut bound = SubjectLikelihood::new(model, self.subject, self.context.deadline)?;
+        bound.context.lock = self.context.lock;
+        bound.group_prior.clone_from(&self.group_prior);
+        Ok(bound)
+    }
+
     /// The same likelihood with a Gaussian prior on θ in place of the model's declared priors.
     pub fn with_group_prior(mut self, prior: GroupPrior) -> Self {
         assert_eq!(prior.dimension(), self.free.len());

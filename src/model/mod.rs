@@ -133,4 +133,27 @@ impl Model {
     pub fn uses_response_times(&self) -> bool {
         self.choice.uses_response_times()
     }
+
+    /// The same model with its choice stage on a coarser grid
+    /// ([`ChoiceStage::on_coarser_grid`]), rebuilt from the model's text with this model's
+    /// parameters; `None` for a stage in closed form, or a model its text does not rebuild
+    /// (one assembled in code).
+    pub fn on_coarser_grid(&self) -> Option<Model> {
+        let choice = self.choice.on_coarser_grid()?;
+        let mut coarse = parse_model(&self.text, &self.origin).ok()?;
+        let same = coarse.component_parameters == self.component_parameters
+            && coarse.parameters.len() == self.parameters.len()
+            && coarse
+                .parameters
+                .iter()
+                .zip(&self.parameters)
+                .all(|(a, b)| a.name == b.name);
+        if !same {
+            return None;
+        }
+        coarse.name.clone_from(&self.name);
+        coarse.parameters.clone_from(&self.parameters);
+        coarse.choice = choice;
+        Some(coarse)
+    }
 }

@@ -135,6 +135,17 @@ pub const LEAKY_ENTRY: Entry<dyn ChoiceStage> = Entry {
     build: build_leaky,
 };
 
+/// The coarser grid the fitter searches with (`ChoiceStage::on_coarser_grid`): this many times
+/// the time step…
+pub const COARSER_STEP: f64 = 4.0;
+
+/// …and the interior points divided by this (at least [`MIN_COARSER_POINTS`]): a quarter of the
+/// solve's cost, four times its error (the engine is second order in both).
+pub const COARSER_POINTS: usize = 4;
+
+/// Fewest interior points of the coarser grid.
+const MIN_COARSER_POINTS: usize = 20;
+
 /// Which boundary shape, with the slots of its (up to three) parameters.
 #[derive(Clone, Copy)]
 enum Shape {
@@ -145,6 +156,7 @@ enum Shape {
     Urgency,
 }
 
+#[derive(Clone)]
 struct Moving {
     shape: Shape,
     boundary: usize,
@@ -272,6 +284,18 @@ impl ChoiceStage for Moving {
 
     fn max_options(&self) -> Option<usize> {
         Some(2)
+    }
+
+    fn on_coarser_grid(&self) -> Option<Box<dyn ChoiceStage>> {
+        let grid = Grid::new(
+            self.grid.step() * COARSER_STEP,
+            (self.grid.points() / COARSER_POINTS).max(MIN_COARSER_POINTS),
+        )
+        .ok()?;
+        Some(Box::new(Moving {
+            grid,
+            ..self.clone()
+        }))
     }
 
     fn prepare<'a>(&'a self, p: &'a [D], context: SubjectContext) -> Box<dyn PreparedChoice + 'a> {

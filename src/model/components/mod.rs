@@ -277,6 +277,13 @@ pub trait ChoiceStage: Send + Sync {
     fn diffusion(&self) -> Option<DiffusionSlots> {
         None
     }
+    /// The same stage on a coarser discretisation, for stages computed on a grid (the numerical
+    /// first-passage engine): what the fitter searches with before it refines on the stage's own
+    /// grid (see `crate::fit::search::search_refined`). `None` (the default) for stages in
+    /// closed form.
+    fn on_coarser_grid(&self) -> Option<Box<dyn ChoiceStage>> {
+        None
+    }
 }
 
 /// A choice stage with its parameters fixed for one likelihood evaluation.
