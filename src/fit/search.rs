@@ -183,7 +183,7 @@ pub struct Work {
     pub standard_errors: usize,
     /// Of a refined search ([`search_refined`]), the evaluations on the model's own grid:
     /// L-BFGS from the coarser grid's optima and the examination there. The other stages then
-    /// counted evaluations on the coarser grid, about a quarter of the cost each.
+    /// counted evaluations on the coarser grid (about 1/16 of the solve each).
     pub refined: usize,
 }
 
@@ -381,8 +381,8 @@ pub const REFINE_MOST: usize = 3;
 
 /// The search of a model computed on a grid (the numerical first-passage engine), in two
 /// levels: [`search`] (starts, examination, searches from the interior and the faces) with
-/// `coarse`, the same model on a coarser grid (`Model::on_coarser_grid`: a quarter of the cost
-/// per evaluation), then, on the model's own grid, L-BFGS from each distinct optimum of that
+/// `coarse`, the same model on a coarser grid (`Model::on_coarser_grid`: about 1/16 of the
+/// solve), then, on the model's own grid, L-BFGS from each distinct optimum of that
 /// search within [`REFINE_MARGIN`] of its best (at most [`REFINE_MOST`]), preconditioned by the
 /// coarser grid's curvature, and the examination of the best point, with restarts (at most
 /// [`ESCAPE_ROUNDS`]) while its slope is not small and they improve it. Multilevel optimisation in its simplest form: the coarse level finds
