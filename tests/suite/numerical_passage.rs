@@ -500,11 +500,12 @@ fn drift_nodes_reproduce_a_solve_at_the_drift_itself_with_leak() {
 
 #[test]
 fn fits_through_the_engine_reported_converged_sit_where_the_objective_is_flat() {
-    // Source: common practice (a maximum is a stationary point: the objective's own slope,
-    // by central differences, vanishes in every interior direction). The engine's derivatives
-    // hold its grid fixed, so the fitter judges these models by the objective's slope; this
-    // recomputes that slope independently at the reported estimates of simulated orchard
-    // participants (gainloss-collapse-linear, 300 trials, fixed seed).
+    // Source: common practice (at a maximum the objective does not rise in any direction: here
+    // a step of 1e-5 to either side along every interior parameter rises by less than 2e-3 per
+    // unit). The engine's derivatives hold its grid fixed and the objective steps where the
+    // grid changes, so the fitter judges these models by the objective itself; this recomputes
+    // the rise independently at the reported estimates of simulated orchard participants
+    // (gainloss-collapse-linear, 300 trials, fixed seed).
     use valuedrift::fit::{FitOptions, fit_subject};
     use valuedrift::model::load_model;
     use valuedrift::simulate::orchard_participant;
@@ -538,10 +539,12 @@ fn fits_through_the_engine_reported_converged_sit_where_the_objective_is_flat() 
             let (mut up, mut down) = (theta.clone(), theta.clone());
             up[j] += h;
             down[j] -= h;
-            let slope = (objective(&up) - objective(&down)) / (2.0 * h);
+            let at = objective(&theta);
+            let rise = (objective(&up) - at).max(objective(&down) - at) / h;
             assert!(
-                slope.abs() < 2e-3,
-                "participant {i}, {}: slope {slope:.2e} at a fit reported converged ({})",
+                rise < 2e-3,
+                "participant {i}, {}: the objective rises at {rise:.2e} beside a fit reported \
+                 converged ({})",
                 spec.name,
                 fit.status
             );

@@ -142,14 +142,21 @@ pub const LEAKY_ENTRY: Entry<dyn ChoiceStage> = Entry {
 /// the time step…
 pub const COARSER_STEP: f64 = 4.0;
 
-/// …and the interior points divided by this (at least [`MIN_COARSER_POINTS`]): with
+/// …and the interior points divided by this (at least [`MIN_COARSER_POINTS`]; the step at most
+/// [`MAX_COARSER_STEP`]): with
 /// [`COARSER_STEP`] about 1/16 of the solve's cost at 16 times its error (the engine is second
 /// order in both), enough to find the basins (the coarse optimum of `collapse_speed`'s
 /// participant was 55 fine-grid evaluations from the fine one).
 pub const COARSER_POINTS: usize = 4;
 
-/// Fewest interior points of the coarser grid.
-const MIN_COARSER_POINTS: usize = 20;
+/// Fewest interior points of the coarser grid (or the stage's own, if fewer)…
+const MIN_COARSER_POINTS: usize = 50;
+
+/// …and its longest time step (or the stage's own, if longer), seconds: a grid already coarse
+/// is coarsened less. On the leaky model at step 0.004 s and 100 points, a coarser grid of
+/// 0.016 s and 25 points left 4 of 30 fits of a recovery study unconfirmed (its searches from
+/// the faces and the interior kept finding slightly better points).
+const MAX_COARSER_STEP: f64 = 0.008;
 
 /// Which boundary shape, with the slots of its (up to three) parameters.
 #[derive(Clone, Copy)]
@@ -292,9 +299,10 @@ impl ChoiceStage for Moving {
     }
 
     fn on_coarser_grid(&self) -> Option<Box<dyn ChoiceStage>> {
+        let (step, points) = (self.grid.step(), self.grid.points());
         let grid = Grid::new(
-            self.grid.step() * COARSER_STEP,
-            (self.grid.points() / COARSER_POINTS).max(MIN_COARSER_POINTS),
+            (step * COARSER_STEP).min(MAX_COARSER_STEP).max(step),
+            (points / COARSER_POINTS).max(MIN_COARSER_POINTS.min(points)),
         )
         .ok()?;
         Some(Box::new(Moving {
