@@ -15,9 +15,10 @@
 //! about 4.8e-3 in ln g on the Wiener table instead of 1e-3), in simulation and fit alike, to
 //! keep the study within an hour on two cores; its solves, one per drift node, are what make it
 //! slow. Run with
-//! `cargo run --release --example collapse_recovery [-- N [generators [fitted [starts]]]]`
+//! `cargo run --release --example collapse_recovery [-- N [generators [fitted [starts [trials]]]]]`
 //! (indices 0 fixed, 1 collapse, 2 leaky, comma-separated; default all three for both; the
-//! confusion matrix then has a column for each fitted model; `starts` per fit, default 10). A
+//! confusion matrix then has a column for each fitted model; `starts` per fit, default 10;
+//! `trials` per participant, default 300). A
 //! line per fit goes to `collapse_recovery.csv.partial` in the working folder as soon as its
 //! participant is done, renamed `collapse_recovery.csv` when the study ends.
 
@@ -35,8 +36,6 @@ use valuedrift::plan::summaries::pearson;
 use valuedrift::simulate::{
     SimulationSettings, orchard_design, orchard_generating_values, simulate_subject,
 };
-
-const TRIALS: usize = 300;
 
 /// The study's three models: fixed bounds, linear collapse, leak (on the coarser grid).
 fn models() -> Vec<Model> {
@@ -133,6 +132,9 @@ fn main() {
     let starts: usize = std::env::args()
         .nth(4)
         .map_or(10, |a| a.parse().expect("starts: a whole number"));
+    let trials: usize = std::env::args()
+        .nth(5)
+        .map_or(300, |a| a.parse().expect("trials: a whole number"));
     let jobs: Vec<(usize, usize)> = generators
         .into_iter()
         .flat_map(|g| (0..n).map(move |i| (g, i)))
@@ -157,7 +159,7 @@ fn main() {
         .map(|&(g, i)| {
             let generator = &models[g];
             let mut rng = ChaCha8Rng::seed_from_u64((2026 + g as u64) * 1000 + i as u64);
-            let design = orchard_design(&format!("{}{i:02}", names[g]), "sim", TRIALS, &mut rng);
+            let design = orchard_design(&format!("{}{i:02}", names[g]), "sim", trials, &mut rng);
             let truth = orchard_generating_values(generator, &mut rng).expect("orchard ranges");
             let subject = simulate_subject(
                 generator,
@@ -248,7 +250,7 @@ fn main() {
             truth.len()
         );
     };
-    println!("{n} participants × {TRIALS} trials per generating model, {starts} starts per fit");
+    println!("{n} participants × {trials} trials per generating model, {starts} starts per fit");
     summary("collapse_rate (collapsing data, collapsing fit)", &rate);
     summary("leak (leaky data, leaky fit)", &leak);
     println!("model recovery by BIC (rows: generating model; columns: winning fitted model)");

@@ -89,20 +89,7 @@ fn main() {
         fit.log_likelihood,
         fit.converged
     );
-    println!(
-        "evaluations by stage: screen {}, starts {:?}, restarts {}, interior {}, faces {}, \
-         fresh {}, examine {}, curvature {}, standard errors {}; on the model's own grid {}",
-        work.screen,
-        work.starts,
-        work.restarts,
-        work.interior,
-        work.faces,
-        work.fresh,
-        work.examine,
-        work.curvature,
-        work.standard_errors,
-        work.refined
-    );
+    println!("evaluations by stage: {work}");
     println!(
         "likelihood_seconds={numerical:.5} closed_form_seconds={closed_form:.6} ratio={:.0} \
          fit_seconds={fit_seconds:.2} evaluations={}",

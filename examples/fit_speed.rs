@@ -89,8 +89,8 @@ fn main() {
     }
     let per_subject = start.elapsed().as_secs_f64() / SUBJECTS as f64;
     println!(
-        "subject: ln L (f3593c4; new - f3593c4), starts at best/runs, converged | evaluations: \
-         screen, [each start], restarts, interior, faces, fresh, examine, curvature, standard errors, total"
+        "subject: ln L (f3593c4; new - f3593c4), starts at best/runs, converged | evaluations \
+         by stage"
     );
     let mut total = 0;
     for (i, (fit, work)) in fits.iter().enumerate() {
@@ -106,22 +106,8 @@ fn main() {
             "-".to_string()
         };
         println!(
-            "{}: ln L = {} ({earlier}), {}/{}, {} | {} {:?} {} {} {} {} {} {} {} {}",
-            fit.subject,
-            fit.log_likelihood,
-            fit.starts_at_best,
-            fit.starts,
-            fit.converged,
-            work.screen,
-            work.starts,
-            work.restarts,
-            work.interior,
-            work.faces,
-            work.fresh,
-            work.examine,
-            work.curvature,
-            work.standard_errors,
-            work.total()
+            "{}: ln L = {} ({earlier}), {}/{}, {} | {work}",
+            fit.subject, fit.log_likelihood, fit.starts_at_best, fit.starts, fit.converged,
         );
     }
     println!(

@@ -187,6 +187,29 @@ pub struct Work {
     pub refined: usize,
 }
 
+impl std::fmt::Display for Work {
+    /// Every stage by name, then the total: what the benchmarks print.
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(
+            f,
+            "screen {}, starts {:?}, restarts {}, interior {}, faces {}, fresh {}, examine {}, \
+             curvature {}, standard errors {}, on the model's own grid after a coarser one {}; \
+             total {}",
+            self.screen,
+            self.starts,
+            self.restarts,
+            self.interior,
+            self.faces,
+            self.fresh,
+            self.examine,
+            self.curvature,
+            self.standard_errors,
+            self.refined,
+            self.total()
+        )
+    }
+}
+
 impl Work {
     /// Every evaluation counted.
     pub fn total(&self) -> usize {
