@@ -243,6 +243,26 @@ pub fn search(
     starts: usize,
     max_iterations: u64,
 ) -> Searched {
+    let mut searched = search_from(
+        likelihood,
+        plan,
+        plan.screened(likelihood, starts),
+        starts,
+        max_iterations,
+    );
+    searched.work.screen = starts * super::starts::SCREEN_FACTOR;
+    searched
+}
+
+/// [`search`] with L-BFGS runs from `first` in place of the screened starts; `starts` fresh
+/// points at a time where the best point is flat or value-blind.
+fn search_from(
+    likelihood: &SubjectLikelihood<'_>,
+    plan: &StartPlan,
+    first: Vec<Vec<f64>>,
+    starts: usize,
+    max_iterations: u64,
+) -> Searched {
     // End points of runs that passed their tolerance test: a later run that reaches one of
     // them from below stops there (EarlyStop::Join). At the first of them the Hessian is taken
     // once (2k evaluations; it is the observed information too when that point stays the best)
@@ -277,11 +297,8 @@ pub fn search(
         evaluations
     };
     let mut runs: Vec<StartResult> = Vec::new();
-    let mut work = Work {
-        screen: starts * super::starts::SCREEN_FACTOR,
-        ..Work::default()
-    };
-    for theta in plan.screened(likelihood, starts) {
+    let mut work = Work::default();
+    for theta in first {
         let evaluations = joining(&mut runs, theta, &mut known, &mut curvature);
         work.starts.push(evaluations);
     }
@@ -408,11 +425,13 @@ pub const REFINE_MOST: usize = 3;
 /// solve), then, on the model's own grid, L-BFGS from each distinct optimum of that
 /// search within [`REFINE_MARGIN`] of its best (at most [`REFINE_MOST`]), preconditioned by the
 /// coarser grid's curvature, and the examination of the best point, with restarts (at most
-/// [`ESCAPE_ROUNDS`]) while its slope is not small and they improve it. Multilevel optimisation in its simplest form: the coarse level finds
-/// the basins, the fine level the optimum (Nash 2000, "A multigrid approach to discretized
-/// optimization problems"). The verdict is the finer grid's: the objective's rise on either side,
-/// its bounds and flatness; the searches from the interior and the faces that confirm an
-/// optimum are the coarser grid's.
+/// [`ESCAPE_ROUNDS`]) while its slope is not small and they improve it. Multilevel optimisation
+/// in its simplest form: the coarse level finds the basins, the fine level the optimum (Nash
+/// 2000, "A multigrid approach to discretized optimization problems"). The verdict is the finer
+/// grid's: the objective's rise on either side, its bounds and flatness; the searches from the
+/// interior and the faces that confirm an optimum are the coarser grid's, and where they could
+/// not confirm it (they kept finding better points, or a bound held) the whole search runs
+/// again on the model's own grid from the refined point.
 pub fn search_refined(
     likelihood: &SubjectLikelihood<'_>,
     coarse: &SubjectLikelihood<'_>,
@@ -490,8 +509,22 @@ pub fn search_refined(
         findings = examine(likelihood, plan, &runs[best].theta);
         work.refined += findings.evaluations;
     }
-    let verified =
-        rough.verified && !findings.degenerate() && findings.interior_gradient < GRADIENT_CONVERGED;
+    if !rough.verified {
+        // The coarser grid's searches kept finding better points, or could not confirm a bound:
+        // they run again on the model's own grid, from its best point.
+        let mut again = search_from(
+            likelihood,
+            plan,
+            vec![runs[best].theta.clone()],
+            starts,
+            max_iterations,
+        );
+        work.refined += again.work.total();
+        again.work = work;
+        again.verdict.runs += rough.runs.len() + runs.len();
+        return again;
+    }
+    let verified = !findings.degenerate() && findings.interior_gradient < GRADIENT_CONVERGED;
     let total_runs = rough.runs.len() + runs.len();
     let verdict = judge(likelihood, &runs[best], &findings, verified, total_runs);
     Searched {
