@@ -176,7 +176,7 @@ pub struct Work {
     pub fresh: usize,
     /// Examinations of the best point (gradient, flatness, choice probabilities).
     pub examine: usize,
-    /// The Hessian at the first optimum, which preconditions the later runs.
+    /// The Hessian at the first optimum, which preconditions the runs beside the best point.
     pub curvature: usize,
     /// Standard errors (observed information) at the best point (none when the best point is
     /// where the curvature was taken).
