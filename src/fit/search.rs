@@ -103,8 +103,12 @@ struct Findings {
     value_blind: bool,
     /// A choices-only fit no better than constant choice probabilities.
     below_baseline: bool,
-    /// Largest |gradient| (unconstrained scale) of the parameters not at a bound.
+    /// Largest |gradient| (unconstrained scale) of the parameters not at a bound; for a
+    /// parameter at a kink (below) or of a numerical-engine model, the objective's rise instead.
     interior_gradient: f64,
+    /// Interior parameters whose gradient is not small but along which the objective rises on
+    /// neither side: the point sits on a kink of the objective (see [`examine`]).
+    kinks: Vec<usize>,
     /// Likelihood evaluations the examination made (the trace of choice probabilities counts
     /// as one).
     evaluations: usize,
@@ -611,7 +615,7 @@ fn judge(
     } else {
         None
     };
-    let status = match (&problem, findings.at_bound.is_empty()) {
+    let mut status = match (&problem, findings.at_bound.is_empty()) {
         (Some(p), _) => format!("not converged: {p}"),
         (None, true) => "converged".to_string(),
         (None, false) => format!(
@@ -619,6 +623,13 @@ fn judge(
             list(&findings.at_bound)
         ),
     };
+    if problem.is_none() && !findings.kinks.is_empty() {
+        status.push_str(&format!(
+            "; on a kink of the likelihood in {} (the objective falls on both sides, its \
+             one-sided slopes differ; standard errors there rest on one side's curvature)",
+            list(&findings.kinks)
+        ));
+    }
     Verdict {
         converged: problem.is_none(),
         status,
@@ -637,7 +648,8 @@ const SLOPE_STEP: f64 = 1e-5;
 /// numerical engine's objective steps slightly where a distance crosses a rung of its grid's
 /// ladder (first_passage::numerical), and L-BFGS often stops on such a step with the objective
 /// falling on one side; a central difference there measures the step (5.7e1 for a fall of 1.1e-3
-/// in one leaky fit), this the rise, which is what a maximum must not have. +∞ where the
+/// in one leaky fit), this the rise, which is what a maximum must not have. Likewise at a kink
+/// of the gain-loss rule's likelihood (see [`examine`]). +∞ where the
 /// objective is not finite on either side, so that such a point never counts as converged.
 fn ascent_rate(likelihood: &SubjectLikelihood<'_>, theta: &[f64], at_theta: f64, j: usize) -> f64 {
     let at = |sign: f64| {
@@ -668,15 +680,35 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
     let interior: Vec<usize> = (0..free.len())
         .filter(|j| !at_bound_list.contains(j))
         .collect();
+    let at_theta = evaluation.ln_likelihood + evaluation.ln_prior;
+    // The gain-loss rule switches its learning rate where a prediction error changes sign, so
+    // ln L has kinks (continuous, with one-sided slopes that differ) where some trial's error
+    // crosses zero as a parameter moves, and a maximum may sit on one: the gradient there is
+    // one side's slope. Where it is not small, the objective itself decides: a parameter along
+    // which it rises on neither side is at a kink of a maximum, not short of one.
+    let mut kinks = Vec::new();
     let mut interior_gradient = interior
         .iter()
-        .map(|&j| evaluation.gradient[j].abs())
+        .map(|&j| {
+            let slope = evaluation.gradient[j].abs();
+            if slope < GRADIENT_CONVERGED {
+                return slope;
+            }
+            evaluations.set(evaluations.get() + 2);
+            let rise = ascent_rate(likelihood, theta, at_theta, j);
+            if rise < GRADIENT_CONVERGED {
+                kinks.push(j);
+                rise
+            } else {
+                slope
+            }
+        })
         .fold(0.0_f64, f64::max);
     if uses_numerical_engine(model.component_names[3]) {
         // The numerical engine's derivatives are those of its grid, which is held still between
         // the rungs of a ladder and changes at them, where the objective steps: judge the point
         // by the objective itself, by how fast it rises on either side.
-        let at_theta = evaluation.ln_likelihood + evaluation.ln_prior;
+        kinks.clear();
         interior_gradient = interior
             .iter()
             .map(|&j| {
@@ -719,6 +751,7 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
         value_blind,
         below_baseline,
         interior_gradient,
+        kinks,
         evaluations: evaluations.get(),
     }
 }
