@@ -521,31 +521,11 @@ fn fits_through_the_engine_reported_converged_sit_where_the_objective_is_flat() 
             continue;
         }
         converged += 1;
-        let free = model.free_slots();
-        let natural: Vec<f64> = free.iter().map(|&s| fit.estimates[s].estimate).collect();
-        let theta = lik.unconstrained(&natural);
-        let objective = |t: &[f64]| {
-            let e = lik.evaluate(t);
-            e.ln_likelihood + e.ln_prior
-        };
-        for (j, &slot) in free.iter().enumerate() {
-            let spec = &model.parameters[slot];
-            let width = spec.upper - spec.lower;
-            let x = natural[j];
-            if x - spec.lower < 1e-3 * width || spec.upper - x < 1e-3 * width {
-                continue;
-            }
-            let h = 1e-5;
-            let (mut up, mut down) = (theta.clone(), theta.clone());
-            up[j] += h;
-            down[j] -= h;
-            let at = objective(&theta);
-            let rise = (objective(&up) - at).max(objective(&down) - at) / h;
+        for (name, rise) in crate::common::rises_beside_fit(&lik, &fit) {
             assert!(
                 rise < 2e-3,
-                "participant {i}, {}: the objective rises at {rise:.2e} beside a fit reported \
+                "participant {i}, {name}: the objective rises at {rise:.2e} beside a fit reported \
                  converged ({})",
-                spec.name,
                 fit.status
             );
         }

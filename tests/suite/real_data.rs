@@ -204,28 +204,11 @@ fn gain_loss_fits_on_a_kink_of_the_likelihood_are_maxima_and_reported_as_such() 
         let fit = valuedrift::fit::fit_subject(&lik, &FitOptions::default());
         assert!(fit.converged, "{id}: {}", fit.status);
         assert!(fit.status.contains("on a kink"), "{id}: {}", fit.status);
-        let free = model.free_slots();
-        let natural: Vec<f64> = free.iter().map(|&s| fit.estimates[s].estimate).collect();
-        let theta = lik.unconstrained(&natural);
-        let objective = |t: &[f64]| {
-            let e = lik.evaluate(t);
-            e.ln_likelihood + e.ln_prior
-        };
-        let at = objective(&theta);
-        for (j, &slot) in free.iter().enumerate() {
-            if fit.estimates[slot].at_bound {
-                continue;
-            }
-            for sign in [-1.0, 1.0] {
-                let mut moved = theta.clone();
-                moved[j] += sign * 1e-5;
-                let rise = (objective(&moved) - at) / 1e-5;
-                assert!(
-                    rise < 1e-3,
-                    "{id}, {}: ln L rises at {rise:.2e} beside the best point",
-                    model.parameters[slot].name
-                );
-            }
+        for (name, rise) in crate::common::rises_beside_fit(&lik, &fit) {
+            assert!(
+                rise < 1e-3,
+                "{id}, {name}: ln L rises at {rise:.2e} beside the best point"
+            );
         }
     }
 }

@@ -120,3 +120,37 @@ pub fn assert_gradient(
         );
     }
 }
+
+/// For each free parameter of `fit` not at a bound, the steepest rise of ln L + ln prior a step
+/// of 1e-5 to either side of the fitted point (unconstrained scale), per unit: (name, rise).
+/// At a maximum no side rises (common practice), kinks and grid steps included.
+pub fn rises_beside_fit(
+    lik: &valuedrift::likelihood::SubjectLikelihood<'_>,
+    fit: &valuedrift::fit::SubjectFit,
+) -> Vec<(String, f64)> {
+    let model = lik.model();
+    let free = model.free_slots();
+    let natural: Vec<f64> = free.iter().map(|&s| fit.estimates[s].estimate).collect();
+    let theta = lik.unconstrained(&natural);
+    let objective = |t: &[f64]| {
+        let e = lik.evaluate(t);
+        e.ln_likelihood + e.ln_prior
+    };
+    let at = objective(&theta);
+    let h = 1e-5;
+    free.iter()
+        .enumerate()
+        .filter(|&(_, &slot)| !fit.estimates[slot].at_bound)
+        .map(|(j, &slot)| {
+            let side = |sign: f64| {
+                let mut moved = theta.clone();
+                moved[j] += sign * h;
+                (objective(&moved) - at) / h
+            };
+            (
+                model.parameters[slot].name.clone(),
+                side(1.0).max(side(-1.0)),
+            )
+        })
+        .collect()
+}
