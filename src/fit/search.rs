@@ -626,7 +626,8 @@ fn judge(
     if problem.is_none() && !findings.kinks.is_empty() {
         status.push_str(&format!(
             "; on a kink of the likelihood in {} (the objective falls on both sides, its \
-             one-sided slopes differ; standard errors there rest on one side's curvature)",
+             one-sided slopes differ; its standard errors, from differences \
+             of the gradient across the kink, are not reliable)",
             list(&findings.kinks)
         ));
     }
