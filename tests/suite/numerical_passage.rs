@@ -579,3 +579,80 @@ fn the_search_on_a_coarser_grid_then_the_models_own_finds_the_optimum_of_a_searc
         );
     }
 }
+
+#[test]
+fn mirrored_drift_nodes_give_the_likelihood_and_gradient_of_direct_solves() {
+    // Source: the reflection symmetry of a diffusion between bounds symmetric about the
+    // midpoint, g_upper(t; v, w) = g_lower(t; −v, 1 − w) (common practice). With the start
+    // exactly midway the leaky stage serves drift nodes below zero from the solve at −node with
+    // the other bound and the start's derivative negated; a start 1e-9 away makes it solve every
+    // node directly. Both must give the same ln L and gradient (to 1e-6; the moved start itself
+    // changes ln L by about 1e-9 × its slope), and the start's derivative on the mirrored path
+    // must match central differences (step 1e-6, common practice) taken on the direct path.
+    let leaky = built_in_models()
+        .into_iter()
+        .find(|m| m.name == "gainloss-leaky")
+        .unwrap();
+    let text = format!(
+        "{}\n[parameters.start]\nlower = 0.2\nupper = 0.8\nstart = [0.4, 0.6]\n\
+         description = \"starting point\"\n",
+        leaky.text
+    );
+    let model = parse_model(&text, "leaky with a free start").unwrap();
+    let mut rng = ChaCha8Rng::seed_from_u64(61);
+    let mut natural = orchard_generating_values(&leaky, &mut rng).unwrap();
+    let slot = model
+        .parameters
+        .iter()
+        .position(|p| p.name == "start")
+        .unwrap();
+    natural.insert(slot, 0.5);
+    let design = orchard_design("s", "g", 60, &mut rng);
+    let subject = simulate_subject(
+        &model,
+        &natural,
+        &design,
+        SimulationSettings::default(),
+        &mut rng,
+    )
+    .unwrap();
+    let lik = SubjectLikelihood::new(&model, &subject, None).unwrap();
+    let free_slots = model.free_slots();
+    let j = free_slots.iter().position(|&s| s == slot).unwrap();
+    let at_start = |start: f64| {
+        let free: Vec<f64> = free_slots
+            .iter()
+            .map(|&s| if s == slot { start } else { natural[s] })
+            .collect();
+        lik.unconstrained(&free)
+    };
+    let theta = at_start(0.5);
+    assert_eq!(lik.natural(&theta)[j], 0.5, "the start sits exactly midway");
+    let mirrored = lik.evaluate(&theta);
+    let direct = lik.evaluate(&at_start(0.5 + 1e-9));
+    assert!(mirrored.ln_likelihood.is_finite());
+    assert!(
+        (mirrored.ln_likelihood - direct.ln_likelihood).abs() < 1e-6,
+        "ln L mirrored {} direct {}",
+        mirrored.ln_likelihood,
+        direct.ln_likelihood
+    );
+    for (k, (m, d)) in mirrored.gradient.iter().zip(&direct.gradient).enumerate() {
+        assert!(
+            (m - d).abs() < 1e-6 * d.abs().max(1.0),
+            "parameter {k}: mirrored {m} direct {d}"
+        );
+    }
+    let h = 1e-6;
+    let shifted = |d: f64| {
+        let mut t = theta.clone();
+        t[j] += d;
+        lik.evaluate(&t).ln_likelihood
+    };
+    let numeric = (shifted(h) - shifted(-h)) / (2.0 * h);
+    assert!(
+        (numeric - mirrored.gradient[j]).abs() < 1e-4 * numeric.abs().max(1.0),
+        "start: mirrored {} numeric {numeric}",
+        mirrored.gradient[j]
+    );
+}

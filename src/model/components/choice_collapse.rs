@@ -344,6 +344,7 @@ impl ChoiceStage for Moving {
             local,
             plain,
             tilts,
+            mirrors: p[self.start].re == 0.5,
             ndt: p[self.ndt].re,
             context,
             solutions: RefCell::new(Vec::new()),
@@ -362,6 +363,9 @@ struct Prepared<'a> {
     plain: Option<Process<f64>>,
     /// True when one solve serves every drift (no leak).
     tilts: bool,
+    /// True when the process starts midway between the bounds (start exactly ½), so that a
+    /// drift node below zero is served by the mirrored solve at −node ([`Prepared::node_score`]).
+    mirrors: bool,
     ndt: f64,
     context: SubjectContext,
     /// Solves to the subject's last time, by drift bits (one entry, at drift 0, when `tilts`).
@@ -495,11 +499,14 @@ impl Prepared<'_> {
         };
         let nodes = nodes_around(v);
         let mut values = [Local::from_re(0.0); NODES];
-        // Any node's solve: τ depends on the process, not on the drift it was solved at.
+        // Any node's solve: τ depends on the process, not on the drift it was solved at (the
+        // solve at |node| when nodes below zero are mirrored, so no solve is made for τ).
         let mut solved = None;
         for (value, &node) in values.iter_mut().zip(&nodes) {
-            *value = self.score_on(node, false, None, observation)?;
-            if let (Some((bound, t)), Some(solution)) = (passage, self.local_solution(node, false))
+            *value = self.node_score(node, observation)?;
+            let solved_at = if self.mirrors { node.abs() } else { node };
+            if let (Some((bound, t)), Some(solution)) =
+                (passage, self.local_solution(solved_at, false))
             {
                 *value -= solution.drift_exponent(t, bound, Local::from_re(node));
                 solved = Some(solution);
@@ -516,6 +523,33 @@ impl Prepared<'_> {
             // bridge): a solve at the drift itself.
             None => self.score_on(v, true, None, observation),
         }
+    }
+
+    /// ln P(observation) on the stage's numbers from the solve at the drift node `node`; a node
+    /// below zero from the solve at −node with the other bound when the process starts midway
+    /// (`mirrors`). The bounds ±S(t) are symmetric about the midpoint, so with start w the
+    /// process at drift v is the mirror image of the one at −v started at 1 − w:
+    /// g_upper(t; v, w) = g_lower(t; −v, 1 − w) (the reflection x → −x of the diffusion, common
+    /// practice), and the engine's grid, start and
+    /// steps are symmetric about the midpoint too, so the mirrored solve equals the direct one
+    /// up to rounding. At w = ½ the values agree and the derivative in w changes sign; those in
+    /// the boundary, ndt, leak and the shape's parameters do not. Halves the solves of a subject
+    /// whose drifts span both signs.
+    fn node_score(&self, node: f64, observation: &Observation) -> Option<Local> {
+        if !(self.mirrors && node < 0.0) {
+            return self.score_on(node, false, None, observation);
+        }
+        let mirrored = Observation {
+            choice: observation
+                .choice
+                .map(|c| if c == Choice::A { Choice::B } else { Choice::A }),
+            ..*observation
+        };
+        let mut score = self.score_on(-node, false, None, &mirrored)?;
+        if let Some(partials) = score.eps.0.as_mut() {
+            partials[START] = -partials[START];
+        }
+        Some(score)
     }
 
     /// ln P(observation) on the stage's numbers from the solve at drift `at` (with its
