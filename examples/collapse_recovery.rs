@@ -15,10 +15,15 @@
 //! about 4.8e-3 in ln g on the Wiener table instead of 1e-3), in simulation and fit alike, to
 //! keep the study within an hour on two cores; its solves, one per drift node, are what make it
 //! slow. Run with
-//! `cargo run --release --example collapse_recovery [-- N [generators [fitted [starts [trials]]]]]`
+//! `cargo run --release --example collapse_recovery [-- N [generators [fitted [starts [trials [spread]]]]]]`
 //! (indices 0 fixed, 1 collapse, 2 leaky, comma-separated; default all three for both; the
 //! confusion matrix then has a column for each fitted model; `starts` per fit, default 10;
-//! `trials` per participant, default 300). A
+//! `trials` per participant, default 300; `spread` either `orchard`, the ranges above, or
+//! `spanning`: the collapse rate drawn from 0–0.6 per second (from fixed bounds to bounds 60 %
+//! closed after 1 s) and the leak from 0–4 per second (from perfect integration to a time
+//! constant of 0.25 s), each from its own stream seeded by the participant, so every other
+//! generating value, the design and the seed of the simulation are those of the `orchard`
+//! study). A
 //! line per fit goes to `collapse_recovery.csv.partial` in the working folder as soon as its
 //! participant is done, renamed `collapse_recovery.csv` when the study ends.
 
@@ -108,6 +113,21 @@ fn fit_line(models: &[Model], names: [&str; 3], case: &Case, f: usize, fit: &Sub
     )
 }
 
+/// The `spanning` study's ranges (natural scale) for the parameters that carry the hypotheses.
+const SPANNING: [(&str, f64, f64); 2] = [("collapse_rate", 0.0, 0.6), ("leak", 0.0, 4.0)];
+
+/// Replaces the collapse rate or leak in `truth` (values of `model`) with a draw from its
+/// [`SPANNING`] range, from a stream of its own seeded by `seed`.
+fn spanning(model: &Model, truth: &mut [f64], seed: u64) {
+    use rand::RngExt;
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    for (name, lo, hi) in SPANNING {
+        if let Some(slot) = model.parameters.iter().position(|p| p.name == name) {
+            truth[slot] = rng.random_range(lo..hi);
+        }
+    }
+}
+
 fn median(mut x: Vec<f64>) -> f64 {
     x.sort_by(f64::total_cmp);
     x[x.len() / 2]
@@ -135,6 +155,11 @@ fn main() {
     let trials: usize = std::env::args()
         .nth(5)
         .map_or(300, |a| a.parse().expect("trials: a whole number"));
+    let wide = match std::env::args().nth(6).as_deref() {
+        None | Some("orchard") => false,
+        Some("spanning") => true,
+        Some(other) => panic!("spread: orchard or spanning, not {other}"),
+    };
     let jobs: Vec<(usize, usize)> = generators
         .into_iter()
         .flat_map(|g| (0..n).map(move |i| (g, i)))
@@ -160,7 +185,10 @@ fn main() {
             let generator = &models[g];
             let mut rng = ChaCha8Rng::seed_from_u64((2026 + g as u64) * 1000 + i as u64);
             let design = orchard_design(&format!("{}{i:02}", names[g]), "sim", trials, &mut rng);
-            let truth = orchard_generating_values(generator, &mut rng).expect("orchard ranges");
+            let mut truth = orchard_generating_values(generator, &mut rng).expect("orchard ranges");
+            if wide {
+                spanning(generator, &mut truth, (9026 + g as u64) * 1000 + i as u64);
+            }
             let subject = simulate_subject(
                 generator,
                 &truth,
@@ -250,7 +278,10 @@ fn main() {
             truth.len()
         );
     };
-    println!("{n} participants × {trials} trials per generating model, {starts} starts per fit");
+    println!(
+        "{n} participants × {trials} trials per generating model, {starts} starts per fit, {} ranges",
+        if wide { "spanning" } else { "orchard" }
+    );
     summary("collapse_rate (collapsing data, collapsing fit)", &rate);
     summary("leak (leaky data, leaky fit)", &leak);
     println!("model recovery by BIC (rows: generating model; columns: winning fitted model)");
