@@ -351,6 +351,17 @@ fn leak_and_collapse_match_a_fine_step_simulation() {
     }
 }
 
+/// ∂ln L/∂θ_j by central differences with step 1e-6 (common practice).
+fn central_difference(lik: &SubjectLikelihood<'_>, theta: &[f64], j: usize) -> f64 {
+    let h = 1e-6;
+    let at = |d: f64| {
+        let mut t = theta.to_vec();
+        t[j] += d;
+        lik.evaluate(&t).ln_likelihood
+    };
+    (at(h) - at(-h)) / (2.0 * h)
+}
+
 #[test]
 fn gradient_of_every_numerical_engine_model_matches_central_differences() {
     // Central differences, step 1e-6 (common practice), against the engine's forward
@@ -390,13 +401,7 @@ fn gradient_of_every_numerical_engine_model_matches_central_differences() {
         let e = lik.evaluate(&theta);
         assert!(e.ln_likelihood.is_finite(), "{}", model.name);
         for j in 0..theta.len() {
-            let h = 1e-6;
-            let at = |d: f64| {
-                let mut t = theta.clone();
-                t[j] += d;
-                lik.evaluate(&t).ln_likelihood
-            };
-            let numeric = (at(h) - at(-h)) / (2.0 * h);
+            let numeric = central_difference(&lik, &theta, j);
             let relative = (numeric - e.gradient[j]).abs() / numeric.abs().max(1.0);
             worst = worst.max(relative);
             assert!(
@@ -643,13 +648,7 @@ fn mirrored_drift_nodes_give_the_likelihood_and_gradient_of_direct_solves() {
             "parameter {k}: mirrored {m} direct {d}"
         );
     }
-    let h = 1e-6;
-    let shifted = |d: f64| {
-        let mut t = theta.clone();
-        t[j] += d;
-        lik.evaluate(&t).ln_likelihood
-    };
-    let numeric = (shifted(h) - shifted(-h)) / (2.0 * h);
+    let numeric = central_difference(&lik, &theta, j);
     assert!(
         (numeric - mirrored.gradient[j]).abs() < 1e-4 * numeric.abs().max(1.0),
         "start: mirrored {} numeric {numeric}",
