@@ -25,12 +25,14 @@
 //! further solves. With a leak (declared free, or fixed above 0) the engine solves at fixed drift
 //! nodes 0.5 apart and interpolates between the six around each trial's drift
 //! ([`interpolate`]; 5.4e-5 in ln g, below the engine's error; a solve at the drift itself where
-//! a node's density is zero on the grid): one solve per node the
-//! subject's drifts reach, kept for the evaluation. The solves carry forward sensitivities in
-//! the stage's parameters (boundary, start, the shape's parameters, leak), ndt and the drift
-//! enter after them, so the gradient is the exact derivative of the discretised (and, with leak,
-//! interpolated) likelihood; it is chained to the model's free parameters. These stages take the likelihood's reference path
-//! (dual numbers through the learning recursion).
+//! a node's density is zero on the grid): one solve per node the subject's drifts reach, kept
+//! for the evaluation; with the start midway a node below zero is the mirror image of the node
+//! above (`Prepared::node_score`), so only |drift| counts. The solves carry forward
+//! sensitivities in the stage's parameters (boundary, start, the shape's parameters, leak), ndt
+//! and the drift enter after them, so the gradient is the exact derivative of the discretised
+//! (and, with leak, interpolated) likelihood; it is chained to the model's free parameters.
+//! These stages take the likelihood's reference path (dual numbers through the learning
+//! recursion).
 //!
 //! A trial without response and a deadline D scores ln P(no bound by D − ndt); a lock L
 //! conditions as in the `diffusion` stage (divided by P(no bound by L − ndt)); a choice without
