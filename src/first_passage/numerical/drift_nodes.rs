@@ -25,10 +25,10 @@ use num_dual::DualNum;
 /// Against a solve at the drift itself, measured by tests/suite/numerical_passage.rs (boundaries
 /// 1–2.5, leaks 0.5–3, drifts −14.3 to 17.2, times 0.15–2.9 s, ln g > −30): see that test for
 /// the worst |Δ ln g|: 5.4e-5 with six nodes (four gave 4.9e-4; nodes spaced wider at strong
-/// drifts gave 1e-1). Cost: one solve per node the subject's drifts reach, (range of drifts)/Δ
-/// + 6 solves (a subject whose drifts span ±10 needs 46); a process that starts midway needs
-/// only the nodes at or above zero, those below being mirror images (the `leaky-diffusion`
-/// stage uses this: ±10 then needs 24).
+/// drifts gave 1e-1). Cost: one solve per node the subject's drifts reach, 6 more than
+/// (range of drifts)/Δ (a subject whose drifts span ±10 needs 46); a process that starts midway
+/// needs only the nodes at or above zero, those below being mirror images (the
+/// `leaky-diffusion` stage uses this: ±10 then needs 24).
 pub const NODE_SPACING: f64 = 0.5;
 
 /// How many nodes the interpolation uses.
