@@ -532,11 +532,11 @@ impl Prepared<'_> {
     /// (`mirrors`). The bounds ±S(t) are symmetric about the midpoint, so with start w the
     /// process at drift v is the mirror image of the one at −v started at 1 − w:
     /// g_upper(t; v, w) = g_lower(t; −v, 1 − w) (the reflection x → −x of the diffusion, common
-    /// practice), and the engine's grid, start and
-    /// steps are symmetric about the midpoint too, so the mirrored solve equals the direct one
-    /// up to rounding. At w = ½ the values agree and the derivative in w changes sign; those in
-    /// the boundary, ndt, leak and the shape's parameters do not. Halves the solves of a subject
-    /// whose drifts span both signs.
+    /// practice), and the engine's grid, start and steps are symmetric about the midpoint too,
+    /// so the mirrored solve equals the direct one up to rounding (tests/suite/
+    /// numerical_passage.rs compares them). At w = ½ the values agree and the derivative in w
+    /// changes sign; those in the boundary, ndt, leak and the shape's parameters do not. Halves
+    /// the solves of a subject whose drifts span both signs.
     fn node_score(&self, node: f64, observation: &Observation) -> Option<Local> {
         if !(self.mirrors && node < 0.0) {
             return self.score_on(node, false, None, observation);
