@@ -29,13 +29,15 @@ def test_ctrl_c_stops_a_fit_and_writes_nothing(tmp_path):
 
     ticker = threading.Thread(target=tick)
     ticker.start()
-    # Ctrl-C as the terminal or a notebook's "interrupt" sends it, one second in.
+    # Ctrl-C as the terminal or a notebook's "interrupt" sends it, one second in. 400 starts per
+    # subject keep the fit running well past that (about 5 s on one thread here; with 80 starts
+    # it had become fast enough, about 1 s, to finish before the interrupt on a quiet machine).
     timer = threading.Timer(1.0, _thread.interrupt_main)
     timer.start()
     started = time.monotonic()
     try:
         with pytest.raises(KeyboardInterrupt):
-            vd.fit(trials, "gainloss-linear", out=out, starts=80, threads=1, progress=False)
+            vd.fit(trials, "gainloss-linear", out=out, starts=400, threads=1, progress=False)
     finally:
         timer.cancel()
         stop.set()
@@ -49,13 +51,13 @@ def test_ctrl_c_stops_a_fit_and_writes_nothing(tmp_path):
     during = [t for t in ticks if started + 0.1 < t < started + 0.9]
     assert len(during) > 5, f"only {len(during)} ticks of another thread during the fit"
     # The interrupted fit continues from its journal to the result of an uninterrupted run.
-    resumed = vd.fit(trials, "gainloss-linear", out=out, starts=80, threads=1, resume=True,
+    resumed = vd.fit(trials, "gainloss-linear", out=out, starts=400, threads=1, resume=True,
                      progress=False)
     assert len(resumed.summary) == 40
     assert [p.name for p in tmp_path.iterdir()] == ["fit"]
     cli = tmp_path.parent / f"{tmp_path.name}-cli"
     run_cli("fit", "--data", DEMO_TRIALS, "--model", "gainloss-linear", "--out", cli,
-            "--starts", 80, "--threads", 1)
+            "--starts", 400, "--threads", 1)
     same_csv_files(out, cli)
 
 
