@@ -13,7 +13,8 @@
 //!
 //! The leaky model runs on a coarser grid than its default (time step 0.004 s, 100 points:
 //! about 4.8e-3 in ln g on the Wiener table instead of 1e-3), in simulation and fit alike, to
-//! keep the study within an hour on two cores; its solves, one per drift node, are what make it
+//! keep the study near an hour on two cores (51 and 74 min measured, before the leaky stage
+//! mirrored its drift nodes; see the README); its solves, one per drift node, are what make it
 //! slow. Run with
 //! `cargo run --release --example collapse_recovery [-- N [generators [fitted [starts [trials [spread]]]]]]`
 //! (indices 0 fixed, 1 collapse, 2 leaky, comma-separated; default all three for both; the
