@@ -347,7 +347,8 @@ impl<'a> SubjectLikelihood<'a> {
     /// that dual-number path. Within the fast path, the commonest built-in combination (rate
     /// learning, linear effort cost, linear drift, diffusion stage; see the `kernel` module)
     /// takes a fused kernel that gives the same numbers to the last bit
-    /// ([`SubjectLikelihood::evaluate_without_kernel`]).
+    /// ([`SubjectLikelihood::evaluate_without_kernel`]). Where ln L is −∞ the dual-number path
+    /// stops at the first trial with no chance and gives a gradient of NaN (undefined there).
     pub fn evaluate(&self, theta: &[f64]) -> Evaluation {
         self.evaluate_fast(theta, true)
     }
@@ -436,7 +437,12 @@ impl<'a> SubjectLikelihood<'a> {
             .enumerate()
             .map(|(j, &slot)| gradient(&p[slot])[j])
             .collect();
-        let gradient = gradient(&ln_l).iter().take(n).copied().collect();
+        // ln L = −∞ returns before every trial is scored (see `run`): its gradient is undefined.
+        let gradient = if ln_l.re == f64::NEG_INFINITY {
+            vec![f64::NAN; n]
+        } else {
+            gradient(&ln_l).iter().take(n).copied().collect()
+        };
         self.with_prior(theta, ln_l.re, gradient, &natural, &slopes)
     }
 
@@ -490,7 +496,11 @@ impl<'a> SubjectLikelihood<'a> {
 
     /// Runs the recursion; `visit`, when given, sees every trial's quantities (with its index).
     /// `p` and `thetas` hold every model parameter by slot, on the natural and the unconstrained
-    /// scale.
+    /// scale. Without `visit` it returns as soon as the sum is −∞ (a trial the model gives no
+    /// chance): ln L is then −∞ whatever the other trials add, and their scores would be
+    /// wasted work (a line search's trial step far out, where the numerical engine's solves at
+    /// a wide span of drifts cost seconds, gives such points). The gradient of a −∞ value is
+    /// not used.
     fn run(
         &self,
         p: &[D],
@@ -513,6 +523,9 @@ impl<'a> SubjectLikelihood<'a> {
                 };
                 if let Some(l) = self.step(step, prepared.as_ref(), &mut values, &mut visit) {
                     total += l;
+                    if total.re == f64::NEG_INFINITY && visit.is_none() {
+                        return total;
+                    }
                 }
             }
             return total;
@@ -539,6 +552,9 @@ impl<'a> SubjectLikelihood<'a> {
                 };
                 if let Some(l) = self.step(step, prepared.as_ref(), values, &mut visit) {
                     total += l;
+                    if total.re == f64::NEG_INFINITY && visit.is_none() {
+                        return total;
+                    }
                 }
             }
             from = until;
