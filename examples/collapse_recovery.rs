@@ -6,7 +6,9 @@
 //! rate 0.05–0.3 per second, leak 0.5–3 per second; seed 2026 + model index, then the
 //! participant's index) and fits every participant with all three models (10 starts). Prints:
 //! 1. the correlation of generating and fitted collapse rate (collapsing data, collapsing fit)
-//!    and leak (leaky data, leaky fit), with their medians of |error|;
+//!    and leak (leaky data, leaky fit), with their medians of |error| and how often the fit's
+//!    95 % interval (from the observed information, on the optimiser's scale) holds the
+//!    generating value;
 //! 2. the confusion matrix of model recovery: for each generating model, how many participants
 //!    each fitted model wins by BIC (Schwarz 1978);
 //! 3. how many fits were flagged as not converged, and the time taken.
@@ -28,7 +30,10 @@
 //! line per fit goes to `collapse_recovery.csv.partial` in the working folder as soon as its
 //! participant is done, renamed `collapse_recovery.csv` when the study ends; besides the fit it
 //! gives the seconds, the likelihood evaluations and how many of them were on the model's own
-//! grid (the rest on the coarser grid of the search, about 1/16 of the solve each).
+//! grid (the rest on the coarser grid of the search, about 1/16 of the solve each), the 95 %
+//! intervals of the collapse rate and the leak where the fitted model has them, and, for the
+//! generating model's own fit, ln L at the generating values (an estimate far from the truth
+//! with a higher ln L than the truth's is the data's limit, not the search's).
 
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
@@ -84,7 +89,7 @@ fn fit_line(models: &[Model], names: [&str; 3], case: &Case, f: usize, fit: &Sub
     let generator = &models[case.generator];
     let fitted = &models[f];
     let estimates: Vec<f64> = fit.estimates.iter().map(|e| e.estimate).collect();
-    let pair = |name: &str| -> (String, String) {
+    let triple = |name: &str| -> [String; 3] {
         let has = |m: &Model| {
             m.parameters
                 .iter()
@@ -95,17 +100,20 @@ fn fit_line(models: &[Model], names: [&str; 3], case: &Case, f: usize, fit: &Sub
         } else {
             String::new()
         };
-        let estimate = if has(fitted) {
-            format!("{}", value_of(fitted, &estimates, name))
+        let (estimate, interval) = if has(fitted) {
+            (
+                format!("{}", value_of(fitted, &estimates, name)),
+                interval_of(fitted, fit, name).map_or(",".into(), |(lo, hi)| format!("{lo},{hi}")),
+            )
         } else {
-            String::new()
+            (String::new(), ",".into())
         };
-        (truth, estimate)
+        [truth, estimate, interval]
     };
-    let (tr, er) = pair("collapse_rate");
-    let (tl, el) = pair("leak");
+    let [tr, er, ir] = triple("collapse_rate");
+    let [tl, el, il] = triple("leak");
     format!(
-        "{},{},{},{},{},{},\"{}\",{tr},{er},{tl},{el}",
+        "{},{},{},{},{},{},\"{}\",{tr},{er},{ir},{tl},{el},{il}",
         names[case.generator],
         case.index,
         names[f],
@@ -114,6 +122,12 @@ fn fit_line(models: &[Model], names: [&str; 3], case: &Case, f: usize, fit: &Sub
         fit.converged,
         fit.status
     )
+}
+
+/// The 95 % interval of parameter `name` in `fit` (of `model`), where the fit gives one.
+fn interval_of(model: &Model, fit: &SubjectFit, name: &str) -> Option<(f64, f64)> {
+    let slot = model.parameters.iter().position(|p| p.name == name)?;
+    fit.estimates[slot].interval
 }
 
 /// The `spanning` study's ranges (natural scale) for the parameters that carry the hypotheses.
@@ -129,6 +143,14 @@ fn spanning(model: &Model, truth: &mut [f64], seed: u64) {
             truth[slot] = rng.random_range(lo..hi);
         }
     }
+}
+
+/// One parameter's recovery: generating values, estimates and 95 % intervals, by participant.
+#[derive(Default)]
+struct Recovery {
+    truth: Vec<f64>,
+    estimate: Vec<f64>,
+    interval: Vec<Option<(f64, f64)>>,
 }
 
 fn median(mut x: Vec<f64>) -> f64 {
@@ -178,7 +200,8 @@ fn main() {
     writeln!(
         file,
         "generator,participant,fitted,log_likelihood,bic,converged,status,true_collapse_rate,\
-         collapse_rate,true_leak,leak,seconds,evaluations,own_grid_evaluations"
+         collapse_rate,collapse_rate_low,collapse_rate_high,true_leak,leak,leak_low,leak_high,\
+         seconds,evaluations,own_grid_evaluations,log_likelihood_at_truth"
     )
     .unwrap();
     let file = Mutex::new(file);
@@ -210,7 +233,17 @@ fn main() {
                     let lik = SubjectLikelihood::new(m, &subject, None).expect("a valid subject");
                     let (fit, work) = fit_subject_with_work(&lik, &options);
                     seconds.push(format!("{:.1}", clock.elapsed().as_secs_f64()));
-                    counts.push(format!("{},{}", work.total(), work.refined));
+                    // ln L at the generating values, for the generating model's own fit: an
+                    // estimate far from the truth with a higher ln L than the truth's is the
+                    // design's limit, one with a lower ln L the search's failure.
+                    let at_truth = if m.name == generator.name {
+                        let free: Vec<f64> = m.free_slots().iter().map(|&s| truth[s]).collect();
+                        let theta = lik.unconstrained(&free);
+                        format!("{}", lik.evaluate(&theta).ln_likelihood)
+                    } else {
+                        String::new()
+                    };
+                    counts.push(format!("{},{},{at_truth}", work.total(), work.refined));
                     fit
                 })
                 .collect();
@@ -244,21 +277,22 @@ fn main() {
     std::fs::rename(PARTIAL, "collapse_recovery.csv").expect("the table is renamed");
     let mut confusion = vec![vec![0usize; models.len()]; models.len()];
     let mut flagged = vec![0usize; models.len()];
-    let (mut rate, mut leak) = ((Vec::new(), Vec::new()), (Vec::new(), Vec::new()));
+    // The hypotheses' parameters, each recovered from the data of its own model: generating
+    // values, estimates and 95 % intervals.
+    const RECOVERED: [(usize, &str); 2] = [(1, "collapse_rate"), (2, "leak")];
+    let mut recovered: [Recovery; 2] = Default::default();
     for case in &cases {
         let generator = &models[case.generator];
         for (&f, fit) in fitted.iter().zip(&case.fits) {
             let fitted = &models[f];
             let estimates: Vec<f64> = fit.estimates.iter().map(|e| e.estimate).collect();
             flagged[f] += usize::from(!fit.converged);
-            if f == case.generator && f == 1 {
-                rate.0
-                    .push(value_of(generator, &case.truth, "collapse_rate"));
-                rate.1.push(value_of(fitted, &estimates, "collapse_rate"));
-            }
-            if f == case.generator && f == 2 {
-                leak.0.push(value_of(generator, &case.truth, "leak"));
-                leak.1.push(value_of(fitted, &estimates, "leak"));
+            for ((model, name), into) in RECOVERED.iter().zip(&mut recovered) {
+                if f == case.generator && f == *model {
+                    into.truth.push(value_of(generator, &case.truth, name));
+                    into.estimate.push(value_of(fitted, &estimates, name));
+                    into.interval.push(interval_of(fitted, fit, name));
+                }
             }
         }
         let winner = (0..fitted.len())
@@ -267,28 +301,40 @@ fn main() {
             .expect("at least one fit");
         confusion[case.generator][winner] += 1;
     }
-    let summary = |label: &str, (truth, estimate): &(Vec<f64>, Vec<f64>)| {
-        if truth.is_empty() {
+    let summary = |label: &str, r: &Recovery| {
+        if r.truth.is_empty() {
             return;
         }
-        let errors = truth
+        let errors = r
+            .truth
             .iter()
-            .zip(estimate)
+            .zip(&r.estimate)
             .map(|(t, e)| (e - t).abs())
             .collect();
+        let with_interval = r.interval.iter().flatten().count();
+        let covered = r
+            .truth
+            .iter()
+            .zip(&r.interval)
+            .filter(|(t, i)| i.is_some_and(|(lo, hi)| lo <= **t && **t <= hi))
+            .count();
         println!(
-            "{label}: r = {:.3}, median |error| {:.3} ({} participants)",
-            pearson(truth, estimate).unwrap_or(f64::NAN),
+            "{label}: r = {:.3}, median |error| {:.3} ({} participants); its 95 % interval \
+             holds the generating value in {covered} of the {with_interval} fits that give one",
+            pearson(&r.truth, &r.estimate).unwrap_or(f64::NAN),
             median(errors),
-            truth.len()
+            r.truth.len()
         );
     };
     println!(
         "{n} participants × {trials} trials per generating model, {starts} starts per fit, {} ranges",
         if wide { "spanning" } else { "orchard" }
     );
-    summary("collapse_rate (collapsing data, collapsing fit)", &rate);
-    summary("leak (leaky data, leaky fit)", &leak);
+    summary(
+        "collapse_rate (collapsing data, collapsing fit)",
+        &recovered[0],
+    );
+    summary("leak (leaky data, leaky fit)", &recovered[1]);
     println!("model recovery by BIC (rows: generating model; columns: winning fitted model)");
     let header: Vec<String> = fitted.iter().map(|&f| format!("{:>9}", names[f])).collect();
     println!("{:>10} {}", "", header.join(" "));
