@@ -109,6 +109,10 @@ struct Findings {
     /// Interior parameters whose gradient is not small but along which the objective rises on
     /// neither side: the point sits on a kink of the objective (see [`examine`]).
     kinks: Vec<usize>,
+    /// Of a numerical-engine model, the point one step of [`ascent`] beside this one along the
+    /// parameter whose side rises most, where it rises: a restart begins there, across the step
+    /// of the objective that stopped L-BFGS, rather than where L-BFGS stopped.
+    uphill: Option<Uphill>,
     /// Likelihood evaluations the examination made (the trace of choice probabilities counts
     /// as one).
     evaluations: usize,
@@ -170,7 +174,8 @@ pub struct Work {
     pub screen: usize,
     /// Each screened start's L-BFGS run, in order.
     pub starts: Vec<usize>,
-    /// L-BFGS restarted at a best point whose interior gradient was not small.
+    /// L-BFGS restarted at a best point whose interior gradient was not small (or beside it,
+    /// where the objective rises).
     pub restarts: usize,
     /// Searches from the interior for suspect parameters (held stage and release).
     pub interior: usize,
@@ -315,10 +320,11 @@ fn search_from(
         let before = runs[best].objective;
         let theta = runs[best].theta.clone();
         if findings.interior_gradient >= GRADIENT_CONVERGED {
-            // L-BFGS stopped short of a stationary point: restart it there with a fresh memory.
+            // L-BFGS stopped short of a stationary point: restart it there (or beside it, where
+            // the objective rises) with a fresh memory.
             runs.push(run_start_until(
                 likelihood,
-                theta.clone(),
+                restart_point(&findings, &theta),
                 max_iterations,
                 &[],
                 EarlyStop::Never,
@@ -405,6 +411,15 @@ fn search_from(
         curvature,
         verified,
     }
+}
+
+/// Where a restart from the examined point `theta` begins: the point beside it where the
+/// objective rises, when the examination found one, else `theta` itself.
+fn restart_point(findings: &Findings, theta: &[f64]) -> Vec<f64> {
+    findings
+        .uphill
+        .as_ref()
+        .map_or_else(|| theta.to_vec(), |(point, _)| point.clone())
 }
 
 /// Runs within [`SAME_OPTIMUM`] of run `best`'s objective (itself included).
@@ -499,7 +514,7 @@ pub fn search_refined(
         let before = runs[best].objective;
         runs.push(run_start_until(
             likelihood,
-            runs[best].theta.clone(),
+            restart_point(&findings, &runs[best].theta),
             max_iterations,
             &[],
             EarlyStop::Never,
@@ -639,31 +654,49 @@ fn judge(
     }
 }
 
-/// Step of [`ascent_rate`] on the unconstrained scale.
+/// Step of [`ascent`] on the unconstrained scale.
 const SLOPE_STEP: f64 = 1e-5;
+
+/// A point beside the best point where the objective is higher: (θ, ln L + ln prior).
+type Uphill = (Vec<f64>, f64);
 
 /// The steepest rise of the objective f = ln L + ln prior from θ along ±e_j, by one-sided
 /// differences: max(f(θ + h·e_j) − f(θ), f(θ − h·e_j) − f(θ)) / h, floored at 0 (common
-/// practice: θ is a local maximum along e_j when neither side rises). Where f is smooth this is
-/// |∂f/∂θ_j| to O(h) (truncation about h·|∂²f/∂θ_j²|/2, rounding about 1e-16·|f|/h). The
-/// numerical engine's objective steps slightly where a distance crosses a rung of its grid's
-/// ladder (first_passage::numerical), and L-BFGS often stops on such a step with the objective
-/// falling on one side; a central difference there measures the step (5.7e1 for a fall of 1.1e-3
-/// in one leaky fit), this the rise, which is what a maximum must not have. Likewise at a kink
-/// of the gain-loss rule's likelihood (see [`examine`]). +∞ where the
-/// objective is not finite on either side, so that such a point never counts as converged.
-fn ascent_rate(likelihood: &SubjectLikelihood<'_>, theta: &[f64], at_theta: f64, j: usize) -> f64 {
-    let at = |sign: f64| {
+/// practice: θ is a local maximum along e_j when neither side rises), with the side's point and
+/// objective when it rises. Where f is smooth this is |∂f/∂θ_j| to O(h) (truncation about
+/// h·|∂²f/∂θ_j²|/2, rounding about 1e-16·|f|/h). The numerical engine's objective steps
+/// slightly where a distance crosses a rung of its grid's ladder (first_passage::numerical),
+/// and L-BFGS often stops on such a step with the objective falling on one side; a central
+/// difference there measures the step (5.7e1 for a fall of 1.1e-3 in one leaky fit), this the
+/// rise, which is what a maximum must not have. Likewise at a kink of the gain-loss rule's
+/// likelihood (see [`examine`]). +∞ where the objective is not finite on either side, so that
+/// such a point never counts as converged.
+fn ascent(
+    likelihood: &SubjectLikelihood<'_>,
+    theta: &[f64],
+    at_theta: f64,
+    j: usize,
+) -> (f64, Option<Uphill>) {
+    let side = |sign: f64| {
         let mut moved = theta.to_vec();
         moved[j] += sign * SLOPE_STEP;
         let e = likelihood.evaluate(&moved);
-        e.ln_likelihood + e.ln_prior
+        (moved, e.ln_likelihood + e.ln_prior)
     };
-    let rise = (at(1.0) - at_theta).max(at(-1.0) - at_theta) / SLOPE_STEP;
-    if rise.is_finite() {
-        rise.max(0.0)
+    let (up, down) = (side(1.0), side(-1.0));
+    // The higher side, a NaN losing to a number (as f64::max has it).
+    let higher = if down.1 > up.1 || up.1.is_nan() {
+        down
     } else {
-        f64::INFINITY
+        up
+    };
+    let rise = (higher.1 - at_theta) / SLOPE_STEP;
+    if !rise.is_finite() {
+        (f64::INFINITY, None)
+    } else if rise > 0.0 {
+        (rise, Some(higher))
+    } else {
+        (0.0, None)
     }
 }
 
@@ -688,6 +721,7 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
     // one side's slope. Where it is not small, the objective itself decides: a parameter along
     // which it rises on neither side is at a kink of a maximum, not short of one.
     let mut kinks = Vec::new();
+    let mut uphill = None;
     let mut interior_gradient = interior
         .iter()
         .map(|&j| {
@@ -696,7 +730,7 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
                 return slope;
             }
             evaluations.set(evaluations.get() + 2);
-            let rise = ascent_rate(likelihood, theta, at_theta, j);
+            let (rise, _) = ascent(likelihood, theta, at_theta, j);
             if rise < GRADIENT_CONVERGED {
                 kinks.push(j);
                 rise
@@ -709,14 +743,17 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
         // The numerical engine's derivatives are those of its grid, which is held still between
         // the rungs of a ladder and changes at them, where the objective steps: judge the point
         // by the objective itself, by how fast it rises on either side.
+        // The point beside it that rises most is where a restart begins: across the step.
         kinks.clear();
-        interior_gradient = interior
-            .iter()
-            .map(|&j| {
-                evaluations.set(evaluations.get() + 2);
-                ascent_rate(likelihood, theta, at_theta, j)
-            })
-            .fold(0.0_f64, f64::max);
+        interior_gradient = 0.0;
+        for &j in &interior {
+            evaluations.set(evaluations.get() + 2);
+            let (rise, side) = ascent(likelihood, theta, at_theta, j);
+            if rise > interior_gradient {
+                interior_gradient = rise;
+                uphill = side;
+            }
+        }
     }
     let flat = (0..free.len())
         .filter(|&j| {
@@ -753,6 +790,7 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
         below_baseline,
         interior_gradient,
         kinks,
+        uphill,
         evaluations: evaluations.get(),
     }
 }
