@@ -133,18 +133,26 @@ struct Watched<'k, S> {
 
 type LbfgsState = IterState<Vec<f64>, Vec<f64>, (), (), (), f64>;
 
+/// `next_iter` handed on to the wrapped solver `self.inner` (the wrappers here add a rule, not
+/// an iteration of their own).
+macro_rules! inner_iteration {
+    () => {
+        fn next_iter(
+            &mut self,
+            problem: &mut ArgminProblem<O>,
+            state: LbfgsState,
+        ) -> Result<(LbfgsState, Option<KV>), Error> {
+            self.inner.next_iter(problem, state)
+        }
+    };
+}
+
 impl<O, S: Solver<O, LbfgsState>> Solver<O, LbfgsState> for Watched<'_, S> {
     fn name(&self) -> &str {
         self.inner.name()
     }
 
-    fn next_iter(
-        &mut self,
-        problem: &mut ArgminProblem<O>,
-        state: LbfgsState,
-    ) -> Result<(LbfgsState, Option<KV>), Error> {
-        self.inner.next_iter(problem, state)
-    }
+    inner_iteration!();
 
     fn terminate(&mut self, state: &LbfgsState) -> TerminationStatus {
         let own = self.inner.terminate(state);
@@ -249,13 +257,7 @@ where
         self.inner.init(problem, state)
     }
 
-    fn next_iter(
-        &mut self,
-        problem: &mut ArgminProblem<O>,
-        state: LbfgsState,
-    ) -> Result<(LbfgsState, Option<KV>), Error> {
-        self.inner.next_iter(problem, state)
-    }
+    inner_iteration!();
 
     fn terminate(&mut self, state: &LbfgsState) -> TerminationStatus {
         self.inner.terminate(state)
