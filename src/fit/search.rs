@@ -416,10 +416,7 @@ fn search_from(
 /// Where a restart from the examined point `theta` begins: the point beside it where the
 /// objective rises, when the examination found one, else `theta` itself.
 fn restart_point(findings: &Findings, theta: &[f64]) -> Vec<f64> {
-    findings
-        .uphill
-        .as_ref()
-        .map_or_else(|| theta.to_vec(), |(point, _)| point.clone())
+    findings.uphill.clone().unwrap_or_else(|| theta.to_vec())
 }
 
 /// Runs within [`SAME_OPTIMUM`] of run `best`'s objective (itself included).
@@ -657,13 +654,13 @@ fn judge(
 /// Step of [`ascent`] on the unconstrained scale.
 const SLOPE_STEP: f64 = 1e-5;
 
-/// A point beside the best point where the objective is higher: (θ, ln L + ln prior).
-type Uphill = (Vec<f64>, f64);
+/// A point θ beside the best point where the objective is higher.
+type Uphill = Vec<f64>;
 
 /// The steepest rise of the objective f = ln L + ln prior from θ along ±e_j, by one-sided
 /// differences: max(f(θ + h·e_j) − f(θ), f(θ − h·e_j) − f(θ)) / h, floored at 0 (common
-/// practice: θ is a local maximum along e_j when neither side rises), with the side's point and
-/// objective when it rises. Where f is smooth this is |∂f/∂θ_j| to O(h) (truncation about
+/// practice: θ is a local maximum along e_j when neither side rises), with the side's point when
+/// it rises. Where f is smooth this is |∂f/∂θ_j| to O(h) (truncation about
 /// h·|∂²f/∂θ_j²|/2, rounding about 1e-16·|f|/h). The numerical engine's objective steps
 /// slightly where a distance crosses a rung of its grid's ladder (first_passage::numerical),
 /// and L-BFGS often stops on such a step with the objective falling on one side; a central
@@ -694,7 +691,7 @@ fn ascent(
     if !rise.is_finite() {
         (f64::INFINITY, None)
     } else if rise > 0.0 {
-        (rise, Some(higher))
+        (rise, Some(higher.0))
     } else {
         (0.0, None)
     }
