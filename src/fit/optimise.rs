@@ -514,3 +514,90 @@ pub fn run_start_until(
         Err(_) => failed(Stop::NoImprovingStep),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// f(x) = c·Σ x², recording every point evaluated.
+    struct Bowl {
+        c: f64,
+        seen: RefCell<Vec<Vec<f64>>>,
+    }
+
+    impl CostFunction for Bowl {
+        type Param = Vec<f64>;
+        type Output = f64;
+
+        fn cost(&self, x: &Vec<f64>) -> Result<f64, Error> {
+            self.seen.borrow_mut().push(x.clone());
+            Ok(self.c * x.iter().map(|v| v * v).sum::<f64>())
+        }
+    }
+
+    impl Gradient for Bowl {
+        type Param = Vec<f64>;
+        type Gradient = Vec<f64>;
+
+        fn gradient(&self, x: &Vec<f64>) -> Result<Vec<f64>, Error> {
+            Ok(x.iter().map(|v| 2.0 * self.c * v).collect())
+        }
+    }
+
+    /// (the largest coordinate move of the first trial point from the start, the end point)
+    /// of L-BFGS with the line search `$search` on a steep bowl from (10, −10). (A macro: the
+    /// problem type L-BFGS hands its line search is private to argmin, so a generic function
+    /// cannot name the bound.)
+    macro_rules! first_move {
+        ($search:expr) => {{
+            let bowl = Bowl {
+                c: 100.0,
+                seen: RefCell::new(Vec::new()),
+            };
+            let start = vec![10.0, -10.0];
+            let solver = LBFGS::new($search, 7).with_tolerance_grad(1e-10).unwrap();
+            let result = Executor::new(bowl, solver)
+                .configure(|state| state.param(start.clone()).max_iters(50))
+                .run()
+                .unwrap();
+            let seen = result
+                .problem
+                .problem
+                .as_ref()
+                .unwrap()
+                .seen
+                .borrow()
+                .clone();
+            let first = seen
+                .iter()
+                .find(|x| x.as_slice() != start.as_slice())
+                .expect("a trial point")
+                .clone();
+            let moved = first
+                .iter()
+                .zip(&start)
+                .fold(0.0_f64, |m, (a, b)| m.max((a - b).abs()));
+            (moved, result.state().get_best_param().unwrap().clone())
+        }};
+    }
+
+    #[test]
+    fn the_first_trial_step_moves_at_most_the_cap_and_the_run_still_converges() {
+        // Source: the step bound of trust-region practice (Nocedal & Wright 2006, §3.5 and
+        // ch. 4). L-BFGS's first direction is the negative gradient with step length 1 (Liu &
+        // Nocedal 1989), here (−2000, 2000): the plain Moré–Thuente search tries that far; the
+        // capped one no further than MAX_FIRST_STEP, and both end at the minimum 0.
+        let (plain, plain_end) = first_move!(MoreThuenteLineSearch::new());
+        assert!(plain > 1000.0, "the uncapped first trial moved {plain}");
+        let (capped, capped_end) = first_move!(ShortFirstStep {
+            inner: MoreThuenteLineSearch::new(),
+        });
+        assert!(
+            capped <= MAX_FIRST_STEP * (1.0 + 1e-12),
+            "the capped first trial moved {capped}"
+        );
+        for end in [plain_end, capped_end] {
+            assert!(end.iter().all(|x| x.abs() < 1e-8), "ended at {end:?}");
+        }
+    }
+}

@@ -655,3 +655,135 @@ fn mirrored_drift_nodes_give_the_likelihood_and_gradient_of_direct_solves() {
         mirrored.gradient[j]
     );
 }
+
+#[test]
+fn a_response_the_model_gives_no_chance_makes_ln_l_minus_infinity_as_the_trial_scores_sum() {
+    // Source: ln L is the sum of the trials' log-probabilities (common practice), and a response
+    // at or before the non-decision time has density zero: the first-passage time is positive
+    // and its density vanishes faster than any power as the time goes to zero (Feller 1968,
+    // the small-time series; Ratcliff 1978), and the engine's grid starts after zero. So one
+    // such response makes the sum −∞ whatever the other trials add. The likelihood stops
+    // summing at that trial (src/likelihood/mod.rs, `run`); this checks, on every model whose
+    // choice stage uses the numerical engine, that the shortcut gives what the full per-trial
+    // scores of `trace` sum to, and that the fitter is handed no finite gradient there (a
+    // derivative of −∞ is undefined).
+    let mut rng = ChaCha8Rng::seed_from_u64(61);
+    // On a coarse grid (the recovery study's: step 0.004 s, 100 points): the check is of the
+    // sum, not of the engine's accuracy, and the leaky stage's solves at drifts of tens per
+    // second are slow on the default grid.
+    let models: Vec<_> = built_in_models()
+        .into_iter()
+        .filter(|m| uses_numerical_engine(m.component_names[3]))
+        .map(|m| {
+            let coarse = m
+                .text
+                .replacen("[choice]\n", "[choice]\nstep = 0.004\npoints = 100\n", 1);
+            assert_ne!(coarse, m.text, "{}: a [choice] table", m.name);
+            let mut coarse = parse_model(&coarse, "coarse grid").unwrap();
+            coarse.name = m.name;
+            coarse
+        })
+        .collect();
+    assert_eq!(models.len(), 4);
+    let mut reached = Vec::new();
+    for model in &models {
+        let natural = orchard_generating_values(model, &mut rng).unwrap();
+        let design = orchard_design("s", "g", 24, &mut rng);
+        let subject = simulate_subject(
+            model,
+            &natural,
+            &design,
+            SimulationSettings::default(),
+            &mut rng,
+        )
+        .unwrap();
+        let lik = SubjectLikelihood::new(model, &subject, None).unwrap();
+        // ln L at θ, with the check on its gradient.
+        let ln_l = |theta: &[f64]| -> f64 {
+            let e = lik.evaluate(theta);
+            assert!(
+                e.ln_likelihood > f64::NEG_INFINITY || e.gradient.iter().all(|g| !g.is_finite()),
+                "{}: gradient {:?} at ln L = −∞",
+                model.name,
+                e.gradient
+            );
+            e.ln_likelihood
+        };
+        // (ln L, the sum of trace's per-trial scores, how many of them are −∞) at θ.
+        let scores = |theta: &[f64]| -> (f64, f64, usize) {
+            let per_trial: Vec<f64> = lik
+                .trace(&lik.natural(theta))
+                .iter()
+                .filter_map(|t| t.ln_likelihood)
+                .collect();
+            let impossible = per_trial
+                .iter()
+                .filter(|s| **s == f64::NEG_INFINITY)
+                .count();
+            (ln_l(theta), per_trial.iter().sum(), impossible)
+        };
+        let free: Vec<f64> = model.free_slots().iter().map(|&s| natural[s]).collect();
+        let truth = lik.unconstrained(&free);
+        // The corner of the box where a fit's long first step had landed (2026-12-03): every
+        // parameter at its upper bound but ndt at zero (a millionth of the range inside, where
+        // θ is finite). Drifts of tens per second against a wide boundary leave responses no
+        // chance the engine can represent.
+        let bounds = lik.free_bounds();
+        let corner_natural: Vec<f64> = (0..free.len())
+            .map(|j| {
+                let (lower, upper) = bounds[j];
+                let inset = 1e-6 * (upper - lower);
+                if model.parameters[model.free_slots()[j]].name == "ndt" {
+                    lower + inset
+                } else {
+                    upper - inset
+                }
+            })
+            .collect();
+        let corner = lik.unconstrained(&corner_natural);
+        // Bisect the segment from the generating values to the corner for the point where the
+        // first response loses its chance: there one or a few trials decide ln L.
+        let along = |t: f64| -> Vec<f64> {
+            truth
+                .iter()
+                .zip(&corner)
+                .map(|(a, b)| a + t * (b - a))
+                .collect()
+        };
+        if ln_l(&corner) > f64::NEG_INFINITY {
+            // This stage's engine still gives every response a chance there: nothing to cut.
+            continue;
+        }
+        reached.push(model.name.as_str());
+        let (mut possible, mut impossible) = (0.0, 1.0);
+        for _ in 0..20 {
+            let mid = 0.5 * (possible + impossible);
+            if ln_l(&along(mid)) > f64::NEG_INFINITY {
+                possible = mid;
+            } else {
+                impossible = mid;
+            }
+        }
+        let (whole, summed, none) = scores(&along(possible));
+        assert_eq!(none, 0, "{}: no trial −∞ where ln L is finite", model.name);
+        assert!(
+            (whole - summed).abs() <= 1e-9 * summed.abs().max(1.0),
+            "{}: ln L {whole} against the trials' sum {summed}",
+            model.name
+        );
+        let (whole, summed, some) = scores(&along(impossible));
+        println!(
+            "{}: {some} of {} trials −∞ at {impossible:.6} of the way to the corner",
+            model.name,
+            subject.trials.len()
+        );
+        assert!(some >= 1, "{}: some trial −∞ where ln L is", model.name);
+        assert_eq!(summed, f64::NEG_INFINITY, "{}", model.name);
+        assert_eq!(whole, f64::NEG_INFINITY, "{}", model.name);
+    }
+    println!("ln L reached −∞ on the way to the corner: {reached:?}");
+    assert!(
+        reached.contains(&"gainloss-leaky"),
+        "the leaky model, whose fits met such points, reached none: {reached:?}"
+    );
+}
