@@ -12,7 +12,7 @@
 //! iterations learning them; on z it starts with them. The search's held probes, which start
 //! next to the best point, use it (see [`super::search`]).
 
-use crate::likelihood::SubjectLikelihood;
+use crate::likelihood::{Evaluation, SubjectLikelihood};
 use argmin::core::{
     CostFunction, Error, Executor, Gradient, IterState, KV, Problem as ArgminProblem, Solver,
     State, TerminationReason, TerminationStatus,
@@ -71,6 +71,25 @@ pub struct StartResult {
     pub stop: Stop,
     /// Likelihood-with-gradient evaluations the run made (its start included).
     pub evaluations: usize,
+}
+
+/// Where a run begins: θ (all free parameters), and the likelihood's evaluation there when it is
+/// already known (a screened start's), which the run then does not repeat.
+#[derive(Clone, Debug)]
+pub struct Begin {
+    /// θ at the start.
+    pub theta: Vec<f64>,
+    /// [`SubjectLikelihood::evaluate`] at `theta`, of the likelihood the run optimises.
+    pub evaluated: Option<Evaluation>,
+}
+
+impl From<Vec<f64>> for Begin {
+    fn from(theta: Vec<f64>) -> Self {
+        Begin {
+            theta,
+            evaluated: None,
+        }
+    }
 }
 
 /// Largest shortfall of ln L + ln prior below a known optimum at which a run joins it: the
@@ -345,6 +364,12 @@ impl Problem<'_, '_> {
         }
         self.evaluations.set(self.evaluations.get() + 1);
         let e = self.likelihood.evaluate(&self.full(reduced));
+        self.remember(reduced, &e)
+    }
+
+    /// The cost and its gradient on the solver's parameters from the likelihood's evaluation
+    /// `e` at `reduced`, kept as the last evaluation.
+    fn remember(&self, reduced: &[f64], e: &Evaluation) -> (f64, Vec<f64>) {
         let objective = e.ln_likelihood + e.ln_prior;
         let (cost, grad) = if objective.is_finite() && e.gradient.iter().all(|g| g.is_finite()) {
             let on_theta: Vec<f64> = self.active.iter().map(|&j| -e.gradient[j]).collect();
@@ -385,10 +410,12 @@ impl Gradient for Problem<'_, '_> {
 
 /// Runs L-BFGS (Nocedal 1980; Liu & Nocedal 1989; memory 7, Moré–Thuente line search with its
 /// first trial step capped ([`ShortFirstStep`]), gradient tolerance 1e-6, change tolerance
-/// 1e-12) from `start`, holding the free parameters listed in `held` at their start values.
+/// 1e-12) from `start`, holding the free parameters listed in `held` at their start values. A
+/// start that carries its evaluation is not evaluated again (its run counts one evaluation
+/// fewer).
 pub fn run_start(
     likelihood: &SubjectLikelihood<'_>,
-    start: Vec<f64>,
+    start: impl Into<Begin>,
     max_iterations: u64,
     held: &[usize],
 ) -> StartResult {
@@ -407,12 +434,16 @@ pub fn run_start(
 /// when given and positive definite on the active parameters.
 pub fn run_start_until(
     likelihood: &SubjectLikelihood<'_>,
-    start: Vec<f64>,
+    start: impl Into<Begin>,
     max_iterations: u64,
     held: &[usize],
     rule: EarlyStop<'_>,
     curvature: Option<&DMatrix<f64>>,
 ) -> StartResult {
+    let Begin {
+        theta: start,
+        evaluated,
+    } = start.into();
     debug_assert!(held.is_empty() || !matches!(rule, EarlyStop::Join(_)));
     let active: Vec<usize> = (0..start.len()).filter(|j| !held.contains(j)).collect();
     let evaluations = Cell::new(0);
@@ -427,7 +458,11 @@ pub fn run_start_until(
         evaluations: &evaluations,
     };
     let reduced_start = problem.reduce(&start);
-    let (start_cost, start_gradient) = problem.evaluate(&reduced_start);
+    // θ at z = 0 is the start itself, preconditioned or not.
+    let (start_cost, start_gradient) = match &evaluated {
+        Some(e) => problem.remember(&reduced_start, e),
+        None => problem.evaluate(&reduced_start),
+    };
     let failed = |stop| StartResult {
         theta: start.clone(),
         objective: if start_cost >= INVALID_COST {

@@ -31,7 +31,7 @@
 //! interior. Otherwise the status says, in words, what is wrong.
 
 use super::SAME_OPTIMUM;
-use super::optimise::{EarlyStop, JOIN_DISTANCE, StartResult, Stop, run_start_until};
+use super::optimise::{Begin, EarlyStop, JOIN_DISTANCE, StartResult, Stop, run_start_until};
 use super::starts::StartPlan;
 use super::uncertainty::hessian;
 use crate::likelihood::SubjectLikelihood;
@@ -268,7 +268,7 @@ pub fn search(
 fn search_from(
     likelihood: &SubjectLikelihood<'_>,
     plan: &StartPlan,
-    first: Vec<Vec<f64>>,
+    first: Vec<Begin>,
     starts: usize,
     max_iterations: u64,
 ) -> Searched {
@@ -283,7 +283,7 @@ fn search_from(
     let mut curvature: Option<(Vec<f64>, DMatrix<f64>)> = None;
     let mut curvature_evaluations = 0;
     let mut joining = |runs: &mut Vec<StartResult>,
-                       start: Vec<f64>,
+                       start: Begin,
                        known: &mut Vec<_>,
                        curvature: &mut Option<(Vec<f64>, DMatrix<f64>)>| {
         let run = run_start_until(
@@ -349,7 +349,8 @@ fn search_from(
                     curvature.as_ref().map(|c| &c.1),
                 );
                 work.interior += held.evaluations;
-                work.interior += joining(&mut runs, held.theta, &mut known, &mut curvature);
+                work.interior +=
+                    joining(&mut runs, held.theta.into(), &mut known, &mut curvature);
             }
         }
         // Faces of the box: optima with one parameter at a bound (a learning rate or an effort
@@ -379,14 +380,14 @@ fn search_from(
                 work.faces += held.evaluations;
                 if held.objective > runs[best].objective - FACE_MARGIN {
                     work.faces +=
-                        joining(&mut runs, held.theta.clone(), &mut known, &mut curvature);
+                        joining(&mut runs, held.theta.clone().into(), &mut known, &mut curvature);
                 }
                 runs.push(held);
             }
         }
         if findings.degenerate() {
             for start in plan.fresh(next_fresh, starts) {
-                work.fresh += joining(&mut runs, start, &mut known, &mut curvature);
+                work.fresh += joining(&mut runs, start.into(), &mut known, &mut curvature);
             }
             next_fresh += starts;
         }
@@ -531,7 +532,7 @@ pub fn search_refined(
         let mut again = search_from(
             likelihood,
             plan,
-            vec![runs[best].theta.clone()],
+            vec![runs[best].theta.clone().into()],
             starts,
             max_iterations,
         );

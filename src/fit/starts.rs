@@ -18,6 +18,7 @@
 //! strongly negative drifts for a participant who accepts most offers), from where it tends to
 //! walk onto a flat region of the likelihood.
 
+use super::optimise::Begin;
 use crate::likelihood::SubjectLikelihood;
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -93,9 +94,10 @@ impl StartPlan {
     }
 
     /// The `n` best of `SCREEN_FACTOR·n` candidate points by log-posterior (ties and
-    /// non-finite values keep sequence order), in order of decreasing log-posterior.
-    pub fn screened(&self, likelihood: &SubjectLikelihood<'_>, n: usize) -> Vec<Vec<f64>> {
-        let mut scored: Vec<(f64, usize, Vec<f64>)> = (0..n * SCREEN_FACTOR)
+    /// non-finite values keep sequence order), in order of decreasing log-posterior, each with
+    /// its evaluation, which its L-BFGS run then need not repeat.
+    pub fn screened(&self, likelihood: &SubjectLikelihood<'_>, n: usize) -> Vec<Begin> {
+        let mut scored: Vec<(f64, usize, Begin)> = (0..n * SCREEN_FACTOR)
             .map(|i| {
                 let theta = self.point(i);
                 let e = likelihood.evaluate(&theta);
@@ -105,7 +107,11 @@ impl StartPlan {
                 } else {
                     f64::NEG_INFINITY
                 };
-                (score, i, theta)
+                let start = Begin {
+                    theta,
+                    evaluated: Some(e),
+                };
+                (score, i, start)
             })
             .collect();
         scored.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
