@@ -349,8 +349,7 @@ fn search_from(
                     curvature.as_ref().map(|c| &c.1),
                 );
                 work.interior += held.evaluations;
-                work.interior +=
-                    joining(&mut runs, held.theta.into(), &mut known, &mut curvature);
+                work.interior += joining(&mut runs, held.theta.into(), &mut known, &mut curvature);
             }
         }
         // Faces of the box: optima with one parameter at a bound (a learning rate or an effort
@@ -379,8 +378,12 @@ fn search_from(
                 );
                 work.faces += held.evaluations;
                 if held.objective > runs[best].objective - FACE_MARGIN {
-                    work.faces +=
-                        joining(&mut runs, held.theta.clone().into(), &mut known, &mut curvature);
+                    work.faces += joining(
+                        &mut runs,
+                        held.theta.clone().into(),
+                        &mut known,
+                        &mut curvature,
+                    );
                 }
                 runs.push(held);
             }

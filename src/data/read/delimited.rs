@@ -4,6 +4,7 @@
 //! polars with every column as text and checked row by row. Only one part is in memory at once,
 //! so a table of any number of subjects can be streamed; reading the whole table is one part.
 
+use std::borrow::Cow;
 use std::io::{Cursor, Read};
 use std::path::{Path, PathBuf};
 
@@ -362,9 +363,9 @@ impl DelimitedStream {
         let mut all_empty = true;
         let mut texts = Vec::new();
         loop {
-            // One field.
-            let mut text = Vec::new();
-            if pos < n && bytes[pos] == b'"' {
+            // One field: borrowed from the buffer unless quoted (then unescaped into a copy).
+            let text: Cow<'_, [u8]> = if pos < n && bytes[pos] == b'"' {
+                let mut text = Vec::new();
                 let quote_line = line;
                 pos += 1;
                 loop {
@@ -419,6 +420,7 @@ impl DelimitedStream {
                 if rest == b"\r" || rest.starts_with(b"\r\n") {
                     pos += 1;
                 }
+                Cow::Owned(text)
             } else {
                 let start = pos;
                 while pos < n && bytes[pos] != sep && bytes[pos] != b'\n' {
@@ -439,8 +441,8 @@ impl DelimitedStream {
                             .to_string(),
                     ));
                 }
-                text.extend_from_slice(raw);
-            }
+                Cow::Borrowed(raw)
+            };
             if !text.iter().all(u8::is_ascii_whitespace) {
                 all_empty = false;
             }

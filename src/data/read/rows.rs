@@ -197,11 +197,13 @@ pub(super) fn build(
     let mut runs_seen: HashSet<String> = HashSet::new();
     let notes = &mut state.notes;
 
+    // The columns of each side, named once rather than on every row.
+    let side_names: Vec<[String; 4]> = sides
+        .iter()
+        .map(|side| ["option", "effort", "reward", "outcome_if"].map(|c| format!("{c}_{side}")))
+        .collect();
     for row in 0..height {
-        if CANONICAL
-            .iter()
-            .all(|c| columns.reads_as_missing(reader.cell(row, c)))
-        {
+        if (0..CANONICAL.len()).all(|k| columns.reads_as_missing(reader.canonical_cell(row, k))) {
             continue; // an empty line or row carries no trial
         }
         let at = positions.of(row);
@@ -307,17 +309,18 @@ pub(super) fn build(
         }
 
         let mut offers = Vec::with_capacity(sides.len());
-        for (k, side) in sides.iter().enumerate() {
+        for (k, (side, [column, effort, reward, outcome_if])) in
+            sides.iter().zip(&side_names).enumerate()
+        {
             let option = if has_options {
-                let column = format!("option_{side}");
-                let name = reader.required_text(row, &column, "an option identity")?;
+                let name = reader.required_text(row, column, "an option identity")?;
                 if let Some(same) = offers
                     .iter()
                     .position(|o: &Offer| subject.options[o.option] == name.as_ref())
                 {
                     return Err(reader.error(
                         row,
-                        &column,
+                        column,
                         if sides.len() == 2 {
                             format!(
                                 "offers option {name:?} on both sides; expected two different \
@@ -346,9 +349,9 @@ pub(super) fn build(
             };
             offers.push(Offer {
                 option,
-                effort: reader.effort(row, &format!("effort_{side}"))?,
-                reward: reader.number(row, &format!("reward_{side}"))?,
-                outcome_if: reader.number(row, &format!("outcome_if_{side}"))?,
+                effort: reader.effort(row, effort)?,
+                reward: reader.number(row, reward)?,
+                outcome_if: reader.number(row, outcome_if)?,
             });
         }
         let choice = reader.choice(row)?;
@@ -437,15 +440,26 @@ struct RowReader<'r, 'v> {
 impl RowReader<'_, '_> {
     /// The cell, with the user's missing-value tokens read as missing.
     fn cell(&self, row: usize, canonical: &str) -> Cell<'_> {
-        let cell = match CANONICAL.iter().position(|c| *c == canonical) {
-            Some(k) => self.views[k].as_ref(),
-            None => self
-                .side_columns
-                .iter()
-                .find(|(name, _)| name == canonical)
-                .map(|(_, v)| v),
+        match CANONICAL.iter().position(|c| *c == canonical) {
+            Some(k) => self.canonical_cell(row, k),
+            None => self.as_read(
+                self.side_columns
+                    .iter()
+                    .find(|(name, _)| name == canonical)
+                    .map(|(_, v)| v),
+                row,
+            ),
         }
-        .map_or(Cell::Missing, |v| v.cell(row));
+    }
+
+    /// [`RowReader::cell`] of the `k`-th canonical column.
+    fn canonical_cell(&self, row: usize, k: usize) -> Cell<'_> {
+        self.as_read(self.views[k].as_ref(), row)
+    }
+
+    /// The cell of `view` (missing without the column), missing-value tokens read as missing.
+    fn as_read<'s>(&'s self, view: Option<&'s Values<'_>>, row: usize) -> Cell<'s> {
+        let cell = view.map_or(Cell::Missing, |v| v.cell(row));
         if self.columns.reads_as_missing(cell) {
             Cell::Missing
         } else {
