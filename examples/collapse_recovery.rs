@@ -18,7 +18,7 @@
 //! keep the study near an hour on two cores (51 and 74 min measured, before the leaky stage
 //! mirrored its drift nodes; see the README); its solves, one per drift node, are what make it
 //! slow. Run with
-//! `cargo run --release --example collapse_recovery [-- N [generators [fitted [starts [trials [spread]]]]]]`
+//! `cargo run --release --example collapse_recovery [-- N [generators [fitted [starts [trials [spread [only]]]]]]]`
 //! (indices 0 fixed, 1 collapse, 2 leaky, comma-separated; default all three for both; the
 //! confusion matrix then has a column for each fitted model; `starts` per fit, default 10;
 //! `trials` per participant, default 300; `spread` either `orchard`, the ranges above, or
@@ -26,8 +26,8 @@
 //! closed after 1 s) and the leak from 0–4 per second (from perfect integration to a time
 //! constant of 0.25 s), each from its own stream seeded by the participant, so every other
 //! generating value, the design and the seed of the simulation are those of the `orchard`
-//! study). A
-//! line per fit goes to `collapse_recovery.csv.partial` in the working folder as soon as its
+//! study; `only`, comma-separated participant indices, fits just those, as the study made them).
+//! A line per fit goes to `collapse_recovery.csv.partial` in the working folder as soon as its
 //! participant is done, renamed `collapse_recovery.csv` when the study ends; besides the fit it
 //! gives the seconds, the likelihood evaluations and how many of them were on the model's own
 //! grid (the rest on the coarser grid of the search, about 1/16 of the solve each), the 95 %
@@ -185,9 +185,17 @@ fn main() {
         Some("spanning") => true,
         Some(other) => panic!("spread: orchard or spanning, not {other}"),
     };
+    // Optional seventh argument: only these participants (indices, comma-separated), to
+    // fit again a few of a study's participants exactly as the study made them.
+    let only: Option<Vec<usize>> = std::env::args().nth(7).map(|a| {
+        a.split(',')
+            .map(|i| i.parse().expect("participant indices"))
+            .collect()
+    });
     let jobs: Vec<(usize, usize)> = generators
         .into_iter()
         .flat_map(|g| (0..n).map(move |i| (g, i)))
+        .filter(|(_, i)| only.as_ref().is_none_or(|o| o.contains(i)))
         .collect();
     let started = Instant::now();
     let done = AtomicUsize::new(0);

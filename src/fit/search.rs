@@ -106,6 +106,11 @@ struct Findings {
     /// Largest |gradient| (unconstrained scale) of the parameters not at a bound; for a
     /// parameter at a kink (below) or of a numerical-engine model, the objective's rise instead.
     interior_gradient: f64,
+    /// The parameter of `interior_gradient`, where it is above zero.
+    steepest: Option<usize>,
+    /// `interior_gradient` is the objective's rise over a step of [`ascent`] (a numerical-engine
+    /// model), not the gradient.
+    by_rise: bool,
     /// Interior parameters whose gradient is not small but along which the objective rises on
     /// neither side: the point sits on a kink of the objective (see [`examine`]).
     kinks: Vec<usize>,
@@ -615,10 +620,23 @@ fn judge(
     } else if !matches!(best.stop, Stop::Tolerance | Stop::NoImprovingStep) {
         Some(best.stop.describe().to_string())
     } else if findings.interior_gradient >= GRADIENT_CONVERGED {
-        Some(format!(
-            "gradient {:.1e} at the best point",
-            findings.interior_gradient
-        ))
+        let along = findings
+            .steepest
+            .map_or(String::new(), |j| format!(" along {}", names[j]));
+        Some(if findings.by_rise {
+            format!(
+                "the objective still rises beside the best point{along}: by {:.1e} in ln L over \
+                 a step of {SLOPE_STEP:.0e} on the optimiser's scale (slope {:.1e}; the \
+                 numerical engine's grid can put such a step in the objective)",
+                findings.interior_gradient * SLOPE_STEP,
+                findings.interior_gradient
+            )
+        } else {
+            format!(
+                "gradient {:.1e} at the best point{along}",
+                findings.interior_gradient
+            )
+        })
     } else if !verified && findings.at_bound.is_empty() {
         Some(format!(
             "still improving after {ESCAPE_ROUNDS} rounds of searches from the faces and the interior"
@@ -723,36 +741,35 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
     // which it rises on neither side is at a kink of a maximum, not short of one.
     let mut kinks = Vec::new();
     let mut uphill = None;
-    let mut interior_gradient = interior
-        .iter()
-        .map(|&j| {
-            let slope = evaluation.gradient[j].abs();
-            if slope < GRADIENT_CONVERGED {
-                return slope;
-            }
+    let (mut interior_gradient, mut steepest) = (0.0, None);
+    for &j in &interior {
+        let mut slope = evaluation.gradient[j].abs();
+        if slope >= GRADIENT_CONVERGED {
             evaluations.set(evaluations.get() + 2);
             let (rise, _) = ascent(likelihood, theta, at_theta, j);
             if rise < GRADIENT_CONVERGED {
                 kinks.push(j);
-                rise
-            } else {
-                slope
+                slope = rise;
             }
-        })
-        .fold(0.0_f64, f64::max);
-    if uses_numerical_engine(model.component_names[3]) {
+        }
+        // A NaN slope is passed over, as f64::max passes it over.
+        if slope > interior_gradient {
+            (interior_gradient, steepest) = (slope, Some(j));
+        }
+    }
+    let by_rise = uses_numerical_engine(model.component_names[3]);
+    if by_rise {
         // The numerical engine's derivatives are those of its grid, which is held still between
         // the rungs of a ladder and changes at them, where the objective steps: judge the point
         // by the objective itself, by how fast it rises on either side.
         // The point beside it that rises most is where a restart begins: across the step.
         kinks.clear();
-        interior_gradient = 0.0;
+        (interior_gradient, steepest) = (0.0, None);
         for &j in &interior {
             evaluations.set(evaluations.get() + 2);
             let (rise, side) = ascent(likelihood, theta, at_theta, j);
             if rise > interior_gradient {
-                interior_gradient = rise;
-                uphill = side;
+                (interior_gradient, steepest, uphill) = (rise, Some(j), side);
             }
         }
     }
@@ -790,6 +807,8 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
         value_blind,
         below_baseline,
         interior_gradient,
+        steepest,
+        by_rise,
         kinks,
         uphill,
         evaluations: evaluations.get(),
