@@ -401,7 +401,29 @@ fn search_from(
         }
         best = best_of(&runs);
         if runs[best].objective <= before + SAME_OPTIMUM {
-            // Nothing from the interior, the faces or elsewhere beats the point: verified.
+            // Nothing from the interior, the faces or elsewhere beats the point by more than
+            // SAME_OPTIMUM: verified. A restart may have moved the best point by less (it
+            // polished a point where L-BFGS had stopped short); the verdict is on the point
+            // reported, so that is the point examined. Its bounds are confirmed when the
+            // searches from the interior confirmed them; a bound new to it gets another round
+            // (not where a flat or value-blind point stays flagged whatever the rounds find).
+            if runs[best].theta != theta {
+                let polished = examine(likelihood, plan, &runs[best].theta);
+                work.examine += polished.evaluations;
+                let confirmed = polished
+                    .at_bound
+                    .iter()
+                    .all(|j| findings.at_bound.contains(j));
+                findings = polished;
+                if !confirmed && !findings.degenerate() {
+                    verified = false;
+                    continue;
+                }
+                if !confirmed {
+                    verified = false;
+                    break;
+                }
+            }
             verified = !findings.degenerate() && findings.interior_gradient < GRADIENT_CONVERGED;
             break;
         }
