@@ -9,11 +9,12 @@ use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::StandardNormal;
 use std::path::Path;
+use valuedrift::data::Subject;
 use valuedrift::first_passage::Bound;
 use valuedrift::first_passage::numerical::{Collapse, Grid, Process, solve, solve_settled};
 use valuedrift::likelihood::SubjectLikelihood;
 use valuedrift::model::components::uses_numerical_engine;
-use valuedrift::model::{built_in_models, parse_model};
+use valuedrift::model::{Model, built_in_models, parse_model};
 use valuedrift::simulate::{
     SimulationSettings, orchard_design, orchard_generating_values, simulate_subject,
 };
@@ -362,6 +363,26 @@ fn central_difference(lik: &SubjectLikelihood<'_>, theta: &[f64], j: usize) -> f
     (at(h) - at(-h)) / (2.0 * h)
 }
 
+/// The built-in models whose choice stage uses the numerical engine (four of them).
+fn numerical_engine_models() -> Vec<Model> {
+    let models: Vec<Model> = built_in_models()
+        .into_iter()
+        .filter(|m| uses_numerical_engine(m.component_names[3]))
+        .collect();
+    assert_eq!(models.len(), 4);
+    models
+}
+
+/// An orchard participant of `trials` trials simulated from `model` at generating values drawn
+/// inside the documented ranges (src/simulate.rs): (those values, the participant).
+fn orchard_participant(model: &Model, trials: usize, rng: &mut ChaCha8Rng) -> (Vec<f64>, Subject) {
+    let natural = orchard_generating_values(model, rng).unwrap();
+    let design = orchard_design("s", "g", trials, rng);
+    let subject =
+        simulate_subject(model, &natural, &design, SimulationSettings::default(), rng).unwrap();
+    (natural, subject)
+}
+
 #[test]
 fn gradient_of_every_numerical_engine_model_matches_central_differences() {
     // Central differences, step 1e-6 (common practice), against the engine's forward
@@ -372,23 +393,9 @@ fn gradient_of_every_numerical_engine_model_matches_central_differences() {
     // ladder, with the grid moving with boundary and start, differences of 1.9e-4 were seen;
     // measured now: 2.0e-6).
     let mut rng = ChaCha8Rng::seed_from_u64(16);
-    let models: Vec<_> = built_in_models()
-        .into_iter()
-        .filter(|m| uses_numerical_engine(m.component_names[3]))
-        .collect();
-    assert_eq!(models.len(), 4);
     let mut worst: f64 = 0.0;
-    for model in &models {
-        let natural = orchard_generating_values(model, &mut rng).unwrap();
-        let design = orchard_design("s", "g", 60, &mut rng);
-        let subject = simulate_subject(
-            model,
-            &natural,
-            &design,
-            SimulationSettings::default(),
-            &mut rng,
-        )
-        .unwrap();
+    for model in &numerical_engine_models() {
+        let (natural, subject) = orchard_participant(model, 60, &mut rng);
         let timed = subject.trials.iter().filter(|t| t.rt.is_some()).count();
         assert_eq!(
             timed, 60,
@@ -671,9 +678,8 @@ fn a_response_the_model_gives_no_chance_makes_ln_l_minus_infinity_as_the_trial_s
     // On a coarse grid (the recovery study's: step 0.004 s, 100 points): the check is of the
     // sum, not of the engine's accuracy, and the leaky stage's solves at drifts of tens per
     // second are slow on the default grid.
-    let models: Vec<_> = built_in_models()
+    let models: Vec<_> = numerical_engine_models()
         .into_iter()
-        .filter(|m| uses_numerical_engine(m.component_names[3]))
         .map(|m| {
             let coarse = m
                 .text
@@ -684,19 +690,9 @@ fn a_response_the_model_gives_no_chance_makes_ln_l_minus_infinity_as_the_trial_s
             coarse
         })
         .collect();
-    assert_eq!(models.len(), 4);
     let mut reached = Vec::new();
     for model in &models {
-        let natural = orchard_generating_values(model, &mut rng).unwrap();
-        let design = orchard_design("s", "g", 24, &mut rng);
-        let subject = simulate_subject(
-            model,
-            &natural,
-            &design,
-            SimulationSettings::default(),
-            &mut rng,
-        )
-        .unwrap();
+        let (natural, subject) = orchard_participant(model, 24, &mut rng);
         let lik = SubjectLikelihood::new(model, &subject, None).unwrap();
         // ln L at θ, with the check on its gradient.
         let ln_l = |theta: &[f64]| -> f64 {
