@@ -648,8 +648,7 @@ fn judge(
         Some(if findings.by_rise {
             format!(
                 "the objective still rises beside the best point{along}: by {:.1e} in ln L over \
-                 a step of {SLOPE_STEP:.0e} on the optimiser's scale (slope {:.1e}; the \
-                 numerical engine's grid can put such a step in the objective)",
+                 a step of {SLOPE_STEP:.0e} on the optimiser's scale (slope {:.1e})",
                 findings.interior_gradient * SLOPE_STEP,
                 findings.interior_gradient
             )
