@@ -415,13 +415,12 @@ fn search_from(
                     .iter()
                     .all(|j| findings.at_bound.contains(j));
                 findings = polished;
-                if !confirmed && !findings.degenerate() {
-                    verified = false;
-                    continue;
-                }
                 if !confirmed {
                     verified = false;
-                    break;
+                    if findings.degenerate() {
+                        break;
+                    }
+                    continue;
                 }
             }
             verified = !findings.degenerate() && findings.interior_gradient < GRADIENT_CONVERGED;
@@ -763,7 +762,20 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
     let mut kinks = Vec::new();
     let mut uphill = None;
     let (mut interior_gradient, mut steepest) = (0.0, None);
+    let by_rise = uses_numerical_engine(model.component_names[3]);
     for &j in &interior {
+        if by_rise {
+            // The numerical engine's derivatives are those of its grid, which is held still
+            // between the rungs of a ladder and changes at them, where the objective steps:
+            // judge the point by the objective itself, by how fast it rises on either side.
+            // The point beside it that rises most is where a restart begins: across the step.
+            evaluations.set(evaluations.get() + 2);
+            let (rise, side) = ascent(likelihood, theta, at_theta, j);
+            if rise > interior_gradient {
+                (interior_gradient, steepest, uphill) = (rise, Some(j), side);
+            }
+            continue;
+        }
         let mut slope = evaluation.gradient[j].abs();
         if slope >= GRADIENT_CONVERGED {
             evaluations.set(evaluations.get() + 2);
@@ -776,22 +788,6 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
         // A NaN slope is passed over, as f64::max passes it over.
         if slope > interior_gradient {
             (interior_gradient, steepest) = (slope, Some(j));
-        }
-    }
-    let by_rise = uses_numerical_engine(model.component_names[3]);
-    if by_rise {
-        // The numerical engine's derivatives are those of its grid, which is held still between
-        // the rungs of a ladder and changes at them, where the objective steps: judge the point
-        // by the objective itself, by how fast it rises on either side.
-        // The point beside it that rises most is where a restart begins: across the step.
-        kinks.clear();
-        (interior_gradient, steepest) = (0.0, None);
-        for &j in &interior {
-            evaluations.set(evaluations.get() + 2);
-            let (rise, side) = ascent(likelihood, theta, at_theta, j);
-            if rise > interior_gradient {
-                (interior_gradient, steepest, uphill) = (rise, Some(j), side);
-            }
         }
     }
     let flat = (0..free.len())
