@@ -315,7 +315,7 @@ impl Scaling {
     /// finite (the run then searches on θ itself).
     fn new(curvature: &DMatrix<f64>, active: &[usize], start: &[f64]) -> Option<Scaling> {
         let n = active.len();
-        let sub = DMatrix::from_fn(n, n, |a, b| curvature[(active[a], active[b])]);
+        let sub = super::uncertainty::principal_block(curvature, active);
         if !sub.iter().all(|x| x.is_finite()) {
             return None;
         }

@@ -213,6 +213,50 @@ fn gain_loss_fits_on_a_kink_of_the_likelihood_are_maxima_and_reported_as_such() 
     }
 }
 
+/// A gain-loss fit of a participant of the effort-offer data (MIT licence, above), with its
+/// likelihood.
+fn gainloss_fit<'a>(
+    table: &'a TrialTable,
+    model: &'a valuedrift::model::Model,
+    id: &str,
+) -> (SubjectLikelihood<'a>, SubjectFit) {
+    let subject = table.subjects.iter().find(|s| s.id == id).unwrap();
+    let lik = SubjectLikelihood::new(model, subject, None).unwrap();
+    let fit = valuedrift::fit::fit_subject(&lik, &FitOptions::default());
+    (lik, fit)
+}
+
+/// The fitted point of `fit` on the optimiser's scale.
+fn fitted_theta(lik: &SubjectLikelihood<'_>, fit: &SubjectFit) -> Vec<f64> {
+    let free = lik.model().free_slots();
+    let natural: Vec<f64> = free.iter().map(|&s| fit.estimates[s].estimate).collect();
+    lik.unconstrained(&natural)
+}
+
+/// Checks that `status` states, after `prefix`, a gradient "X at the best point along NAME"
+/// that is the gradient at the fitted point (to the rounding of its one decimal).
+fn stated_gradient_is_found(lik: &SubjectLikelihood<'_>, fit: &SubjectFit, prefix: &str) {
+    let rest = fit
+        .status
+        .split_once(prefix)
+        .unwrap_or_else(|| panic!("{}", fit.status))
+        .1;
+    let (stated, rest) = rest.split_once(" at the best point along ").unwrap();
+    let name = rest.split([',', ';']).next().unwrap();
+    let stated: f64 = stated.parse().unwrap();
+    let model = lik.model();
+    let j = model
+        .free_slots()
+        .iter()
+        .position(|&s| model.parameters[s].name == name)
+        .unwrap();
+    let found = lik.evaluate(&fitted_theta(lik, fit)).gradient[j].abs();
+    assert!(
+        (found - stated).abs() <= 0.051 * stated,
+        "the status says {stated:.1e} along {name}; the gradient there is {found:.3e}"
+    );
+}
+
 #[test]
 fn the_verdict_is_on_the_point_the_fit_reports() {
     // Source: the published effort-offer data (MIT licence, above) and common practice (a fit's
@@ -222,18 +266,11 @@ fn the_verdict_is_on_the_point_the_fit_reports() {
     // gradient 1.5e-3 / 1.2e-2 / 2.2e-2 at the best point") while the estimates were the
     // restart's, a maximum on a kink of the gain-loss likelihood. At the reported estimates the
     // objective must rise on no side by more than 1e-3 per unit along any interior parameter,
-    // and the fit must say converged. On 0a76090a75 the reported point is not a maximum: the
-    // status must give the gradient found there, along the parameter it names.
+    // and the fit must say converged.
     let table = real_table();
     let model = load_model("gainloss-linear").unwrap();
-    let fit_of = |id: &str| {
-        let subject = table.subjects.iter().find(|s| s.id == id).unwrap();
-        let lik = SubjectLikelihood::new(&model, subject, None).unwrap();
-        let fit = valuedrift::fit::fit_subject(&lik, &FitOptions::default());
-        (lik, fit)
-    };
     for id in ["1ca60ed9ea", "ed85eca034", "8055f24909"] {
-        let (lik, fit) = fit_of(id);
+        let (lik, fit) = gainloss_fit(&table, &model, id);
         assert!(fit.converged, "{id}: {}", fit.status);
         for (name, rise) in crate::common::rises_beside_fit(&lik, &fit) {
             assert!(
@@ -242,24 +279,96 @@ fn the_verdict_is_on_the_point_the_fit_reports() {
             );
         }
     }
-    let (lik, fit) = fit_of("0a76090a75");
+}
+
+/// −(ln L + ln prior) of `lik` as a function of the free parameters `moving` only (the others
+/// held at `theta`), for argmin's Nelder–Mead.
+struct HeldExcept<'a, 'b> {
+    lik: &'a SubjectLikelihood<'b>,
+    theta: Vec<f64>,
+    moving: Vec<usize>,
+}
+
+impl argmin::core::CostFunction for HeldExcept<'_, '_> {
+    type Param = Vec<f64>;
+    type Output = f64;
+
+    fn cost(&self, p: &Vec<f64>) -> Result<f64, argmin::core::Error> {
+        let mut theta = self.theta.clone();
+        for (&j, &x) in self.moving.iter().zip(p) {
+            theta[j] = x;
+        }
+        let e = self.lik.evaluate(&theta);
+        Ok(-(e.ln_likelihood + e.ln_prior))
+    }
+}
+
+#[test]
+fn a_slope_left_at_the_best_point_is_converged_only_where_the_curvature_puts_the_maximum_within_reach()
+ {
+    // Sources: the published effort-offer data (MIT licence, above); the Newton decrement
+    // (Boyd & Vandenberghe 2004, Convex Optimization, §9.5.1); an independent derivative-free
+    // search (Nelder & Mead 1965, argmin's implementation). On 0a76090a75 and 27e5e64416 L-BFGS
+    // ends with a gradient of 5.4e-3 / 3.1e-3 (above the absolute 1e-3) on a kink of the
+    // gain-loss likelihood; the Hessian puts the maximum about 1e-3 standard errors away and a
+    // Newton step gains about 1e-6 / 1e-5 in ln L, so the fits say converged and give those
+    // figures. Checked from outside: a Nelder–Mead search over the interior parameters, started
+    // from the reported point, finds nothing higher by more than 1e-4 (twice the test's 5e-5);
+    // on 2026-12-03 it found 1.07e-6 and 8.3e-6, what the Newton step predicts (and started
+    // 0.05 away along the first interior parameter it climbs back to the same gains).
+    // On 4ed564c629 the Hessian at the reported point is not positive definite: no distance to
+    // the maximum can be told, and the fit stays flagged with the gradient it states.
+    let table = real_table();
+    let model = load_model("gainloss-linear").unwrap();
+    for id in ["0a76090a75", "27e5e64416"] {
+        let (lik, fit) = gainloss_fit(&table, &model, id);
+        assert!(fit.converged, "{id}: {}", fit.status);
+        assert!(
+            fit.status.contains(", but the curvature puts the maximum "),
+            "{id}: {}",
+            fit.status
+        );
+        stated_gradient_is_found(&lik, &fit, "gradient ");
+        let theta = fitted_theta(&lik, &fit);
+        let free = model.free_slots();
+        let moving: Vec<usize> = (0..free.len())
+            .filter(|&j| !fit.estimates[free[j]].at_bound)
+            .collect();
+        let start: Vec<f64> = moving.iter().map(|&j| theta[j]).collect();
+        let mut simplex = vec![start.clone()];
+        for k in 0..start.len() {
+            let mut vertex = start.clone();
+            vertex[k] += 0.01;
+            simplex.push(vertex);
+        }
+        let reported = -(fit.log_likelihood + fit.log_prior);
+        let problem = HeldExcept {
+            lik: &lik,
+            theta,
+            moving,
+        };
+        let solver = argmin::solver::neldermead::NelderMead::new(simplex)
+            .with_sd_tolerance(1e-12)
+            .unwrap();
+        let best = argmin::core::Executor::new(problem, solver)
+            .configure(|s| s.max_iters(3000))
+            .run()
+            .unwrap()
+            .state
+            .best_cost;
+        assert!(
+            reported - best <= 1e-4,
+            "{id}: Nelder–Mead from the reported point gains {:.2e} in ln L",
+            reported - best
+        );
+    }
+    let (lik, fit) = gainloss_fit(&table, &model, "4ed564c629");
     assert!(!fit.converged, "{}", fit.status);
-    let rest = fit
-        .status
-        .strip_prefix("not converged: gradient ")
-        .unwrap_or_else(|| panic!("{}", fit.status));
-    let (stated, name) = rest.split_once(" at the best point along ").unwrap();
-    let stated: f64 = stated.parse().unwrap();
-    let free = model.free_slots();
-    let natural: Vec<f64> = free.iter().map(|&s| fit.estimates[s].estimate).collect();
-    let theta = lik.unconstrained(&natural);
-    let j = free
-        .iter()
-        .position(|&s| model.parameters[s].name == name)
-        .unwrap();
-    let found = lik.evaluate(&theta).gradient[j].abs();
     assert!(
-        (found - stated).abs() <= 0.051 * stated,
-        "the status says {stated:.1e} along {name}; the gradient there is {found:.3e}"
+        fit.status
+            .contains("the Hessian there is not positive definite"),
+        "{}",
+        fit.status
     );
+    stated_gradient_is_found(&lik, &fit, "not converged: gradient ");
 }
