@@ -98,12 +98,18 @@ pub const KEY_SUBJECTS: &str = "table_subjects";
 /// `command_line` without `--shard I/N` (or `--shard=I/N`): the command line a single run of
 /// the same fit would record.
 pub fn without_shard(command_line: &[String]) -> Vec<String> {
+    without_option(command_line, OPTION)
+}
+
+/// `command_line` without the option `option` and its value (`--option V` or `--option=V`).
+pub fn without_option(command_line: &[String], option: &str) -> Vec<String> {
     let mut out = Vec::with_capacity(command_line.len());
     let mut args = command_line.iter();
+    let joined = format!("{option}=");
     while let Some(arg) = args.next() {
-        if arg == OPTION {
+        if arg == option {
             args.next();
-        } else if !arg.starts_with(&format!("{OPTION}=")) {
+        } else if !arg.starts_with(&joined) {
             out.push(arg.clone());
         }
     }
@@ -211,6 +217,10 @@ mod tests {
         );
         assert_eq!(
             without_shard(&line("vd fit --shard=2/3 --out a")),
+            line("vd fit --out a")
+        );
+        assert_eq!(
+            without_option(&line("vd fit --threads 4 --out a --threads=2"), "--threads"),
             line("vd fit --out a")
         );
         assert_eq!(

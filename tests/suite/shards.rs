@@ -248,6 +248,55 @@ fn merge_refuses_shards_of_different_runs_and_names_missing_ones() {
     );
 }
 
+#[test]
+fn shards_run_with_other_thread_counts_or_program_paths_merge_into_the_single_run() {
+    // Common practice: a job array's nodes differ in cores and in where the tool is installed,
+    // and fits do not depend on the number of threads (the determinism this project keeps);
+    // so shards that differ only in --threads and in the program's path are one run, and the
+    // merge gives the single run's folder byte for byte (its record takes shard 1's command
+    // line). Another seed is still refused (merge_refuses_shards_of_different_runs_…).
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("fit");
+    succeed(&mut fit(&out, &[]));
+    let single = contents(&out);
+    std::fs::remove_dir_all(&out).unwrap();
+    let copy = dir.path().join("elsewhere").join("valuedrift-copy");
+    std::fs::create_dir_all(copy.parent().unwrap()).unwrap();
+    std::fs::copy(bin().get_program(), &copy).unwrap();
+    let folders = run_shards(&dir.path().join("shards"), 3, &[], |shard_out, options| {
+        let mut command = fit_data(&demo_file("orchard_trials.csv"), shard_out, options);
+        if options.contains(&"2/3") {
+            let args: Vec<_> = command.get_args().map(|a| a.to_owned()).collect();
+            let mut other = Command::new(&copy);
+            let mut threads_next = false;
+            for arg in args {
+                other.arg(if std::mem::take(&mut threads_next) {
+                    "2".into()
+                } else {
+                    threads_next = arg == "--threads";
+                    arg
+                });
+            }
+            command = other;
+        }
+        command
+    });
+    let record = |i: usize| -> serde_json::Value {
+        serde_json::from_slice(&std::fs::read(folders[i].join("run.json")).unwrap()).unwrap()
+    };
+    assert_ne!(
+        record(0)["command_line"],
+        record(1)["command_line"],
+        "shard 2 ran with another program path and thread count"
+    );
+    merged(&folders, &out);
+    assert_same_files(
+        &single,
+        &contents(&out),
+        "shard 2 with 2 threads, another path",
+    );
+}
+
 /// `merge` of `folders` into `out`, asserting that it succeeded.
 fn merged(folders: &[PathBuf], out: &Path) {
     let output = merge(folders, out);

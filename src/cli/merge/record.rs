@@ -105,7 +105,7 @@ pub(super) fn read_shards(
 
 /// The top-level keys of two shards' run records that differ beyond what differs between
 /// shards of one run (the shard's number, its fits, pairs not fitted and trimming counts, and
-/// the output folder of the command line).
+/// of the command line the output folder, the threads and the program's path).
 fn differing_keys(a: &Value, b: &Value) -> Vec<String> {
     let (a, b) = (run_identity(a), run_identity(b));
     let empty = serde_json::Map::new();
@@ -135,7 +135,16 @@ fn run_identity(record: &Value) -> Value {
         o.remove("trimmed_total");
         o.remove("trimmed_per_subject");
     }
-    r["command_line"] = serde_json::json!(shard::with_out(&strings(&r["command_line"]), ""));
+    // Neither the output folder, the threads (fits are the same whatever their number) nor
+    // the program's path (the tool's version is compared on its own) makes shards differ.
+    let mut line = shard::without_option(
+        &shard::with_out(&strings(&r["command_line"]), ""),
+        "--threads",
+    );
+    if let Some(program) = line.first_mut() {
+        program.clear();
+    }
+    r["command_line"] = serde_json::json!(line);
     r
 }
 
