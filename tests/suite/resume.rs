@@ -179,6 +179,14 @@ fn resume_refuses_changed_inputs_keeps_the_journal_and_drops_a_torn_record() {
     std::fs::write(dir.join("m.toml"), changed).unwrap();
     refused(&["--resume"], "the definition of model gainloss-linear");
     std::fs::write(dir.join("m.toml"), &model).unwrap();
+    // Changed reading: a missing-value token, said in words (common practice: an error message
+    // names what changed in the user's terms, not the program's internals).
+    refused(
+        &["--resume", "--missing", "NA,-99"],
+        "how the data file is read (--columns, --by, --choice-codes, --missing) (journal: \
+         columns by their own names, choices by their labels a and b, missing only empty cells; \
+         now: columns by their own names, choices by their labels a and b, missing NA -99)",
+    );
 
     // A record torn by a crash: the first half of a copy of the last record, without its end.
     let text = String::from_utf8(journalled.clone()).unwrap();

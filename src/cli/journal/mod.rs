@@ -124,7 +124,7 @@ impl Header {
         Header {
             version: env!("CARGO_PKG_VERSION").to_string(),
             data_sha256: data_sha256.to_string(),
-            reading: format!("{columns:?}"),
+            reading: columns.describe(),
             models: models
                 .iter()
                 .map(|m| (m.name.clone(), m.text.clone()))

@@ -318,6 +318,36 @@ impl ColumnMap {
         Ok(self)
     }
 
+    /// How the file is read, in words (for messages and the journal of a resumable run): the
+    /// columns read under another name as `canonical=file`, the choice codes as `code=side`
+    /// and the texts read as missing.
+    pub fn describe(&self) -> String {
+        let renamed: Vec<String> = CANONICAL
+            .iter()
+            .zip(&self.file)
+            .filter(|(canonical, file)| **canonical != file.as_str())
+            .map(|(canonical, file)| format!("{canonical}={file}"))
+            .collect();
+        let codes: Vec<String> = self
+            .choice_codes
+            .iter()
+            .map(|(code, choice)| format!("{code}={}", choice.as_str()))
+            .collect();
+        let list = |items: &[String], none: &str| {
+            if items.is_empty() {
+                none.to_string()
+            } else {
+                items.join(" ")
+            }
+        };
+        format!(
+            "columns {}, choices {}, missing {}",
+            list(&renamed, "by their own names"),
+            list(&codes, "by their labels a and b"),
+            list(&self.missing, "only empty cells")
+        )
+    }
+
     /// The choice codes given with [`ColumnMap::with_choice_codes`] (empty: `a` and `b`).
     pub fn choice_codes(&self) -> &[(String, Choice)] {
         &self.choice_codes
