@@ -326,16 +326,24 @@ fn main() {
             .zip(&r.interval)
             .filter(|(t, i)| i.is_some_and(|(lo, hi)| lo <= **t && **t <= hi))
             .count();
+        // A correlation needs at least three participants (fewer when refitting a few).
+        let correlation = match pearson(&r.truth, &r.estimate) {
+            Some(v) if r.truth.len() >= 3 => format!("r = {v:.3}"),
+            _ => "r not computed (fewer than 3 participants)".to_string(),
+        };
         println!(
-            "{label}: r = {:.3}, median |error| {:.3} ({} participants); its 95 % interval \
+            "{label}: {correlation}, median |error| {:.3} ({} participants); its 95 % interval \
              holds the generating value in {covered} of the {with_interval} fits that give one",
-            pearson(&r.truth, &r.estimate).unwrap_or(f64::NAN),
             median(errors),
             r.truth.len()
         );
     };
+    let drawn = match &only {
+        Some(o) => format!("participants {o:?} of {n}"),
+        None => format!("{n} participants"),
+    };
     println!(
-        "{n} participants × {trials} trials per generating model, {starts} starts per fit, {} ranges",
+        "{drawn} × {trials} trials per generating model, {starts} starts per fit, {} ranges",
         if wide { "spanning" } else { "orchard" }
     );
     summary(
