@@ -149,14 +149,14 @@ pub fn run(
         }
     }
     let command_line = shard::without_shard(command_line);
-    let mut record = record(&plan, plan_path, &command_line);
+    let mut record = record(&plan, plan_path, &command_line)?;
     let jobs = plan.jobs();
     let studies = match from_shards {
         Some(done) => {
             if done.recorded != record {
                 return Err(format!(
-                    "{}: the plan, its models or their populations differ from those the shards \
-                     recorded in {RECORD}: the files have changed since the shards ran",
+                    "{}: the plan, its design, its models or their populations differ from those \
+                     the shards recorded in {RECORD}: the files have changed since the shards ran",
                     plan_path.display()
                 )
                 .into());
@@ -265,15 +265,27 @@ fn stage_record(
     })
 }
 
-/// The run record: the plan as read, each generating model's population in words, the models'
-/// definitions and the command line.
-fn record(plan: &Plan, plan_path: &Path, command_line: &[String]) -> serde_json::Value {
-    serde_json::json!({
+/// The run record: the plan as read, the SHA-256 of its design and population files (so that
+/// shards simulated on different designs are not merged as one run), each generating model's
+/// population in words, the models' definitions and the command line.
+fn record(
+    plan: &Plan,
+    plan_path: &Path,
+    command_line: &[String],
+) -> Result<serde_json::Value, crate::files::InputError> {
+    let digest = |path: &Path| crate::files::sha256_of_file(&beside(plan_path, path));
+    let population_sha256 = match &plan.spec.population_file {
+        Some(path) => Some(digest(path)?),
+        None => None,
+    };
+    Ok(serde_json::json!({
         "tool": "valuedrift",
         "version": env!("CARGO_PKG_VERSION"),
         "command_line": command_line,
         "plan_file": plan_path.display().to_string(),
         "plan": plan.spec,
+        "design_sha256": digest(&plan.spec.design)?,
+        "population_file_sha256": population_sha256,
         "groups": plan.groups,
         "models": plan.candidates.iter().map(|m| serde_json::json!({
             "name": m.name,
@@ -293,7 +305,7 @@ fn record(plan: &Plan, plan_path: &Path, command_line: &[String]) -> serde_json:
             }))
         }).collect::<Vec<_>>(),
         "caution": super::RESEARCH_CAUTION,
-    })
+    }))
 }
 
 fn optional(x: Option<f64>) -> String {

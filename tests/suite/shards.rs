@@ -430,12 +430,11 @@ fn merge_refuses_mixed_and_foreign_check_shards_and_names_missing_ones() {
 /// trials, 2 studies), written into `dir` with the demo design; its path.
 fn small_plan(dir: &Path) -> PathBuf {
     let quick = Path::new(env!("CARGO_MANIFEST_DIR")).join("examples/plan/quick-plan.toml");
+    // The design beside the plan, so that a test may change it.
+    std::fs::copy(demo_file("orchard_design.csv"), dir.join("design.csv")).unwrap();
     let text = std::fs::read_to_string(quick)
         .unwrap()
-        .replace(
-            "\"../../demo-data/orchard_design.csv\"",
-            &format!("{:?}", demo_file("orchard_design.csv").to_str().unwrap()),
-        )
+        .replace("\"../../demo-data/orchard_design.csv\"", "\"design.csv\"")
         .replace("participants = [4, 8]", "participants = [3, 4]")
         .replace("trials = [60, 120]", "trials = [40, 60]")
         .replace("studies = 3", "studies = 2");
@@ -483,4 +482,36 @@ fn merged_plan_shards_equal_a_single_plan_byte_for_byte() {
     std::fs::write(&file, text.replace("target_r = 0.8", "target_r = 0.9")).unwrap();
     let folders = shard_folders(&dir.path().join("3-shards"), 3);
     refused(&folders, &out, &["have changed since the shards ran"]);
+    // So is a design file changed after the shards ran (its rows are not in the plan file).
+    std::fs::write(&file, &text).unwrap();
+    let design = dir.path().join("design.csv");
+    let rows = std::fs::read_to_string(&design).unwrap();
+    // The last row's effort_a (the seventh column) moved by 0.1.
+    let (head, last) = rows.trim_end().rsplit_once('\n').unwrap();
+    let mut cells: Vec<String> = last.split(',').map(str::to_string).collect();
+    let effort: f64 = cells[6].parse().unwrap();
+    cells[6] = format!(
+        "{}",
+        if effort > 0.5 {
+            effort - 0.1
+        } else {
+            effort + 0.1
+        }
+    );
+    std::fs::write(&design, format!("{head}\n{}\n", cells.join(","))).unwrap();
+    refused(
+        &folders,
+        &out,
+        &["its design", "have changed since the shards ran"],
+    );
+    // And shards simulated on different designs are not one run.
+    let other = run_shards(&dir.path().join("other-design"), 3, &[], |out, o| {
+        plan(&file, out, o)
+    });
+    std::fs::write(&design, &rows).unwrap();
+    refused(
+        &[folders[0].clone(), other[1].clone(), folders[2].clone()],
+        &out,
+        &["not shards of one run", "design_sha256"],
+    );
 }
