@@ -145,6 +145,19 @@ pub fn check_threads(threads: usize) -> Result<usize, OptionError> {
     Ok(threads)
 }
 
+/// [`check_threads`] for a command given on this machine; for a command that `merge` runs again
+/// from a shard's recorded command line (`from_shards`), the recorded count capped at what this
+/// machine allows, since the shards may have run on nodes with more cores and results do not
+/// depend on the number of threads.
+pub fn threads_here(threads: usize, from_shards: bool) -> Result<usize, OptionError> {
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    if from_shards {
+        Ok(threads.min(THREADS_PER_CORE * cores))
+    } else {
+        check_threads(threads)
+    }
+}
+
 /// Refuses a count below `least` for the option `name`, saying what it counts.
 pub fn check_at_least(
     name: &'static str,

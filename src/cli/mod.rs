@@ -755,7 +755,7 @@ fn run_as(
             replace,
         } => demo::run(
             &out,
-            input::check_threads(threads)?,
+            input::threads_here(threads, from_shards.is_some())?,
             replace.replace,
             command_line,
         ),
@@ -786,7 +786,7 @@ fn run_as(
             let shard = shard.as_deref().map(shard::Shard::parse).transpose()?;
             let columns = reading.apply(fit::column_map(&columns, by.as_deref())?)?;
             let starts = input::check_at_least("--starts", starts, 1, "start per subject")?;
-            let threads = input::check_threads(threads)?;
+            let threads = input::threads_here(threads, from_shards.is_some())?;
             let em_iterations =
                 input::check_at_least("--em-iterations", em_iterations, 1, "EM iteration")?;
             let ibic_samples = input::check_at_least(
@@ -953,7 +953,7 @@ fn run_as(
         } => plan::run(
             &file,
             &out,
-            input::check_threads(threads)?,
+            input::threads_here(threads, from_shards.is_some())?,
             replace.replace,
             command_line,
             (

@@ -325,6 +325,27 @@ fn hierarchical_fit_from_merged_shards_equals_a_single_run() {
     assert!(folders[0].join("shard_em_starts.csv").exists());
     merged(&folders, &out);
     assert_same_files(&single, &contents(&out), "3 hierarchical shards");
+    // Merge runs shard 1's recorded command again (for the EM steps): recorded on a node with
+    // far more cores than this machine's, its --threads is capped here rather than refused, and
+    // every table is the single run's.
+    let run_json = folders[0].join("run.json");
+    let mut first: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(&run_json).unwrap()).unwrap();
+    let at = first["command_line"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .position(|a| a == "--threads")
+        .unwrap()
+        + 1;
+    first["command_line"][at] = serde_json::json!("4096");
+    std::fs::write(&run_json, serde_json::to_vec(&first).unwrap()).unwrap();
+    let again = dir.path().join("again");
+    merged(&folders, &again);
+    let again = contents(&again);
+    for (file, bytes) in single.iter().filter(|(f, _)| *f != Path::new("run.json")) {
+        assert!(again[file] == *bytes, "{} differs", file.display());
+    }
 }
 
 /// `check` of the fit in `fits` of `data` (with the demo's model) with 20 replicates into `out`,
