@@ -185,7 +185,7 @@ fn resume_refuses_changed_inputs_keeps_the_journal_and_drops_a_torn_record() {
         &["--resume", "--missing", "NA,-99"],
         "how the data file is read (--columns, --by, --choice-codes, --missing) (journal: \
          columns by their own names, choices by their labels a and b, missing only empty cells; \
-         now: columns by their own names, choices by their labels a and b, missing NA -99)",
+         now: columns by their own names, choices by their labels a and b, missing \"NA\" \"-99\")",
     );
 
     // A record torn by a crash: the first half of a copy of the last record, without its end.

@@ -319,20 +319,22 @@ impl ColumnMap {
     }
 
     /// How the file is read, in words (for messages and the journal of a resumable run): the
-    /// columns read under another name as `canonical=file`, the choice codes as `code=side`
-    /// and the texts read as missing.
+    /// columns read under another name as `canonical="file"`, the choice codes as
+    /// `"code"=side` and the texts read as missing, each quoted, so that two readings never
+    /// read alike.
     pub fn describe(&self) -> String {
         let renamed: Vec<String> = CANONICAL
             .iter()
             .zip(&self.file)
             .filter(|(canonical, file)| **canonical != file.as_str())
-            .map(|(canonical, file)| format!("{canonical}={file}"))
+            .map(|(canonical, file)| format!("{canonical}={file:?}"))
             .collect();
         let codes: Vec<String> = self
             .choice_codes
             .iter()
-            .map(|(code, choice)| format!("{code}={}", choice.as_str()))
+            .map(|(code, choice)| format!("{code:?}={}", choice.as_str()))
             .collect();
+        let missing: Vec<String> = self.missing.iter().map(|m| format!("{m:?}")).collect();
         let list = |items: &[String], none: &str| {
             if items.is_empty() {
                 none.to_string()
@@ -344,7 +346,7 @@ impl ColumnMap {
             "columns {}, choices {}, missing {}",
             list(&renamed, "by their own names"),
             list(&codes, "by their labels a and b"),
-            list(&self.missing, "only empty cells")
+            list(&missing, "only empty cells")
         )
     }
 
