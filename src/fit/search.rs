@@ -44,7 +44,8 @@ use nalgebra::DMatrix;
 /// Relative distance to a finite bound below which an estimate counts as at the bound.
 pub(crate) const AT_BOUND: f64 = 1e-4;
 
-/// Largest |∂ log-posterior/∂θ| of an interior parameter accepted as converged.
+/// Largest |∂ log-posterior/∂θ| of an interior parameter accepted as converged by the slopes
+/// alone; a point with a larger one may still pass the curvature-scaled [`newton_test`].
 pub const GRADIENT_CONVERGED: f64 = 1e-3;
 
 /// Gain of the objective (ln L + ln prior) below which a point whose slopes are not all below
@@ -137,12 +138,16 @@ struct Findings {
     /// or of a numerical-engine model the central difference of [`ascent`]; 0 along a kink and
     /// for a parameter at a bound (which [`Findings::interior`] leaves out).
     gradient: Vec<f64>,
+    /// Along each free parameter whose sides [`ascent`] measured: the steepest one-sided rise
+    /// and the side it is on (+1 or −1).
+    rises: Vec<Option<(f64, f64)>>,
     /// Free parameters (indices) not at a bound.
     interior: Vec<usize>,
     /// The objective (ln L + ln prior) at the point.
     at_theta: f64,
-    /// The curvature-scaled test ([`newton_test`]), where the slopes alone did not pass.
-    newton: Option<Newton>,
+    /// The curvature-scaled test ([`newton_test`]), where the slopes alone did not pass and
+    /// the test was made.
+    newton: Option<NewtonOutcome>,
     /// Likelihood evaluations the examination made (the trace of choice probabilities counts
     /// as one).
     evaluations: usize,
@@ -156,7 +161,8 @@ impl Findings {
     /// The slopes at the point pass: every one below [`GRADIENT_CONVERGED`], or the curvature
     /// puts the maximum within [`NEWTON_GAIN`] of the point ([`newton_test`]).
     fn stationary(&self) -> bool {
-        self.interior_gradient < GRADIENT_CONVERGED || self.newton.is_some_and(|n| n.passes())
+        self.interior_gradient < GRADIENT_CONVERGED
+            || matches!(self.newton, Some(NewtonOutcome::Measured(n)) if n.passes())
     }
 
     fn suspects(&self) -> Vec<usize> {
@@ -462,10 +468,14 @@ fn search_from(
         work.examine += findings.evaluations;
         verified = false;
     }
-    let (taken, evaluations) =
-        newton_test(likelihood, &runs[best].theta, &mut findings, &curvature);
-    work.examine += evaluations;
-    curvature = taken.or(curvature);
+    // The curvature-scaled test decides only for a point the searches verified (after rounds
+    // that kept improving, the fit is flagged whatever it finds).
+    if verified {
+        let (taken, evaluations) =
+            newton_test(likelihood, &runs[best].theta, &mut findings, &curvature);
+        work.examine += evaluations;
+        curvature = taken.or(curvature);
+    }
     verified = verified && !findings.degenerate() && findings.stationary();
     let verdict = judge(likelihood, &runs[best], &findings, verified, runs.len());
     work.curvature = curvature_evaluations;
@@ -498,8 +508,12 @@ fn restart_point(findings: &Findings, theta: &[f64]) -> Vec<f64> {
 /// likelihood, or of the numerical engine's grid-held derivatives, can overstate it, and then
 /// the model's step falls short of the maximum by the factor of the overstatement. So the
 /// objective itself is measured along the step's ray, at 1, 4, 16, … [`NEWTON_RAY`] steps until
-/// it falls below the point's value (on a quadratic with the right H it does at 4 steps, so this
-/// costs two evaluations): the largest gain found there is the realised one. The point passes
+/// it is below the point's value twice in a row ([`ray_gain`]; on a quadratic with the right H
+/// it is at 4 and 16 steps, so this costs three evaluations): the largest gain found there is
+/// the realised one. A curvature overstated by much more than [`NEWTON_RAY`] would still pass a
+/// point short of the maximum. And the slopes must agree with the sides: where the objective
+/// rises against a slope or much faster than it ([`RISE_MARGIN`]), the point is in a dip or on a
+/// step and the test is not made. The point passes
 /// when both gains, predicted and realised, are at most [`NEWTON_GAIN`]. Sets [`Findings::newton`] (None where H is not
 /// positive definite: no quadratic model with a maximum) and returns the Hessian taken with its
 /// θ (`known` when taken there already), for the standard errors, and the evaluations made.
@@ -525,34 +539,78 @@ fn newton_test(
     };
     let interior = &findings.interior;
     let slopes: Vec<f64> = interior.iter().map(|&j| findings.gradient[j]).collect();
-    findings.newton =
-        newton_decrement(&slopes, &principal_block(&h, interior)).map(|(decrement, step)| {
-            let mut full_step = vec![0.0; theta.len()];
-            for (&j, s) in interior.iter().zip(step) {
-                full_step[j] = s;
+    let block = principal_block(&h, interior);
+    // The slope must say which way and how fast the objective rises: where a side rises more
+    // steeply than the slope (beyond RISE_MARGIN and the absolute test's 1e-3), or on the side
+    // the slope points away from, the point sits in a dip or on a step of the objective, and a
+    // quadratic model built on that slope says nothing about the distance to the maximum.
+    let against = interior.iter().copied().find(|&j| {
+        findings.rises[j]
+            .is_some_and(|(rise, side)| rises_against(rise, side, findings.gradient[j]))
+    });
+    let finite = slopes.iter().chain(block.iter()).all(|x| x.is_finite());
+    findings.newton = Some(match (against, finite) {
+        (Some(j), _) => NewtonOutcome::Against(j),
+        (None, false) => NewtonOutcome::NotFinite,
+        (None, true) => match newton_decrement(&slopes, &block) {
+            None => NewtonOutcome::NotPositiveDefinite,
+            Some((decrement, step)) => {
+                let mut full_step = vec![0.0; theta.len()];
+                for (&j, s) in interior.iter().zip(step) {
+                    full_step[j] = s;
+                }
+                let (realised, made) = ray_gain(
+                    |moved| {
+                        let e = likelihood.evaluate(moved);
+                        e.ln_likelihood + e.ln_prior
+                    },
+                    theta,
+                    &full_step,
+                    findings.at_theta,
+                );
+                evaluations += made;
+                NewtonOutcome::Measured(Newton {
+                    decrement,
+                    predicted: 0.5 * decrement * decrement,
+                    realised,
+                })
             }
-            let (realised, made) = ray_gain(
-                |moved| {
-                    let e = likelihood.evaluate(moved);
-                    e.ln_likelihood + e.ln_prior
-                },
-                theta,
-                &full_step,
-                findings.at_theta,
-            );
-            evaluations += made;
-            Newton {
-                decrement,
-                predicted: 0.5 * decrement * decrement,
-                realised,
-            }
-        });
+        },
+    });
     (Some((theta.to_vec(), h)), evaluations)
 }
 
+/// The objective rises beside a point by `rise` per unit on the side `side` (+1 or −1) against
+/// the point's slope `slope`, or more than [`RISE_MARGIN`] times faster (beyond the absolute
+/// test's [`GRADIENT_CONVERGED`]): see [`newton_test`].
+fn rises_against(rise: f64, side: f64, slope: f64) -> bool {
+    rise >= GRADIENT_CONVERGED
+        && (rise > RISE_MARGIN * slope.abs() + GRADIENT_CONVERGED || side * slope <= 0.0)
+}
+
+/// How much steeper than its slope the objective may rise on one side of a point (over a step
+/// of [`SLOPE_STEP`]) before [`newton_test`] declines to judge it: where f is smooth the rise is
+/// the slope less ½·f''·h, so any excess is noise of the differences (common practice).
+const RISE_MARGIN: f64 = 1.5;
+
+/// What [`newton_test`] found.
+#[derive(Clone, Copy, Debug, PartialEq)]
+enum NewtonOutcome {
+    /// The Newton step's gains, predicted and measured.
+    Measured(Newton),
+    /// Along this parameter the objective rises against its slope, or much faster than it.
+    Against(usize),
+    /// The Hessian on the interior parameters is not positive definite (or numerically
+    /// singular): the quadratic model has no maximum.
+    NotPositiveDefinite,
+    /// A slope or an entry of the Hessian is not finite.
+    NotFinite,
+}
+
 /// The largest gain of `objective` over `at_theta` (its value at θ) at θ + m·`step` for
-/// m = 1, 4, 16, … up to [`NEWTON_RAY`], stopping after the first m where it falls below
-/// `at_theta` (see [`newton_test`]); with the evaluations made. A NaN gain is returned as NaN.
+/// m = 1, 4, 16, … up to [`NEWTON_RAY`], stopping after two m in a row where it is below
+/// `at_theta` (one fall may be a step of the numerical engine's objective at a rung of its
+/// grid; see [`newton_test`]); with the evaluations made. A NaN gain is returned as NaN.
 fn ray_gain(
     mut objective: impl FnMut(&[f64]) -> f64,
     theta: &[f64],
@@ -561,6 +619,7 @@ fn ray_gain(
 ) -> (f64, usize) {
     let mut realised = f64::NEG_INFINITY;
     let mut evaluations = 0;
+    let mut falls = 0;
     let mut multiple = 1.0;
     while multiple <= NEWTON_RAY {
         let moved: Vec<f64> = theta
@@ -575,7 +634,11 @@ fn ray_gain(
         } else {
             realised.max(gain)
         };
-        if gain.is_nan() || gain < 0.0 {
+        if gain.is_nan() {
+            break;
+        }
+        falls = if gain < 0.0 { falls + 1 } else { 0 };
+        if falls == 2 {
             break;
         }
         multiple *= 4.0;
@@ -800,13 +863,27 @@ fn judge(
             "{}{}",
             slope_left(findings, &names),
             match findings.newton {
-                Some(n) => format!(
-                    "; a Newton step gains {:.1e} in ln L by the curvature ({:.1e} measured), \
-                     more than {NEWTON_GAIN:.0e}",
+                Some(NewtonOutcome::Measured(n)) if n.predicted > NEWTON_GAIN => format!(
+                    "; the curvature puts the maximum {:.1e} standard errors away, {:.1e} \
+                     higher in ln L: more than {NEWTON_GAIN:.0e}",
+                    n.decrement, n.predicted
+                ),
+                Some(NewtonOutcome::Measured(n)) => format!(
+                    "; the curvature puts the maximum {:.1e} higher in ln L, but along the \
+                     Newton step the objective rises by {:.1e}: more than {NEWTON_GAIN:.0e}",
                     n.predicted, n.realised
                 ),
-                None if findings.interior_gradient.is_finite() => {
-                    "; the Hessian there is not positive definite, so how far the maximum is cannot be told".to_string()
+                Some(NewtonOutcome::Against(j)) => format!(
+                    "; along {} the objective rises beside the point against its slope or much \
+                     faster (a dip or a step of the objective), so the curvature cannot tell how \
+                     far the maximum is",
+                    names[j]
+                ),
+                Some(NewtonOutcome::NotPositiveDefinite) => "; the Hessian there is not \
+                     positive definite, so how far the maximum is cannot be told"
+                    .to_string(),
+                Some(NewtonOutcome::NotFinite) => {
+                    "; a slope or the Hessian there is not finite".to_string()
                 }
                 None => String::new(),
             }
@@ -831,7 +908,7 @@ fn judge(
             list(&findings.at_bound)
         ),
     };
-    if let Some(n) = findings.newton.filter(|_| problem.is_none()) {
+    if let Some(NewtonOutcome::Measured(n)) = findings.newton.filter(|_| problem.is_none()) {
         status.push_str(&format!(
             "; {}, but the curvature puts the maximum {:.1e} standard errors away, {:.1e} higher \
              in ln L ({:.1e} measured)",
@@ -903,6 +980,11 @@ fn ascent(likelihood: &SubjectLikelihood<'_>, theta: &[f64], at_theta: f64, j: u
     };
     let (up, down) = (side(1.0), side(-1.0));
     let slope = (up.1 - down.1) / (2.0 * SLOPE_STEP);
+    let side = if down.1 > up.1 || up.1.is_nan() {
+        -1.0
+    } else {
+        1.0
+    };
     // The higher side, a NaN losing to a number (as f64::max has it).
     let higher = if down.1 > up.1 || up.1.is_nan() {
         down
@@ -921,6 +1003,7 @@ fn ascent(likelihood: &SubjectLikelihood<'_>, theta: &[f64], at_theta: f64, j: u
         rise,
         uphill,
         slope,
+        side,
     }
 }
 
@@ -933,6 +1016,8 @@ struct Ascent {
     /// The central difference (f(θ + h·e_j) − f(θ − h·e_j)) / 2h, the signed slope to O(h²)
     /// where f is smooth (common practice).
     slope: f64,
+    /// +1 where the side θ + h·e_j is the higher, −1 where θ − h·e_j is.
+    side: f64,
 }
 
 /// Examines the point θ: bounds, flat parameters, value-blindness, baseline.
@@ -958,6 +1043,7 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
     let mut kinks = Vec::new();
     let mut uphill = None;
     let mut gradient = vec![0.0; free.len()];
+    let mut rises = vec![None; free.len()];
     let (mut interior_gradient, mut steepest) = (0.0, None);
     let by_rise = uses_numerical_engine(model.component_names[3]);
     for &j in &interior {
@@ -969,6 +1055,7 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
             evaluations.set(evaluations.get() + 2);
             let measured = ascent(likelihood, theta, at_theta, j);
             gradient[j] = measured.slope;
+            rises[j] = Some((measured.rise, measured.side));
             if measured.rise > interior_gradient {
                 (interior_gradient, steepest, uphill) = (measured.rise, Some(j), measured.uphill);
             }
@@ -978,7 +1065,9 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
         let mut slope = evaluation.gradient[j].abs();
         if slope >= GRADIENT_CONVERGED {
             evaluations.set(evaluations.get() + 2);
-            let rise = ascent(likelihood, theta, at_theta, j).rise;
+            let measured = ascent(likelihood, theta, at_theta, j);
+            let rise = measured.rise;
+            rises[j] = Some((rise, measured.side));
             if rise < GRADIENT_CONVERGED {
                 // On a kink of a maximum: no slope to climb along it.
                 gradient[j] = 0.0;
@@ -1030,6 +1119,7 @@ fn examine(likelihood: &SubjectLikelihood<'_>, plan: &StartPlan, theta: &[f64]) 
         kinks,
         uphill,
         gradient,
+        rises,
         interior,
         at_theta,
         newton: None,
@@ -1072,14 +1162,48 @@ mod tests {
     }
 
     /// Boyd & Vandenberghe 2004, §9.5.1: with the right curvature the Newton step reaches the
-    /// maximum of a quadratic and gains exactly λ²/2; four steps land as far beyond it as the
-    /// point is before it, and lower (so the ray stops after two evaluations).
+    /// maximum of a quadratic and gains exactly λ²/2; 4 and 16 steps land 3 and 15 times as far
+    /// beyond it as the point is before it, below the point (9 and 225 times its shortfall), so
+    /// the ray stops after three evaluations.
     #[test]
-    fn with_the_right_curvature_the_ray_confirms_the_predicted_gain_in_two_evaluations() {
+    fn with_the_right_curvature_the_ray_confirms_the_predicted_gain_in_three_evaluations() {
         let (predicted, realised, made) = gains_on_a_parabola(1500.0, 1500.0, 1e-6);
         assert!((predicted - 1e-6).abs() < 1e-15);
         assert!((realised - 1e-6).abs() < 1e-12, "{realised}");
-        assert_eq!(made, 2);
+        assert_eq!(made, 3);
+    }
+
+    /// Common practice (at a smooth point the objective rises on the side its slope points to,
+    /// by the slope less ½·f''·h per unit): a V-shaped dip whose gradient is one side's slope,
+    /// or a side rising far faster than the slope, is refused; a smooth rise is not.
+    #[test]
+    fn rises_against_the_slope_are_told_from_a_smooth_rise() {
+        // Smooth: slope 5e-3, the rise on its side slightly less.
+        assert!(!rises_against(4.9e-3, 1.0, 5e-3));
+        assert!(!rises_against(4.9e-3, -1.0, -5e-3));
+        // A dip: the gradient is the right side's slope, but the left side rises as well.
+        assert!(rises_against(5e-3, -1.0, 5e-3));
+        // A step of the objective on the slope's own side.
+        assert!(rises_against(0.1, 1.0, 5e-3));
+        // Rises below the absolute test are no evidence either way.
+        assert!(!rises_against(5e-4, -1.0, 5e-3));
+    }
+
+    /// Common practice (the numerical engine's objective steps at the rungs of its grid): one
+    /// fall along the ray does not end it; the gain beyond it is found.
+    #[test]
+    fn one_fall_along_the_ray_does_not_hide_the_gain_beyond_it() {
+        // Below the point at 1 step, 4e-3 above it at 4, below again at 16 and 64.
+        let bump_after_a_fall = |p: &[f64]| {
+            if (1.5..5.0).contains(&p[0]) {
+                4e-3
+            } else {
+                -1.0
+            }
+        };
+        let (realised, made) = ray_gain(bump_after_a_fall, &[0.0], &[1.0], 0.0);
+        assert_eq!(realised, 4e-3);
+        assert_eq!(made, 4);
     }
 
     /// Common practice (a curvature measured by differences across a kink or a grid step can be

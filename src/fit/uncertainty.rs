@@ -50,10 +50,11 @@ pub fn newton_decrement(gradient: &[f64], hessian: &DMatrix<f64>) -> Option<(f64
         return None;
     }
     let step = hessian.clone().cholesky()?.solve(&g);
-    let decrement = g.dot(&step).max(0.0).sqrt();
-    decrement
-        .is_finite()
-        .then(|| (decrement, step.iter().copied().collect()))
+    let squared = g.dot(&step);
+    // A NaN or infinite product (a numerically singular H) is no decrement; f64::max would
+    // turn a NaN into 0.
+    (squared.is_finite() && step.iter().all(|x| x.is_finite()))
+        .then(|| (squared.max(0.0).sqrt(), step.iter().copied().collect()))
 }
 
 /// Likelihood evaluations [`summarise`] makes for `n_free` free parameters: the point itself

@@ -314,8 +314,9 @@ fn a_slope_left_at_the_best_point_is_converged_only_where_the_curvature_puts_the
     // Newton step gains about 1e-6 / 1e-5 in ln L, so the fits say converged and give those
     // figures. Checked from outside: a Nelder–Mead search over the interior parameters, started
     // from the reported point, finds nothing higher by more than 1e-4 (twice the test's 5e-5);
-    // on 2026-12-03 it found 1.07e-6 and 8.3e-6, what the Newton step predicts (and started
-    // 0.05 away along the first interior parameter it climbs back to the same gains).
+    // on 2026-12-03 it found 1.07e-6 and 8.3e-6, what the Newton step predicts (and, in a run
+    // by hand with its simplex started 0.05 away along the first interior parameter, it
+    // climbed back to the same gains).
     // On 4ed564c629 the Hessian at the reported point is not positive definite: no distance to
     // the maximum can be told, and the fit stays flagged with the gradient it states.
     let table = real_table();
