@@ -31,6 +31,16 @@ fn fit_data(data: &Path, out: &Path, extra: &[&str]) -> Command {
     command
 }
 
+/// A single `fit` of the demo data with `extra` options into `dir`/fit: that path, removed
+/// again for the merges to write to, and the files the fit wrote there.
+fn single_fit(dir: &Path, extra: &[&str]) -> (PathBuf, BTreeMap<PathBuf, Vec<u8>>) {
+    let out = dir.join("fit");
+    succeed(&mut fit(&out, extra));
+    let single = contents(&out);
+    std::fs::remove_dir_all(&out).unwrap();
+    (out, single)
+}
+
 /// Fits shards 1..=n of the demo data into `dir`/shard-<i> with `extra` options; their folders.
 fn shards(dir: &Path, n: usize, extra: &[&str]) -> Vec<PathBuf> {
     shards_of(&demo_file("orchard_trials.csv"), dir, n, extra)
@@ -125,10 +135,7 @@ fn merged_shards_equal_a_single_run_byte_for_byte() {
     // The single run and the merges write to the same path, since run.json records the command
     // line with its --out (a merged run records the shards' command line without --shard and
     // with the merge's --out).
-    let out = dir.path().join("fit");
-    succeed(&mut fit(&out, &[]));
-    let single = contents(&out);
-    std::fs::remove_dir_all(&out).unwrap();
+    let (out, single) = single_fit(dir.path(), &[]);
     for n in [1, 3, 7] {
         let shard_dir = dir.path().join(format!("{n}-shards"));
         let mut folders = shards(&shard_dir, n, &[]);
@@ -256,10 +263,7 @@ fn shards_run_with_other_thread_counts_or_program_paths_merge_into_the_single_ru
     // merge gives the single run's folder byte for byte (its record takes shard 1's command
     // line). Another seed is still refused (merge_refuses_shards_of_different_runs_…).
     let dir = tempfile::tempdir().unwrap();
-    let out = dir.path().join("fit");
-    succeed(&mut fit(&out, &[]));
-    let single = contents(&out);
-    std::fs::remove_dir_all(&out).unwrap();
+    let (out, single) = single_fit(dir.path(), &[]);
     let copy = dir.path().join("elsewhere").join("valuedrift-copy");
     std::fs::create_dir_all(copy.parent().unwrap()).unwrap();
     std::fs::copy(bin().get_program(), &copy).unwrap();
@@ -314,11 +318,8 @@ fn hierarchical_fit_from_merged_shards_equals_a_single_run() {
     // practice: the EM needs every subject each iteration, so it runs on one node).
     let dir = tempfile::tempdir().unwrap();
     let options = ["--hierarchical", "--by", "group"];
-    let out = dir.path().join("fit");
-    succeed(&mut fit(&out, &options));
-    let single = contents(&out);
+    let (out, single) = single_fit(dir.path(), &options);
     assert!(single.contains_key(Path::new("eb_group_priors.csv")));
-    std::fs::remove_dir_all(&out).unwrap();
     let folders = shards(&dir.path().join("shards"), 3, &options);
     // A shard runs no EM: it has no group tables, only its fits and their optima.
     assert!(!folders[0].join("eb_group_priors.csv").exists());
