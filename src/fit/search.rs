@@ -513,10 +513,10 @@ fn restart_point(findings: &Findings, theta: &[f64]) -> Vec<f64> {
 /// the realised one. A curvature overstated by much more than [`NEWTON_RAY`] would still pass a
 /// point short of the maximum. And the slopes must agree with the sides: where the objective
 /// rises against a slope or much faster than it ([`RISE_MARGIN`]), the point is in a dip or on a
-/// step and the test is not made. The point passes
-/// when both gains, predicted and realised, are at most [`NEWTON_GAIN`]. Sets [`Findings::newton`] (None where H is not
-/// positive definite: no quadratic model with a maximum) and returns the Hessian taken with its
-/// θ (`known` when taken there already), for the standard errors, and the evaluations made.
+/// step and the test is not made. The point passes when both gains, predicted and realised, are
+/// at most [`NEWTON_GAIN`]. Sets [`Findings::newton`] to what was found (or why no test could be
+/// made) and returns the Hessian taken with its θ (`known` when taken there already), for the
+/// standard errors, and the evaluations made.
 fn newton_test(
     likelihood: &SubjectLikelihood<'_>,
     theta: &[f64],
