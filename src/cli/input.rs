@@ -130,7 +130,7 @@ const THREADS_PER_CORE: usize = 4;
 
 /// Refuses a thread count far above the machine's cores (0, all cores, is always accepted).
 pub fn check_threads(threads: usize) -> Result<usize, OptionError> {
-    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let cores = cores();
     if threads > THREADS_PER_CORE * cores {
         return Err(OptionError::new(
             "--threads",
@@ -150,12 +150,16 @@ pub fn check_threads(threads: usize) -> Result<usize, OptionError> {
 /// machine allows, since the shards may have run on nodes with more cores and results do not
 /// depend on the number of threads.
 pub fn threads_here(threads: usize, from_shards: bool) -> Result<usize, OptionError> {
-    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
     if from_shards {
-        Ok(threads.min(THREADS_PER_CORE * cores))
+        Ok(threads.min(THREADS_PER_CORE * cores()))
     } else {
         check_threads(threads)
     }
+}
+
+/// The cores this machine offers the process (1 where that cannot be told).
+fn cores() -> usize {
+    std::thread::available_parallelism().map_or(1, |n| n.get())
 }
 
 /// Refuses a count below `least` for the option `name`, saying what it counts.
