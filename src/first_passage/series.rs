@@ -310,23 +310,45 @@ fn wald_sum(lambda: f64, u: f64, w: f64) -> f64 {
         let kf = k as f64;
         // Level w + 2k, drift −λ towards it, weight e^{2λk}.
         let x = w + 2.0 * kf;
+        let m = kf + 1.0;
+        let y = 2.0 * m - w;
+        let decreasing = x > sqrt_u + lambda.abs() * u;
+        if k > 0 && decreasing && images_bound(lambda, u, sqrt_u, kf, x, y) < ln_pos + LN_SERIES_EPS
+        {
+            // Every image from here on is below SERIES_EPS of the sum without being computed.
+            break;
+        }
         let a = 2.0 * lambda * kf + ln_normal_cdf((-lambda * u - x) / sqrt_u);
         let b = 2.0 * lambda * (kf - x) + ln_normal_cdf((lambda * u - x) / sqrt_u);
         ln_pos = ln_add_exp(ln_pos, ln_add_exp(a, b));
         // Level 2(k+1) − w, drift λ, weight e^{−2λ(k+1)}, subtracted.
-        let m = kf + 1.0;
-        let y = 2.0 * m - w;
         let c = -2.0 * lambda * m + ln_normal_cdf((lambda * u - y) / sqrt_u);
         let d = 2.0 * lambda * (y - m) + ln_normal_cdf((-lambda * u - y) / sqrt_u);
         ln_neg = ln_add_exp(ln_neg, ln_add_exp(c, d));
         let top = a.max(b).max(c).max(d);
-        let past_peak = top < previous_top && x > sqrt_u + lambda.abs() * u;
+        let past_peak = top < previous_top && decreasing;
         if past_peak && top < ln_pos + SERIES_EPS.ln() {
             break;
         }
         previous_top = top;
     }
     ln_sub_exp(ln_pos, ln_neg)
+}
+
+/// An upper bound on the four log-terms of image k of [`wald_sum`] (levels x = w + 2k and
+/// y = 2(k + 1) − w), by the Chernoff bound Φ(z) ≤ e^{−z²/2}/2 for z ≤ 0 (common practice):
+/// where x > √u + |λ|·u every
+/// argument of Φ is below −1, and each bound falls as k grows (its exponent has slope −2x/u or
+/// −2y/u in k), so the bound on image k bounds every later image too. It costs no special
+/// function, where the terms themselves cost four normal tails.
+fn images_bound(lambda: f64, u: f64, sqrt_u: f64, k: f64, x: f64, y: f64) -> f64 {
+    let tail = |z: f64| -0.5 * z * z - std::f64::consts::LN_2;
+    let m = k + 1.0;
+    let a = 2.0 * lambda * k + tail((lambda * u + x) / sqrt_u);
+    let b = 2.0 * lambda * (k - x) + tail((lambda * u - x) / sqrt_u);
+    let c = -2.0 * lambda * m + tail((lambda * u - y) / sqrt_u);
+    let d = 2.0 * lambda * (y - m) + tail((lambda * u + y) / sqrt_u);
+    a.max(b).max(c).max(d)
 }
 
 pub(crate) fn large_time_survival(lambda: f64, u: f64, w: f64) -> f64 {
