@@ -12,7 +12,7 @@ const SMALL_SCALED_DRIFT: f64 = 0.01;
 /// (coth λ − x·coth(λx)) / λ, the standardised mean first-passage time conditional on the bound
 /// at distance fraction 1 − x from the start, an even function of λ; at small |λ| its series
 /// (1 − x²)/3 − λ²(1 − x⁴)/45 + 2λ⁴(1 − x⁶)/945 (from the Laurent series of coth).
-fn conditional_mean_std(lambda: f64, x: f64) -> f64 {
+pub(super) fn conditional_mean_std(lambda: f64, x: f64) -> f64 {
     if lambda.abs() < SMALL_SCALED_DRIFT {
         let l2 = lambda * lambda;
         let x2 = x * x;
