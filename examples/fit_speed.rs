@@ -1,18 +1,23 @@
 //! Benchmark of per-subject fitting and of the whole `fit` process (a benchmark, not a test).
 //!
-//! Simulates subjects on the orchard design (300 trials, model `gainloss-linear`, generating
-//! values inside the documented ranges, fixed seed) and:
+//! Takes 10 invented participants of the orchard design (300 trials, model `gainloss-linear`,
+//! generating values inside the documented ranges): `examples/data/fit_speed_trials.csv`, which
+//! this benchmark's simulation (seed 7) wrote with the sampler of commit aceef5b, every number
+//! at full precision, so that a later change of the sampler (its draws move within its
+//! tolerance, and ln L with them by about 1e-11) does not move the data the fits are compared
+//! on. Another model named as the argument is simulated here instead. Then:
 //! 1. fits the first 8 with 10 starts on one thread in this process, printing per subject ln L
 //!    beside the value the fitter of commit f3593c4 reached on the same subject, and the
 //!    likelihood-with-gradient evaluations of each stage of the fit (screen, each start's
 //!    L-BFGS run, restarts, searches from the interior, face probes, fresh starts, examinations
 //!    of the best point, standard errors);
-//! 2. writes 10 subjects as a CSV trial table and runs the release binary's
-//!    `fit --model gainloss-linear --threads 1` on it several times, printing the whole process's
-//!    wall and processor time per subject beside the processor time of fitting the same 10
-//!    subjects in this process and the start-up of the binary (`--version`); the rest of the
-//!    processor time is start-up, reading, the data screen, writing the tables and run.json. On a machine
-//!    shared with other work, the processor time is the steadier figure.
+//! 2. runs the release binary's `fit --model gainloss-linear --threads 1` on that table (for
+//!    another model, on its 10 subjects written as a CSV trial table) several times, printing
+//!    the whole process's wall and processor time per subject beside the processor time of
+//!    fitting the same 10 subjects in this process and the start-up of the binary
+//!    (`--version`); the rest of the processor time is start-up, reading, the data screen,
+//!    writing the tables and run.json. On a machine shared with other work, the processor time
+//!    is the steadier figure.
 //!
 //! Run with `cargo build --release && cargo run --release --example fit_speed`; another
 //! built-in model may be named as the argument (for example `-- gainloss-wald-race`; the
@@ -24,9 +29,10 @@
 
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
+use std::path::{Path, PathBuf};
 use std::process::Command;
 use std::time::Instant;
-use valuedrift::data::Subject;
+use valuedrift::data::{ColumnMap, Subject, read_trials};
 use valuedrift::fit::{FitOptions, fit_subject, fit_subject_with_work};
 use valuedrift::likelihood::SubjectLikelihood;
 use valuedrift::model::{Model, load_model};
@@ -61,13 +67,20 @@ fn main() {
         .nth(1)
         .unwrap_or_else(|| "gainloss-linear".into());
     let model = load_model(&name).expect("a built-in model");
-    let mut rng = ChaCha8Rng::seed_from_u64(7);
-    let subjects: Vec<_> = (0..PROCESS_SUBJECTS)
-        .map(|i| {
-            orchard_participant(&model, &format!("s{i:02}"), "bench", TRIALS, &mut rng)
-                .expect("the model runs on the orchard design")
-        })
-        .collect();
+    let subjects = if name == "gainloss-linear" {
+        read_trials(&committed_data(), &ColumnMap::default())
+            .expect("the committed trial table")
+            .subjects
+    } else {
+        let mut rng = ChaCha8Rng::seed_from_u64(7);
+        (0..PROCESS_SUBJECTS)
+            .map(|i| {
+                orchard_participant(&model, &format!("s{i:02}"), "bench", TRIALS, &mut rng)
+                    .expect("the model runs on the orchard design")
+            })
+            .collect()
+    };
+    assert_eq!(subjects.len(), PROCESS_SUBJECTS);
     let options = FitOptions::default();
     // Likelihood evaluations per second on its own.
     let lik = SubjectLikelihood::new(&model, &subjects[0], None).unwrap();
@@ -129,9 +142,14 @@ fn main() {
 fn whole_process(model: &Model, subjects: &[Subject], options: &FitOptions) -> String {
     let binary = common::release_binary();
     let dir = tempfile::tempdir().expect("a temporary folder");
-    let data = dir.path().join("subjects.csv");
-    let mut file = std::fs::File::create(&data).expect("a data file");
-    common::write_subjects(&mut file, subjects.to_vec(), true);
+    let data = if model.name == "gainloss-linear" {
+        committed_data()
+    } else {
+        let data = dir.path().join("subjects.csv");
+        let mut file = std::fs::File::create(&data).expect("a data file");
+        common::write_subjects(&mut file, subjects.to_vec(), true);
+        data
+    };
     let n = subjects.len() as f64;
     let start = processor_seconds();
     for subject in subjects {
@@ -177,6 +195,11 @@ fn whole_process(model: &Model, subjects: &[Subject], options: &FitOptions) -> S
         startup_wall.0,
         cpu.0 - fitting
     )
+}
+
+/// The 10 participants of `gainloss-linear` as committed (see the module docs).
+fn committed_data() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("examples/data/fit_speed_trials.csv")
 }
 
 /// Processor time of this process so far, in seconds.
