@@ -764,6 +764,25 @@ pub fn sha256_of_file(path: &Path) -> Result<String, InputError> {
     Ok(format!("{:x}", hasher.finalize()))
 }
 
+/// Runs `read` on the file at `path` between two SHA-256 digests of it ([`sha256_of_file`]) and
+/// returns what it read with the digest, which then describes the bytes that were read (unless
+/// the file was changed and changed back within the read). A file that changes while it is read
+/// is an error: what was read may be neither version.
+pub fn read_with_digest<T>(
+    path: &Path,
+    read: impl FnOnce() -> Result<T, InputError>,
+) -> Result<(T, String), InputError> {
+    let before = sha256_of_file(path)?;
+    let value = read()?;
+    if sha256_of_file(path)? != before {
+        return Err(InputError::file(
+            path,
+            "changed while it was read; run again once nothing writes to it",
+        ));
+    }
+    Ok((value, before))
+}
+
 /// A file of an [`OutputSet`] being written (from [`OutputSet::stage_writer`]).
 pub struct StagedFile {
     /// Where the file will be once the set is committed (for messages).
@@ -787,5 +806,36 @@ impl StagedFile {
             path: self.path.clone(),
             message: error.to_string(),
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A digest stands for the bytes that were read only if the file held still (common
+    /// practice): a change during the read is refused, naming the file; a still file gives the
+    /// digest of its bytes (SHA-256 of "abc" from FIPS 180-2, appendix B.1).
+    #[test]
+    fn a_file_that_changes_while_it_is_read_is_refused_and_a_still_one_gives_its_digest() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("design.csv");
+        std::fs::write(&path, "abc").unwrap();
+        let (text, digest) =
+            read_with_digest(&path, || Ok(std::fs::read_to_string(&path).unwrap())).unwrap();
+        assert_eq!(text, "abc");
+        assert_eq!(
+            digest,
+            "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
+        );
+        let changed = read_with_digest(&path, || {
+            std::fs::write(&path, "abd").unwrap();
+            Ok(())
+        });
+        let message = changed.unwrap_err().to_string();
+        assert!(
+            message.contains("design.csv") && message.contains("changed while it was read"),
+            "{message}"
+        );
     }
 }

@@ -63,21 +63,43 @@ fn model_reference(plan: &Path, name: &str) -> String {
     }
 }
 
+/// A plan as read, with the SHA-256 of the design and population files as they were parsed.
+pub struct Loaded {
+    /// The plan.
+    pub plan: Plan,
+    /// SHA-256 of the design file.
+    pub design_sha256: String,
+    /// SHA-256 of the population file, when the plan names one.
+    pub population_sha256: Option<String>,
+}
+
 /// Reads the plan file, its design, models and population file, and checks them together.
-pub fn load(plan_path: &Path) -> Result<Plan, Box<dyn std::error::Error>> {
+pub fn load(plan_path: &Path) -> Result<Loaded, Box<dyn std::error::Error>> {
+    use crate::files::read_with_digest;
     let spec = PlanSpec::read(plan_path)?;
     let design_path = beside(plan_path, &spec.design);
-    let design = super::input::read_table(&design_path, &crate::data::ColumnMap::default())?;
+    let (design, design_sha256) = read_with_digest(&design_path, || {
+        super::input::read_table(&design_path, &crate::data::ColumnMap::default())
+    })?;
     let mut candidates = Vec::new();
     for name in &spec.models {
         candidates.push(crate::model::load_model(&model_reference(plan_path, name))?);
     }
-    let values_file = match &spec.population_file {
-        Some(p) => Some(ValuesFile::read(&beside(plan_path, p))?),
-        None => None,
+    let (values_file, population_sha256) = match &spec.population_file {
+        Some(p) => {
+            let path = beside(plan_path, p);
+            let (values, digest) = read_with_digest(&path, || ValuesFile::read(&path))?;
+            (Some(values), Some(digest))
+        }
+        None => (None, None),
     };
-    Plan::new(spec, design, candidates, values_file)
-        .map_err(|e| format!("{}: {e}", plan_path.display()).into())
+    let plan = Plan::new(spec, design, candidates, values_file)
+        .map_err(|e| format!("{}: {e}", plan_path.display()))?;
+    Ok(Loaded {
+        plan,
+        design_sha256,
+        population_sha256,
+    })
 }
 
 /// Everything the plan computed.
@@ -110,7 +132,8 @@ pub fn run(
 ) -> Result<Option<PlanResults>, Box<dyn std::error::Error>> {
     let replace = from_shards.as_ref().map_or(replace, |f| f.replace);
     let mut outputs = OutputSet::create(out, replace)?;
-    let plan = load(plan_path)?;
+    let loaded = load(plan_path)?;
+    let plan = &loaded.plan;
     let started = std::time::Instant::now();
     eprintln!(
         "plan: {} generating model(s) × {} studies × {} group(s) × {} participants, {} design \
@@ -149,7 +172,7 @@ pub fn run(
         }
     }
     let command_line = shard::without_shard(command_line);
-    let mut record = record(&plan, plan_path, &command_line)?;
+    let mut record = record(&loaded, plan_path, &command_line);
     let jobs = plan.jobs();
     let studies = match from_shards {
         Some(done) => {
@@ -217,14 +240,14 @@ pub fn run(
         return Ok(None);
     }
     let results = PlanResults {
-        recovery: summaries::recovery(&plan, &studies),
-        confusion: summaries::confusion(&plan, &studies),
-        model_recovery: summaries::model_recovery(&plan, &studies),
-        power: summaries::power(&plan, &studies),
+        recovery: summaries::recovery(plan, &studies),
+        confusion: summaries::confusion(plan, &studies),
+        model_recovery: summaries::model_recovery(plan, &studies),
+        power: summaries::power(plan, &studies),
         trials_needed: Vec::new(),
     };
     let results = PlanResults {
-        trials_needed: summaries::trials_needed(&plan, &results.recovery),
+        trials_needed: summaries::trials_needed(plan, &results.recovery),
         ..results
     };
     tables::recovery_table(&results.recovery).stage_both(&mut outputs, out, RECOVERY)?;
@@ -240,7 +263,7 @@ pub fn run(
         out,
         TRIALS_NEEDED,
     )?;
-    tables::estimates_table(&plan, &studies).stage_both(&mut outputs, out, ESTIMATES)?;
+    tables::estimates_table(plan, &studies).stage_both(&mut outputs, out, ESTIMATES)?;
     stage_record(&mut outputs, out, &record)?;
     outputs.commit()?;
     print_results(&results);
@@ -265,27 +288,19 @@ fn stage_record(
     })
 }
 
-/// The run record: the plan as read, the SHA-256 of its design and population files (so that
-/// shards simulated on different designs are not merged as one run), each generating model's
-/// population in words, the models' definitions and the command line.
-fn record(
-    plan: &Plan,
-    plan_path: &Path,
-    command_line: &[String],
-) -> Result<serde_json::Value, crate::files::InputError> {
-    let digest = |path: &Path| crate::files::sha256_of_file(&beside(plan_path, path));
-    let population_sha256 = match &plan.spec.population_file {
-        Some(path) => Some(digest(path)?),
-        None => None,
-    };
-    Ok(serde_json::json!({
+/// The run record: the plan as read, the SHA-256 of its design and population files as they
+/// were parsed (so that shards simulated on different designs are not merged as one run), each
+/// generating model's population in words, the models' definitions and the command line.
+fn record(loaded: &Loaded, plan_path: &Path, command_line: &[String]) -> serde_json::Value {
+    let plan = &loaded.plan;
+    serde_json::json!({
         "tool": "valuedrift",
         "version": env!("CARGO_PKG_VERSION"),
         "command_line": command_line,
         "plan_file": plan_path.display().to_string(),
         "plan": plan.spec,
-        "design_sha256": digest(&plan.spec.design)?,
-        "population_file_sha256": population_sha256,
+        "design_sha256": loaded.design_sha256,
+        "population_file_sha256": loaded.population_sha256,
         "groups": plan.groups,
         "models": plan.candidates.iter().map(|m| serde_json::json!({
             "name": m.name,
@@ -305,7 +320,7 @@ fn record(
             }))
         }).collect::<Vec<_>>(),
         "caution": super::RESEARCH_CAUTION,
-    }))
+    })
 }
 
 fn optional(x: Option<f64>) -> String {
