@@ -27,6 +27,10 @@
 //! constant of 0.25 s), each from its own stream seeded by the participant, so every other
 //! generating value, the design and the seed of the simulation are those of the `orchard`
 //! study; `only`, comma-separated participant indices, fits just those, as the study made them).
+//! `fitted` may be `-`: the participants are then only simulated. Every run also writes them
+//! as a trial table, `collapse_recovery_trials.csv` (response times to 0.1 ms), with their
+//! generating values in `collapse_recovery_truth.csv`, so that the same data can be fitted by
+//! the command line, e.g. `valuedrift fit --hierarchical`.
 //! A line per fit goes to `collapse_recovery.csv.partial` in the working folder as soon as its
 //! participant is done, renamed `collapse_recovery.csv` when the study ends; besides the fit it
 //! gives the seconds, the likelihood evaluations and how many of them were on the model's own
@@ -42,10 +46,16 @@ use std::io::Write;
 use std::sync::Mutex;
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::time::Instant;
+use valuedrift::data::Subject;
 use valuedrift::fit::{FitOptions, SubjectFit, fit_subject_with_work};
 use valuedrift::likelihood::SubjectLikelihood;
 use valuedrift::model::{Model, load_model, parse_model};
 use valuedrift::plan::summaries::pearson;
+// Only its table writer is used here.
+#[allow(dead_code)]
+#[path = "common/mod.rs"]
+mod common;
+
 use valuedrift::simulate::{
     SimulationSettings, orchard_design, orchard_generating_values, simulate_subject,
 };
@@ -72,6 +82,7 @@ struct Case {
     generator: usize,
     index: usize,
     truth: Vec<f64>,
+    subject: Subject,
     fits: Vec<SubjectFit>,
 }
 
@@ -145,6 +156,27 @@ fn spanning(model: &Model, truth: &mut [f64], seed: u64) {
     }
 }
 
+/// Writes the simulated participants as a trial table (`collapse_recovery_trials.csv`, response
+/// times to 0.1 ms, for `valuedrift fit`, e.g. with `--hierarchical`) and their generating values
+/// (`collapse_recovery_truth.csv`: participant, generating model, parameter, value).
+fn write_participants(models: &[Model], cases: &[Case]) {
+    let mut trials =
+        std::fs::File::create("collapse_recovery_trials.csv").expect("a writable folder");
+    let subjects = cases.iter().map(|c| c.subject.clone()).collect();
+    common::write_subjects(&mut trials, subjects, true);
+    let mut truth = String::from("participant,generator,parameter,value\n");
+    for case in cases {
+        let model = &models[case.generator];
+        for (p, value) in model.parameters.iter().zip(&case.truth) {
+            truth.push_str(&format!(
+                "{},{},{},{value}\n",
+                case.subject.id, model.name, p.name
+            ));
+        }
+    }
+    std::fs::write("collapse_recovery_truth.csv", truth).expect("a writable folder");
+}
+
 /// One parameter's recovery: generating values, estimates and 95 % intervals, by participant.
 #[derive(Default)]
 struct Recovery {
@@ -168,6 +200,9 @@ fn main() {
     // (e.g. "0,1").
     let indices = |k: usize| -> Vec<usize> {
         std::env::args().nth(k).map_or(vec![0, 1, 2], |a| {
+            if a == "-" {
+                return Vec::new();
+            }
             a.split(',')
                 .map(|g| g.parse().expect("indices 0, 1, 2"))
                 .collect()
@@ -259,6 +294,7 @@ fn main() {
                 generator: g,
                 index: i,
                 truth,
+                subject,
                 fits,
             };
             {
@@ -283,6 +319,15 @@ fn main() {
         .collect();
     drop(file);
     std::fs::rename(PARTIAL, "collapse_recovery.csv").expect("the table is renamed");
+    write_participants(&models, &cases);
+    if fitted.is_empty() {
+        println!(
+            "{} participants simulated, none fitted: collapse_recovery_trials.csv and \
+             collapse_recovery_truth.csv written",
+            cases.len()
+        );
+        return;
+    }
     let mut confusion = vec![vec![0usize; models.len()]; models.len()];
     let mut flagged = vec![0usize; models.len()];
     // The hypotheses' parameters, each recovered from the data of its own model: generating
