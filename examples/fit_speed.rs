@@ -67,8 +67,9 @@ fn main() {
         .nth(1)
         .unwrap_or_else(|| "gainloss-linear".into());
     let model = load_model(&name).expect("a built-in model");
-    let subjects = if name == "gainloss-linear" {
-        read_trials(&committed_data(), &ColumnMap::default())
+    let committed = (name == "gainloss-linear").then(committed_data);
+    let subjects = if let Some(path) = &committed {
+        read_trials(path, &ColumnMap::default())
             .expect("the committed trial table")
             .subjects
     } else {
@@ -128,7 +129,7 @@ fn main() {
         total as f64 / SUBJECTS as f64
     );
     assert!(sink.is_finite());
-    let process = whole_process(&model, &subjects, &options);
+    let process = whole_process(&model, &subjects, &options, committed.as_deref());
     println!(
         "{SUBJECTS} subjects x {TRIALS} trials of model {name}, {} starts, 1 thread",
         options.starts
@@ -137,19 +138,25 @@ fn main() {
     println!("{process}");
 }
 
-/// Times the release binary's `fit` on `subjects` written as CSV, the binary's start-up and
-/// fitting the same subjects here; returns the summary line.
-fn whole_process(model: &Model, subjects: &[Subject], options: &FitOptions) -> String {
+/// Times the release binary's `fit` on `subjects` (the table at `committed`, or written as CSV
+/// here), the binary's start-up and fitting the same subjects here; returns the summary line.
+fn whole_process(
+    model: &Model,
+    subjects: &[Subject],
+    options: &FitOptions,
+    committed: Option<&Path>,
+) -> String {
     let binary = common::release_binary();
     let dir = tempfile::tempdir().expect("a temporary folder");
-    let data = if model.name == "gainloss-linear" {
-        committed_data()
-    } else {
-        let data = dir.path().join("subjects.csv");
-        let mut file = std::fs::File::create(&data).expect("a data file");
-        common::write_subjects(&mut file, subjects.to_vec(), true);
-        data
-    };
+    let data = committed.map_or_else(
+        || {
+            let data = dir.path().join("subjects.csv");
+            let mut file = std::fs::File::create(&data).expect("a data file");
+            common::write_subjects(&mut file, subjects.to_vec(), true);
+            data
+        },
+        Path::to_path_buf,
+    );
     let n = subjects.len() as f64;
     let start = processor_seconds();
     for subject in subjects {

@@ -315,7 +315,9 @@ fn wald_sum(lambda: f64, u: f64, w: f64) -> f64 {
         let decreasing = x > sqrt_u + lambda.abs() * u;
         if k > 0 && decreasing && images_bound(lambda, u, sqrt_u, kf, x, y) < ln_pos + LN_SERIES_EPS
         {
-            // Every image from here on is below SERIES_EPS of the sum without being computed.
+            // Every term of this image and of the later ones is below SERIES_EPS of the positive
+            // part of the sum (the test the loop makes below with the terms themselves), known
+            // without computing them.
             break;
         }
         let a = 2.0 * lambda * kf + ln_normal_cdf((-lambda * u - x) / sqrt_u);
@@ -327,7 +329,7 @@ fn wald_sum(lambda: f64, u: f64, w: f64) -> f64 {
         ln_neg = ln_add_exp(ln_neg, ln_add_exp(c, d));
         let top = a.max(b).max(c).max(d);
         let past_peak = top < previous_top && decreasing;
-        if past_peak && top < ln_pos + SERIES_EPS.ln() {
+        if past_peak && top < ln_pos + LN_SERIES_EPS {
             break;
         }
         previous_top = top;
@@ -336,11 +338,11 @@ fn wald_sum(lambda: f64, u: f64, w: f64) -> f64 {
 }
 
 /// An upper bound on the four log-terms of image k of [`wald_sum`] (levels x = w + 2k and
-/// y = 2(k + 1) − w), by the Chernoff bound Φ(z) ≤ e^{−z²/2}/2 for z ≤ 0 (common practice):
-/// where x > √u + |λ|·u every
+/// y = 2(k + 1) − w), by the Gaussian tail bound Φ(z) ≤ e^{−z²/2}/2 for z ≤ 0 (the Chernoff
+/// bound sharpened by the factor 1/2; common practice, from memory): where x > √u + |λ|·u every
 /// argument of Φ is below −1, and each bound falls as k grows (its exponent has slope −2x/u or
-/// −2y/u in k), so the bound on image k bounds every later image too. It costs no special
-/// function, where the terms themselves cost four normal tails.
+/// −2y/u in k), so the bound on image k bounds every term of the later images too. It costs no
+/// special function, where the terms themselves cost four normal tails.
 fn images_bound(lambda: f64, u: f64, sqrt_u: f64, k: f64, x: f64, y: f64) -> f64 {
     let tail = |z: f64| -0.5 * z * z - std::f64::consts::LN_2;
     let m = k + 1.0;
@@ -378,4 +380,50 @@ pub(crate) fn large_time_survival(lambda: f64, u: f64, w: f64) -> f64 {
         return f64::NEG_INFINITY;
     }
     LN_2PI - lambda * w - 0.5 * lambda2 * u - 0.5 * pi2 * u + sum.ln()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The bound that ends the Wald sum early holds term by term: on a grid of drifts, starts
+    /// and standardised times, every term of every image where [`wald_sum`] may use the bound
+    /// (x > √u + |λ|·u) is at most the bound on its own image and on every earlier image (the
+    /// tail bound Φ(z) ≤ e^{−z²/2}/2 for z ≤ 0; common practice, from memory).
+    #[test]
+    fn the_images_bound_is_above_every_term_of_its_image_and_of_the_later_ones() {
+        let mut checked = 0;
+        for lambda in [-12.0_f64, -4.0, -1.0, -0.1, 0.0, 0.3, 2.0, 7.0, 15.0] {
+            for w in [0.01, 0.2, 0.5, 0.8, 0.99] {
+                for u in [1e-3, 0.01, 0.05, 0.1, 0.2, 0.35, 0.49] {
+                    let sqrt_u = f64::sqrt(u);
+                    let mut earlier = f64::INFINITY;
+                    for k in 1..6 {
+                        let kf = k as f64;
+                        let (x, m) = (w + 2.0 * kf, kf + 1.0);
+                        let y = 2.0 * m - w;
+                        if x <= sqrt_u + lambda.abs() * u {
+                            continue;
+                        }
+                        let bound = images_bound(lambda, u, sqrt_u, kf, x, y);
+                        earlier = earlier.min(bound);
+                        let terms = [
+                            2.0 * lambda * kf + ln_normal_cdf((-lambda * u - x) / sqrt_u),
+                            2.0 * lambda * (kf - x) + ln_normal_cdf((lambda * u - x) / sqrt_u),
+                            -2.0 * lambda * m + ln_normal_cdf((lambda * u - y) / sqrt_u),
+                            2.0 * lambda * (y - m) + ln_normal_cdf((-lambda * u - y) / sqrt_u),
+                        ];
+                        for term in terms {
+                            assert!(
+                                term <= bound && term <= earlier,
+                                "λ={lambda} w={w} u={u} k={k}: term {term} above {bound}"
+                            );
+                            checked += 1;
+                        }
+                    }
+                }
+            }
+        }
+        assert!(checked > 1000, "only {checked} terms were checked");
+    }
 }
