@@ -182,6 +182,30 @@ pub(crate) fn ln_density_with_gradient_at(
     fixed_with_gradient(rt, bound, drift, params)
 }
 
+/// The value of [`ln_density_with_gradient_at`] alone, the same number to the last bit: without
+/// start or non-decision range the kernel's log-density is computed by the same operations
+/// whether or not it also gives the partial derivatives (only they are skipped); with them it
+/// is taken from [`ln_density_with_gradient_at`].
+pub(crate) fn ln_density_at(rt: f64, bound: Bound, drift: f64, params: &DiffusionParams) -> f64 {
+    if params.has_integrated_variability() {
+        return ln_density_with_gradient_at(rt, bound, drift, params).0;
+    }
+    let t = rt - params.ndt;
+    if !positive(t) {
+        return f64::NEG_INFINITY;
+    }
+    let (v, terms) = oriented_start(drift, params, bound);
+    lower_bound_kernel::<false>(
+        t,
+        v,
+        params.boundary,
+        params.drift_sd,
+        params.ln_boundary,
+        &terms,
+    )
+    .0
+}
+
 /// [`ln_density_with_gradient`] without start or non-decision range, at drift `drift`: the
 /// kernel alone (the hot path of fits).
 #[inline]

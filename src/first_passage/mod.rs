@@ -51,8 +51,8 @@ mod quadrature;
 mod sampler;
 mod series;
 
-pub(crate) use density::ln_density_with_gradient_at;
 pub use density::{DensityGradient, ln_density, ln_density_with_gradient};
+pub(crate) use density::{ln_density_at, ln_density_with_gradient_at};
 pub use distribution::{
     bound_probability, cdf, ln_bound_probability, ln_bound_probability_with_gradient, ln_cdf,
     ln_prob_no_response, ln_survival, ln_survival_with_gradient, survival,

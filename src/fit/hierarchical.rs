@@ -503,7 +503,7 @@ pub fn sampled_log_marginal(
 ) -> (f64, f64) {
     let logs: Vec<f64> = samples
         .iter()
-        .map(|theta| likelihood.evaluate(theta).ln_likelihood)
+        .map(|theta| likelihood.ln_likelihood(theta))
         .map(|l| if l.is_finite() { l } else { f64::NEG_INFINITY })
         .collect();
     let top = logs.iter().copied().fold(f64::NEG_INFINITY, f64::max);

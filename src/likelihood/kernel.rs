@@ -26,7 +26,7 @@
 use super::adjoint::Adjoint;
 use crate::data::Subject;
 use crate::first_passage::{
-    Bound, ln_bound_probability_with_gradient, ln_density_with_gradient_at,
+    Bound, ln_bound_probability_with_gradient, ln_density_at, ln_density_with_gradient_at,
 };
 use crate::model::Model;
 use crate::model::components::{
@@ -137,6 +137,17 @@ impl Kernel {
     /// ln L and its partial derivatives at the natural values `p` of every model parameter by
     /// slot, or `None` when this point or the lock is outside the kernel.
     pub(super) fn run(&self, p: &[f64], lock: Option<f64>) -> Option<Adjoint> {
+        self.pass::<true>(p, lock)
+    }
+
+    /// ln L alone, the same number as [`Kernel::run`]'s to the last bit (the same terms summed
+    /// in the same order; only the partial derivatives and the backward loop are skipped).
+    pub(super) fn ln_likelihood(&self, p: &[f64], lock: Option<f64>) -> Option<f64> {
+        self.pass::<false>(p, lock).map(|a| a.ln_likelihood)
+    }
+
+    /// [`Kernel::run`], or with `GRAD` false ln L with zero derivatives.
+    fn pass<const GRAD: bool>(&self, p: &[f64], lock: Option<f64>) -> Option<Adjoint> {
         if lock.is_some() || p[self.stage.lapse()] > 0.0 {
             return None;
         }
@@ -155,6 +166,10 @@ impl Kernel {
             let x = linear_cost(q[a], trial.effort[0], k) - linear_cost(q[b], trial.effort[1], k);
             let drift = linear_drift(self.intercept, self.scale, x, p)?.value;
             let d_drift = match trial.score {
+                Score::Density(bound, rt) if !GRAD => {
+                    ln_likelihood += ln_density_at(rt, bound, drift, &base);
+                    0.0
+                }
                 Score::Density(bound, rt) => {
                     let (ln_f, g) = ln_density_with_gradient_at(rt, bound, drift, &base);
                     let partials = local_partials(g);
@@ -185,11 +200,20 @@ impl Kernel {
                 }
                 None => (0.0, 0),
             };
-            steps.push(Step {
-                d_drift,
-                x,
-                error,
-                rate,
+            if GRAD {
+                steps.push(Step {
+                    d_drift,
+                    x,
+                    error,
+                    rate,
+                });
+            }
+        }
+        if !GRAD {
+            return Some(Adjoint {
+                ln_likelihood,
+                d_natural: Vec::new(),
+                d_theta: Vec::new(),
             });
         }
         for (&slot, d) in self.stage.0.iter().zip(stage) {

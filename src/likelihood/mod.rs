@@ -353,6 +353,19 @@ impl<'a> SubjectLikelihood<'a> {
         self.evaluate_fast(theta, true)
     }
 
+    /// ln L alone at θ, the same number as [`SubjectLikelihood::evaluate`]'s `ln_likelihood` to
+    /// the last bit: the fused kernel without its derivatives where it applies, else
+    /// [`SubjectLikelihood::evaluate`] itself (for draws where only the value is used, such as
+    /// the integrated BIC's).
+    pub fn ln_likelihood(&self, theta: &[f64]) -> f64 {
+        assert!(theta.len() == self.free.len());
+        let (natural, _) = self.plain_values(theta);
+        self.kernel
+            .as_ref()
+            .and_then(|k| k.ln_likelihood(&natural, self.context.lock))
+            .unwrap_or_else(|| self.evaluate(theta).ln_likelihood)
+    }
+
     /// [`SubjectLikelihood::evaluate`] without the fused kernel: the generic fast path (or the
     /// dual-number path outside it), which the kernel must match to the last bit (for tests and
     /// benchmarks).

@@ -220,7 +220,8 @@ fn fast_path_equals_the_dual_path_with_across_trial_variability() {
 
 /// Evaluates with and without the fused kernel at `draws` random θ (components uniform in
 /// [−2.5, 2.5]): the same ln L, ln prior and gradient to the last bit (the kernel computes the
-/// generic fast path's numbers in its order, see src/likelihood/kernel.rs); then compares with
+/// generic fast path's numbers in its order, see src/likelihood/kernel.rs), and the same ln L
+/// from the value-only pass (`SubjectLikelihood::ln_likelihood`); then compares with
 /// the dual-number path ([`compare`]). Returns how many points took the kernel.
 fn compare_kernel(lik: &SubjectLikelihood<'_>, rng: &mut ChaCha8Rng, draws: usize) -> usize {
     let mut kernel = 0;
@@ -232,6 +233,13 @@ fn compare_kernel(lik: &SubjectLikelihood<'_>, rng: &mut ChaCha8Rng, draws: usiz
         let fused = lik.evaluate(&theta);
         let generic = lik.evaluate_without_kernel(&theta);
         let name = &lik.model().name;
+        let value = lik.ln_likelihood(&theta);
+        assert_eq!(
+            value.to_bits(),
+            fused.ln_likelihood.to_bits(),
+            "{name} at {theta:?}: ln L alone {value} vs {}",
+            fused.ln_likelihood
+        );
         assert_eq!(
             fused.ln_likelihood.to_bits(),
             generic.ln_likelihood.to_bits(),
