@@ -146,7 +146,8 @@ impl Kernel {
         self.pass::<false>(p, lock).map(|a| a.ln_likelihood)
     }
 
-    /// [`Kernel::run`], or with `GRAD` false ln L with zero derivatives.
+    /// [`Kernel::run`]; with `GRAD` false ln L alone (empty derivative vectors, no backward
+    /// loop).
     fn pass<const GRAD: bool>(&self, p: &[f64], lock: Option<f64>) -> Option<Adjoint> {
         if lock.is_some() || p[self.stage.lapse()] > 0.0 {
             return None;
