@@ -68,13 +68,13 @@ pub fn sample<R: Rng + ?Sized>(params: &DiffusionParams, rng: &mut R) -> (Bound,
 /// A starting point for the inversion: ln of the q-quantile of a lognormal distribution with the
 /// conditional mean of the lower-bound decision time (Grasman, Wagenmakers & van der Maas 2009,
 /// eq. 8, standardised) and squared coefficient of variation 1/(1 + |λ|·w). The inverse Gaussian
-/// first passage of a strong drift has 1/(|λ|·w) (Chhikara & Folks 1989, ch. 2); at λ = 0 the
-/// guess takes 1, between the symmetric exit time's 2/3 and the larger values of starts near
-/// the bound (a rough interpolation, chosen by the evaluations it saves on the unit test's grid:
-/// only the number of Newton steps depends on it, not the root). The normal quantile is the
-/// rational approximation of Abramowitz & Stegun 1964, 26.2.23 (error below 4.5e-4). On the
-/// grid of the unit test the inversion then takes 4.6 evaluations on average (at most 7),
-/// against 6.1 (at most 16) from the conditional mean alone.
+/// first passage of a strong drift has 1/(|λ|·w) (Chhikara & Folks 1989, ch. 2, from memory);
+/// at λ = 0 the guess takes 1, between the symmetric exit time's 2/3 and the larger values of
+/// starts near the bound (a rough interpolation, chosen by the evaluations it saves on the unit
+/// test's grid: only the number of Newton steps depends on it, not the root). The normal
+/// quantile is the rational approximation of Abramowitz & Stegun 1964, 26.2.23 (error below
+/// 4.5e-4; from memory). On the grid of the unit test the inversion then takes 4.6 evaluations
+/// on average (at most 7), against 6.1 (at most 16) from the conditional mean alone.
 fn initial_log_time(lambda: f64, w: f64, q: f64) -> f64 {
     let mean = super::moments::conditional_mean_std(lambda, 1.0 - w);
     // σ² of the lognormal: ln(1 + CV²).
