@@ -156,7 +156,8 @@ impl Kernel {
         let (k, scale) = (p[self.weight], p[self.scale]);
         let initial = self.initial.map_or(0.0, |slot| p[slot]);
         let mut q = vec![initial; self.n_options];
-        let mut steps = Vec::with_capacity(self.trials.len());
+        // The backward loop's record, kept only when there is a backward loop.
+        let mut steps = Vec::with_capacity(if GRAD { self.trials.len() } else { 0 });
         let mut ln_likelihood = 0.0;
         // The stage parameters' partial derivatives: summed over the trials scored by their
         // density, added one trial at a time for the others (as the stage's batch call does).
